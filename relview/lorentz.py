@@ -1,0 +1,134 @@
+"""Lorentz kinematics: boosts, aberration, velocity composition, Doppler factor.
+
+Conventions (docs/physics.md, shared design contract):
+
+* Events are 4-vectors ``(ct, x, y, z)`` in metres: time is carried as ``ct``
+  so that c = 1 inside the program. Scene files and output layers use seconds;
+  convert with :data:`C`.
+* ``beta`` is a velocity divided by c, a 3-vector with ``|beta| < 1``.
+* A *direction towards the source* ``d`` is a unit 3-vector pointing from the
+  camera to what it sees; light propagates along ``n = -d``.
+
+All functions take plain numpy arrays and broadcast over leading axes.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+#: Speed of light in vacuum, m/s (exact, SI definition since 1983).
+C = 299_792_458.0
+
+
+def lorentz_factor(beta) -> np.ndarray:
+    """gamma = 1/sqrt(1 - |beta|^2) for (..., 3) beta."""
+    beta = np.asarray(beta, dtype=float)
+    b2 = np.sum(beta * beta, axis=-1)
+    if np.any(b2 >= 1.0):
+        raise ValueError(f"speed at or above c: |beta| = {np.sqrt(np.max(b2)):.6g}")
+    return 1.0 / np.sqrt(1.0 - b2)
+
+
+def boost_matrix(beta) -> np.ndarray:
+    """4x4 matrix taking (ct, x) in frame S to the frame moving with ``beta``.
+
+    Standard pure boost (e.g. Jackson, Classical Electrodynamics, eq. 11.98):
+    ct' = gamma (ct - beta.x),
+    x'  = x + ((gamma-1)/b^2)(beta.x) beta - gamma beta ct.
+    """
+    beta = np.asarray(beta, dtype=float).reshape(3)
+    b2 = float(beta @ beta)
+    g = float(lorentz_factor(beta))
+    m = np.eye(4)
+    m[0, 0] = g
+    m[0, 1:] = -g * beta
+    m[1:, 0] = -g * beta
+    if b2 > 0.0:
+        m[1:, 1:] += (g - 1.0) / b2 * np.outer(beta, beta)
+    return m
+
+
+def galilean_matrix(beta) -> np.ndarray:
+    """4x4 Galilean map (ct, x) -> (ct, x - beta ct): the 'contraction off' kinematics."""
+    beta = np.asarray(beta, dtype=float).reshape(3)
+    m = np.eye(4)
+    m[1:, 0] = -beta
+    return m
+
+
+def boost_event(beta, event) -> np.ndarray:
+    """Boost (..., 4) events (ct, x) into the frame moving with ``beta``."""
+    return np.asarray(event, dtype=float) @ boost_matrix(beta).T
+
+
+def compose_velocities(beta_frame, beta_inside) -> np.ndarray:
+    """Velocity in S of an object moving with ``beta_inside`` in a frame that moves with
+    ``beta_frame`` in S (relativistic velocity addition; Jackson eq. 11.31, Rindler 2006 §3.6).
+
+    Collinear case reduces to (u + v) / (1 + u v).
+    """
+    v = np.asarray(beta_frame, dtype=float).reshape(3)
+    u = np.asarray(beta_inside, dtype=float)
+    # Boost the object's 4-velocity out of the moving frame: S-frame = boost(-v).
+    gu = lorentz_factor(u)
+    four = np.concatenate([np.atleast_1d(gu)[..., None], u * np.atleast_1d(gu)[..., None]], -1)
+    out = four @ boost_matrix(-v).T
+    res = out[..., 1:] / out[..., :1]
+    return res.reshape(u.shape)
+
+
+def aberrate_to_scene(d_cam, beta_cam) -> np.ndarray:
+    """Direction towards the source seen in the camera frame -> the same photon in S.
+
+    The photon's 4-momentum in the camera frame is k' = (1, -d'); S moves with
+    -beta_cam relative to the camera, so k = boost(-beta_cam) k'.  Equivalent to
+    the textbook aberration formula (Einstein 1905, §7):
+    cos(theta) = (cos(theta') - beta) / (1 - beta cos(theta')).
+    """
+    d_cam = np.asarray(d_cam, dtype=float)
+    k = np.concatenate([np.ones(d_cam.shape[:-1] + (1,)), -d_cam], axis=-1)
+    ks = k @ boost_matrix(-np.asarray(beta_cam, dtype=float)).T
+    return -ks[..., 1:] / ks[..., :1]
+
+
+def aberrate_to_camera(d_scene, beta_cam) -> np.ndarray:
+    """Inverse of :func:`aberrate_to_scene`: S direction towards the source -> camera frame.
+
+    cos(theta') = (cos(theta) + beta) / (1 + beta cos(theta)) (Einstein 1905, §7).
+    """
+    d_scene = np.asarray(d_scene, dtype=float)
+    k = np.concatenate([np.ones(d_scene.shape[:-1] + (1,)), -d_scene], axis=-1)
+    kc = k @ boost_matrix(np.asarray(beta_cam, dtype=float)).T
+    return -kc[..., 1:] / kc[..., :1]
+
+
+def doppler_factor(beta_emit, beta_cam, n) -> np.ndarray:
+    """D = nu_observed / nu_emitted for light propagating along unit ``n`` (emitter -> camera).
+
+    D = gamma_cam (1 - beta_cam.n) / (gamma_emit (1 - beta_emit.n))
+    (ratio of k.u for the two 4-velocities; Rybicki & Lightman 1979, eq. 4.11).
+    """
+    beta_emit = np.asarray(beta_emit, dtype=float)
+    beta_cam = np.asarray(beta_cam, dtype=float)
+    n = np.asarray(n, dtype=float)
+    g_cam = lorentz_factor(beta_cam)
+    g_emit = lorentz_factor(beta_emit)
+    num = g_cam * (1.0 - np.sum(beta_cam * n, axis=-1))
+    den = g_emit * (1.0 - np.sum(beta_emit * n, axis=-1))
+    return num / den
+
+
+def contract(x_rest, beta) -> np.ndarray:
+    """Rest-frame displacement -> S displacement between simultaneous (in S) events.
+
+    The component along beta shrinks by 1/gamma (Lorentz-FitzGerald contraction);
+    the perpendicular part is unchanged.
+    """
+    x_rest = np.asarray(x_rest, dtype=float)
+    beta = np.asarray(beta, dtype=float).reshape(3)
+    b2 = float(beta @ beta)
+    if b2 == 0.0:
+        return x_rest.copy()
+    g = float(lorentz_factor(beta))
+    along = (x_rest @ beta) / b2
+    return x_rest - np.multiply.outer(along, beta) * (1.0 - 1.0 / g)

@@ -1,0 +1,150 @@
+"""The Scene: plain dataclasses describing camera, bodies, motions, surfaces, sky.
+
+Everything here is in scene-file units (metres, seconds, beta = v/c) except where a
+name says otherwise. Reading and validating TOML lives in :mod:`relview.loader`;
+this module only holds the validated result, so scripts can also build a Scene
+in code (``Scene.from_dict``).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+
+@dataclass
+class Effects:
+    """Switches for each effect; every one is on by default (docs/scene-format.md)."""
+
+    delay: bool = True  # light-travel time; off: light is instantaneous
+    contraction: bool = True  # Lorentz kinematics; off: Galilean
+    aberration: bool = True  # aberration of the camera's own motion
+    doppler: bool = True  # colour shift
+    beaming: bool = True  # brightness change with D
+
+
+@dataclass
+class RenderSettings:
+    resolution: tuple[int, int] = (960, 540)  # width, height in pixels
+    samples: int = 1  # rays per pixel, jittered when > 1
+    exposure: float | str = "auto"  # "auto" or the luminance (cd/m2) that maps to white
+    effects: Effects = field(default_factory=Effects)
+    seed: int = 0  # jitter seed, so renders are reproducible
+
+
+@dataclass
+class Camera:
+    position: np.ndarray  # (3,) m, scene frame, at the exposure event
+    look_at: np.ndarray | None = None  # (3,) m
+    direction: np.ndarray | None = None  # (3,) unit, alternative to look_at
+    up: np.ndarray = field(default_factory=lambda: np.array([0.0, 0.0, 1.0]))
+    fov: float = 60.0  # degrees, horizontal (pinhole, fisheye)
+    time: float = 0.0  # s, scene-frame time of the exposure
+    beta: np.ndarray = field(default_factory=lambda: np.zeros(3))  # velocity / c
+    projection: str = "pinhole"  # pinhole | panorama | fisheye
+
+    def forward(self) -> np.ndarray:
+        if self.direction is not None:
+            f = np.asarray(self.direction, float)
+        else:
+            f = np.asarray(self.look_at, float) - np.asarray(self.position, float)
+        return f / np.linalg.norm(f)
+
+    def basis(self) -> np.ndarray:
+        """(3, 3) rows: right, up, forward (unit, right-handed image axes), scene axes."""
+        f = self.forward()
+        r = np.cross(f, np.asarray(self.up, float))
+        n = np.linalg.norm(r)
+        if n < 1e-12:  # looking straight along 'up': pick any perpendicular
+            r = np.cross(f, [1.0, 0.0, 0.0] if abs(f[0]) < 0.9 else [0.0, 1.0, 0.0])
+            n = np.linalg.norm(r)
+        r = r / n
+        u = np.cross(r, f)
+        return np.stack([r, u, f])
+
+
+@dataclass
+class UniformMotion:
+    """Inertial worldline: the body origin is at ``position`` at scene time ``time``."""
+
+    beta: np.ndarray = field(default_factory=lambda: np.zeros(3))
+    position: np.ndarray = field(default_factory=lambda: np.zeros(3))  # m
+    time: float = 0.0  # s
+    kind: str = "uniform"
+
+
+@dataclass
+class Body:
+    name: str
+    shape: str  # box | sphere | cylinder | plane | mesh
+    motion: Any  # UniformMotion or a motion from relview.motion
+    surface: Any  # a surface from relview.materials
+    size: np.ndarray | None = None  # (3,) m box, (2,) m plane
+    radius: float | None = None  # m, sphere and cylinder
+    height: float | None = None  # m, cylinder (along rest-frame z)
+    file: Path | None = None  # mesh file, resolved relative to the scene file
+    scale: float = 1.0  # mesh scale factor
+    rotation: np.ndarray = field(default_factory=lambda: np.zeros(3))  # degrees about x, y, z
+    detail: int | None = None  # tessellation level of curved primitives
+    source_key: str = ""  # where in the scene file this body came from, for messages
+
+    def rotation_matrix(self) -> np.ndarray:
+        """Rest-frame orientation: body axes -> rest-frame axes (x, then y, then z turns)."""
+        ax, ay, az = np.radians(np.asarray(self.rotation, float))
+        cx, sx, cy, sy, cz, sz = np.cos(ax), np.sin(ax), np.cos(ay), np.sin(ay), np.cos(az), np.sin(az)
+        rx = np.array([[1, 0, 0], [0, cx, -sx], [0, sx, cx]])
+        ry = np.array([[cy, 0, sy], [0, 1, 0], [-sy, 0, cy]])
+        rz = np.array([[cz, -sz, 0], [sz, cz, 0], [0, 0, 1]])
+        return rz @ ry @ rx
+
+
+@dataclass
+class Background:
+    kind: str = "black"  # black | stars | graticule
+    count: int = 3000  # stars: how many
+    seed: int = 1  # stars: generator seed
+    temperature: tuple[float, float] = (3000.0, 12000.0)  # K, star temperature range
+    luminance: float = 1.0  # cd/m2 of the sky pattern at rest (graticule), or star scale
+    spacing: float = 15.0  # degrees between graticule lines
+    width: float = 0.4  # degrees, graticule line width
+
+
+@dataclass
+class Animation:
+    start: float = 0.0  # s
+    end: float = 0.0  # s
+    frames: int = 1
+    fps: float = 24.0
+
+
+@dataclass
+class Scene:
+    camera: Camera
+    bodies: list[Body]
+    render: RenderSettings = field(default_factory=RenderSettings)
+    background: Background = field(default_factory=Background)
+    animation: Animation | None = None
+    title: str = ""
+    format: int = 1
+    source_path: Path | None = None  # the scene file, if loaded from one
+    source_hash: str = ""  # sha256 of the scene file (and meshes), for provenance
+
+    @classmethod
+    def from_dict(cls, data: dict, base_dir: str | Path = ".", source: str = "<dict>") -> "Scene":
+        """Build and validate a Scene from the same structure a scene file holds."""
+        from relview.loader import scene_from_dict
+
+        return scene_from_dict(data, base_dir=Path(base_dir), source=source)
+
+    def body_index(self, name: str) -> int:
+        for i, b in enumerate(self.bodies):
+            if b.name == name:
+                return i
+        raise KeyError(name)
+
+    def replace(self, **changes) -> "Scene":
+        return dataclasses.replace(self, **changes)
