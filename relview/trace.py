@@ -1,0 +1,250 @@
+"""Retarded-time ray casting: the heart of relview.
+
+Every pixel's light arrived at the camera's exposure event E = (ct_c, x_c) along a
+backward null ray in the scene frame S,
+
+    P(l) = (ct_c - l, x_c + l d),   l >= 0,
+
+with d the unit direction towards the source (after aberration). The first surface
+met along that ray (smallest l) is what the pixel sees, and P(l_hit) is the emission
+event: where and when the surface point was as the light left it.
+
+Exact method for uniform motion (physics.md): map E and the ray's 4-direction
+k = (-1, d) into the body's rest frame with the Lorentz boost; there the body is
+static and one ordinary ray/mesh intersection gives the hit. The map is linear, so
+the rest-frame ray keeps the S-frame parameter l and hits of bodies in different
+frames are compared directly by l: occlusion between bodies of different velocities
+is exact.
+
+Effect switches change only the map and the 4-direction:
+
+* ``delay`` off: k = (0, d), light instantaneous, every hit is at time t_c;
+* ``contraction`` off: the Galilean map (ct, x) -> (ct, x - beta ct) replaces the boost.
+
+Bodies with equal velocity share a rest frame and one bounding-volume hierarchy.
+Bodies whose motion is not uniform are handed to :mod:`relview.lightcone`, which
+turns them into static meshes on the camera's past light cone; those join here as a
+frame with beta = 0.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numba import njit, prange
+
+from relview import bvh as bvh_mod
+from relview.lorentz import C, boost_matrix, galilean_matrix
+from relview.scene import Effects
+
+
+@dataclass
+class FrameGroup:
+    """Bodies that share one inertial rest frame, and the map of S events into it."""
+
+    beta: np.ndarray  # (3,) velocity of the frame in S
+    origin_event: np.ndarray  # (4,) S event (ct, x) mapped to the frame's origin
+    matrix: np.ndarray  # (4, 4) S displacement -> frame (ct', x') (boost or Galilean)
+    bodies: list[int]  # scene body indices
+    body_offset: list[np.ndarray]  # (3,) each body origin's position in the frame
+    body_rotation: list[np.ndarray]  # (3, 3) body axes -> frame axes
+    face_body: np.ndarray  # (F,) scene body index of each group face
+    face_local: np.ndarray  # (F,) face index within its body's mesh
+    vertices: np.ndarray  # (V, 3) group mesh in frame coordinates (metres)
+    faces: np.ndarray  # (F, 3)
+    # For light-cone snapshots (non-uniform motion) the hit's body-frame point is
+    # interpolated from these per-vertex body coordinates instead of a rigid map.
+    vertex_body_coords: np.ndarray | None = None
+    bvh: bvh_mod.BVH | None = None  # built on first use, kept while the group lives
+
+
+@dataclass
+class Hits:
+    """First hits of N rays (flat arrays)."""
+
+    body: np.ndarray  # (N,) scene body index, -1 where the ray met nothing
+    face: np.ndarray  # (N,) face index within the body's mesh, -1 on a miss
+    bary: np.ndarray  # (N, 2) barycentric (u, v) on that face
+    l: np.ndarray  # (N,) metres along the backward ray (inf on a miss)
+    emit_event: np.ndarray  # (N, 4) (ct, x) in S, metres
+    rest_position: np.ndarray  # (N, 3) hit point in the body's own frame, metres
+    beta_emit: np.ndarray  # (N, 3) velocity of the emitting point in S (at emission)
+    group: np.ndarray  # (N,) frame group index, -1 on a miss
+
+    @property
+    def hit(self) -> np.ndarray:
+        return self.body >= 0
+
+
+def frame_matrix(beta: np.ndarray, effects: Effects) -> np.ndarray:
+    return boost_matrix(beta) if effects.contraction else galilean_matrix(beta)
+
+
+def ray_four_direction(d_scene: np.ndarray, effects: Effects) -> np.ndarray:
+    """(N, 4) backward 4-direction per unit path length: (-1, d), or (0, d) without delay."""
+    k = np.empty(d_scene.shape[:-1] + (4,))
+    k[..., 0] = -1.0 if effects.delay else 0.0
+    k[..., 1:] = d_scene
+    return k
+
+
+@njit(parallel=True, cache=True)
+def _cast(ray_o, ray_k, g_origin, g_matrix, roots, node_lo, node_hi, node_left, node_right,
+          node_start, node_count, v0, e1, e2, l_min):
+    """For every ray, the nearest hit over all frame groups (l, packed triangle, u, v)."""
+    n = ray_o.shape[0]
+    n_groups = roots.shape[0]
+    out_l = np.full(n, np.inf)
+    out_tri = np.full(n, -1, np.int64)
+    out_u = np.zeros(n)
+    out_v = np.zeros(n)
+    for i in prange(n):
+        stack = np.empty(bvh_mod.STACK_SIZE, np.int64)
+        best = np.inf
+        best_tri = -1
+        bu = 0.0
+        bv = 0.0
+        for g in range(n_groups):
+            # rest-frame ray: o' = M (E - e0), d' = M k (spatial rows only)
+            e0 = ray_o[i, 0] - g_origin[g, 0]
+            e1_ = ray_o[i, 1] - g_origin[g, 1]
+            e2_ = ray_o[i, 2] - g_origin[g, 2]
+            e3 = ray_o[i, 3] - g_origin[g, 3]
+            ox = g_matrix[g, 1, 0] * e0 + g_matrix[g, 1, 1] * e1_ + g_matrix[g, 1, 2] * e2_ + g_matrix[g, 1, 3] * e3
+            oy = g_matrix[g, 2, 0] * e0 + g_matrix[g, 2, 1] * e1_ + g_matrix[g, 2, 2] * e2_ + g_matrix[g, 2, 3] * e3
+            oz = g_matrix[g, 3, 0] * e0 + g_matrix[g, 3, 1] * e1_ + g_matrix[g, 3, 2] * e2_ + g_matrix[g, 3, 3] * e3
+            k0 = ray_k[i, 0]
+            k1 = ray_k[i, 1]
+            k2 = ray_k[i, 2]
+            k3 = ray_k[i, 3]
+            dx = g_matrix[g, 1, 0] * k0 + g_matrix[g, 1, 1] * k1 + g_matrix[g, 1, 2] * k2 + g_matrix[g, 1, 3] * k3
+            dy = g_matrix[g, 2, 0] * k0 + g_matrix[g, 2, 1] * k1 + g_matrix[g, 2, 2] * k2 + g_matrix[g, 2, 3] * k3
+            dz = g_matrix[g, 3, 0] * k0 + g_matrix[g, 3, 1] * k1 + g_matrix[g, 3, 2] * k2 + g_matrix[g, 3, 3] * k3
+            l, tri, u, v = bvh_mod.first_hit(ox, oy, oz, dx, dy, dz, l_min, best, roots[g],
+                                             node_lo, node_hi, node_left, node_right,
+                                             node_start, node_count, v0, e1, e2, stack)
+            if tri >= 0:
+                best = l
+                best_tri = tri
+                bu = u
+                bv = v
+        out_l[i] = best
+        out_tri[i] = best_tri
+        out_u[i] = bu
+        out_v[i] = bv
+    return out_l, out_tri, out_u, out_v
+
+
+class Tracer:
+    """Frame groups and their packed hierarchies, ready to cast rays.
+
+    Build once per exposure (uniform bodies do not change between exposures, so an
+    animation reuses the hierarchies; light-cone snapshots are rebuilt per exposure).
+    """
+
+    def __init__(self, groups: list[FrameGroup]):
+        self.groups = groups
+        for g in groups:
+            if g.bvh is None:
+                g.bvh = bvh_mod.build_bvh(g.vertices, g.faces)
+        self.packed = bvh_mod.pack([g.bvh for g in groups]) if groups else None
+
+    def cast(self, ray_origin: np.ndarray, d_scene: np.ndarray, effects: Effects,
+             l_min: float = 1e-9) -> Hits:
+        """Cast backward null rays from (N, 4) events along (N, 3) unit S directions."""
+        n = len(d_scene)
+        k = ray_four_direction(d_scene, effects)
+        if self.packed is None:
+            return _empty_hits(ray_origin, k)
+        p = self.packed
+        g_origin = np.stack([g.origin_event for g in self.groups])
+        g_matrix = np.stack([g.matrix for g in self.groups])
+        l, tri, u, v = _cast(np.ascontiguousarray(ray_origin, dtype=np.float64),
+                             np.ascontiguousarray(k), g_origin, g_matrix, p.root, p.node_lo,
+                             p.node_hi, p.node_left, p.node_right, p.node_start, p.node_count,
+                             p.v0, p.e1, p.e2, l_min)
+        hit = tri >= 0
+        group = np.where(hit, p.tri_group[np.maximum(tri, 0)], -1)
+        gface = np.where(hit, p.tri_face[np.maximum(tri, 0)], -1)
+        body = np.full(n, -1, np.int64)
+        face = np.full(n, -1, np.int64)
+        rest = np.full((n, 3), np.nan)
+        beta = np.full((n, 3), np.nan)
+        emit = np.full((n, 4), np.nan)
+        l_safe = np.where(hit, l, 0.0)
+        emit[hit] = ray_origin[hit] + l_safe[hit, None] * k[hit]
+        for gi, g in enumerate(self.groups):
+            sel = np.nonzero(group == gi)[0]
+            if len(sel) == 0:
+                continue
+            fidx = gface[sel]
+            body[sel] = g.face_body[fidx]
+            face[sel] = g.face_local[fidx]
+            beta[sel] = g.beta
+            if g.vertex_body_coords is not None:
+                tri_v = g.faces[fidx]
+                w0 = 1.0 - u[sel] - v[sel]
+                vb = g.vertex_body_coords
+                rest[sel] = (w0[:, None] * vb[tri_v[:, 0]] + u[sel, None] * vb[tri_v[:, 1]]
+                             + v[sel, None] * vb[tri_v[:, 2]])
+                continue
+            # hit point in the frame: o' + l d'  (spatial rows of the frame map)
+            m = g.matrix[1:, :]
+            x_frame = (emit[sel] - g.origin_event) @ m.T
+            for j, b in enumerate(g.bodies):
+                sb = g.face_body[fidx] == b
+                if np.any(sb):
+                    rel = x_frame[sb] - g.body_offset[j]
+                    rest[sel[sb]] = rel @ g.body_rotation[j]  # frame -> body axes (R^T x)
+        return Hits(body, face, np.stack([u, v], -1), np.where(hit, l, np.inf), emit, rest, beta,
+                    group)
+
+
+def _empty_hits(ray_origin, k) -> Hits:
+    n = len(k)
+    return Hits(np.full(n, -1, np.int64), np.full(n, -1, np.int64), np.zeros((n, 2)),
+                np.full(n, np.inf), np.full((n, 4), np.nan), np.full((n, 3), np.nan),
+                np.full((n, 3), np.nan), np.full(n, -1, np.int64))
+
+
+def uniform_groups(bodies, meshes, effects: Effects, indices=None) -> list[FrameGroup]:
+    """Group uniformly moving bodies by velocity and build each group's frame mesh.
+
+    ``meshes[i]`` is body i's rest-frame mesh (vertices (V,3) relative to the body origin,
+    along the rest-frame axes, i.e. with the body rotation already applied; faces (F,3)).
+    ``indices`` restricts to those bodies. Hit points are reported in body axes.
+    """
+    from relview.scene import UniformMotion
+
+    if indices is None:
+        indices = [i for i, b in enumerate(bodies) if isinstance(b.motion, UniformMotion)]
+    by_beta: dict[tuple, list[int]] = {}
+    for i in indices:
+        key = tuple(float(x) for x in np.asarray(bodies[i].motion.beta, float))
+        by_beta.setdefault(key, []).append(i)
+    groups = []
+    for key, members in by_beta.items():
+        beta = np.array(key)
+        m = frame_matrix(beta, effects)
+        first = bodies[members[0]].motion
+        e0 = np.concatenate([[C * first.time], np.asarray(first.position, float)])
+        verts, faces, fbody, flocal, offs, rots = [], [], [], [], [], []
+        nv = 0
+        for i in members:
+            mot = bodies[i].motion
+            eb = np.concatenate([[C * mot.time], np.asarray(mot.position, float)])
+            off = (m @ (eb - e0))[1:]  # body origin, static in the frame
+            rot = bodies[i].rotation_matrix()
+            v, f = meshes[i]
+            verts.append(off + np.asarray(v, float))
+            faces.append(np.asarray(f, np.int64) + nv)
+            fbody.append(np.full(len(f), i, np.int64))
+            flocal.append(np.arange(len(f), dtype=np.int64))
+            offs.append(off)
+            rots.append(rot)
+            nv += len(v)
+        groups.append(FrameGroup(beta, e0, m, members, offs, rots, np.concatenate(fbody),
+                                 np.concatenate(flocal), np.concatenate(verts),
+                                 np.concatenate(faces)))
+    return groups
