@@ -1,0 +1,37 @@
+"""relview: ray-traced apparent images of relativistically moving bodies.
+
+Public names (docs/scene-format.md): ``load_scene``, ``Scene``, ``render``, ``probe``.
+"""
+
+from importlib.metadata import PackageNotFoundError, version
+
+try:
+    __version__ = version("relview")
+except PackageNotFoundError:  # running from a source tree that is not installed
+    __version__ = "0.0.0+source"
+
+from relview.scene import Scene  # noqa: E402
+
+
+def load_scene(path):
+    """Read and validate a TOML scene file -> Scene (relview.loader.load_scene)."""
+    from relview.loader import load_scene as _load
+
+    return _load(path)
+
+
+def render(scene, *args, **kwargs):
+    """Render one exposure -> Frame with .image, .layers, .save() (relview.renderer.render)."""
+    from relview.renderer import render as _render
+
+    return _render(scene, *args, **kwargs)
+
+
+def probe(scene, body, point, *args, **kwargs):
+    """Apparent time, place, direction, pixel, visibility and D of one body point."""
+    from relview.probes import probe as _probe
+
+    return _probe(scene, body, point, *args, **kwargs)
+
+
+__all__ = ["Scene", "load_scene", "render", "probe", "__version__"]

@@ -1,0 +1,129 @@
+"""Where, when and how a chosen body point is seen: the numbers behind a picture.
+
+For a point p given in a body's rest frame (body axes, metres), find the emission
+event whose light reaches the camera at its exposure event, the direction the camera
+sees it in (camera rest frame), its pixel, whether another surface hides it, and its
+Doppler factor.
+
+Uniform motion has a closed form. The point's worldline is x(t) = Y - beta tau with
+tau = c (t_c - t) and Y its position at the camera time; the retarded condition
+|x_c - x| = tau gives the quadratic
+
+    (1 - b^2) tau^2 - 2 (beta.w) tau - w.w = 0,   w = x_c - Y,
+
+whose positive root is tau = (beta.w + sqrt((beta.w)^2 + (1 - b^2) w.w)) / (1 - b^2).
+Other motions use :func:`relview.motion` retarded-time solvers.
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+
+import numpy as np
+
+from relview import camera as cam_mod
+from relview.lorentz import C, aberrate_to_camera, contract
+from relview.scene import Effects, Scene, UniformMotion
+
+
+@dataclass
+class ProbeResult:
+    body: str
+    point: tuple[float, float, float]  # m, body rest frame
+    emit_time: float  # s, scene frame
+    emit_position: tuple[float, float, float]  # m, scene frame
+    direction: tuple[float, float, float]  # unit, camera rest frame, scene axes
+    pixel: tuple[float, float]  # x right, y down from the top-left corner
+    in_view: bool  # the projection has an image of this direction (pixel may be off-image)
+    visible: bool  # nothing hides it
+    doppler: float  # D = nu_observed / nu_emitted
+    light_delay: float  # s, camera time minus emission time
+    beta_emit: tuple[float, float, float]  # velocity / c of the point at emission
+
+    def __getitem__(self, key):  # dict-style access as well as attributes
+        return getattr(self, key)
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+
+def uniform_retarded(points_rest: np.ndarray, motion: UniformMotion, rotation: np.ndarray,
+                     camera_event: np.ndarray, effects: Effects):
+    """Emission events (N, 4) and velocities (N, 3) of rest-frame points, uniform motion."""
+    beta = np.asarray(motion.beta, float)
+    p = np.atleast_2d(points_rest) @ rotation.T  # body axes -> rest-frame axes
+    offset = contract(p, beta) if effects.contraction else p
+    ct_c = camera_event[0]
+    y = np.asarray(motion.position, float) + offset + beta * (ct_c - C * motion.time)
+    w = camera_event[1:] - y
+    if effects.delay:
+        bw = w @ beta
+        b2 = float(beta @ beta)
+        ww = np.sum(w * w, axis=-1)
+        tau = (bw + np.sqrt(bw * bw + (1.0 - b2) * ww)) / (1.0 - b2)
+    else:
+        tau = np.zeros(len(w))
+    x = y - np.outer(tau, beta)
+    ev = np.concatenate([(ct_c - tau)[:, None], x], axis=-1)
+    return ev, np.broadcast_to(beta, x.shape).copy()
+
+
+def retarded_events(scene: Scene, body_index: int, points_rest: np.ndarray,
+                    camera_event: np.ndarray, effects: Effects):
+    body = scene.bodies[body_index]
+    if isinstance(body.motion, UniformMotion):
+        return uniform_retarded(points_rest, body.motion, body.rotation_matrix(), camera_event,
+                                effects)
+    p = np.atleast_2d(points_rest) @ body.rotation_matrix().T
+    return body.motion.retarded(p, camera_event, delay=effects.delay,
+                                contraction=effects.contraction)
+
+
+def probe_many(scene: Scene, body, points, time: float | None = None,
+               effects: Effects | None = None, context=None) -> list[ProbeResult]:
+    """Probe several points (N, 3) of one body at one exposure (see :func:`probe`)."""
+    from relview.renderer import RenderContext, camera_state, doppler_along
+
+    effects = effects or scene.render.effects
+    bi = body if isinstance(body, (int, np.integer)) else scene.body_index(body)
+    pts = np.atleast_2d(np.asarray(points, float))
+    t = scene.camera.time if time is None else time
+    event, beta_cam = camera_state(scene, t)
+    emit, beta_e = retarded_events(scene, bi, pts, event, effects)
+    sep = emit[:, 1:] - event[1:]
+    dist = np.linalg.norm(sep, axis=-1)
+    d_s = sep / np.maximum(dist, 1e-300)[:, None]
+    d_cam = aberrate_to_camera(d_s, beta_cam) if effects.aberration and np.any(beta_cam) else d_s
+    w, h = scene.render.resolution
+    px, in_view = cam_mod.directions_to_pixels(scene.camera, w, h, d_cam)
+    # visibility: cast the same backward ray and compare the first hit with the point
+    if context is None or context.effects != effects:
+        context = RenderContext(scene, effects)
+    hits = context.tracer(event).cast(np.broadcast_to(event, (len(pts), 4)), d_s, effects)
+    # visible when the first surface on that ray is not nearer than the point itself
+    tol = 1e-6 * np.maximum(dist, 1e-3)
+    visible = hits.l >= dist - tol
+    dop = doppler_along(beta_e, d_s, beta_cam, effects)  # of the point, not of what hides it
+    out = []
+    name = scene.bodies[bi].name
+    for i in range(len(pts)):
+        out.append(ProbeResult(
+            body=name, point=tuple(map(float, pts[i])), emit_time=float(emit[i, 0] / C),
+            emit_position=tuple(map(float, emit[i, 1:])), direction=tuple(map(float, d_cam[i])),
+            pixel=(float(px[i, 0]), float(px[i, 1])), in_view=bool(in_view[i]),
+            visible=bool(visible[i]), doppler=float(dop[i]),
+            light_delay=float((event[0] - emit[i, 0]) / C),
+            beta_emit=tuple(map(float, beta_e[i]))))
+    return out
+
+
+def probe(scene: Scene, body, point, time: float | None = None,
+          effects: Effects | None = None) -> ProbeResult:
+    """Apparent data of one rest-frame point of ``body`` (name or index) at the exposure.
+
+    Returns emit_time (s), emit_position (m, S), direction (unit, camera rest frame),
+    pixel (x right, y down, centres at half-integers; may lie off the image),
+    visible (not hidden behind any body) and doppler (D), plus light_delay and
+    beta_emit. Attribute or item access both work.
+    """
+    return probe_many(scene, body, [point], time, effects)[0]

@@ -1,0 +1,284 @@
+"""render(scene) -> Frame: camera rays, retarded-time cast, shading, sky, exposure.
+
+Pipeline for one exposure event (docs/physics.md):
+
+1. pixel directions in the camera's rest frame (camera.py), jittered when samples > 1;
+2. aberration into the scene frame S with the camera's velocity (lorentz.py);
+3. backward null rays from the exposure event, first hit per ray (trace.py);
+4. Doppler factor of each hit from the emitter's and the camera's velocities;
+5. observed CIE XYZ from the body's surface (materials.py) or from the sky (sky.py);
+6. exposure to linear sRGB (film.py).
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from relview import camera as cam_mod
+from relview.lorentz import C, lorentz_factor
+from relview.scene import Effects, Scene, UniformMotion
+from relview.trace import Hits, Tracer, uniform_groups
+
+#: Rays traced per batch; bounds the working memory of one batch to ~150 MB.
+RAYS_PER_BATCH = 1 << 18
+#: Bytes per pixel held for the float layers and accumulators of one frame.
+BYTES_PER_PIXEL = 8 * (3 + 3 + 1 + 1 + 3 + 3 + 1 + 3)
+
+
+@dataclass
+class Frame:
+    """One rendered exposure."""
+
+    image: np.ndarray  # (H, W, 3) linear sRGB after exposure, not clipped
+    layers: dict[str, np.ndarray]  # xyz, doppler, emit_time, emit_position, rest_position, body
+    white: float  # cd/m2 mapped to white
+    time: float  # s, scene-frame time of the exposure
+    metadata: dict[str, str] = field(default_factory=dict)
+
+    def save(self, path, overwrite: bool = False, bits: int = 8) -> Path:
+        """Write by extension: .png (8 or 16 bit sRGB), .npz (float layers), .exr if available.
+
+        An existing file is never replaced unless ``overwrite``: a numbered name is used.
+        """
+        from relview import film
+
+        path = film.safe_output_path(Path(path), overwrite=overwrite)
+        ext = path.suffix.lower()
+        if ext == ".png":
+            film.write_png(path, self.image, bits=bits, metadata=self.metadata)
+        elif ext == ".npz":
+            layers = dict(self.layers)
+            layers["image"] = self.image
+            film.write_layers_npz(path, layers, metadata=self.metadata)
+        elif ext == ".exr":
+            film.write_exr(path, self.image, self.layers, metadata=self.metadata)
+        else:
+            from relview.errors import OutputError
+
+            raise OutputError(f"{path}: unknown image type {ext!r}; use .png, .npz or .exr")
+        return path
+
+
+class RenderContext:
+    """What a scene needs before any exposure: meshes and the uniform-motion hierarchies.
+
+    Reused across the frames of an animation, so hierarchies are built once.
+    """
+
+    def __init__(self, scene: Scene, effects: Effects | None = None):
+        from relview import shapes
+
+        self.scene = scene
+        self.effects = effects or scene.render.effects
+        self.meshes = []
+        self.uv = []
+        for body in scene.bodies:
+            md = shapes.mesh_data(body)
+            self.meshes.append((md.vertices, md.faces))
+            self.uv.append(md.uv)
+        uniform = [i for i, b in enumerate(scene.bodies) if isinstance(b.motion, UniformMotion)]
+        self.other = [i for i in range(len(scene.bodies)) if i not in uniform]
+        self.uniform_groups = uniform_groups(scene.bodies, self.meshes, self.effects, uniform)
+        self._uniform_tracer = Tracer(self.uniform_groups) if not self.other else None
+
+    def tracer(self, camera_event: np.ndarray) -> Tracer:
+        """The tracer for one exposure event (light-cone snapshots join uniform groups)."""
+        if not self.other:
+            return self._uniform_tracer
+        from relview import lightcone
+
+        snap = lightcone.snapshot_groups(self.scene, self.meshes, self.other, camera_event,
+                                         self.effects)
+        return Tracer(self.uniform_groups + snap)
+
+
+def camera_state(scene: Scene, time_s: float) -> tuple[np.ndarray, np.ndarray]:
+    """(exposure event (ct, x) in metres, camera beta) at scene time ``time_s``."""
+    cam = scene.camera
+    motion = getattr(cam, "motion", None)
+    if motion is not None:
+        from relview import motion as motion_mod
+
+        x, beta = motion_mod.camera_state(motion, C * time_s)
+        return np.concatenate([[C * time_s], x]), np.asarray(beta, float)
+    beta = np.asarray(cam.beta, float)
+    x = np.asarray(cam.position, float) + beta * C * (time_s - cam.time)
+    return np.concatenate([[C * time_s], x]), beta
+
+
+def doppler_along(beta_emit: np.ndarray, d_scene: np.ndarray, beta_cam: np.ndarray,
+                  effects: Effects) -> np.ndarray:
+    """D for emitters moving with (N, 3) beta seen along (N, 3) S directions towards them.
+
+    n = -d is the propagation direction, emitter -> camera. Relativistic:
+    D = gamma_cam (1 - beta_cam.n) / (gamma_emit (1 - beta_emit.n))
+    (physics.md; Rybicki & Lightman eq. 4.11). With contraction off (Galilean
+    kinematics, no time dilation) the gammas are dropped: the classical Doppler
+    factor for light moving at c in S.
+    """
+    n = -np.asarray(d_scene, float)
+    num = 1.0 - n @ np.asarray(beta_cam, float)
+    den = 1.0 - np.sum(beta_emit * n, axis=-1)
+    if effects.contraction:
+        num = num * lorentz_factor(beta_cam)
+        den = den * lorentz_factor(beta_emit)
+    return num / den
+
+
+def doppler_of_hits(hits: Hits, d_scene: np.ndarray, beta_cam: np.ndarray,
+                    effects: Effects) -> np.ndarray:
+    """D per ray, NaN on misses (see :func:`doppler_along`)."""
+    hit = hits.hit
+    d = np.full(len(d_scene), np.nan)
+    d[hit] = doppler_along(hits.beta_emit[hit], d_scene[hit], beta_cam, effects)
+    return d
+
+
+def estimate_bytes(width: int, height: int) -> int:
+    """Working memory of one frame: layers plus one ray batch."""
+    return width * height * BYTES_PER_PIXEL + RAYS_PER_BATCH * 400
+
+
+def check_memory(width: int, height: int, source: str = "render.resolution") -> None:
+    """Refuse before any work when a frame would not fit in this machine's memory."""
+    need = estimate_bytes(width, height)
+    try:
+        avail = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_AVPHYS_PAGES")
+    except (ValueError, OSError, AttributeError):
+        return
+    if need > 0.8 * avail:
+        from relview.errors import UserError
+
+        raise UserError(f"{source} = [{width}, {height}]: a frame needs about "
+                        f"{need / 2**30:.1f} GiB but only {avail / 2**30:.1f} GiB is free; "
+                        "lower the resolution")
+
+
+def render(scene: Scene, time: float | None = None, *, resolution=None, samples=None,
+           exposure=None, effects: Effects | None = None, context: RenderContext | None = None,
+           progress: bool = False) -> Frame:
+    """Render one exposure of ``scene`` at scene time ``time`` (default: camera.time)."""
+    from relview import film, sky
+
+    width, height = resolution or scene.render.resolution
+    samples = samples or scene.render.samples
+    effects = effects or scene.render.effects
+    exposure = scene.render.exposure if exposure is None else exposure
+    check_memory(width, height)
+    if context is None or context.effects != effects:
+        context = RenderContext(scene, effects)
+    t = scene.camera.time if time is None else time
+    event, beta_cam = camera_state(scene, t)
+    tracer = context.tracer(event)
+    cam = scene.camera
+    if not effects.aberration:
+        beta_for_rays = np.zeros(3)
+    else:
+        beta_for_rays = beta_cam
+    rng = np.random.default_rng(scene.render.seed)
+    n_pix = width * height
+    xyz = np.zeros((n_pix, 3))
+    layer_d = np.full(n_pix, np.nan)
+    layer_t = np.full(n_pix, np.nan)
+    layer_pos = np.full((n_pix, 3), np.nan)
+    layer_rest = np.full((n_pix, 3), np.nan)
+    layer_body = np.full(n_pix, -1, np.int64)
+    centres = cam_mod.pixel_grid(width, height)
+    batches = [(s, a) for s in range(samples) for a in range(0, n_pix, RAYS_PER_BATCH)]
+    bar = None
+    if progress:
+        from tqdm import tqdm
+
+        bar = tqdm(total=len(batches), desc="render", unit="batch", leave=False)
+    for s, a in batches:
+        b = min(a + RAYS_PER_BATCH, n_pix)
+        px = centres[a:b]
+        if s > 0:
+            px = px + rng.uniform(-0.5, 0.5, size=px.shape)
+        d_cam, valid = cam_mod.pixels_to_directions(cam, width, height, px)
+        if np.any(beta_for_rays):
+            from relview.lorentz import aberrate_to_scene
+
+            d_s = aberrate_to_scene(d_cam, beta_for_rays)
+        else:
+            d_s = d_cam
+        origin = np.broadcast_to(event, (len(d_s), 4))
+        hits = tracer.cast(origin, d_s, effects)
+        hits.body[~valid] = -1
+        dop = doppler_of_hits(hits, d_s, beta_cam, effects)
+        col = shade(scene, context, hits, dop, effects)
+        miss = (hits.body < 0) & valid
+        if np.any(miss):
+            col[miss] = sky.sky_xyz(scene.background, d_s[miss], beta_cam, effects)
+        xyz[a:b] += col / samples
+        if s == 0:
+            layer_d[a:b] = dop
+            layer_t[a:b] = hits.emit_event[:, 0] / C
+            layer_pos[a:b] = hits.emit_event[:, 1:]
+            layer_rest[a:b] = hits.rest_position
+            layer_body[a:b] = hits.body
+        if bar is not None:
+            bar.update(1)
+    if bar is not None:
+        bar.close()
+    xyz_img = xyz.reshape(height, width, 3)
+    stars = sky.star_splat(scene.background, cam, width, height, beta_cam, effects,
+                           occluded=layer_body.reshape(height, width) >= 0)
+    if stars is not None:
+        xyz_img = xyz_img + stars
+    lit = np.any(xyz_img > 0, axis=-1)
+    white = film.exposure_white(xyz_img, lit, exposure)
+    image = film.expose(xyz_img, white)
+    layers = {
+        "xyz": xyz_img,
+        "doppler": layer_d.reshape(height, width),
+        "emit_time": layer_t.reshape(height, width),
+        "emit_position": layer_pos.reshape(height, width, 3),
+        "rest_position": layer_rest.reshape(height, width, 3),
+        "body": layer_body.reshape(height, width),
+    }
+    meta = provenance(scene, t, width, height, samples, effects, white)
+    return Frame(image, layers, white, t, meta)
+
+
+def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
+          effects: Effects) -> np.ndarray:
+    """(N, 3) observed XYZ of every hit (zeros on misses), one call per body's surface."""
+    out = np.zeros((len(doppler), 3))
+    for i, body in enumerate(scene.bodies):
+        sel = np.nonzero(hits.body == i)[0]
+        if len(sel) == 0:
+            continue
+        uv = None
+        if context.uv[i] is not None:
+            faces = context.meshes[i][1][hits.face[sel]]
+            w = hits.bary[sel]
+            uvs = context.uv[i]
+            uv = ((1 - w[:, 0] - w[:, 1])[:, None] * uvs[faces[:, 0]] + w[:, :1] * uvs[faces[:, 1]]
+                  + w[:, 1:] * uvs[faces[:, 2]])
+        out[sel] = body.surface.observed_xyz(doppler[sel], hits.rest_position[sel], uv, effects)
+    return out
+
+
+def provenance(scene: Scene, t: float, width: int, height: int, samples: int,
+               effects: Effects, white: float) -> dict[str, str]:
+    """Text that lets a figure be regenerated exactly (stored in PNG chunks / sidecars)."""
+    import json
+
+    from relview import __version__
+
+    return {
+        "relview_version": __version__,
+        "scene": str(scene.source_path or ""),
+        "scene_sha256": scene.source_hash,
+        "time_s": repr(float(t)),
+        "resolution": f"{width}x{height}",
+        "samples": str(samples),
+        "effects": json.dumps(effects.__dict__, sort_keys=True),
+        "white_cd_m2": repr(float(white)),
+        "projection": scene.camera.projection,
+    }
