@@ -487,6 +487,9 @@ def _atomic_write(path: str | os.PathLike, write: Callable[[BinaryIO], None],
     directory = final.parent
     try:
         directory.mkdir(parents=True, exist_ok=True)
+    except FileExistsError as exc:  # a part of the directory path is a file
+        raise OutputError(f"cannot create the directory: {exc.filename} is a file, "
+                          "not a directory", file=final) from exc
     except OSError as exc:
         raise _output_error(final, exc) from exc
     tmp: Path | None = None

@@ -307,9 +307,10 @@ def test_write_exr_when_available(tmp_path):
     path = film.write_exr(tmp_path / "a.exr", linear, {"doppler": np.full((3, 5), 3.0)},
                           {"scene": "tram"})
     with OpenEXR.File(str(path)) as f:
+        # The reader (OpenEXR's own, the reference) groups the R, G, B channels again.
+        assert {c.name for c in f.header()["channels"]} >= {"R", "G", "B", "doppler"}
         ch = f.channels()
-        rgb = np.stack([ch[c].pixels for c in "RGB"], axis=-1)
-        assert np.array_equal(rgb, linear)
+        assert np.array_equal(ch["RGB"].pixels, linear)
         assert np.all(ch["doppler"].pixels == 3.0)
         assert f.header()["scene"] == "tram"
 
@@ -336,6 +337,12 @@ def test_safe_output_path_numbering(tmp_path):
 def test_missing_directory_is_created(tmp_path):
     path = film.write_png(tmp_path / "a" / "b" / "c.png", np.zeros((1, 1, 3)))
     assert path.exists()
+    # A parent that is a file cannot become a directory: a clear error, nothing written.
+    (tmp_path / "plain").write_text("not a directory")
+    with pytest.raises(OutputError, match="plain is a file, not a directory") as info:
+        film.write_png(tmp_path / "plain" / "c.png", np.zeros((1, 1, 3)))
+    assert info.value.file == str(tmp_path / "plain" / "c.png")
+    assert (tmp_path / "plain").read_text() == "not a directory"
 
 
 def test_failure_mid_write_leaves_old_file_and_no_partial(tmp_path, monkeypatch):
