@@ -1,0 +1,561 @@
+"""Surfaces: what a body emits or reflects in its rest frame, and how it looks with D.
+
+Every surface implements (DEVELOPERS.md, "Interfaces between stages"):
+
+* ``key()`` -> a hashable identity (equal keys mean an identical appearance), and
+* ``observed_xyz(doppler (N,), rest_position (N, 3) m, uv (N, 2) or None, effects)``
+  -> (N, 3) absolute CIE 1931 XYZ, Y in cd/m^2, where ``effects`` has boolean attributes
+  ``doppler`` and ``beaming`` (relview.scene.Effects; ``None`` means both on).
+
+Spectral surfaces define their rest-frame spectral radiance at every wavelength > 0 (a
+Doppler factor D brings emitted wavelengths D * (360-830 nm) into view), and are shaded
+through cached :class:`relview.spectrum.DopplerTable` lookups, so the per-pixel work is
+vectorised table interpolation. The rules used outside tabulated data are documented in
+docs/colour.md ("Colour pipeline").
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+import os
+from pathlib import Path
+from typing import Hashable
+
+import numpy as np
+
+from relview import spectrum
+from relview.spectrum import apply_effects, cached_table, effect_factors
+
+# FWHM -> standard deviation of a Gaussian: FWHM = 2 sqrt(2 ln 2) sigma.
+_FWHM_PER_SIGMA = 2.0 * math.sqrt(2.0 * math.log(2.0))
+
+
+def _effect_switches(effects) -> tuple[bool, bool]:
+    if effects is None:
+        return True, True
+    return bool(effects.doppler), bool(effects.beaming)
+
+
+def _as_doppler(doppler) -> np.ndarray:
+    return np.asarray(doppler, dtype=float).reshape(-1)
+
+
+def _positive_number(value, what: str) -> float:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise ValueError(f"{what} must be a number, got {value!r}") from None
+    if not (math.isfinite(v) and v > 0.0):
+        raise ValueError(f"{what} must be finite and > 0, got {value!r}")
+    return v
+
+
+class Surface:
+    """Base class of all surfaces (see the module docstring for the interface)."""
+
+    def key(self) -> Hashable:  # pragma: no cover - abstract
+        raise NotImplementedError
+
+    def observed_xyz(self, doppler, rest_position, uv, effects) -> np.ndarray:  # pragma: no cover
+        raise NotImplementedError
+
+    def __eq__(self, other) -> bool:
+        return isinstance(other, Surface) and self.key() == other.key()
+
+    def __hash__(self) -> int:
+        return hash(self.key())
+
+
+class SpectralSurface(Surface):
+    """A surface with one rest-frame spectral radiance, shaded by one Doppler table."""
+
+    def spectral_radiance(self, wavelength_nm) -> np.ndarray:
+        """Rest-frame spectral radiance in W/(sr m^2 nm), at any wavelength > 0."""
+        raise NotImplementedError
+
+    def knots_nm(self) -> np.ndarray | None:
+        """Rest-frame wavelengths where the spectrum has fine structure (or None)."""
+        return None
+
+    def table(self) -> spectrum.DopplerTable:
+        return cached_table(self.key(), self.spectral_radiance, self.knots_nm())
+
+    def observed_xyz(self, doppler, rest_position=None, uv=None, effects=None) -> np.ndarray:
+        doppler_on, beaming_on = _effect_switches(effects)
+        return apply_effects(self.table(), _as_doppler(doppler), doppler_on, beaming_on)
+
+
+# --------------------------------------------------------------------------------------
+# Emitters
+# --------------------------------------------------------------------------------------
+
+
+class Blackbody(SpectralSurface):
+    """Thermal emitter at ``temperature_k`` (K): Planck's law times ``scale``.
+
+    ``scale`` is an emissivity / brightness factor (1 = an ideal blackbody). Seen with a
+    Doppler factor D it is a blackbody at D * T (physics.md). Bodies with the same
+    temperature share one table whatever their scale.
+    """
+
+    def __init__(self, temperature_k: float, scale: float = 1.0):
+        self.temperature_k = _positive_number(temperature_k, "blackbody temperature (K)")
+        scale = float(scale)
+        if not (math.isfinite(scale) and scale >= 0.0):
+            raise ValueError(f"blackbody scale must be finite and >= 0, got {scale!r}")
+        self.scale = scale
+
+    def key(self):
+        return ("blackbody", self.temperature_k, self.scale)
+
+    def spectral_radiance(self, wavelength_nm):
+        return self.scale * spectrum.planck_spectral_radiance(wavelength_nm, self.temperature_k)
+
+    def table(self):
+        t = self.temperature_k
+        return cached_table(
+            ("blackbody", t), lambda w: spectrum.planck_spectral_radiance(w, t), None
+        )
+
+    def observed_xyz(self, doppler, rest_position=None, uv=None, effects=None):
+        return self.scale * super().observed_xyz(doppler, rest_position, uv, effects)
+
+    def __repr__(self):
+        return f"Blackbody({self.temperature_k!r}, scale={self.scale!r})"
+
+
+class EmissionLines(SpectralSurface):
+    """Gaussian emission lines on a zero continuum.
+
+    ``lines``: (centre_nm, fwhm_nm, radiance) triples, ``radiance`` in W/(sr m^2) integrated
+    over the line. Profile: radiance * exp(-(l - c)^2 / (2 s^2)) / (s sqrt(2 pi)),
+    s = fwhm / (2 sqrt(2 ln 2)).
+    """
+
+    def __init__(self, lines: list[tuple[float, float, float]]):
+        parsed = []
+        try:
+            items = list(lines)
+        except TypeError:
+            raise ValueError(f"emission lines must be a list of (nm, fwhm_nm, radiance), got {lines!r}") from None
+        if not items:
+            raise ValueError("emission lines: at least one line is needed")
+        for n, line in enumerate(items):
+            try:
+                centre, fwhm, radiance = (float(v) for v in line)
+            except (TypeError, ValueError):
+                raise ValueError(
+                    f"emission line {n}: expected (centre_nm, fwhm_nm, radiance), got {line!r}"
+                ) from None
+            _positive_number(centre, f"emission line {n}: centre (nm)")
+            _positive_number(fwhm, f"emission line {n}: fwhm (nm)")
+            if not (math.isfinite(radiance) and radiance >= 0.0):
+                raise ValueError(
+                    f"emission line {n}: radiance (W/(sr m2)) must be finite and >= 0, got {radiance!r}"
+                )
+            parsed.append((centre, fwhm, radiance))
+        self.lines = tuple(parsed)
+        arr = np.array(self.lines)
+        self._centre = arr[:, 0]
+        self._sigma = arr[:, 1] / _FWHM_PER_SIGMA
+        self._radiance = arr[:, 2]
+
+    def key(self):
+        return ("lines", self.lines)
+
+    def spectral_radiance(self, wavelength_nm):
+        w = np.asarray(wavelength_nm, dtype=float)[..., None]
+        z = (w - self._centre) / self._sigma
+        peak = self._radiance / (self._sigma * math.sqrt(2.0 * math.pi))
+        return np.sum(peak * np.exp(-0.5 * z * z), axis=-1)
+
+    def knots_nm(self):
+        # +-8 sigma in 0.1-sigma steps: the profile is resolved whatever D compresses it to.
+        offsets = np.linspace(-8.0, 8.0, 161)
+        return (self._centre[:, None] + self._sigma[:, None] * offsets).ravel()
+
+    def __repr__(self):
+        return f"EmissionLines({list(self.lines)!r})"
+
+
+class TabulatedSpectrum(SpectralSurface):
+    """Spectral radiance from a table: wavelength (nm) and W/(sr m^2 nm).
+
+    Linear between table points and **zero outside the table** (the table declares the
+    whole spectrum: a source tabulated only in the visible emits nothing a Doppler shift
+    could bring in from beyond it).
+    """
+
+    def __init__(self, wavelength_nm, radiance, name: str):
+        w = np.asarray(wavelength_nm, dtype=float).reshape(-1)
+        r = np.asarray(radiance, dtype=float).reshape(-1)
+        if w.shape != r.shape:
+            raise ValueError(f"spectrum {name!r}: {w.size} wavelengths but {r.size} radiances")
+        if w.size < 2:
+            raise ValueError(f"spectrum {name!r}: needs at least 2 rows, got {w.size}")
+        if not (np.all(np.isfinite(w)) and np.all(np.isfinite(r))):
+            raise ValueError(f"spectrum {name!r}: values must be finite numbers")
+        if np.any(w <= 0.0):
+            raise ValueError(f"spectrum {name!r}: wavelengths must be > 0 nm")
+        if np.any(np.diff(w) <= 0.0):
+            i = int(np.nonzero(np.diff(w) <= 0.0)[0][0])
+            raise ValueError(
+                f"spectrum {name!r}: wavelengths must increase, row {i + 2} ({w[i + 1]} nm) "
+                f"follows {w[i]} nm"
+            )
+        if np.any(r < 0.0):
+            i = int(np.nonzero(r < 0.0)[0][0])
+            raise ValueError(f"spectrum {name!r}: negative radiance {r[i]} at {w[i]} nm")
+        self.name = str(name)
+        self.wavelength_nm = w
+        self.radiance = r
+        self._key = ("tabulated", self.name, w.tobytes(), r.tobytes())
+
+    @classmethod
+    def from_csv(cls, path: str | os.PathLike) -> "TabulatedSpectrum":
+        """Read two columns, wavelength (nm) and W/(sr m^2 nm), from a text file.
+
+        Columns separated by a comma, semicolon, tab or spaces; a header line (the first
+        non-blank line, if it is not numeric) and lines starting with '#' are skipped.
+        A bad row raises ValueError naming the file and line.
+        """
+        path = Path(path)
+        try:
+            text = path.read_text(encoding="utf-8-sig")
+        except OSError as exc:
+            raise ValueError(f"{path}: cannot read spectrum file ({exc.strerror or exc})") from None
+        except UnicodeDecodeError:
+            raise ValueError(f"{path}: not a text file (expected two columns nm, W/(sr m2 nm))") from None
+        waves, values = [], []
+        seen_first = False
+        for lineno, raw in enumerate(text.splitlines(), start=1):
+            line = raw.strip()
+            if not line or line.startswith("#"):
+                continue
+            fields = _split_fields(line)
+            first_row = not seen_first
+            seen_first = True
+            try:
+                numbers = [float(f) for f in fields]
+            except ValueError:
+                if first_row:
+                    continue  # header line
+                raise ValueError(
+                    f"{path}, line {lineno}: expected two numbers (nm, W/(sr m2 nm)), got {raw.strip()!r}"
+                ) from None
+            if len(numbers) != 2:
+                raise ValueError(
+                    f"{path}, line {lineno}: expected 2 columns (nm, W/(sr m2 nm)), got {len(numbers)}"
+                )
+            if not all(math.isfinite(v) for v in numbers):
+                raise ValueError(f"{path}, line {lineno}: values must be finite, got {raw.strip()!r}")
+            if numbers[0] <= 0.0:
+                raise ValueError(f"{path}, line {lineno}: wavelength must be > 0 nm, got {numbers[0]}")
+            if numbers[1] < 0.0:
+                raise ValueError(f"{path}, line {lineno}: radiance must be >= 0, got {numbers[1]}")
+            if waves and numbers[0] <= waves[-1][0]:
+                raise ValueError(
+                    f"{path}, line {lineno}: wavelengths must increase, {numbers[0]} nm follows "
+                    f"{waves[-1][0]} nm (line {waves[-1][1]})"
+                )
+            waves.append((numbers[0], lineno))
+            values.append(numbers[1])
+        if len(waves) < 2:
+            raise ValueError(f"{path}: needs at least 2 data rows (nm, W/(sr m2 nm)), found {len(waves)}")
+        return cls([w for w, _ in waves], values, name=str(path))
+
+    def key(self):
+        return self._key
+
+    def spectral_radiance(self, wavelength_nm):
+        return np.interp(wavelength_nm, self.wavelength_nm, self.radiance, left=0.0, right=0.0)
+
+    def knots_nm(self):
+        return self.wavelength_nm
+
+    def __repr__(self):
+        return f"TabulatedSpectrum(<{self.wavelength_nm.size} rows>, name={self.name!r})"
+
+
+def _split_fields(line: str) -> list[str]:
+    for sep in (",", ";", "\t"):
+        if sep in line:
+            return next(csv.reader([line], delimiter=sep))
+    return line.split()
+
+
+# --------------------------------------------------------------------------------------
+# Reflective surfaces
+# --------------------------------------------------------------------------------------
+
+
+def _mallett_basis() -> tuple[np.ndarray, np.ndarray]:
+    """Mallett & Yuksel (2019) sRGB basis spectra from colour-science (380-780 nm, 5 nm)."""
+    from colour.recovery import MSDS_BASIS_FUNCTIONS_sRGB_MALLETT2019 as basis
+
+    return np.asarray(basis.wavelengths, dtype=float), np.asarray(basis.values, dtype=float)
+
+
+BASIS_WAVELENGTHS_NM, BASIS_VALUES = _mallett_basis()
+
+
+def reflectance_basis(wavelength_nm) -> np.ndarray:
+    """(..., 3) reflectance of the red, green and blue basis spectra at any wavelength.
+
+    Mallett, I. & Yuksel, C. (2019), "Spectral Primary Decomposition for Rendering with sRGB
+    Reflectance", EGSR: a linear sRGB colour (r, g, b) in [0, 1] has the reflectance
+    r B_r + g B_g + b B_b, which stays in [0, 1] and renders back to (r, g, b) under D65.
+    Linear interpolation inside 380-780 nm; outside, each basis is held constant at its
+    end value (our declared extension rule: the colour-science default for this data).
+    At both ends the three bases are nearly equal (about 1/3 each), so any colour becomes
+    a neutral grey of reflectance ~ (r + g + b) / 3 in the ultraviolet and infrared.
+    """
+    w = np.asarray(wavelength_nm, dtype=float)
+    out = np.empty(w.shape + (3,))
+    for c in range(3):
+        out[..., c] = np.interp(w, BASIS_WAVELENGTHS_NM, BASIS_VALUES[:, c])
+    return out
+
+
+def lamp_spectrum(lamp: float | str):
+    """(key, relative spectral power function of wavelength_nm) for a lamp spec."""
+    if isinstance(lamp, str):
+        if lamp.strip().upper() == "D65":
+            return "D65", spectrum.cie_d65_relative_spd
+        raise ValueError(f"lamp must be a temperature in K or \"D65\", got {lamp!r}")
+    t = _positive_number(lamp, "lamp temperature (K)")
+    return t, lambda w: spectrum.planck_spectral_radiance(w, t)
+
+
+def _rest_white_luminance(lamp_spd) -> float:
+    """Luminance (cd/m^2) of a perfect white reflector under ``lamp_spd`` per unit of it,
+    at rest (D = 1): K_m * integral(S ybar)."""
+    w = spectrum.CMF_WAVELENGTHS_NM
+    return float(spectrum.K_M_LM_PER_W * np.trapezoid(lamp_spd(w) * spectrum.CMF_VALUES[:, 1], w))
+
+
+class Reflective(Surface):
+    """A diffuse colour lit in the body's rest frame by a co-moving lamp.
+
+    ``rgb``: linear sRGB reflectance in [0, 1]; turned into a reflectance spectrum with the
+    Mallett & Yuksel (2019) basis (see :func:`reflectance_basis`). ``lamp``: a blackbody
+    temperature in K or "D65" (CIE illuminant D65, extended outside its table as in
+    :func:`relview.spectrum.cie_d65_relative_spd`). ``luminance``: cd/m^2 of a perfect white
+    reflector at rest; the reflected spectral radiance is
+    rho(lambda) * S(lambda) * luminance / (K_m * integral(S ybar dlambda)).
+    ``texture``: an image file (read with pillow, sRGB-encoded pixels decoded to linear);
+    where uv is given the colour comes from the image (uv wrap around, bilinear; v = 0 is
+    the bottom row), and ``rgb`` is used where uv is None.
+
+    The method is linear in rgb, so one table per basis colour (three per lamp) serves
+    every reflective surface and every texel.
+    """
+
+    def __init__(
+        self,
+        rgb=(1.0, 1.0, 1.0),
+        lamp: float | str = "D65",
+        luminance: float = 100.0,
+        texture: str | Path | None = None,
+    ):
+        try:
+            values = tuple(float(v) for v in rgb)
+        except (TypeError, ValueError):
+            raise ValueError(f"colour must be three numbers (linear sRGB), got {rgb!r}") from None
+        if len(values) != 3:
+            raise ValueError(f"colour must be three numbers (linear sRGB), got {rgb!r}")
+        if not all(math.isfinite(v) and 0.0 <= v <= 1.0 for v in values):
+            raise ValueError(f"colour components must lie in [0, 1] (reflectance), got {rgb!r}")
+        self.rgb = values
+        self.lamp_key, self._lamp_spd = lamp_spectrum(lamp)
+        self.lamp = lamp
+        self.luminance = _positive_number(luminance, "luminance (cd/m2)")
+        self.texture = None if texture is None else Path(texture)
+        self._texels = None if texture is None else load_texture(self.texture)
+
+    def key(self):
+        tex = None
+        if self.texture is not None:
+            tex = (str(self.texture), hash(self._texels.tobytes()))
+        return ("reflective", self.rgb, self.lamp_key, self.luminance, tex)
+
+    def basis_tables(self) -> list[spectrum.DopplerTable]:
+        """Doppler tables of the three basis reflectances under this lamp, normalised to a
+        rest-frame white luminance of 1 cd/m^2."""
+        tables = []
+        spd = self._lamp_spd
+        norm_key = ("lamp-white", self.lamp_key)
+        norm = _LAMP_NORMS.get(norm_key)
+        if norm is None:
+            norm = _LAMP_NORMS[norm_key] = 1.0 / _rest_white_luminance(spd)
+        for c in range(3):
+            def radiance(w, c=c):
+                return norm * spd(w) * reflectance_basis(w)[..., c]
+
+            tables.append(cached_table(("reflective-basis", self.lamp_key, c), radiance, None))
+        return tables
+
+    def spectral_radiance(self, wavelength_nm, rgb=None) -> np.ndarray:
+        """Rest-frame reflected spectral radiance, W/(sr m^2 nm), for ``rgb`` (default own)."""
+        rgb = np.asarray(self.rgb if rgb is None else rgb, dtype=float)
+        norm = 1.0 / _rest_white_luminance(self._lamp_spd)
+        return self.luminance * norm * self._lamp_spd(wavelength_nm) * (
+            reflectance_basis(wavelength_nm) @ rgb
+        )
+
+    def colour_at(self, uv, n: int) -> np.ndarray:
+        """(n, 3) linear sRGB reflectance per hit: from the texture at uv, else ``rgb``."""
+        if self._texels is None or uv is None:
+            return np.broadcast_to(np.asarray(self.rgb), (n, 3))
+        return sample_texture(self._texels, np.asarray(uv, dtype=float).reshape(n, 2))
+
+    def observed_xyz(self, doppler, rest_position=None, uv=None, effects=None) -> np.ndarray:
+        d = _as_doppler(doppler)
+        doppler_on, beaming_on = _effect_switches(effects)
+        dc, brightness = effect_factors(d, doppler_on, beaming_on)
+        rgb = self.colour_at(uv, d.size)
+        xyz = np.zeros((d.size, 3))
+        for c, table in enumerate(self.basis_tables()):
+            weight = rgb[:, c]
+            if np.any(weight):
+                xyz += weight[:, None] * table.lookup(dc)
+        return xyz * (self.luminance * brightness)[:, None]
+
+    def __repr__(self):
+        return (
+            f"Reflective(rgb={self.rgb!r}, lamp={self.lamp!r}, luminance={self.luminance!r}, "
+            f"texture={None if self.texture is None else str(self.texture)!r})"
+        )
+
+
+_LAMP_NORMS: dict[Hashable, float] = {}
+
+
+def load_texture(path: Path) -> np.ndarray:
+    """(H, W, 3) linear sRGB in [0, 1] from an image file (sRGB-encoded, read with pillow)."""
+    from PIL import Image, UnidentifiedImageError
+
+    try:
+        with Image.open(path) as img:
+            pixels = np.asarray(img.convert("RGB"), dtype=float) / 255.0
+    except FileNotFoundError:
+        raise ValueError(f"{path}: texture file not found") from None
+    except (UnidentifiedImageError, OSError) as exc:
+        raise ValueError(f"{path}: cannot read texture image ({exc})") from None
+    return spectrum.decode_srgb(pixels)
+
+
+def sample_texture(texels: np.ndarray, uv: np.ndarray) -> np.ndarray:
+    """Bilinear sample of (H, W, 3) texels at (N, 2) uv, wrapping around in both directions.
+
+    u runs left to right, v bottom to top (the OBJ / OpenGL convention); texel centres sit
+    at ((i + 0.5) / W, 1 - (j + 0.5) / H) for column i and row j.
+    """
+    h, w = texels.shape[:2]
+    x = np.mod(uv[:, 0], 1.0) * w - 0.5
+    y = (1.0 - np.mod(uv[:, 1], 1.0)) * h - 0.5
+    x0 = np.floor(x)
+    y0 = np.floor(y)
+    fx = (x - x0)[:, None]
+    fy = (y - y0)[:, None]
+    i0 = x0.astype(np.int64) % w
+    j0 = y0.astype(np.int64) % h
+    i1 = (i0 + 1) % w
+    j1 = (j0 + 1) % h
+    top = (1.0 - fx) * texels[j0, i0] + fx * texels[j0, i1]
+    bottom = (1.0 - fx) * texels[j1, i0] + fx * texels[j1, i1]
+    return (1.0 - fy) * top + fy * bottom
+
+
+# --------------------------------------------------------------------------------------
+# Patterns
+# --------------------------------------------------------------------------------------
+
+
+class Pattern(Surface):
+    """Two surfaces laid out by a rest-frame lattice of cubic cells of size ``period`` (m).
+
+    The lattice: cell n along axis i covers (n - 1/2) period <= p_i < (n + 1/2) period, so
+    the body origin sits at a cell centre (and faces of boxes whose half-size is a multiple
+    of ``period`` lie at cell centres rather than on boundaries). Only the coordinates
+    listed in ``axes`` (0 = x, 1 = y, 2 = z of the body's rest frame) take part.
+
+    * ``kind = "checks"``: a 3-D checkerboard; the cell with even sum of indices shows
+      ``first``, odd shows ``second``.
+    * ``kind = "grid"``: lines of width ``line_width`` (m) centred on the cell boundaries,
+      in ``second``, on a ``first`` background.
+
+    Defaults: ``first`` a light grey and ``second`` a dark grey Reflective under D65.
+    """
+
+    KINDS = ("checks", "grid")
+
+    def __init__(
+        self,
+        kind: str = "checks",
+        period: float = 0.1,
+        line_width: float = 0.01,
+        first: Surface | None = None,
+        second: Surface | None = None,
+        axes=(0, 1, 2),
+    ):
+        if kind not in self.KINDS:
+            raise ValueError(f"pattern kind must be one of {', '.join(self.KINDS)}, got {kind!r}")
+        self.kind = kind
+        self.period = _positive_number(period, "pattern period (m)")
+        self.line_width = _positive_number(line_width, "pattern line width (m)")
+        if kind == "grid" and self.line_width >= self.period:
+            raise ValueError(
+                f"pattern line width ({self.line_width} m) must be smaller than the period "
+                f"({self.period} m)"
+            )
+        self.first = Reflective((0.8, 0.8, 0.8)) if first is None else first
+        self.second = Reflective((0.05, 0.05, 0.05)) if second is None else second
+        for name, s in (("first", self.first), ("second", self.second)):
+            if not hasattr(s, "observed_xyz") or not hasattr(s, "key"):
+                raise ValueError(f"pattern {name} must be a surface, got {s!r}")
+        try:
+            axes_t = tuple(int(a) for a in axes)
+        except (TypeError, ValueError):
+            raise ValueError(f"pattern axes must be a list of 0, 1, 2, got {axes!r}") from None
+        if not axes_t or any(a not in (0, 1, 2) for a in axes_t) or len(set(axes_t)) != len(axes_t):
+            raise ValueError(f"pattern axes must be distinct values from 0, 1, 2, got {axes!r}")
+        self.axes = axes_t
+
+    def key(self):
+        return ("pattern", self.kind, self.period, self.line_width, self.first.key(),
+                self.second.key(), self.axes)
+
+    def second_mask(self, rest_position) -> np.ndarray:
+        """(N,) True where the hit shows ``second``."""
+        p = np.asarray(rest_position, dtype=float).reshape(-1, 3)[:, list(self.axes)]
+        scaled = p / self.period
+        if self.kind == "checks":
+            cells = np.floor(scaled + 0.5).astype(np.int64)
+            return (cells.sum(axis=1) % 2) == 1
+        # grid: distance (in periods) to the nearest boundary at half-integers
+        frac = scaled + 0.5 - np.floor(scaled + 0.5)  # in [0, 1): 0 on a boundary
+        dist = np.minimum(frac, 1.0 - frac) * self.period
+        return np.any(dist < 0.5 * self.line_width, axis=1)
+
+    def observed_xyz(self, doppler, rest_position, uv=None, effects=None) -> np.ndarray:
+        d = _as_doppler(doppler)
+        mask = self.second_mask(rest_position)
+        if mask.shape[0] != d.size:
+            raise ValueError(f"pattern: {d.size} Doppler factors but {mask.shape[0]} positions")
+        pos = np.asarray(rest_position, dtype=float).reshape(-1, 3)
+        uv_arr = None if uv is None else np.asarray(uv, dtype=float).reshape(-1, 2)
+        out = np.zeros((d.size, 3))
+        for surface, sel in ((self.first, ~mask), (self.second, mask)):
+            if np.any(sel):
+                out[sel] = surface.observed_xyz(
+                    d[sel], pos[sel], None if uv_arr is None else uv_arr[sel], effects
+                )
+        return out
+
+    def __repr__(self):
+        return (
+            f"Pattern(kind={self.kind!r}, period={self.period!r}, line_width={self.line_width!r}, "
+            f"first={self.first!r}, second={self.second!r}, axes={self.axes!r})"
+        )
