@@ -50,9 +50,10 @@ import os
 import secrets
 import struct
 import zlib
+from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, BinaryIO, Callable, Iterable, Mapping
+from typing import Any, BinaryIO
 
 import numpy as np
 
@@ -62,22 +63,25 @@ __all__ = [
     "AUTO_WHITE_PERCENTILE",
     "FALLBACK_WHITE_CD_M2",
     "LUMINANCE_WEIGHTS",
+    "METADATA_ENTRY",
     "NAN_RGB",
+    "REINHARD_L_WHITE",
     "TONE_CURVES",
     "ExposureLock",
     "OutputError",
     "apply_tone",
     "auto_white",
     "check_white",
+    "encode_png",
     "expose",
-    "exr_available",
     "exposure_white",
+    "exr_available",
     "false_colour",
     "gamut_map",
     "safe_output_path",
     "save_layer_figure",
-    "to_16bit",
     "to_8bit",
+    "to_16bit",
     "to_display",
     "write_exr",
     "write_json_sidecar",
@@ -270,20 +274,19 @@ class ExposureLock:
         return {"setting": self.setting, "white_cd_m2": self.white, "source": self.source}
 
     @classmethod
-    def from_dict(cls, data: Mapping[str, Any]) -> "ExposureLock":
+    def from_dict(cls, data: Mapping[str, Any]) -> ExposureLock:
         if not isinstance(data, Mapping):
             raise ValueError(f"exposure lock: expected a dict, got {type(data).__name__}")
         known = {"setting", "white_cd_m2", "source"}
         unknown = sorted(set(data) - known)
         if unknown:
-            raise ValueError(
-                f"exposure lock: unknown key(s) {unknown}; expected {sorted(known)}"
-            )
+            raise ValueError(f"exposure lock: unknown key(s) {unknown}; expected {sorted(known)}")
         source = data.get("source", "")
         if not isinstance(source, str):
             raise ValueError(f"exposure lock: source must be text, got {source!r}")
-        return cls(setting=data.get("setting", "auto"), white=data.get("white_cd_m2"),
-                   source=source)
+        return cls(
+            setting=data.get("setting", "auto"), white=data.get("white_cd_m2"), source=source
+        )
 
 
 # --------------------------------------------------------------------------- display
@@ -356,8 +359,9 @@ def to_display(linear: Any, tone: str = "none") -> np.ndarray:
     Order: NaN -> 0 (black), +-inf bounded; :func:`gamut_map`; :func:`apply_tone`;
     clip each channel to [0, 1].
     """
-    rgb = np.nan_to_num(np.asarray(linear, dtype=np.float64), nan=0.0,
-                        posinf=_DISPLAY_BOUND, neginf=-_DISPLAY_BOUND)
+    rgb = np.nan_to_num(
+        np.asarray(linear, dtype=np.float64), nan=0.0, posinf=_DISPLAY_BOUND, neginf=-_DISPLAY_BOUND
+    )
     np.clip(rgb, -_DISPLAY_BOUND, _DISPLAY_BOUND, out=rgb)
     rgb = apply_tone(gamut_map(rgb), tone)
     return np.clip(rgb, 0.0, 1.0)
@@ -400,8 +404,10 @@ def _output_error(path: Path, exc: OSError) -> OutputError:
     if code:
         reason = f"{reason} [{code}]"
     where = exc.filename
-    if where is not None and str(where) != str(path) and not str(where).startswith(
-        str(path.parent / ("." + path.name))
+    if (
+        where is not None
+        and str(where) != str(path)
+        and not str(where).startswith(str(path.parent / ("." + path.name)))
     ):
         reason = f"{reason} (at {where})"
     return OutputError(f"cannot write the output file: {reason}", file=path)
@@ -428,8 +434,14 @@ def safe_output_path(path: str | os.PathLike, overwrite: bool = False) -> Path:
 
 
 # Errors of os.link that mean "this file system has no hard links", not a real failure.
-_NO_HARD_LINKS = {errno.EPERM, errno.EXDEV, errno.ENOSYS, errno.EMLINK,
-                  getattr(errno, "ENOTSUP", -1), getattr(errno, "EOPNOTSUPP", -1)}
+_NO_HARD_LINKS = {
+    errno.EPERM,
+    errno.EXDEV,
+    errno.ENOSYS,
+    errno.EMLINK,
+    getattr(errno, "ENOTSUP", -1),
+    getattr(errno, "EOPNOTSUPP", -1),
+}
 
 
 def _commit(tmp: Path, final: Path, overwrite: bool) -> Path:
@@ -473,8 +485,9 @@ def _fsync_directory(directory: Path) -> None:
         os.close(fd)
 
 
-def _atomic_write(path: str | os.PathLike, write: Callable[[BinaryIO], None],
-                  overwrite: bool = False) -> Path:
+def _atomic_write(
+    path: str | os.PathLike, write: Callable[[BinaryIO], None], overwrite: bool = False
+) -> Path:
     """Write a file atomically with ``write(binary_file)``; return the path written.
 
     The data go to a hidden temporary file in the target directory (created with
@@ -488,8 +501,9 @@ def _atomic_write(path: str | os.PathLike, write: Callable[[BinaryIO], None],
     try:
         directory.mkdir(parents=True, exist_ok=True)
     except FileExistsError as exc:  # a part of the directory path is a file
-        raise OutputError(f"cannot create the directory: {exc.filename} is a file, "
-                          "not a directory", file=final) from exc
+        raise OutputError(
+            f"cannot create the directory: {exc.filename} is a file, not a directory", file=final
+        ) from exc
     except OSError as exc:
         raise _output_error(final, exc) from exc
     tmp: Path | None = None
@@ -527,8 +541,9 @@ def _json_default(value: Any) -> Any:
         return value.tolist()
     if isinstance(value, os.PathLike):
         return os.fspath(value)
-    raise TypeError(f"metadata value {value!r} of type {type(value).__name__} "
-                    "cannot be stored as JSON")
+    raise TypeError(
+        f"metadata value {value!r} of type {type(value).__name__} cannot be stored as JSON"
+    )
 
 
 def _metadata_json(metadata: Mapping[str, Any] | None, indent: int | None = None) -> str:
@@ -536,15 +551,23 @@ def _metadata_json(metadata: Mapping[str, Any] | None, indent: int | None = None
     if not isinstance(metadata, Mapping):
         raise ValueError(f"metadata must be a dict, got {type(metadata).__name__}")
     try:
-        return json.dumps(dict(metadata), indent=indent, sort_keys=True,
-                          default=_json_default, allow_nan=False, ensure_ascii=False)
+        return json.dumps(
+            dict(metadata),
+            indent=indent,
+            sort_keys=True,
+            default=_json_default,
+            allow_nan=False,
+            ensure_ascii=False,
+        )
     except ValueError as exc:
-        raise ValueError(f"metadata cannot be stored as JSON: {exc} "
-                         "(NaN and infinity are not allowed)") from exc
+        raise ValueError(
+            f"metadata cannot be stored as JSON: {exc} (NaN and infinity are not allowed)"
+        ) from exc
 
 
-def write_json_sidecar(path: str | os.PathLike, metadata: Mapping[str, Any], *,
-                       overwrite: bool = False) -> Path:
+def write_json_sidecar(
+    path: str | os.PathLike, metadata: Mapping[str, Any], *, overwrite: bool = False
+) -> Path:
     """Write ``metadata`` as an indented UTF-8 JSON file (atomic); return the path written."""
     text = _metadata_json(metadata, indent=2) + "\n"
     return _atomic_write(path, lambda fh: fh.write(text.encode("utf-8")), overwrite)
@@ -557,8 +580,12 @@ _PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 
 def _png_chunk(kind: bytes, data: bytes) -> bytes:
     # Chunk layout and CRC-32 over type + data: PNG specification (W3C, ISO/IEC 15948), 5.3.
-    return (struct.pack(">I", len(data)) + kind + data
-            + struct.pack(">I", zlib.crc32(kind + data) & 0xFFFFFFFF))
+    return (
+        struct.pack(">I", len(data))
+        + kind
+        + data
+        + struct.pack(">I", zlib.crc32(kind + data) & 0xFFFFFFFF)
+    )
 
 
 def _png_text_chunk(key: str, value: str) -> bytes:
@@ -569,10 +596,11 @@ def _png_text_chunk(key: str, value: str) -> bytes:
         keyword = key.encode("latin-1")
     except UnicodeEncodeError:
         raise ValueError(f"PNG metadata key {key!r} must be Latin-1 text") from None
-    if (any(b < 32 or 126 < b < 161 for b in keyword) or key != key.strip()
-            or "  " in key):
-        raise ValueError(f"PNG metadata key {key!r}: printable characters only, "
-                         "no leading, trailing or double spaces")
+    if any(b < 32 or 126 < b < 161 for b in keyword) or key != key.strip() or "  " in key:
+        raise ValueError(
+            f"PNG metadata key {key!r}: printable characters only, "
+            "no leading, trailing or double spaces"
+        )
     try:
         data = value.encode("latin-1")
         if b"\x00" not in data:
@@ -630,8 +658,11 @@ def encode_png(rgb: np.ndarray, metadata: Mapping[str, Any] | None = None) -> by
         _png_chunk(b"sRGB", b"\x01"),  # rendering intent: relative colorimetric
     ]
     for key, value in (metadata or {}).items():
-        text = value if isinstance(value, str) else json.dumps(
-            value, default=_json_default, ensure_ascii=False)
+        text = (
+            value
+            if isinstance(value, str)
+            else json.dumps(value, default=_json_default, ensure_ascii=False)
+        )
         parts.append(_png_text_chunk(key, text))
     parts.append(_png_chunk(b"IDAT", zlib.compress(scanlines.tobytes(), 6)))
     parts.append(_png_chunk(b"IEND", b""))
@@ -644,17 +675,25 @@ def _as_png_integers(image: Any, bits: int, tone: str) -> np.ndarray:
     arr = np.asarray(image)
     if arr.dtype == np.uint8 or arr.dtype == np.uint16:
         if arr.dtype.itemsize * 8 != bits:
-            raise ValueError(f"a {arr.dtype} image cannot be written as a {bits}-bit PNG "
-                             "without rescaling; pass linear floats or matching integers")
+            raise ValueError(
+                f"a {arr.dtype} image cannot be written as a {bits}-bit PNG "
+                "without rescaling; pass linear floats or matching integers"
+            )
         return arr
     if not np.issubdtype(arr.dtype, np.floating):
         raise ValueError(f"PNG image must be linear sRGB floats or uint8/uint16, got {arr.dtype}")
     return to_8bit(arr, tone) if bits == 8 else to_16bit(arr, tone)
 
 
-def write_png(path: str | os.PathLike, image: Any, bits: int = 8,
-              metadata: Mapping[str, Any] | None = None, *, tone: str = "none",
-              overwrite: bool = False) -> Path:
+def write_png(
+    path: str | os.PathLike,
+    image: Any,
+    bits: int = 8,
+    metadata: Mapping[str, Any] | None = None,
+    *,
+    tone: str = "none",
+    overwrite: bool = False,
+) -> Path:
     """Write an (H, W, 3) image as an 8- or 16-bit sRGB PNG (atomic); return the path written.
 
     ``image``: linear sRGB floats (encoded with :func:`to_8bit` / :func:`to_16bit`
@@ -670,9 +709,13 @@ def write_png(path: str | os.PathLike, image: Any, bits: int = 8,
 METADATA_ENTRY = "metadata"
 
 
-def write_layers_npz(path: str | os.PathLike, layers: Mapping[str, Any],
-                     metadata: Mapping[str, Any] | None = None, *,
-                     overwrite: bool = False) -> Path:
+def write_layers_npz(
+    path: str | os.PathLike,
+    layers: Mapping[str, Any],
+    metadata: Mapping[str, Any] | None = None,
+    *,
+    overwrite: bool = False,
+) -> Path:
     """Write named arrays to a compressed .npz (atomic); return the path written.
 
     ``metadata`` is stored as a JSON string in the entry ``"metadata"`` (a 0-d
@@ -684,12 +727,15 @@ def write_layers_npz(path: str | os.PathLike, layers: Mapping[str, Any],
     arrays: dict[str, np.ndarray] = {}
     for name, value in layers.items():
         if not isinstance(name, str) or not name or name == METADATA_ENTRY or "/" in name:
-            raise ValueError(f"layer name {name!r} is not allowed (non-empty text, "
-                             f"no '/', not {METADATA_ENTRY!r})")
+            raise ValueError(
+                f"layer name {name!r} is not allowed (non-empty text, "
+                f"no '/', not {METADATA_ENTRY!r})"
+            )
         arr = np.asarray(value)
         if arr.dtype.hasobject:
-            raise ValueError(f"layer {name!r} has dtype object, which needs pickle; "
-                             "store numbers or text")
+            raise ValueError(
+                f"layer {name!r} has dtype object, which needs pickle; store numbers or text"
+            )
         arrays[name] = arr
     arrays[METADATA_ENTRY] = np.array(_metadata_json(metadata))
     return _atomic_write(path, lambda fh: np.savez_compressed(fh, **arrays), overwrite)
@@ -712,8 +758,10 @@ def _exr_channels(linear: Any, layers: Mapping[str, Any] | None) -> dict[str, np
     for name, value in (layers or {}).items():
         arr = np.asarray(value)
         if arr.shape[:2] != rgb.shape[:2] or arr.ndim not in (2, 3):
-            raise ValueError(f"EXR layer {name!r} has shape {arr.shape}; "
-                             f"expected {rgb.shape[:2]} or {rgb.shape[:2] + (3,)}")
+            raise ValueError(
+                f"EXR layer {name!r} has shape {arr.shape}; "
+                f"expected {rgb.shape[:2]} or {rgb.shape[:2] + (3,)}"
+            )
         if arr.dtype.kind not in "biuf":
             raise ValueError(f"EXR layer {name!r} must be numeric, got {arr.dtype}")
         arr = arr.astype(np.float32)  # integer layers (body index) too: exact below 2**24
@@ -721,13 +769,20 @@ def _exr_channels(linear: Any, layers: Mapping[str, Any] | None) -> dict[str, np
             channels[str(name)] = np.ascontiguousarray(arr)
         else:
             for i in range(arr.shape[2]):
-                channels[f"{name}.{'xyz'[i] if arr.shape[2] == 3 else i}"] = \
-                    np.ascontiguousarray(arr[..., i])
+                channels[f"{name}.{'xyz'[i] if arr.shape[2] == 3 else i}"] = np.ascontiguousarray(
+                    arr[..., i]
+                )
     return channels
 
 
-def write_exr(path: str | os.PathLike, linear: Any, layers: Mapping[str, Any] | None = None,
-              metadata: Mapping[str, Any] | None = None, *, overwrite: bool = False) -> Path:
+def write_exr(
+    path: str | os.PathLike,
+    linear: Any,
+    layers: Mapping[str, Any] | None = None,
+    metadata: Mapping[str, Any] | None = None,
+    *,
+    overwrite: bool = False,
+) -> Path:
     """Write (H, W, 3) linear sRGB as a float32 OpenEXR file (atomic); return the path written.
 
     ``layers`` (optional): further (H, W) or (H, W, k) arrays stored as float32
@@ -739,14 +794,17 @@ def write_exr(path: str | os.PathLike, linear: Any, layers: Mapping[str, Any] | 
     try:
         import OpenEXR
     except ImportError:
-        raise OutputError("cannot write OpenEXR: the optional package 'OpenEXR' is not "
-                          "installed (pip install OpenEXR)", file=path) from None
+        raise OutputError(
+            "cannot write OpenEXR: the optional package 'OpenEXR' is not "
+            "installed (pip install OpenEXR)",
+            file=path,
+        ) from None
     channels = _exr_channels(linear, layers)
-    header: dict[str, Any] = {"compression": OpenEXR.ZIP_COMPRESSION,
-                              "type": OpenEXR.scanlineimage}
+    header: dict[str, Any] = {"compression": OpenEXR.ZIP_COMPRESSION, "type": OpenEXR.scanlineimage}
     for key, value in (metadata or {}).items():
-        header[str(key)] = value if isinstance(value, str) else json.dumps(
-            value, default=_json_default)
+        header[str(key)] = (
+            value if isinstance(value, str) else json.dumps(value, default=_json_default)
+        )
 
     def write(handle: BinaryIO) -> None:
         # OpenEXR writes by file name: write beside the temporary file, copy the bytes in.
@@ -793,12 +851,18 @@ def _colour_map(cmap: str):
     try:
         return matplotlib.colormaps[cmap]
     except KeyError:
-        raise ValueError(f"unknown colour map {cmap!r}; e.g. 'viridis', 'magma', "
-                         "'cividis', 'coolwarm'") from None
+        raise ValueError(
+            f"unknown colour map {cmap!r}; e.g. 'viridis', 'magma', 'cividis', 'coolwarm'"
+        ) from None
 
 
-def false_colour(values: Any, vmin: float | None = None, vmax: float | None = None,
-                 cmap: str = "viridis", log: bool = False) -> np.ndarray:
+def false_colour(
+    values: Any,
+    vmin: float | None = None,
+    vmax: float | None = None,
+    cmap: str = "viridis",
+    log: bool = False,
+) -> np.ndarray:
     """(H, W) scalar layer -> (H, W, 3) uint8 RGB through a matplotlib colour map.
 
     Values are placed linearly (or by log10 when ``log``) between ``vmin`` and
@@ -822,11 +886,20 @@ def false_colour(values: Any, vmin: float | None = None, vmax: float | None = No
     return rgb
 
 
-def save_layer_figure(path: str | os.PathLike, values: Any, label: str, unit: str,
-                      log: bool = False, *, vmin: float | None = None,
-                      vmax: float | None = None, cmap: str = "viridis",
-                      title: str | None = None, dpi: int = 100,
-                      overwrite: bool = False) -> Path:
+def save_layer_figure(
+    path: str | os.PathLike,
+    values: Any,
+    label: str,
+    unit: str,
+    log: bool = False,
+    *,
+    vmin: float | None = None,
+    vmax: float | None = None,
+    cmap: str = "viridis",
+    title: str | None = None,
+    dpi: int = 100,
+    overwrite: bool = False,
+) -> Path:
     """A figure of an (H, W) layer in false colour with a labelled colour bar (atomic).
 
     The colour bar reads ``label (unit)``; NaN pixels are shown in :data:`NAN_RGB`

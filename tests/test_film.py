@@ -21,8 +21,8 @@ from PIL import Image
 from relview import film
 from relview.errors import OutputError, UserError
 
-
 # ----------------------------------------------------------------------------- references
+
 
 def iec_61966_2_1_encode(linear: float) -> float:
     """sRGB encoding written out from IEC 61966-2-1:1999, section 5.2 (independent of
@@ -92,6 +92,7 @@ def test_nan_and_negative_display_as_black_and_values_clip():
 
 # ----------------------------------------------------------------------------- exposure
 
+
 def test_fixed_white_maps_d65_to_one():
     # IEC 61966-2-1: the D65 white of luminance W, exposed with white W, is (1, 1, 1).
     for white in (1e-12, 250.0, 3e9):
@@ -123,8 +124,7 @@ def test_auto_white_ignores_few_beamed_pixels_zeros_and_unlit():
     # 995 at 100 cd/m2; 500 lit pixels with Y = 0; unlit pixels at 1e25 cd/m2.
     # The 99th percentile of the 1000 positive values sits at sorted position
     # 0.99 * 999 = 989.01, between positions 989 and 990, both among the 995 -> exactly 100.
-    y = np.concatenate([np.full(995, 100.0), np.full(5, 1e20), np.zeros(500),
-                        np.full(100, 1e25)])
+    y = np.concatenate([np.full(995, 100.0), np.full(5, 1e20), np.zeros(500), np.full(100, 1e25)])
     mask = np.concatenate([np.ones(1500, bool), np.zeros(100, bool)])
     perm = np.random.default_rng(2).permutation(y.size)
     xyz = (D65_XYZ[None, :] * y[perm, None]).reshape(40, 40, 3)
@@ -185,6 +185,7 @@ def test_exposure_lock_round_trip_and_hold():
 
 # ----------------------------------------------------------------------------- gamut, tone
 
+
 def test_gamut_map_keeps_luminance_and_hue_line():
     rgb = np.array([[1.2, -0.3, 0.1], [0.2, 0.5, -0.05], [0.3, 0.2, 0.1], [-0.5, -0.1, 0.2]])
     out = film.gamut_map(rgb)
@@ -244,7 +245,10 @@ def _ffmpeg_rgb48(path: Path, width: int, height: int) -> np.ndarray:
     exe = pytest.importorskip("imageio_ffmpeg").get_ffmpeg_exe()
     raw = subprocess.run(
         [exe, "-v", "error", "-i", str(path), "-f", "rawvideo", "-pix_fmt", "rgb48le", "-"],
-        check=True, capture_output=True, timeout=60).stdout
+        check=True,
+        capture_output=True,
+        timeout=60,
+    ).stdout
     return np.frombuffer(raw, dtype="<u2").reshape(height, width, 3)
 
 
@@ -276,16 +280,23 @@ def test_png_rejects_mismatched_integers_and_bad_keys(tmp_path):
 
 # ----------------------------------------------------------------------------- other writers
 
+
 def test_layers_npz_and_json_sidecar_round_trip(tmp_path):
-    layers = {"xyz": np.arange(24.0).reshape(2, 4, 3), "body": np.array([[0, -1, 1, 0]] * 2),
-              "doppler": np.array([[np.nan, 3.0, 1 / 3, 1.0]] * 2)}
+    layers = {
+        "xyz": np.arange(24.0).reshape(2, 4, 3),
+        "body": np.array([[0, -1, 1, 0]] * 2),
+        "doppler": np.array([[np.nan, 3.0, 1 / 3, 1.0]] * 2),
+    }
     meta = {"white_cd_m2": np.float64(42.0), "frame": 7, "title": "Zug über die Brücke"}
     path = film.write_layers_npz(tmp_path / "layers.npz", layers, meta)
     with np.load(path, allow_pickle=False) as npz:
         for name, arr in layers.items():
             assert np.array_equal(npz[name], arr, equal_nan=True)
-        assert json.loads(str(npz["metadata"])) == {"white_cd_m2": 42.0, "frame": 7,
-                                                    "title": "Zug über die Brücke"}
+        assert json.loads(str(npz["metadata"])) == {
+            "white_cd_m2": 42.0,
+            "frame": 7,
+            "title": "Zug über die Brücke",
+        }
     side = film.write_json_sidecar(tmp_path / "layers.json", meta)
     assert json.loads(side.read_text("utf-8"))["white_cd_m2"] == 42.0
     with pytest.raises(ValueError, match="NaN"):
@@ -304,8 +315,9 @@ def test_write_exr_when_available(tmp_path):
     import OpenEXR
 
     linear = np.random.default_rng(6).uniform(0, 1e20, (3, 5, 3)).astype(np.float32)
-    path = film.write_exr(tmp_path / "a.exr", linear, {"doppler": np.full((3, 5), 3.0)},
-                          {"scene": "tram"})
+    path = film.write_exr(
+        tmp_path / "a.exr", linear, {"doppler": np.full((3, 5), 3.0)}, {"scene": "tram"}
+    )
     with OpenEXR.File(str(path)) as f:
         # The reader (OpenEXR's own, the reference) groups the R, G, B channels again.
         assert {c.name for c in f.header()["channels"]} >= {"R", "G", "B", "doppler"}
@@ -316,6 +328,7 @@ def test_write_exr_when_available(tmp_path):
 
 
 # ----------------------------------------------------------------------------- safety
+
 
 def test_safe_output_path_numbering(tmp_path):
     target = tmp_path / "frame.png"
@@ -380,9 +393,14 @@ def test_non_os_failure_in_writer_removes_temporary(tmp_path, monkeypatch):
     assert sorted(p.name for p in tmp_path.iterdir()) == ["layers.npz"]
 
 
-@pytest.mark.parametrize("code, words", [(errno.EACCES, "permission denied"),
-                                         (errno.ENOSPC, "no space left on device"),
-                                         (errno.EROFS, "read-only file system")])
+@pytest.mark.parametrize(
+    "code, words",
+    [
+        (errno.EACCES, "permission denied"),
+        (errno.ENOSPC, "no space left on device"),
+        (errno.EROFS, "read-only file system"),
+    ],
+)
 def test_rename_failure_becomes_output_error(tmp_path, monkeypatch, code, words):
     # Root ignores directory permissions, so the failure is injected at the rename.
     target = tmp_path / "out.png"
@@ -437,8 +455,9 @@ def test_no_hard_links_falls_back_to_checked_replace(tmp_path, monkeypatch):
     assert (tmp_path / "a.json").read_text() == "old"
 
 
-@pytest.mark.skipif(os.name != "posix" or os.geteuid() == 0,
-                    reason="root ignores directory permissions")
+@pytest.mark.skipif(
+    os.name != "posix" or os.geteuid() == 0, reason="root ignores directory permissions"
+)
 def test_read_only_directory(tmp_path):
     locked = tmp_path / "locked"
     locked.mkdir()
@@ -451,6 +470,7 @@ def test_read_only_directory(tmp_path):
 
 
 # ----------------------------------------------------------------------------- false colour
+
 
 def test_false_colour_ends_nan_and_log():
     import matplotlib
@@ -475,8 +495,9 @@ def test_false_colour_ends_nan_and_log():
 def test_save_layer_figure(tmp_path):
     doppler = np.full((12, 16), np.nan)
     doppler[3:9, 4:12] = np.geomspace(1 / 3, 3, 8)[None, :]
-    path = film.save_layer_figure(tmp_path / "doppler.png", doppler, "Doppler factor D", "",
-                                  log=True)
+    path = film.save_layer_figure(
+        tmp_path / "doppler.png", doppler, "Doppler factor D", "", log=True
+    )
     with Image.open(path) as im:
         assert im.format == "PNG" and im.size[0] > 100
     again = film.save_layer_figure(tmp_path / "doppler.png", doppler, "D", "")
