@@ -134,6 +134,15 @@ def test_auto_white_ignores_few_beamed_pixels_zeros_and_unlit():
     assert white < 1e-10 * y[mask].max()
 
 
+def test_auto_white_interpolates_on_log_scale():
+    # 990 pixels at 1 cd/m2, 10 at 1e20. The 99th percentile by linear interpolation of
+    # order statistics (Hyndman & Fan 1996, definition 7, numpy's default) sits at
+    # position 0.99 * 999 = 989.01, 1 % of the way from 1 to 1e20. On the log10 scale
+    # that is 10**(0.01 * 20) = 10**0.2 cd/m2; on a linear scale it would be ~1e18.
+    y = np.concatenate([np.ones(990), np.full(10, 1e20)])
+    assert film.auto_white(y) == pytest.approx(10**0.2, rel=1e-9)
+
+
 def test_auto_white_is_scale_invariant_over_twenty_decades():
     # Property of a percentile: scaling all luminances by k scales the white by k.
     rng = np.random.default_rng(3)
