@@ -91,6 +91,7 @@ class Body:
     rotation: np.ndarray = field(default_factory=lambda: np.zeros(3))  # degrees about x, y, z
     detail: int | None = None  # tessellation level of curved primitives
     source_key: str = ""  # where in the scene file this body came from, for messages
+    center: bool = True  # mesh: shift the file's bounding-box centre onto the body origin
 
     def rotation_matrix(self) -> np.ndarray:
         """Rest-frame orientation: body axes -> rest-frame axes (x, then y, then z turns)."""

@@ -1,0 +1,331 @@
+"""Rest-frame triangle meshes for the body shapes of a scene.
+
+Every body is a triangle mesh in its own rest frame, in metres, around the body
+origin (the point whose worldline the body's motion describes):
+
+* ``box``      -- ``size = [x, y, z]``, centred on the origin.
+* ``sphere``   -- ``radius``; an icosphere. ``detail`` = subdivision level
+  (default 5: 20 480 triangles, the flat facets lie at most 0.028 % of the radius
+  inside the true sphere, so outlines are within 0.1 % of the radius).
+* ``cylinder`` -- ``radius``, ``height`` along the rest-frame z axis, centred on
+  the origin; ``4 * 2**detail`` sections around the axis (default detail 5: 128
+  sections, outline error 1 - cos(pi/128) = 0.030 % of the radius).
+* ``plane``    -- ``size = [x, y]``, a finite rectangle in the body's x-y plane,
+  two-sided: each half carries both windings, so it is hit from either side even
+  by a tracer that culls back faces. UVs run 0..1 along x and y.
+* ``mesh``     -- ``file``: any format trimesh reads (OBJ, PLY, STL, OFF, glTF/GLB).
+  Multi-object files are flattened to one mesh with their node transforms applied.
+  Coordinates are taken as metres in the file's own axes (glTF is y-up by its
+  standard; use ``rotation = [90, 0, 0]`` to stand such a model on z), multiplied
+  by ``scale``, and by default (``center = true``) shifted so the centre of the
+  bounding box lies on the body origin. UVs are kept when every part has them.
+
+Then ``Body.rotation_matrix()`` turns the mesh (x, then y, then z turns about
+the body origin).
+
+Mesh files that are missing, unreadable, empty or corrupt raise
+:class:`relview.errors.MeshError` naming the file. Degenerate triangles (zero
+area) are removed and meshes that are not closed are accepted; both give a
+:class:`relview.errors.MeshWarning` naming the file. Built meshes are cached in
+memory per (file, modification time, size, scale, centering), so an animation
+reads each file once.
+"""
+
+from __future__ import annotations
+
+import functools
+import os
+import warnings
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import trimesh
+
+from relview.errors import MeshError, MeshWarning
+
+#: shapes a body may have
+SHAPES = ("box", "sphere", "cylinder", "plane", "mesh")
+
+#: tessellation level used when a body gives no ``detail`` (see the module docstring)
+DEFAULT_DETAIL = 5
+#: largest accepted ``detail`` (sphere level 7: 327 680 triangles)
+MAX_DETAIL = 7
+
+
+@dataclass(frozen=True)
+class MeshData:
+    """A triangle mesh as plain arrays (read-only views; copy before changing them).
+
+    vertices: (V, 3) float64, m, body rest frame.
+    faces:    (F, 3) int64 indices into vertices, counter-clockwise seen from outside
+              where the source defines an outside.
+    uv:       (V, 2) float64 texture coordinates, or None.
+    source:   what the mesh came from (file path or shape description), for messages.
+    """
+
+    vertices: np.ndarray
+    faces: np.ndarray
+    uv: np.ndarray | None
+    source: str = ""
+
+    def to_trimesh(self) -> trimesh.Trimesh:
+        """A new trimesh.Trimesh (process=False: vertex order kept, UVs in ``visual.uv``)."""
+        visual = None
+        if self.uv is not None:
+            visual = trimesh.visual.TextureVisuals(uv=np.array(self.uv))
+        return trimesh.Trimesh(
+            vertices=np.array(self.vertices), faces=np.array(self.faces), visual=visual, process=False
+        )
+
+
+def _frozen(a: np.ndarray | None, dtype) -> np.ndarray | None:
+    if a is None:
+        return None
+    a = np.ascontiguousarray(a, dtype=dtype)
+    a.setflags(write=False)
+    return a
+
+
+def _mesh(vertices, faces, uv=None, source="") -> MeshData:
+    return MeshData(_frozen(vertices, np.float64), _frozen(faces, np.int64), _frozen(uv, np.float64), source)
+
+
+# --------------------------------------------------------------------------- primitives
+
+
+def sphere_subdivisions(detail: int) -> int:
+    """Icosphere subdivision level used for a sphere of the given detail."""
+    return int(detail)
+
+
+def cylinder_sections(detail: int) -> int:
+    """Number of sections around a cylinder's axis for the given detail level."""
+    return 4 * 2 ** int(detail)
+
+
+@functools.lru_cache(maxsize=64)
+def _box(sx: float, sy: float, sz: float) -> MeshData:
+    m = trimesh.creation.box(extents=(sx, sy, sz))
+    return _mesh(m.vertices, m.faces, source=f"box {sx} x {sy} x {sz} m")
+
+
+@functools.lru_cache(maxsize=64)
+def _sphere(radius: float, detail: int) -> MeshData:
+    m = trimesh.creation.icosphere(subdivisions=sphere_subdivisions(detail), radius=radius)
+    return _mesh(m.vertices, m.faces, source=f"sphere r = {radius} m")
+
+
+@functools.lru_cache(maxsize=64)
+def _cylinder(radius: float, height: float, detail: int) -> MeshData:
+    m = trimesh.creation.cylinder(radius=radius, height=height, sections=cylinder_sections(detail))
+    return _mesh(m.vertices, m.faces, source=f"cylinder r = {radius} m, h = {height} m")
+
+
+@functools.lru_cache(maxsize=64)
+def _plane(sx: float, sy: float) -> MeshData:
+    hx, hy = sx / 2.0, sy / 2.0
+    vertices = np.array([[-hx, -hy, 0.0], [hx, -hy, 0.0], [hx, hy, 0.0], [-hx, hy, 0.0]])
+    front = [[0, 1, 2], [0, 2, 3]]  # normal +z
+    back = [[0, 2, 1], [0, 3, 2]]  # normal -z: the same rectangle seen from below
+    uv = np.array([[0.0, 0.0], [1.0, 0.0], [1.0, 1.0], [0.0, 1.0]])
+    return _mesh(vertices, np.array(front + back), uv, source=f"plane {sx} x {sy} m")
+
+
+# --------------------------------------------------------------------------- mesh files
+
+_FILE_CACHE: dict[tuple, MeshData] = {}
+_FILE_CACHE_LIMIT = 32
+
+
+def _supported_formats() -> str:
+    return ", ".join(sorted(trimesh.available_formats()))
+
+
+def _parts(loaded, path: Path) -> list[trimesh.Trimesh]:
+    """Triangle meshes in what trimesh loaded, with scene-graph transforms applied."""
+    if isinstance(loaded, trimesh.Scene):
+        geoms = loaded.dump(concatenate=False)
+    elif isinstance(loaded, (list, tuple)):
+        geoms = list(loaded)
+    else:
+        geoms = [loaded]
+    return [g for g in geoms if isinstance(g, trimesh.Trimesh) and len(g.faces) > 0]
+
+
+def _read_mesh_file(path: Path) -> MeshData:
+    """Read a mesh file as it is (no scaling), flattening multi-part files."""
+    if not path.exists():
+        raise MeshError("mesh file does not exist", file=path, value=str(path))
+    if not path.is_file():
+        raise MeshError("mesh path is not a file", file=path, value=str(path))
+    if not os.access(path, os.R_OK):
+        raise MeshError("mesh file is not readable (permission denied)", file=path, value=str(path))
+    if path.stat().st_size == 0:
+        raise MeshError("mesh file is empty (0 bytes)", file=path, value=str(path))
+    ext = path.suffix.lower().lstrip(".")
+    if ext not in trimesh.available_formats():
+        raise MeshError(
+            f"unsupported mesh format '.{ext}'; readable formats: {_supported_formats()}",
+            file=path,
+            value=str(path),
+        )
+    try:
+        # process=False: keep the file's vertices as they are, so UVs stay aligned.
+        loaded = trimesh.load(str(path), process=False)
+    except Exception as exc:  # trimesh raises many types on corrupt input
+        raise MeshError(
+            f"cannot read mesh file (corrupt or not a {ext.upper()} file?): "
+            f"{type(exc).__name__}: {exc}",
+            file=path,
+            value=str(path),
+        ) from exc
+    parts = _parts(loaded, path)
+    if not parts:
+        raise MeshError("mesh file contains no triangles", file=path, value=str(path))
+
+    vertices, faces, uvs = [], [], []
+    offset = 0
+    for part in parts:
+        v = np.asarray(part.vertices, np.float64)
+        f = np.asarray(part.faces, np.int64)
+        vertices.append(v)
+        faces.append(f + offset)
+        offset += len(v)
+        uv = getattr(part.visual, "uv", None)
+        uvs.append(np.asarray(uv, np.float64) if uv is not None and len(uv) == len(v) else None)
+    vertices = np.concatenate(vertices)
+    faces = np.concatenate(faces)
+    uv = None
+    if all(u is not None for u in uvs):
+        uv = np.concatenate(uvs)
+    elif any(u is not None for u in uvs):
+        warnings.warn(
+            f"{path}: only some parts of the mesh have texture coordinates; UVs dropped",
+            MeshWarning,
+            stacklevel=3,
+        )
+
+    if not np.all(np.isfinite(vertices)):
+        raise MeshError("mesh file has non-finite (NaN or infinite) vertex coordinates", file=path, value=str(path))
+    if faces.min() < 0 or faces.max() >= len(vertices):
+        raise MeshError("mesh file has faces that index missing vertices", file=path, value=str(path))
+
+    return _clean(vertices, faces, uv, path)
+
+
+def _clean(vertices: np.ndarray, faces: np.ndarray, uv: np.ndarray | None, path: Path) -> MeshData:
+    """Drop zero-area triangles (with a warning) and warn about open meshes."""
+    tri = vertices[faces]
+    doubled_area = np.linalg.norm(np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0]), axis=1)
+    extent = float(np.ptp(vertices, axis=0).max()) or 1.0
+    # Zero area up to rounding of the coordinates (relative tolerance a few hundred
+    # float64 epsilons of the squared extent: common practice).
+    degenerate = doubled_area <= 1e-14 * extent**2
+    if degenerate.any():
+        warnings.warn(
+            f"{path}: removed {int(degenerate.sum())} degenerate (zero-area) triangle(s) "
+            f"of {len(faces)}",
+            MeshWarning,
+            stacklevel=4,
+        )
+        faces = faces[~degenerate]
+        if len(faces) == 0:
+            raise MeshError("mesh file has only degenerate (zero-area) triangles", file=path, value=str(path))
+        used = np.unique(faces)
+        remap = np.full(len(vertices), -1, np.int64)
+        remap[used] = np.arange(len(used))
+        vertices, faces = vertices[used], remap[faces]
+        uv = uv[used] if uv is not None else None
+
+    # Watertightness on a copy merged by position: UV seams split vertices in the
+    # file without opening the surface.
+    merged = trimesh.Trimesh(vertices=vertices, faces=faces, process=False)
+    merged.merge_vertices(merge_tex=True, merge_norm=True)
+    if not merged.is_watertight:
+        warnings.warn(
+            f"{path}: mesh is not closed (has open edges); it is rendered as a surface "
+            f"seen from both sides",
+            MeshWarning,
+            stacklevel=4,
+        )
+    return _mesh(vertices, faces, uv, source=str(path))
+
+
+def load_mesh_file(path: str | Path, scale: float = 1.0, center: bool = True) -> MeshData:
+    """Read a mesh file into the rest frame (no rotation): scaled, optionally centred.
+
+    ``center``: shift the mesh so the centre of its bounding box is at the origin.
+    Cached per (path, modification time, file size, scale, center).
+    """
+    path = Path(path)
+    try:
+        st = path.stat()
+        stamp = (st.st_mtime_ns, st.st_size)
+    except OSError:
+        stamp = None  # _read_mesh_file reports the problem
+    key = (str(path.resolve()), stamp, float(scale), bool(center))
+    cached = _FILE_CACHE.get(key) if stamp is not None else None
+    if cached is not None:
+        return cached
+    raw = _read_mesh_file(path)
+    vertices = raw.vertices * float(scale)
+    if center:
+        lo, hi = vertices.min(axis=0), vertices.max(axis=0)
+        vertices = vertices - (lo + hi) / 2.0
+    result = _mesh(vertices, raw.faces, raw.uv, source=raw.source)
+    if len(_FILE_CACHE) >= _FILE_CACHE_LIMIT:
+        _FILE_CACHE.pop(next(iter(_FILE_CACHE)))
+    _FILE_CACHE[key] = result
+    return result
+
+
+def clear_cache() -> None:
+    """Forget cached meshes (files and primitives)."""
+    _FILE_CACHE.clear()
+    for f in (_box, _sphere, _cylinder, _plane):
+        f.cache_clear()
+
+
+# --------------------------------------------------------------------------- bodies
+
+
+def _detail(body) -> int:
+    return DEFAULT_DETAIL if getattr(body, "detail", None) is None else int(body.detail)
+
+
+def _unrotated(body) -> MeshData:
+    shape = body.shape
+    if shape == "box":
+        sx, sy, sz = (float(s) for s in body.size)
+        return _box(sx, sy, sz)
+    if shape == "sphere":
+        return _sphere(float(body.radius), _detail(body))
+    if shape == "cylinder":
+        return _cylinder(float(body.radius), float(body.height), _detail(body))
+    if shape == "plane":
+        sx, sy = (float(s) for s in body.size)
+        return _plane(sx, sy)
+    if shape == "mesh":
+        return load_mesh_file(body.file, scale=body.scale, center=getattr(body, "center", True))
+    raise ValueError(f"unknown shape {shape!r}; expected one of {', '.join(SHAPES)}")
+
+
+def mesh_data(body) -> MeshData:
+    """The body's triangle mesh in its rest frame (m), rotation applied, UVs if any."""
+    base = _unrotated(body)
+    rotation = np.asarray(getattr(body, "rotation", np.zeros(3)), float)
+    if not np.any(rotation):
+        return base
+    r = body.rotation_matrix()
+    return _mesh(base.vertices @ r.T, base.faces, base.uv, source=base.source)
+
+
+def build_mesh(body) -> trimesh.Trimesh:
+    """The body's rest-frame mesh as a trimesh.Trimesh (UVs in ``visual.uv`` when present)."""
+    return mesh_data(body).to_trimesh()
+
+
+def body_bounds(body) -> float:
+    """Radius (m) of the smallest origin-centred sphere holding the body's rest-frame mesh."""
+    return float(np.sqrt((mesh_data(body).vertices ** 2).sum(axis=1).max()))
