@@ -910,6 +910,7 @@ def save_layer_figure(
     from matplotlib.cm import ScalarMappable
     from matplotlib.colors import LogNorm, Normalize
     from matplotlib.figure import Figure
+    from matplotlib.ticker import FuncFormatter, NullFormatter
 
     v = np.asarray(values, dtype=np.float64)
     rgb = false_colour(v, vmin, vmax, cmap, log)
@@ -928,6 +929,11 @@ def save_layer_figure(
     norm = LogNorm(vmin, vmax) if log else Normalize(vmin, vmax)
     bar = fig.colorbar(ScalarMappable(norm=norm, cmap=_colour_map(cmap)), ax=ax)
     bar.set_label(f"{label} ({unit})" if unit else label)
+    if log:  # plain numbers (1.25, 3, 100) rather than 1.25 x 10^0
+        plain = FuncFormatter(lambda v, _pos: f"{v:g}")
+        bar.ax.yaxis.set_major_formatter(plain)
+        # label the 2..9 ticks too when the range spans less than two decades
+        bar.ax.yaxis.set_minor_formatter(plain if vmax / vmin < 100.0 else NullFormatter())
     if not valid.all():
         bar.ax.set_xlabel("grey: no data", fontsize="small")
     return _atomic_write(path, lambda fh: fig.savefig(fh, format=fmt), overwrite)
