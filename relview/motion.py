@@ -188,6 +188,15 @@ def _broadcast_time(t, n: int) -> np.ndarray:
     return np.broadcast_to(np.asarray(t, dtype=float), (n,)).astype(float)
 
 
+def _points_and_times(points, t) -> tuple[np.ndarray, np.ndarray]:
+    """Broadcast (N,3) points against scalar or (N,) times; one point may take (M,) times."""
+    p = _as_points(points)
+    t = np.asarray(t, dtype=float)
+    if t.ndim == 1 and p.shape[0] == 1 and t.size != 1:
+        p = np.repeat(p, t.size, axis=0)
+    return p, _broadcast_time(t, p.shape[0])
+
+
 # ----------------------------------------------------------------------------- base class
 
 
@@ -241,23 +250,25 @@ class RigidKinematics:
             return ev, dev
         # Lambda(-beta) (0, q): t = gamma beta.q, x = q + k (beta.q) beta, k = gamma^2/(gamma+1)
         # (the pure boost of Jackson eq. 11.98 with (gamma-1)/b^2 = gamma^2/(gamma+1)).
-        b2 = np.sum(b * b, axis=1)
-        g = 1.0 / np.sqrt(1.0 - b2)
-        k = g * g / (g + 1.0)
-        bq = np.sum(b * q, axis=1)
-        dbq = np.sum(db * q, axis=1) + np.sum(b * dq, axis=1)
-        dg = g**3 * np.sum(b * db, axis=1)
-        dk = (g * g + 2.0 * g) / (g + 1.0) ** 2 * dg
-        ev[:, 0] = s + g * bq
-        ev[:, 1:] = x0 + q + (k * bq)[:, None] * b
-        dev[:, 0] = 1.0 + dg * bq + g * dbq
-        dev[:, 1:] = b + dq + (dk * bq + k * dbq)[:, None] * b + (k * bq)[:, None] * db
+        # Far out on a worldline that approaches c (bracket search), |beta| may round to 1:
+        # the results are then NaN/inf and the solver treats them as no sign change.
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            b2 = np.sum(b * b, axis=1)
+            g = 1.0 / np.sqrt(1.0 - b2)
+            k = g * g / (g + 1.0)
+            bq = np.sum(b * q, axis=1)
+            dbq = np.sum(db * q, axis=1) + np.sum(b * dq, axis=1)
+            dg = g**3 * np.sum(b * db, axis=1)
+            dk = (g * g + 2.0 * g) / (g + 1.0) ** 2 * dg
+            ev[:, 0] = s + g * bq
+            ev[:, 1:] = x0 + q + (k * bq)[:, None] * b
+            dev[:, 0] = 1.0 + dg * bq + g * dbq
+            dev[:, 1:] = b + dq + (dk * bq + k * dbq)[:, None] * b + (k * bq)[:, None] * db
         return ev, dev
 
     def _reference_time(self, points, t_ct, contraction: bool) -> np.ndarray:
         """Reference time s at which each point's event has scene time t (ct, m)."""
-        p = _as_points(points)
-        t = _broadcast_time(t_ct, p.shape[0])
+        p, t = _points_and_times(points, t_ct)
         if not contraction:
             return t.copy()
         ev, _ = self.events(p, t)
@@ -275,8 +286,8 @@ class RigidKinematics:
     def state(self, points, t_ct, contraction: bool = True):
         """Position (N,3) m and velocity beta (N,3) of each body point at scene time t_ct
         (ct, m; scalar or (N,))."""
-        p = _as_points(points)
-        s = self._reference_time(p, t_ct, contraction)
+        p, t = _points_and_times(points, t_ct)
+        s = self._reference_time(p, t, contraction)
         ev, dev = self.events(p, s, contraction)
         return ev[:, 1:], dev[:, 1:] / dev[:, :1]
 
@@ -383,8 +394,7 @@ class Uniform(RigidKinematics):
 
     def state(self, points, t_ct, contraction: bool = True):
         """x = x0 + contract(p, beta) + beta (t - t0): the Lorentz-contracted body."""
-        p = _as_points(points)
-        t = _broadcast_time(t_ct, p.shape[0])
+        p, t = _points_and_times(points, t_ct)
         return self._position_at(p, t, contraction), np.broadcast_to(self.beta, p.shape).copy()
 
     def retarded(self, points, camera_event, delay: bool = True, contraction: bool = True):
@@ -604,16 +614,24 @@ class OrbitMotion(RigidKinematics):
     def _sample_times(self):
         return self.s0 + np.linspace(0.0, 2 * math.pi / self.omega_ct, 33)
 
+    def outward_limit(self) -> float:
+        """Largest distance (m) outward from the origin, along the orbit radius, at which a
+        point of the rigid body (rigid in the origin's momentary rest frame) stays slower
+        than light.  From the event map (docs/motion.md): with u = beta^2 xi / r that point
+        moves at beta (1 - k u) / (1 - gamma u), k = gamma^2/(gamma+1), so |beta_point| < 1
+        needs xi < r (1 - beta) / (beta^2 (gamma - beta k)).  For small beta this tends to
+        r / beta^2 = c^2 / a, the Rindler-horizon distance of the centripetal acceleration."""
+        b, g = self.speed, self.gamma
+        k = g * g / (g + 1.0)
+        return self.radius * (1.0 - b) / (b * b * (g - b * k))
+
     def _closed_form_check(self, extent_m):
-        # Rest-frame simultaneity planes of successive origin events cross at the distance
-        # c^2 / a_proper = r / (gamma beta^2) outward (a_proper = gamma^2 v^2 / r): beyond it the
-        # rigid model has dt/ds <= 0 (derived in docs/motion.md).
-        limit = self.radius / (self.gamma * self.speed**2)
+        limit = self.outward_limit()
         if extent_m >= limit:
             raise ValueError(
                 f"orbit: a rigid body of extent {extent_m:g} m cannot follow this orbit (radius "
-                f"{self.radius:g} m, |beta| = {self.speed:.6g}): its outer points would reach c; "
-                f"the extent must stay below r/(gamma beta^2) = {limit:.6g} m"
+                f"{self.radius:g} m, |beta| = {self.speed:.6g}): its outermost points would reach c; "
+                f"the extent must stay below {limit:.6g} m"
             )
 
 
@@ -899,14 +917,23 @@ def camera_state(motion, t_ct) -> tuple[np.ndarray, np.ndarray]:
 # ----------------------------------------------------------------------------- scene tables
 
 
+class MotionTableError(ValueError):
+    """A bad motion table entry; ``key`` and ``value`` say which (key None: the whole table)."""
+
+    def __init__(self, message: str, key: str | None = None, value: Any = None):
+        super().__init__(message)
+        self.key = key
+        self.value = value
+
+
 def _key_error(where, key, value, why):
-    return ValueError(f"{where}: {key} = {value!r}: {why}")
+    return MotionTableError(f"{where}: {key} = {value!r}: {why}", key, value)
 
 
 def _get_vec(table, key, where, default=None):
     if key not in table:
         if default is None:
-            raise ValueError(f"{where}: missing key '{key}' (three numbers)")
+            raise MotionTableError(f"{where}: missing key '{key}' (three numbers)", key)
         return np.array(default, float)
     value = table[key]
     try:
@@ -918,7 +945,7 @@ def _get_vec(table, key, where, default=None):
 def _get_num(table, key, where, default=None, positive=False):
     if key not in table:
         if default is None:
-            raise ValueError(f"{where}: missing key '{key}' (a number)")
+            raise MotionTableError(f"{where}: missing key '{key}' (a number)", key)
         return default
     value = table[key]
     if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
@@ -945,7 +972,7 @@ def _check_keys(kind, table, where):
         if key not in allowed:
             near = difflib.get_close_matches(key, sorted(allowed), n=1)
             hint = f"; did you mean '{near[0]}'?" if near else f"; allowed: {', '.join(sorted(allowed))}"
-            raise ValueError(f"{where}: unknown key '{key}' for motion kind '{kind}'{hint}")
+            raise MotionTableError(f"{where}: unknown key '{key}' for motion kind '{kind}'{hint}", key, table[key])
 
 
 def motion_from_table(kind: str, table: dict, where: str = "motion"):
@@ -957,7 +984,9 @@ def motion_from_table(kind: str, table: dict, where: str = "motion"):
     if kind not in MOTION_KEYS:
         near = difflib.get_close_matches(str(kind), sorted(MOTION_KEYS), n=1)
         hint = f"; did you mean '{near[0]}'?" if near else ""
-        raise ValueError(f"{where}: kind = {kind!r} is not a motion kind ({', '.join(sorted(MOTION_KEYS))}){hint}")
+        raise MotionTableError(
+            f"{where}: kind = {kind!r} is not a motion kind ({', '.join(sorted(MOTION_KEYS))}){hint}", "kind", kind
+        )
     _check_keys(kind, table, where)
     try:
         if kind == "uniform":
@@ -975,7 +1004,7 @@ def motion_from_table(kind: str, table: dict, where: str = "motion"):
         if kind == "orbit":
             has_period, has_beta = "period" in table, "beta" in table
             if has_period == has_beta:
-                raise ValueError(f"{where}: give exactly one of 'period' (s) or 'beta' (speed / c)")
+                raise MotionTableError(f"{where}: give exactly one of 'period' (s) or 'beta' (speed / c)", "period")
             period = _get_num(table, "period", where, None, positive=True) if has_period else None
             beta = _get_num(table, "beta", where, None, positive=True) if has_beta else None
             if beta is not None and beta >= 1.0:
@@ -993,7 +1022,7 @@ def motion_from_table(kind: str, table: dict, where: str = "motion"):
         if kind == "path":
             for key in ("times", "positions"):
                 if key not in table:
-                    raise ValueError(f"{where}: missing key '{key}'")
+                    raise MotionTableError(f"{where}: missing key '{key}'", key)
             try:
                 times = np.asarray(table["times"], float)
             except (ValueError, TypeError):
@@ -1027,11 +1056,44 @@ def motion_from_table(kind: str, table: dict, where: str = "motion"):
             return RollingMotion(radius=_get_num(table, "radius", where, None, positive=True), beta=beta, axis=axis,
                                  position=_get_vec(table, "position", where, [0.0, 0.0, 0.0]),
                                  time=_get_num(table, "time", where, 0.0))
-    except ValueError as err:
-        msg = str(err)
-        raise ValueError(msg if msg.startswith(where) else f"{where}: {msg}") from None
+    except MotionTableError:
+        raise
+    except ValueError as err:  # from a constructor's own checks: the table as a whole
+        raise MotionTableError(f"{where}: {err}") from None
     raise AssertionError(kind)  # unreachable: every kind above returns
 
 
 #: Parser per kind, for the scene loader: MOTION_PARSERS[kind](table, where) -> motion.
 MOTION_PARSERS = {kind: (lambda table, where, _k=kind: motion_from_table(_k, table, where)) for kind in MOTION_KEYS}
+
+
+def _register_with_loader() -> None:
+    """Register every kind except 'uniform' (the loader's own) in relview.loader.MOTION_KINDS.
+
+    The loader hands a ``relview.loader.Table``; its raw dict goes through
+    :func:`motion_from_table` and errors come back as the loader's SceneError (file, line,
+    key, value)."""
+    try:
+        from relview.loader import register_motion
+    except ImportError:  # loader not present: the parsers above remain usable directly
+        return
+
+    def make(kind):
+        def parse(table):
+            where = "motion"
+            try:
+                return motion_from_table(kind, dict(table.data), where)
+            except MotionTableError as err:
+                if err.key is None:
+                    raise table.error(None, str(err)) from None
+                raise table.error(err.key, str(err), err.value) from None
+
+        parse.__doc__ = f"kind = '{kind}': keys {', '.join(MOTION_KEYS[kind])} (relview.motion)."
+        return parse
+
+    for kind in MOTION_KEYS:
+        if kind != "uniform":
+            register_motion(kind, make(kind))
+
+
+_register_with_loader()
