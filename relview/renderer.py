@@ -39,28 +39,30 @@ class Frame:
     time: float  # s, scene-frame time of the exposure
     metadata: dict[str, str] = field(default_factory=dict)
 
-    def save(self, path, overwrite: bool = False, bits: int = 8) -> Path:
+    def save(self, path, overwrite: bool = False, bits: int = 8, tone: str = "none") -> Path:
         """Write by extension: .png (8 or 16 bit sRGB), .npz (float layers), .exr if available.
 
         An existing file is never replaced unless ``overwrite``: a numbered name is used.
+        Returns the path written. ``tone``: "none" (clip) or "reinhard" (film.py).
         """
         from relview import film
 
-        path = film.safe_output_path(Path(path), overwrite=overwrite)
+        path = Path(path)
         ext = path.suffix.lower()
         if ext == ".png":
-            film.write_png(path, self.image, bits=bits, metadata=self.metadata)
-        elif ext == ".npz":
+            return film.write_png(path, self.image, bits=bits, metadata=self.metadata,
+                                  tone=tone, overwrite=overwrite)
+        if ext == ".npz":
             layers = dict(self.layers)
             layers["image"] = self.image
-            film.write_layers_npz(path, layers, metadata=self.metadata)
-        elif ext == ".exr":
-            film.write_exr(path, self.image, self.layers, metadata=self.metadata)
-        else:
-            from relview.errors import OutputError
+            return film.write_layers_npz(path, layers, metadata=self.metadata,
+                                         overwrite=overwrite)
+        if ext == ".exr":
+            return film.write_exr(path, self.image, self.layers, metadata=self.metadata,
+                                  overwrite=overwrite)
+        from relview.errors import OutputError
 
-            raise OutputError(f"{path}: unknown image type {ext!r}; use .png, .npz or .exr")
-        return path
+        raise OutputError(f"{path}: unknown image type {ext!r}; use .png, .npz or .exr")
 
 
 class RenderContext:
