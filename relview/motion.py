@@ -305,8 +305,10 @@ class RigidKinematics:
             x, beta = self.state(p, tc, contraction)
             ev = np.concatenate([np.full((n, 1), tc), x], axis=1)
             return ev, beta
-        x_now, _ = self.state(p, tc, contraction)
-        dist = np.linalg.norm(xc - x_now, axis=1)
+        # First guess: the light-travel time from where each point is at reference time t_c
+        # (no inner solve needed; the bracket search absorbs the difference).
+        ev_now, _ = self.events(p, np.full(n, tc), contraction)
+        dist = np.linalg.norm(xc - ev_now[:, 1:], axis=1) + np.abs(ev_now[:, 0] - tc)
         guess = np.full(n, tc) - dist
 
         def fun(s, idx):
@@ -357,9 +359,13 @@ class RigidKinematics:
             where = ", ".join(f"{v:.4g}" for v in pp[worst])
             raise ValueError(
                 f"{type(self).__name__}: the body point at ({where}) m moves at |beta| = "
-                f"{speed[worst]:.6g} >= 1 at t = {s[worst] / C:.6g} s; reduce the speed or "
-                f"the body size ({extent_m:g} m)"
+                f"{speed[worst]:.6g} >= 1 at t = {s[worst] / C:.6g} s{self._describe_time(s[worst])}; "
+                f"reduce the speed or the body size ({extent_m:g} m)"
             )
+
+    def _describe_time(self, s: float) -> str:
+        """Extra context for messages about reference time s (ct, m)."""
+        return ""
 
 
 # ----------------------------------------------------------------------------- uniform
@@ -682,7 +688,7 @@ class PathMotion(RigidKinematics):
         for i in range(self.knots.size - 1):
             width = self.knots[i + 1] - self.knots[i]
             v = [np.array([3 * coeffs[0, i, j], 2 * coeffs[1, i, j], coeffs[2, i, j]]) for j in range(3)]
-            speed2 = sum(np.polymul(vj, vj) for vj in v)
+            speed2 = sum(np.convolve(vj, vj) for vj in v)  # degree-4 coefficients, highest first
             cand = [0.0, width]
             for r in np.roots(np.polyder(speed2)) if np.any(np.polyder(speed2)) else []:
                 if abs(r.imag) <= 1e-9 * width and 0.0 < r.real < width:
@@ -732,6 +738,10 @@ class PathMotion(RigidKinematics):
         b = self.d1(sc)
         inv_g = np.sqrt(1.0 - np.sum(b * b, axis=1))
         return tau + (s - sc) * inv_g, inv_g
+
+    def _describe_time(self, s):
+        i = int(np.clip(np.searchsorted(self.knots, s, side="right") - 1, 0, self.knots.size - 2))
+        return f" (path segment {i}, t = {self.times[i]:g} s to {self.times[i + 1]:g} s)"
 
     def _sample_times(self):
         parts = [np.linspace(self.knots[i], self.knots[i + 1], 9) for i in range(self.knots.size - 1)]

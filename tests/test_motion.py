@@ -54,6 +54,16 @@ def brentq_emission(kin, point, camera_event, contraction=True):
     return brentq(f, lo, tc, xtol=1e-14, rtol=4 * np.finfo(float).eps, maxiter=500)
 
 
+def check_retarded_against_brentq(kin, pts, cam, every=2, rtol=1e-11):
+    """kin.retarded on the light cone, and equal to scipy's brentq for every ``every``-th point."""
+    ev, beta = kin.retarded(pts, cam)
+    assert_on_light_cone(ev, cam)
+    for i in range(0, len(pts), every):
+        t_ref = brentq_emission(kin, pts[i], cam)
+        assert abs(ev[i, 0] - t_ref) <= rtol * (cam[0] - t_ref + 1.0)
+    return ev, beta
+
+
 def assert_on_light_cone(ev, camera_event, rtol=1e-11):
     """Residual of |x_c - x_e| = t_c - t_e relative to the light-travel distance."""
     dist = np.linalg.norm(camera_event[1:] - ev[:, 1:], axis=1)
@@ -204,11 +214,7 @@ def test_hyperbolic_points_match_brentq():
     mot = HyperbolicMotion(acceleration=np.array([1.0e16, 3.0e15, 0.0]), position=np.zeros(3), time=0.0)
     pts = RNG.uniform(-2, 2, size=(12, 3))
     cam = np.array([3.0, -4.0, 5.0, 1.0])
-    ev, _ = mot.retarded(pts, cam)
-    assert_on_light_cone(ev, cam)
-    for i in range(0, 12, 3):
-        t_ref = brentq_emission(mot, pts[i], cam)
-        assert abs(ev[i, 0] - t_ref) <= 1e-11 * (cam[0] - t_ref + 1.0)
+    check_retarded_against_brentq(mot, pts, cam, every=3)  # scipy brentq, independent
 
 
 def test_hyperbolic_rejects_body_beyond_horizon():
@@ -255,11 +261,7 @@ def test_orbit_camera_state_and_brentq():
         assert abs(b @ x) < 1e-13 and abs(b @ np.ones(3)) < 1e-13
     pts = RNG.uniform(-0.3, 0.3, size=(9, 3))
     cam = np.array([4.0, 3.0, -1.0, 2.0])
-    ev, _ = mot.retarded(pts, cam)
-    assert_on_light_cone(ev, cam)
-    for i in range(0, 9, 2):
-        t_ref = brentq_emission(mot, pts[i], cam)
-        assert abs(ev[i, 0] - t_ref) <= 1e-11 * (cam[0] - t_ref + 1.0)
+    check_retarded_against_brentq(mot, pts, cam, every=2)  # scipy brentq, independent
 
 
 def test_orbit_rejects_superluminal():
@@ -306,11 +308,7 @@ def test_path_interpolates_and_matches_brentq():
     np.testing.assert_allclose(xa[0], pos[0] - 2.0 * b0[0], atol=1e-13)
     pts = RNG.uniform(-0.2, 0.2, size=(8, 3))
     cam = np.array([3.0 * C * 1e-8, 0.0, -3.0, 1.0])
-    ev, _ = mot.retarded(pts, cam)
-    assert_on_light_cone(ev, cam)
-    for i in range(0, 8, 2):
-        t_ref = brentq_emission(mot, pts[i], cam)
-        assert abs(ev[i, 0] - t_ref) <= 1e-11 * (cam[0] - t_ref + 1.0)
+    check_retarded_against_brentq(mot, pts, cam, every=2)  # scipy brentq, independent
 
 
 def test_path_proper_time_matches_quad():
@@ -344,6 +342,16 @@ def test_path_rejects_superluminal_segment():
         PathMotion(times=[0.0, 1.0, 1.0], positions=np.zeros((3, 3)))
 
 
+def test_path_rejects_body_too_large_for_its_turns():
+    # A subluminal path whose sharp turns would drive the far side of a 0.6 m body past c
+    # (rigid in the origin's rest frame); the message names the segment and its times.
+    mot = PathMotion(times=[0, 1e-8, 2e-8, 3e-8], positions=[[0, 0, 0], [2.3, 0, 0], [2.3, 2.3, 0], [0, 2.3, 0]])
+    assert mot.max_speed(0.0) < 1
+    mot.validate(0.1)
+    with pytest.raises(ValueError, match=r"\|beta\| = [\d.]+ >= 1 at t = .* s \(path segment \d, t = .* s to .* s\)"):
+        mot.validate(0.6)
+
+
 # ----------------------------------------------------------------------------- spin and rolling
 
 
@@ -372,11 +380,7 @@ def test_spin_matches_brentq_and_galilean_mode():
     mot.validate(1.0)
     pts = RNG.uniform(-0.8, 0.8, size=(8, 3))
     cam = np.array([6.0, 2.0, -7.0, 3.0])
-    ev, _ = mot.retarded(pts, cam)
-    assert_on_light_cone(ev, cam)
-    for i in range(0, 8, 2):
-        t_ref = brentq_emission(mot, pts[i], cam)
-        assert abs(ev[i, 0] - t_ref) <= 1e-11 * (cam[0] - t_ref + 1.0)
+    check_retarded_against_brentq(mot, pts, cam, every=2)  # scipy brentq, independent
     # Galilean: rigid turn by omega t about the offset axis, carried by the orbit position
     t = 2.0
     x, _ = mot.state(pts, t, contraction=False)
@@ -388,6 +392,13 @@ def test_spin_matches_brentq_and_galilean_mode():
     rot = (rel * math.cos(ang) + np.cross(ax, rel) * math.sin(ang)
            + np.outer(rel @ ax, ax) * (1 - math.cos(ang)))  # Rodrigues' formula
     np.testing.assert_allclose(x, x0 + c + rot, atol=1e-13)
+
+
+def test_spin_on_path_matches_brentq():
+    base = PathMotion(times=[0.0, 1e-8, 2e-8], positions=[[0, 0, 0], [1.5, 0.5, 0], [2.0, 2.0, 0.5]])
+    mot = SpinMotion(base=base, axis=np.array([0.0, 0.0, 1.0]), angular_velocity=0.3 * C, time=0.5e-8, phase=20.0)
+    pts = RNG.uniform(-0.5, 0.5, size=(6, 3))
+    check_retarded_against_brentq(mot, pts, np.array([4.0, 1.0, -3.0, 0.5]))  # scipy brentq, independent
 
 
 def test_spin_rejects_rim_at_light_speed():
