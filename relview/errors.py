@@ -73,7 +73,7 @@ class UserError(Exception):
     def __str__(self) -> str:  # keep str() in step with attribute edits
         return self.format()
 
-    def relocated(self, *, file=None, key=None, value=_UNSET, line=None, column=None) -> "UserError":
+    def relocated(self, *, file=None, key=None, value=_UNSET, line=None, column=None) -> UserError:
         """A copy of this error (same class) with the given location fields filled in."""
         return type(self)(
             self.message,

@@ -277,7 +277,9 @@ class Table:
             label += f" ({self.context})"
         return label
 
-    def error(self, key: str | None, message: str, value: Any = _UNSET, cls=SceneError) -> UserError:
+    def error(
+        self, key: str | None, message: str, value: Any = _UNSET, cls=SceneError
+    ) -> UserError:
         """A SceneError at ``key`` of this table (the caller raises it)."""
         path = self.path + ((key,) if key else ())
         return cls(
@@ -293,7 +295,7 @@ class Table:
     def has(self, key: str) -> bool:
         return self.data.get(key) is not None
 
-    def keys(self) -> list[str]:
+    def given_keys(self) -> list[str]:
         return [k for k, v in self.data.items() if v is not None]
 
     def check_keys(self, allowed: Iterable[str], not_here: Mapping[str, str] | None = None) -> None:
@@ -303,7 +305,7 @@ class Table:
         reason they do not apply here.
         """
         allowed = list(allowed)
-        for key in self.keys():
+        for key in self.given_keys():
             if key in allowed:
                 continue
             value = self.data[key]
@@ -328,7 +330,9 @@ class Table:
 
     def _check_number(self, key: str, value: Any, what: str = "a number") -> float:
         if not _is_number(value):
-            raise self.error(key, f"expected {what}, got {_type_name(value)}: {key} = {show(value)}", value)
+            raise self.error(
+                key, f"expected {what}, got {_type_name(value)}: {key} = {show(value)}", value
+            )
         v = float(value)
         if not math.isfinite(v):
             raise self.error(key, f"must be a finite number, got {key} = {show(value)}", value)
@@ -363,10 +367,14 @@ class Table:
             lo = "" if low is None else f"{'>' if low_open else '>='} {show(low)}"
             hi = "" if high is None else f"{'<' if high_open else '<='} {show(high)}"
             rng = " and ".join(p for p in (lo, hi) if p)
-            raise self.error(key, f"out of range: {key} = {show(value)}; must be {rng}{unit_s}", value)
+            raise self.error(
+                key, f"out of range: {key} = {show(value)}; must be {rng}{unit_s}", value
+            )
         return v
 
-    def integer(self, key: str, default: Any = _REQUIRED, *, low: int | None = None, high: int | None = None) -> int:
+    def integer(
+        self, key: str, default: Any = _REQUIRED, *, low: int | None = None, high: int | None = None
+    ) -> int:
         """An integer (a float with an integral value is accepted), in [low, high]."""
         value = self._get(key, default)
         if value is _UNSET:
@@ -375,21 +383,32 @@ class Table:
 
     def _check_integer(self, key, item, whole, low, high) -> int:
         if not _is_number(item) or not float(item).is_integer():
-            raise self.error(key, f"expected an integer, got {_type_name(item)}: {key} = {show(whole)}", whole)
+            raise self.error(
+                key, f"expected an integer, got {_type_name(item)}: {key} = {show(whole)}", whole
+            )
         v = int(item)
         if (low is not None and v < low) or (high is not None and v > high):
             rng = " and ".join(
-                p for p in (f">= {low}" if low is not None else "", f"<= {high}" if high is not None else "") if p
+                p
+                for p in (
+                    f">= {low}" if low is not None else "",
+                    f"<= {high}" if high is not None else "",
+                )
+                if p
             )
             raise self.error(key, f"out of range: {key} = {show(whole)}; must be {rng}", whole)
         return v
 
-    def string(self, key: str, default: Any = _REQUIRED, *, choices: Iterable[str] | None = None) -> str:
+    def string(
+        self, key: str, default: Any = _REQUIRED, *, choices: Iterable[str] | None = None
+    ) -> str:
         value = self._get(key, default)
         if value is _UNSET:
             return default
         if not isinstance(value, str):
-            raise self.error(key, f"expected a string, got {_type_name(value)}: {key} = {show(value)}", value)
+            raise self.error(
+                key, f"expected a string, got {_type_name(value)}: {key} = {show(value)}", value
+            )
         if choices is not None:
             choices = list(choices)
             if value not in choices:
@@ -407,7 +426,9 @@ class Table:
             return default
         if not isinstance(value, (bool, np.bool_)):
             raise self.error(
-                key, f"expected true or false, got {_type_name(value)}: {key} = {show(value)}", value
+                key,
+                f"expected true or false, got {_type_name(value)}: {key} = {show(value)}",
+                value,
             )
         return bool(value)
 
@@ -416,7 +437,9 @@ class Table:
     def _list(self, key: str, value: Any, n: int, what: str) -> list:
         if not isinstance(value, (list, tuple, np.ndarray)) or isinstance(value, str):
             raise self.error(
-                key, f"expected a list of {n} {what}, got {_type_name(value)}: {key} = {show(value)}", value
+                key,
+                f"expected a list of {n} {what}, got {_type_name(value)}: {key} = {show(value)}",
+                value,
             )
         items = list(np.asarray(value).tolist()) if isinstance(value, np.ndarray) else list(value)
         if len(items) != n:
@@ -428,7 +451,13 @@ class Table:
         return items
 
     def vector(
-        self, key: str, n: int = 3, default: Any = _REQUIRED, *, nonzero: bool = False, positive: bool = False,
+        self,
+        key: str,
+        n: int = 3,
+        default: Any = _REQUIRED,
+        *,
+        nonzero: bool = False,
+        positive: bool = False,
         unit: str = "",
     ) -> np.ndarray:
         """A list of ``n`` finite numbers as a float array."""
@@ -440,7 +469,9 @@ class Table:
         for item in items:
             if not _is_number(item):
                 raise self.error(
-                    key, f"expected a list of {n} numbers, found {_type_name(item)} in {key} = {show(value)}", value
+                    key,
+                    f"expected a list of {n} numbers, found {_type_name(item)} in {key} = {show(value)}",
+                    value,
                 )
             if not math.isfinite(float(item)):
                 raise self.error(key, f"must hold finite numbers, got {key} = {show(value)}", value)
@@ -448,12 +479,16 @@ class Table:
         arr = np.array(out)
         unit_s = f" {unit}" if unit else ""
         if positive and not np.all(arr > 0):
-            raise self.error(key, f"every entry must be > 0{unit_s}, got {key} = {show(value)}", value)
+            raise self.error(
+                key, f"every entry must be > 0{unit_s}, got {key} = {show(value)}", value
+            )
         if nonzero and not np.any(arr != 0):
             raise self.error(key, f"must not be the zero vector, got {key} = {show(value)}", value)
         return arr
 
-    def int_vector(self, key: str, n: int, default: Any = _REQUIRED, *, low: int | None = None) -> tuple:
+    def int_vector(
+        self, key: str, n: int, default: Any = _REQUIRED, *, low: int | None = None
+    ) -> tuple:
         value = self._get(key, default)
         if value is _UNSET:
             return default
@@ -474,16 +509,22 @@ class Table:
 
     # ---------------------------------------------------------------- nesting, files
 
-    def table(self, key: str, default: Any = _REQUIRED, *, section: str | None = None) -> "Table | None":
+    def table(
+        self, key: str, default: Any = _REQUIRED, *, section: str | None = None
+    ) -> Table | None:
         """The sub-table ``key``; ``section`` names it in messages (default: this.section.key)."""
         value = self._get(key, default)
         if value is _UNSET:
             return default
         if not isinstance(value, Mapping):
-            raise self.error(key, f"expected a table, got {_type_name(value)}: {key} = {show(value)}", value)
+            raise self.error(
+                key, f"expected a table, got {_type_name(value)}: {key} = {show(value)}", value
+            )
         if section is not None:
             return Table(value, self.doc, self.path + (key,), section, "", self.context)
-        return Table(value, self.doc, self.path + (key,), self.section, f"{self.prefix}{key}.", self.context)
+        return Table(
+            value, self.doc, self.path + (key,), self.section, f"{self.prefix}{key}.", self.context
+        )
 
     def path_value(self, key: str, default: Any = _REQUIRED, *, what: str = "file") -> Path:
         """A file path, relative to the scene file, that must name an existing file."""
@@ -496,14 +537,18 @@ class Table:
         if not path.is_absolute():
             path = self.doc.base_dir / path
         if not path.exists():
-            raise self.error(key, f"{what} not found: {key} = {show(value)} (looked for {path})", value)
+            raise self.error(
+                key, f"{what} not found: {key} = {show(value)} (looked for {path})", value
+            )
         if not path.is_file():
             raise self.error(key, f"{what} is not a file: {key} = {show(value)} ({path})", value)
         try:
             with open(path, "rb") as fh:
                 fh.read(1)
         except OSError as exc:
-            raise self.error(key, f"cannot read {what} {key} = {show(value)}: {exc.strerror}", value) from exc
+            raise self.error(
+                key, f"cannot read {what} {key} = {show(value)}: {exc.strerror}", value
+            ) from exc
         self.doc.referenced.append(path)
         return path
 
@@ -594,11 +639,13 @@ def surface_spec(table: Table, depth: int = 0) -> tuple[str, dict]:
             {k: table.data[k] for k in kinds},
         )
     kind = kinds[0]
-    for key in table.keys():
+    for key in table.given_keys():
         if key not in SURFACE_KINDS and key not in _SURFACE_EXTRAS[kind]:
             owner = next(k for k, v in _SURFACE_EXTRAS.items() if key in v)
             raise table.error(
-                key, f"{key} = {show(table.data[key])} applies only to {owner} surfaces, not {kind}", table.data[key]
+                key,
+                f"{key} = {show(table.data[key])} applies only to {owner} surfaces, not {kind}",
+                table.data[key],
             )
 
     if kind == "blackbody":
@@ -612,23 +659,39 @@ def surface_spec(table: Table, depth: int = 0) -> tuple[str, dict]:
         value = table.data["lines"]
         if not isinstance(value, (list, tuple)) or not value:
             raise table.error(
-                "lines", f"expected a non-empty list of tables {{ nm, width_nm, radiance }}, got {show(value)}", value
+                "lines",
+                f"expected a non-empty list of tables {{ nm, width_nm, radiance }}, got {show(value)}",
+                value,
             )
         lines = []
         for i, item in enumerate(value):
             if not isinstance(item, Mapping):
-                raise table.error("lines", f"entry {i + 1} is {_type_name(item)}, not a table: {show(item)}", value)
-            sub = Table(item, table.doc, table.path + ("lines", i), table.section, f"{table.prefix}lines[{i + 1}].",
-                        table.context)
+                raise table.error(
+                    "lines",
+                    f"entry {i + 1} is {_type_name(item)}, not a table: {show(item)}",
+                    value,
+                )
+            sub = Table(
+                item,
+                table.doc,
+                table.path + ("lines", i),
+                table.section,
+                f"{table.prefix}lines[{i + 1}].",
+                table.context,
+            )
             lines.append(_parse_line(sub))
         return "EmissionLines", {"lines": lines}
     if kind == "spectrum":
-        return "TabulatedSpectrum.from_csv", {"path": table.path_value("spectrum", what="spectrum file")}
+        return "TabulatedSpectrum.from_csv", {
+            "path": table.path_value("spectrum", what="spectrum file")
+        }
     if kind == "color":
         rgb = table.vector("color", 3)
         if np.any(rgb < 0) or np.any(rgb > 1):
             raise table.error(
-                "color", f"reflectances must lie in 0..1, got color = {show(table.data['color'])}", table.data["color"]
+                "color",
+                f"reflectances must lie in 0..1, got color = {show(table.data['color'])}",
+                table.data["color"],
             )
         lamp: float | str = 5800.0
         if table.has("lamp"):
@@ -649,7 +712,7 @@ def surface_spec(table: Table, depth: int = 0) -> tuple[str, dict]:
         }
     # pattern
     pat = table.table("pattern")
-    pat.check_keys(("kind", "period", "line_width", "first", "second"))
+    pat.check_keys(("kind", "period", "line_width", "axes", "first", "second"))
     if depth >= _MAX_PATTERN_DEPTH:
         raise pat.error(None, f"patterns nest at most {_MAX_PATTERN_DEPTH} deep")
     pkind = pat.string("kind", choices=PATTERN_KINDS)
@@ -661,10 +724,24 @@ def surface_spec(table: Table, depth: int = 0) -> tuple[str, dict]:
             f"line_width = {show(line_width)} must be smaller than period = {show(period)}",
             line_width,
         )
+    axes = (0, 1, 2)
+    if pat.has("axes"):
+        raw = pat.data["axes"]
+        if not isinstance(raw, (list, tuple)) or not 1 <= len(raw) <= 3:
+            raise pat.error(
+                "axes",
+                f"expected a list of 1 to 3 axis numbers (0 = x, 1 = y, 2 = z), got axes = "
+                f"{show(raw)}",
+                raw,
+            )
+        axes = pat.int_vector("axes", len(raw), low=0)
+        if max(axes) > 2 or len(set(axes)) != len(axes):
+            raise pat.error("axes", f"axes = {show(raw)} must be distinct values from 0, 1, 2", raw)
     return "Pattern", {
         "kind": pkind,
         "period": period,
         "line_width": line_width,
+        "axes": axes,
         "first": surface_spec(pat.table("first"), depth + 1),
         "second": surface_spec(pat.table("second"), depth + 1),
     }
@@ -678,7 +755,9 @@ def _check_image(table: Table, path: Path) -> None:
             im.verify()
     except (UnidentifiedImageError, OSError, SyntaxError, ValueError) as exc:
         raise table.error(
-            "texture", f"texture = {show(table.data['texture'])} is not a readable image ({exc})", table.data["texture"]
+            "texture",
+            f"texture = {show(table.data['texture'])} is not a readable image ({exc})",
+            table.data["texture"],
         ) from exc
 
 
@@ -690,19 +769,24 @@ def build_surface(spec: tuple[str, dict]) -> Any:
     if name == "TabulatedSpectrum.from_csv":
         return materials.TabulatedSpectrum.from_csv(kwargs["path"])
     if name == "Pattern":
-        kwargs = dict(kwargs, first=build_surface(kwargs["first"]), second=build_surface(kwargs["second"]))
+        kwargs = dict(
+            kwargs, first=build_surface(kwargs["first"]), second=build_surface(kwargs["second"])
+        )
     return getattr(materials, name)(**kwargs)
 
 
 def _parse_surface(body: Table) -> Any:
     table = body.table("surface", section="body.surface")
     spec = surface_spec(table)
+    kind = next(k for k in SURFACE_KINDS if table.has(k))
     try:
         return build_surface(spec)
-    except UserError as exc:  # e.g. a malformed spectrum CSV: keep its file, add our key
-        raise table.error(None, f"{exc}", cls=type(exc)) from exc
+    except UserError as exc:  # keep the materials' message (it names e.g. the CSV file and line)
+        raise table.error(kind, f"{exc}", table.data[kind], cls=type(exc)) from exc
     except (ValueError, OSError) as exc:
-        raise table.error(None, f"invalid surface: {exc}", table.data) from exc
+        raise table.error(
+            kind, f"{kind} = {show(table.data[kind])}: {exc}", table.data[kind]
+        ) from exc
 
 
 # ============================================================================ sections
@@ -761,8 +845,11 @@ def _parse_camera(root: Table) -> Camera:
         raise t.error(
             "direction" if both else None,
             "give exactly one of look_at and direction"
-            + (f", not both (look_at = {show(t.data['look_at'])}, direction = {show(t.data['direction'])})"
-               if both else " (neither is given)"),
+            + (
+                f", not both (look_at = {show(t.data['look_at'])}, direction = {show(t.data['direction'])})"
+                if both
+                else " (neither is given)"
+            ),
         )
     look_at = direction = None
     if t.has("look_at"):
@@ -800,7 +887,9 @@ def _parse_camera(root: Table) -> Camera:
     elif projection == "fisheye":
         fov = t.number("fov", 180.0, low=0.0, high=360.0, low_open=True, unit="degrees")
     else:
-        fov = t.number("fov", 60.0, low=0.0, high=180.0, low_open=True, high_open=True, unit="degrees")
+        fov = t.number(
+            "fov", 60.0, low=0.0, high=180.0, low_open=True, high_open=True, unit="degrees"
+        )
     return Camera(
         position=position,
         look_at=look_at,
@@ -826,7 +915,7 @@ _BODY_COMMON = ("name", "shape", "rotation", "motion", "surface")
 def _parse_body(t: Table, index: int, seen: dict[str, int]) -> Body:
     name = t.string("name", f"body{index + 1}")
     if not name.strip():
-        raise t.error("name", f'body name must not be empty: name = {show(name)}', name)
+        raise t.error("name", f"body name must not be empty: name = {show(name)}", name)
     t.context = f'body "{name}"' if "name" in t.data else f"body #{index + 1}"
     if name in seen:
         raise t.error(
@@ -877,7 +966,10 @@ def _check_mesh(t: Table, body: Body) -> None:
         load_mesh_file(body.file, scale=body.scale, center=body.center)
     except MeshError as exc:
         raise t.error(
-            "file", f"{exc.message}: file = {show(t.data['file'])} ({body.file})", t.data["file"], cls=MeshError
+            "file",
+            f"{exc.message}: file = {show(t.data['file'])} ({body.file})",
+            t.data["file"],
+            cls=MeshError,
         ) from exc
 
 
@@ -886,14 +978,22 @@ def _parse_bodies(root: Table) -> list[Body]:
     if value is None:
         return []
     if isinstance(value, Mapping):
-        raise root.error("body", "bodies are an array of tables: write [[body]] (double brackets) for each body")
+        raise root.error(
+            "body", "bodies are an array of tables: write [[body]] (double brackets) for each body"
+        )
     if not isinstance(value, (list, tuple)):
-        raise root.error("body", f"expected [[body]] tables, got {_type_name(value)}: body = {show(value)}", value)
+        raise root.error(
+            "body",
+            f"expected [[body]] tables, got {_type_name(value)}: body = {show(value)}",
+            value,
+        )
     bodies: list[Body] = []
     seen: dict[str, int] = {}
     for i, item in enumerate(value):
         if not isinstance(item, Mapping):
-            raise root.error("body", f"body entry {i + 1} is {_type_name(item)}, not a table: {show(item)}", item)
+            raise root.error(
+                "body", f"body entry {i + 1} is {_type_name(item)}, not a table: {show(item)}", item
+            )
         t = Table(item, root.doc, ("body", i), "body", "", f"body #{i + 1}")
         bodies.append(_parse_body(t, i, seen))
     return bodies
@@ -914,7 +1014,11 @@ def _parse_background(root: Table) -> Background:
     kind = t.string("kind", "black", choices=BACKGROUND_KINDS)
     t.check_keys(
         keys_for[kind],
-        not_here={k: f'does not apply to background kind "{kind}"' for k in all_keys if k not in keys_for[kind]},
+        not_here={
+            k: f'does not apply to background kind "{kind}"'
+            for k in all_keys
+            if k not in keys_for[kind]
+        },
     )
     if kind == "black":
         return Background(kind="black")
@@ -933,10 +1037,14 @@ def _parse_background(root: Table) -> Background:
             temperature=(float(temperature[0]), float(temperature[1])),
             luminance=t.number("luminance", defaults.luminance, positive=True),
         )
-    spacing = t.number("spacing", defaults.spacing, low=0.0, high=90.0, low_open=True, unit="degrees")
+    spacing = t.number(
+        "spacing", defaults.spacing, low=0.0, high=90.0, low_open=True, unit="degrees"
+    )
     width = t.number("width", defaults.width, positive=True, unit="degrees")
     if width >= spacing:
-        raise t.error("width", f"width = {show(width)} must be smaller than spacing = {show(spacing)}", width)
+        raise t.error(
+            "width", f"width = {show(width)} must be smaller than spacing = {show(spacing)}", width
+        )
     line_t = t.number("temperature", 6500.0, positive=True, unit="K")
     return Background(
         kind="graticule",
@@ -955,7 +1063,9 @@ def _parse_animation(root: Table) -> Animation | None:
     start = t.number("start", 0.0, unit="s")
     end = t.number("end", start, unit="s")
     if end < start:
-        raise t.error("end", f"end = {show(t.data['end'])} s is before start = {show(start)} s", t.data["end"])
+        raise t.error(
+            "end", f"end = {show(t.data['end'])} s is before start = {show(start)} s", t.data["end"]
+        )
     return Animation(
         start=start,
         end=end,
@@ -1024,7 +1134,9 @@ def load_scene(path: str | Path) -> Scene:
     except IsADirectoryError:
         raise SceneError("is a directory, not a scene file", file=source, value=source) from None
     except OSError as exc:
-        raise SceneError(f"cannot read scene file: {exc.strerror}", file=source, value=source) from None
+        raise SceneError(
+            f"cannot read scene file: {exc.strerror}", file=source, value=source
+        ) from None
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError as exc:
@@ -1034,8 +1146,7 @@ def load_scene(path: str | Path) -> Scene:
             file=source,
             line=line,
         ) from None
-    if text.startswith("\ufeff"):
-        text = text[1:]
+    text = text.removeprefix("\ufeff")
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -1045,9 +1156,14 @@ def load_scene(path: str | Path) -> Scene:
         if m:
             line, column = int(m.group(1)), int(m.group(2))
             msg = msg[: m.start()]
+        elif msg.endswith("(at end of document)"):
+            line = max(1, len(text.splitlines()))
+            msg = msg[: -len("(at end of document)")].rstrip() + " at the end of the file"
         snippet = ""
         if line is not None and 1 <= line <= len(text.splitlines()):
             snippet = f": {text.splitlines()[line - 1].strip()!r}"
-        raise SceneError(f"TOML syntax error: {msg}{snippet}", file=source, line=line, column=column) from None
+        raise SceneError(
+            f"TOML syntax error: {msg}{snippet}", file=source, line=line, column=column
+        ) from None
     doc = _Document(source, path.parent, text)
     return _build(data, doc, raw, path)

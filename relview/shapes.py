@@ -75,7 +75,10 @@ class MeshData:
         if self.uv is not None:
             visual = trimesh.visual.TextureVisuals(uv=np.array(self.uv))
         return trimesh.Trimesh(
-            vertices=np.array(self.vertices), faces=np.array(self.faces), visual=visual, process=False
+            vertices=np.array(self.vertices),
+            faces=np.array(self.faces),
+            visual=visual,
+            process=False,
         )
 
 
@@ -88,7 +91,9 @@ def _frozen(a: np.ndarray | None, dtype) -> np.ndarray | None:
 
 
 def _mesh(vertices, faces, uv=None, source="") -> MeshData:
-    return MeshData(_frozen(vertices, np.float64), _frozen(faces, np.int64), _frozen(uv, np.float64), source)
+    return MeshData(
+        _frozen(vertices, np.float64), _frozen(faces, np.int64), _frozen(uv, np.float64), source
+    )
 
 
 # --------------------------------------------------------------------------- primitives
@@ -207,9 +212,15 @@ def _read_mesh_file(path: Path) -> MeshData:
         )
 
     if not np.all(np.isfinite(vertices)):
-        raise MeshError("mesh file has non-finite (NaN or infinite) vertex coordinates", file=path, value=str(path))
+        raise MeshError(
+            "mesh file has non-finite (NaN or infinite) vertex coordinates",
+            file=path,
+            value=str(path),
+        )
     if faces.min() < 0 or faces.max() >= len(vertices):
-        raise MeshError("mesh file has faces that index missing vertices", file=path, value=str(path))
+        raise MeshError(
+            "mesh file has faces that index missing vertices", file=path, value=str(path)
+        )
 
     return _clean(vertices, faces, uv, path)
 
@@ -231,7 +242,9 @@ def _clean(vertices: np.ndarray, faces: np.ndarray, uv: np.ndarray | None, path:
         )
         faces = faces[~degenerate]
         if len(faces) == 0:
-            raise MeshError("mesh file has only degenerate (zero-area) triangles", file=path, value=str(path))
+            raise MeshError(
+                "mesh file has only degenerate (zero-area) triangles", file=path, value=str(path)
+            )
         used = np.unique(faces)
         remap = np.full(len(vertices), -1, np.int64)
         remap[used] = np.arange(len(used))

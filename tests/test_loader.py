@@ -20,7 +20,6 @@ import pytest
 import trimesh
 
 import relview
-from relview import loader
 from relview.errors import MeshError, SceneError, UserError
 from relview.loader import MOTION_KINDS, load_scene, register_motion, scene_from_dict
 from relview.scene import Scene, UniformMotion
@@ -125,7 +124,7 @@ def replace(text: str, old: str, new: str) -> str:
 def scene_format_example() -> str:
     """The complete example scene of docs/scene-format.md (first ```toml block)."""
     doc = (REPO / "docs" / "scene-format.md").read_text()
-    match = re.search(r"```toml\n(.*?)```", doc, re.S)
+    match = re.search(r"```toml\n(.*?)```", doc, re.DOTALL)
     assert match, "docs/scene-format.md has no ```toml example"
     return match.group(1)
 
@@ -256,21 +255,39 @@ fps = 30
     assert lamp.surface.kwargs == {"lines": [(656.28, 1.0, 2.0), (486.13, 0.5, 1.0)]}
     np.testing.assert_array_equal(sign.size, [2.0, 1.0])
     assert type(sign.surface).__name__ == "Reflective"
-    assert sign.surface.kwargs == {"rgb": (0.9, 0.5, 0.1), "lamp": "D65", "luminance": 80.0, "texture": None}
+    assert sign.surface.kwargs == {
+        "rgb": (0.9, 0.5, 0.1),
+        "lamp": "D65",
+        "luminance": 80.0,
+        "texture": None,
+    }
     bg = scene.background
-    assert (bg.kind, bg.count, bg.seed, bg.temperature, bg.luminance) == ("stars", 500, 3, (4000.0, 9000.0), 2.0)
+    assert (bg.kind, bg.count, bg.seed, bg.temperature, bg.luminance) == (
+        "stars",
+        500,
+        3,
+        (4000.0, 9000.0),
+        2.0,
+    )
     a = scene.animation
     assert (a.start, a.end, a.frames, a.fps) == (0.0, 1.0e-8, 10, 30.0)
 
 
 def test_graticule_background_and_panorama(tmp_path, fake_materials):
-    text = replace(VALID, "look_at = [0.0, 0.0, 0.0]\n", 'look_at = [0.0, 0.0, 0.0]\nprojection = "panorama"\n')
+    text = replace(
+        VALID, "look_at = [0.0, 0.0, 0.0]\n", 'look_at = [0.0, 0.0, 0.0]\nprojection = "panorama"\n'
+    )
     text += '\n[background]\nkind = "graticule"\nspacing = 10.0\nwidth = 0.5\ntemperature = 5000.0\nluminance = 3.0\n'
     scene = load_text(tmp_path, text)
     assert scene.camera.projection == "panorama" and scene.camera.fov == 360.0
     bg = scene.background
     assert (bg.kind, bg.spacing, bg.width, bg.temperature, bg.luminance) == (
-        "graticule", 10.0, 0.5, (5000.0, 5000.0), 3.0)
+        "graticule",
+        10.0,
+        0.5,
+        (5000.0, 5000.0),
+        3.0,
+    )
 
 
 def test_pattern_surface_nests(tmp_path, fake_materials):
@@ -283,17 +300,33 @@ def test_pattern_surface_nests(tmp_path, fake_materials):
     surface = load_text(tmp_path, text).bodies[0].surface
     assert type(surface).__name__ == "Pattern"
     kw = surface.kwargs
-    assert (kw["kind"], kw["period"], kw["line_width"]) == ("checks", 0.25, 0.02)
-    assert type(kw["first"]).__name__ == "Blackbody" and kw["first"].kwargs["temperature_k"] == 6500.0
-    assert type(kw["second"]).__name__ == "Reflective" and kw["second"].kwargs["rgb"] == (0.1, 0.1, 0.1)
+    assert (kw["kind"], kw["period"], kw["line_width"], kw["axes"]) == (
+        "checks",
+        0.25,
+        0.02,
+        (0, 1, 2),
+    )
+    assert (
+        type(kw["first"]).__name__ == "Blackbody" and kw["first"].kwargs["temperature_k"] == 6500.0
+    )
+    assert type(kw["second"]).__name__ == "Reflective" and kw["second"].kwargs["rgb"] == (
+        0.1,
+        0.1,
+        0.1,
+    )
     assert kw["second"].kwargs["lamp"] == 5800.0 and kw["second"].kwargs["luminance"] == 100.0
 
 
 def test_single_line_surface_and_blackbody_scale(tmp_path, fake_materials):
-    text = replace(VALID, "blackbody = 5800.0", "line = { nm = 656.28, width_nm = 1.0, radiance = 1.0 }")
+    text = replace(
+        VALID, "blackbody = 5800.0", "line = { nm = 656.28, width_nm = 1.0, radiance = 1.0 }"
+    )
     assert load_text(tmp_path, text).bodies[0].surface.kwargs == {"lines": [(656.28, 1.0, 1.0)]}
     text = replace(VALID, "blackbody = 5800.0", "blackbody = 3000\nscale = 0.5")
-    assert load_text(tmp_path, text).bodies[0].surface.kwargs == {"temperature_k": 3000.0, "scale": 0.5}
+    assert load_text(tmp_path, text).bodies[0].surface.kwargs == {
+        "temperature_k": 3000.0,
+        "scale": 0.5,
+    }
 
 
 def test_paths_resolve_relative_to_scene_file(tmp_path, fake_materials, monkeypatch):
@@ -304,7 +337,9 @@ def test_paths_resolve_relative_to_scene_file(tmp_path, fake_materials, monkeypa
     from PIL import Image
 
     Image.new("RGB", (4, 4), (200, 10, 10)).save(scene_dir / "paint.png")
-    text = CAMERA + """
+    text = (
+        CAMERA
+        + """
 [[body]]
 name = "crate"
 shape = "mesh"
@@ -320,6 +355,7 @@ size = [1.0, 1.0]
 color = [0.5, 0.5, 0.5]
 texture = "paint.png"
 """
+    )
     path = write(scene_dir, text)
     monkeypatch.chdir(tmp_path)  # the working directory must not matter
     scene = load_scene(Path("project/scenes/scene.toml"))
@@ -342,15 +378,24 @@ def test_source_hash_follows_referenced_files(tmp_path, fake_materials):
     assert load_text(tmp_path, text).source_hash == first
     trimesh.creation.box(extents=(1.0, 1.0, 2.0)).export(tmp_path / "m.ply")
     assert load_text(tmp_path, text).source_hash != first
-    assert load_text(tmp_path, text + "\n# a comment\n").source_hash != load_text(tmp_path, text).source_hash
+    assert (
+        load_text(tmp_path, text + "\n# a comment\n").source_hash
+        != load_text(tmp_path, text).source_hash
+    )
 
 
 def test_from_dict_builds_the_same_scene(tmp_path, fake_materials):
     data = {
         "camera": {"position": [0.0, -5.0, 0.0], "look_at": [0.0, 0.0, 0.0]},
-        "body": [{"name": "rod", "shape": "box", "size": (1.0, 0.1, 0.1),
-                  "motion": {"kind": "uniform", "beta": np.array([0.5, 0.0, 0.0])},
-                  "surface": {"blackbody": 5800.0}}],
+        "body": [
+            {
+                "name": "rod",
+                "shape": "box",
+                "size": (1.0, 0.1, 0.1),
+                "motion": {"kind": "uniform", "beta": np.array([0.5, 0.0, 0.0])},
+                "surface": {"blackbody": 5800.0},
+            }
+        ],
     }
     scene = Scene.from_dict(data)
     from_file = load_text(tmp_path, VALID)
@@ -374,7 +419,9 @@ def test_registered_motion_kind_is_used(tmp_path, fake_materials):
 
     register_motion("test-spin", parse_spin)
     try:
-        text = replace(VALID, 'kind = "uniform"\nbeta = [0.5, 0.0, 0.0]', 'kind = "test-spin"\nrate = 3.0')
+        text = replace(
+            VALID, 'kind = "uniform"\nbeta = [0.5, 0.0, 0.0]', 'kind = "test-spin"\nrate = 3.0'
+        )
         assert load_text(tmp_path, text).bodies[0].motion.rate == 3.0
         err = error_of(tmp_path, replace(text, "rate = 3.0", "rate = -3.0"))
         assert_names(err, '[body.motion] rate (body "rod")', "-3.0", line_of(text, "rate ="))
@@ -403,19 +450,39 @@ def test_scene_file_not_utf8(tmp_path):
     path.write_bytes(VALID.encode() + b'\n[scene]\ntitle = "caf\xe9"\n')
     with pytest.raises(SceneError) as info:
         load_scene(path)
-    assert "scene.toml" in str(info.value) and "UTF-8" in str(info.value) and "0xe9" in str(info.value)
+    assert (
+        "scene.toml" in str(info.value) and "UTF-8" in str(info.value) and "0xe9" in str(info.value)
+    )
 
 
 @pytest.mark.parametrize(
     "old, new, key, suggestion",
     [
         ("[camera]", "[camra]", "camra", '"camera"'),
-        ("look_at = [0.0, 0.0, 0.0]", "look_at = [0.0, 0.0, 0.0]\nfvo = 60.0", "[camera] fvo", '"fov"'),
-        ('size = [1.0, 0.1, 0.1]', 'size = [1.0, 0.1, 0.1]\nrotaton = [0, 0, 0]', '[body] rotaton (body "rod")',
-         '"rotation"'),
-        ("kind = \"uniform\"", "kind = \"uniform\"\npositon = [0, 0, 0]", '[body.motion] positon (body "rod")',
-         '"position"'),
-        ("blackbody = 5800.0", "blackbdy = 5800.0", '[body.surface] blackbdy (body "rod")', '"blackbody"'),
+        (
+            "look_at = [0.0, 0.0, 0.0]",
+            "look_at = [0.0, 0.0, 0.0]\nfvo = 60.0",
+            "[camera] fvo",
+            '"fov"',
+        ),
+        (
+            "size = [1.0, 0.1, 0.1]",
+            "size = [1.0, 0.1, 0.1]\nrotaton = [0, 0, 0]",
+            '[body] rotaton (body "rod")',
+            '"rotation"',
+        ),
+        (
+            'kind = "uniform"',
+            'kind = "uniform"\npositon = [0, 0, 0]',
+            '[body.motion] positon (body "rod")',
+            '"position"',
+        ),
+        (
+            "blackbody = 5800.0",
+            "blackbdy = 5800.0",
+            '[body.surface] blackbdy (body "rod")',
+            '"blackbody"',
+        ),
     ],
 )
 def test_unknown_keys_suggest_nearest(tmp_path, fake_materials, old, new, key, suggestion):
@@ -429,10 +496,14 @@ def test_unknown_keys_suggest_nearest(tmp_path, fake_materials, old, new, key, s
 def test_unknown_keys_in_other_sections(tmp_path, fake_materials):
     cases = [
         ("[render]\nsampels = 2\n", "[render] sampels", '"samples"'),
-        ("[render.effects]\ndoppler_shift = false\n", "[render.effects] doppler_shift", '"doppler"'),
+        (
+            "[render.effects]\ndoppler_shift = false\n",
+            "[render.effects] doppler_shift",
+            '"doppler"',
+        ),
         ('[background]\nkind = "stars"\ncuont = 5\n', "[background] cuont", '"count"'),
         ("[animation]\nframe = 5\n", "[animation] frame", '"frames"'),
-        ("[scene]\ntitel = \"x\"\n", "[scene] titel", '"title"'),
+        ('[scene]\ntitel = "x"\n', "[scene] titel", '"title"'),
     ]
     for section, key, suggestion in cases:
         text = VALID + "\n" + section
@@ -443,30 +514,120 @@ def test_unknown_keys_in_other_sections(tmp_path, fake_materials):
 
 # Wrong types, NaN/inf, zero or negative sizes: (old text, new text, key, value, what the message says)
 BAD_VALUES = [
-    ("look_at = [0.0, 0.0, 0.0]", 'look_at = [0.0, 0.0, 0.0]\nfov = "sixty"', "[camera] fov", '"sixty"', "expected"),
-    ("position = [0.0, -5.0, 0.0]", "position = [0.0, -5.0]", "[camera] position", "[0.0, -5.0]", "expected"),
-    ("position = [0.0, -5.0, 0.0]", 'position = [0.0, "a", 1.0]', "[camera] position", '[0.0, "a", 1.0]',
-     "expected"),
+    (
+        "look_at = [0.0, 0.0, 0.0]",
+        'look_at = [0.0, 0.0, 0.0]\nfov = "sixty"',
+        "[camera] fov",
+        '"sixty"',
+        "expected",
+    ),
+    (
+        "position = [0.0, -5.0, 0.0]",
+        "position = [0.0, -5.0]",
+        "[camera] position",
+        "[0.0, -5.0]",
+        "expected",
+    ),
+    (
+        "position = [0.0, -5.0, 0.0]",
+        'position = [0.0, "a", 1.0]',
+        "[camera] position",
+        '[0.0, "a", 1.0]',
+        "expected",
+    ),
     ("beta = [0.5, 0.0, 0.0]", "beta = 0.5", '[body.motion] beta (body "rod")', "0.5", "expected"),
-    ("look_at = [0.0, 0.0, 0.0]", "look_at = [0.0, 0.0, 0.0]\ntime = true", "[camera] time", "true", "expected"),
+    (
+        "look_at = [0.0, 0.0, 0.0]",
+        "look_at = [0.0, 0.0, 0.0]\ntime = true",
+        "[camera] time",
+        "true",
+        "expected",
+    ),
     ('name = "rod"', "name = 7", "[body] name (body #1)", "7", "expected"),
-    ("blackbody = 5800.0", 'blackbody = "hot"', '[body.surface] blackbody (body "rod")', '"hot"', "expected"),
-    ("look_at = [0.0, 0.0, 0.0]", "look_at = [0.0, 0.0, 0.0]\nfov = nan", "[camera] fov", "nan", "finite"),
-    ("position = [0.0, -5.0, 0.0]", "position = [inf, -5.0, 0.0]", "[camera] position", "[inf, -5.0, 0.0]",
-     "finite"),
-    ("blackbody = 5800.0", "blackbody = -inf", '[body.surface] blackbody (body "rod")', "-inf", "finite"),
-    ("beta = [0.5, 0.0, 0.0]", "beta = [nan, 0.0, 0.0]", '[body.motion] beta (body "rod")', "[nan, 0.0, 0.0]",
-     "finite"),
-    ("size = [1.0, 0.1, 0.1]", "size = [1.0, 0.0, 0.1]", '[body] size (body "rod")', "[1.0, 0.0, 0.1]", "> 0"),
-    ("size = [1.0, 0.1, 0.1]", "size = [1.0, -0.1, 0.1]", '[body] size (body "rod")', "[1.0, -0.1, 0.1]", "> 0"),
-    ('shape = "box"\nsize = [1.0, 0.1, 0.1]', 'shape = "sphere"\nradius = -1.0', '[body] radius (body "rod")',
-     "-1.0", "> 0"),
-    ('shape = "box"\nsize = [1.0, 0.1, 0.1]', 'shape = "cylinder"\nradius = 1.0\nheight = 0.0',
-     '[body] height (body "rod")', "0.0", "> 0"),
-    ('shape = "box"\nsize = [1.0, 0.1, 0.1]', 'shape = "plane"\nsize = [0.0, 1.0]', '[body] size (body "rod")',
-     "[0.0, 1.0]", "> 0"),
-    ("blackbody = 5800.0", "blackbody = 0.0", '[body.surface] blackbody (body "rod")', "0.0", "> 0"),
-    ("blackbody = 5800.0", "blackbody = 5800.0\nscale = 0", '[body.surface] scale (body "rod")', "0", "> 0"),
+    (
+        "blackbody = 5800.0",
+        'blackbody = "hot"',
+        '[body.surface] blackbody (body "rod")',
+        '"hot"',
+        "expected",
+    ),
+    (
+        "look_at = [0.0, 0.0, 0.0]",
+        "look_at = [0.0, 0.0, 0.0]\nfov = nan",
+        "[camera] fov",
+        "nan",
+        "finite",
+    ),
+    (
+        "position = [0.0, -5.0, 0.0]",
+        "position = [inf, -5.0, 0.0]",
+        "[camera] position",
+        "[inf, -5.0, 0.0]",
+        "finite",
+    ),
+    (
+        "blackbody = 5800.0",
+        "blackbody = -inf",
+        '[body.surface] blackbody (body "rod")',
+        "-inf",
+        "finite",
+    ),
+    (
+        "beta = [0.5, 0.0, 0.0]",
+        "beta = [nan, 0.0, 0.0]",
+        '[body.motion] beta (body "rod")',
+        "[nan, 0.0, 0.0]",
+        "finite",
+    ),
+    (
+        "size = [1.0, 0.1, 0.1]",
+        "size = [1.0, 0.0, 0.1]",
+        '[body] size (body "rod")',
+        "[1.0, 0.0, 0.1]",
+        "> 0",
+    ),
+    (
+        "size = [1.0, 0.1, 0.1]",
+        "size = [1.0, -0.1, 0.1]",
+        '[body] size (body "rod")',
+        "[1.0, -0.1, 0.1]",
+        "> 0",
+    ),
+    (
+        'shape = "box"\nsize = [1.0, 0.1, 0.1]',
+        'shape = "sphere"\nradius = -1.0',
+        '[body] radius (body "rod")',
+        "-1.0",
+        "> 0",
+    ),
+    (
+        'shape = "box"\nsize = [1.0, 0.1, 0.1]',
+        'shape = "cylinder"\nradius = 1.0\nheight = 0.0',
+        '[body] height (body "rod")',
+        "0.0",
+        "> 0",
+    ),
+    (
+        'shape = "box"\nsize = [1.0, 0.1, 0.1]',
+        'shape = "plane"\nsize = [0.0, 1.0]',
+        '[body] size (body "rod")',
+        "[0.0, 1.0]",
+        "> 0",
+    ),
+    (
+        "blackbody = 5800.0",
+        "blackbody = 0.0",
+        '[body.surface] blackbody (body "rod")',
+        "0.0",
+        "> 0",
+    ),
+    (
+        "blackbody = 5800.0",
+        "blackbody = 5800.0\nscale = 0",
+        '[body.surface] scale (body "rod")',
+        "0",
+        "> 0",
+    ),
 ]
 
 
@@ -482,13 +643,23 @@ def test_bad_values(tmp_path, fake_materials, old, new, key, value, says):
     "section, key, value, says",
     [
         ("[render]\nresolution = [640]\n", "[render] resolution", "[640]", "expected"),
-        ("[render]\nresolution = [640.5, 480]\n", "[render] resolution", "[640.5, 480]", "expected"),
+        (
+            "[render]\nresolution = [640.5, 480]\n",
+            "[render] resolution",
+            "[640.5, 480]",
+            "expected",
+        ),
         ("[render]\nsamples = 2.5\n", "[render] samples", "2.5", "expected"),
         ('[render.effects]\ndelay = "no"\n', "[render.effects] delay", '"no"', "expected"),
         ("[render]\nresolution = [0, 540]\n", "[render] resolution", "[0, 540]", ">= 1"),
         ("[render]\nresolution = [960, -1]\n", "[render] resolution", "[960, -1]", ">= 1"),
         ("[render]\nsamples = 0\n", "[render] samples", "samples = 0", ">= 1"),
-        ('[render]\nexposure = "automatic"\n', "[render] exposure", '"automatic"', 'did you mean "auto"'),
+        (
+            '[render]\nexposure = "automatic"\n',
+            "[render] exposure",
+            '"automatic"',
+            'did you mean "auto"',
+        ),
         ("[render]\nexposure = -5.0\n", "[render] exposure", "-5.0", "> 0"),
     ],
 )
@@ -516,12 +687,18 @@ def test_fov_out_of_range(tmp_path, fake_materials, extra, key, value):
 
 
 def test_fisheye_accepts_full_circle(tmp_path, fake_materials):
-    text = replace(VALID, "look_at = [0.0, 0.0, 0.0]", 'look_at = [0.0, 0.0, 0.0]\nprojection = "fisheye"\nfov = 360')
+    text = replace(
+        VALID,
+        "look_at = [0.0, 0.0, 0.0]",
+        'look_at = [0.0, 0.0, 0.0]\nprojection = "fisheye"\nfov = 360',
+    )
     assert load_text(tmp_path, text).camera.fov == 360.0
 
 
-@pytest.mark.parametrize("beta, speed", [("[0.8, 0.8, 0.0]", "1.13137"), ("[1.0, 0.0, 0.0]", "1"),
-                                         ("[0.0, 0.0, -3.0]", "3")])
+@pytest.mark.parametrize(
+    "beta, speed",
+    [("[0.8, 0.8, 0.0]", "1.13137"), ("[1.0, 0.0, 0.0]", "1"), ("[0.0, 0.0, -3.0]", "3")],
+)
 def test_body_speed_at_or_above_c(tmp_path, fake_materials, beta, speed):
     text = replace(VALID, "beta = [0.5, 0.0, 0.0]", f"beta = {beta}")
     err = error_of(tmp_path, text)
@@ -530,9 +707,13 @@ def test_body_speed_at_or_above_c(tmp_path, fake_materials, beta, speed):
 
 
 def test_camera_speed_at_or_above_c(tmp_path, fake_materials):
-    text = replace(VALID, "look_at = [0.0, 0.0, 0.0]", "look_at = [0.0, 0.0, 0.0]\nbeta = [0.0, 0.99999, 0.01]")
+    text = replace(
+        VALID, "look_at = [0.0, 0.0, 0.0]", "look_at = [0.0, 0.0, 0.0]\nbeta = [0.0, 0.99999, 0.01]"
+    )
     err = error_of(tmp_path, text)
-    assert_names(err, "[camera] beta", "[0.0, 0.99999, 0.01]", line_of(text, "beta = [0.0, 0.99999"))
+    assert_names(
+        err, "[camera] beta", "[0.0, 0.99999, 0.01]", line_of(text, "beta = [0.0, 0.99999")
+    )
     assert "at or above c" in str(err)
 
 
@@ -553,15 +734,21 @@ def test_up_parallel_to_view(tmp_path, fake_materials, up):
 
 def test_zero_direction_and_zero_up(tmp_path, fake_materials):
     text = replace(VALID, "look_at = [0.0, 0.0, 0.0]", "direction = [0, 0, 0]")
-    assert_names(error_of(tmp_path, text), "[camera] direction", "[0, 0, 0]", line_of(text, "direction"))
+    assert_names(
+        error_of(tmp_path, text), "[camera] direction", "[0, 0, 0]", line_of(text, "direction")
+    )
     text = replace(VALID, "look_at = [0.0, 0.0, 0.0]", "look_at = [0.0, 0.0, 0.0]\nup = [0, 0, 0]")
     assert_names(error_of(tmp_path, text), "[camera] up", "[0, 0, 0]", line_of(text, "up ="))
 
 
 def test_exactly_one_of_look_at_and_direction(tmp_path, fake_materials):
-    text = replace(VALID, "look_at = [0.0, 0.0, 0.0]", "look_at = [0.0, 0.0, 0.0]\ndirection = [0.0, 1.0, 0.0]")
+    text = replace(
+        VALID, "look_at = [0.0, 0.0, 0.0]", "look_at = [0.0, 0.0, 0.0]\ndirection = [0.0, 1.0, 0.0]"
+    )
     err = error_of(tmp_path, text)
-    assert_names(err, "[camera] direction", "direction = [0.0, 1.0, 0.0]", line_of(text, "direction"))
+    assert_names(
+        err, "[camera] direction", "direction = [0.0, 1.0, 0.0]", line_of(text, "direction")
+    )
     assert "exactly one of look_at and direction" in str(err)
     text = replace(VALID, "look_at = [0.0, 0.0, 0.0]\n", "")
     err = error_of(tmp_path, text)
@@ -570,15 +757,25 @@ def test_exactly_one_of_look_at_and_direction(tmp_path, fake_materials):
 
 def test_missing_required_keys(tmp_path, fake_materials):
     text = replace(VALID, "position = [0.0, -5.0, 0.0]\n", "")
-    assert_names(error_of(tmp_path, text), "[camera] position", 'missing required key "position"', 1)
+    assert_names(
+        error_of(tmp_path, text), "[camera] position", 'missing required key "position"', 1
+    )
     text = replace(VALID, "size = [1.0, 0.1, 0.1]\n", "")
-    assert_names(error_of(tmp_path, text), '[body] size (body "rod")', 'missing required key "size"',
-                 line_of(text, "[[body]]"))
+    assert_names(
+        error_of(tmp_path, text),
+        '[body] size (body "rod")',
+        'missing required key "size"',
+        line_of(text, "[[body]]"),
+    )
     text = BODY
     assert_names(error_of(tmp_path, text), "camera", 'missing required key "camera"')
     text = replace(VALID, "[body.surface]\nblackbody = 5800.0\n", "")
-    assert_names(error_of(tmp_path, text), '[body] surface (body "rod")', 'missing required key "surface"',
-                 line_of(text, "[[body]]"))
+    assert_names(
+        error_of(tmp_path, text),
+        '[body] surface (body "rod")',
+        'missing required key "surface"',
+        line_of(text, "[[body]]"),
+    )
 
 
 def test_key_for_another_shape(tmp_path, fake_materials):
@@ -592,13 +789,37 @@ def test_key_for_another_shape(tmp_path, fake_materials):
     "old, new, key, value, suggestion",
     [
         ('shape = "box"', 'shape = "shpere"', '[body] shape (body "rod")', '"shpere"', '"sphere"'),
-        ('kind = "uniform"', 'kind = "unifrom"', '[body.motion] kind (body "rod")', '"unifrom"', '"uniform"'),
-        ("look_at = [0.0, 0.0, 0.0]", 'look_at = [0.0, 0.0, 0.0]\nprojection = "fishey"', "[camera] projection",
-         '"fishey"', '"fisheye"'),
-        ("blackbody = 5800.0", 'pattern = { kind = "check", first = { blackbody = 1000 }, '
-         "second = { blackbody = 2000 } }", '[body.surface] pattern.kind (body "rod")', '"check"', '"checks"'),
-        ("blackbody = 5800.0", 'color = [0.5, 0.5, 0.5]\nlamp = "D56"', '[body.surface] lamp (body "rod")',
-         '"D56"', '"D65"'),
+        (
+            'kind = "uniform"',
+            'kind = "unifrom"',
+            '[body.motion] kind (body "rod")',
+            '"unifrom"',
+            '"uniform"',
+        ),
+        (
+            "look_at = [0.0, 0.0, 0.0]",
+            'look_at = [0.0, 0.0, 0.0]\nprojection = "fishey"',
+            "[camera] projection",
+            '"fishey"',
+            '"fisheye"',
+        ),
+        (
+            "blackbody = 5800.0",
+            (
+                'pattern = { kind = "check", first = { blackbody = 1000 }, '
+                "second = { blackbody = 2000 } }"
+            ),
+            '[body.surface] pattern.kind (body "rod")',
+            '"check"',
+            '"checks"',
+        ),
+        (
+            "blackbody = 5800.0",
+            'color = [0.5, 0.5, 0.5]\nlamp = "D56"',
+            '[body.surface] lamp (body "rod")',
+            '"D56"',
+            '"D65"',
+        ),
     ],
 )
 def test_unknown_values_suggest(tmp_path, fake_materials, old, new, key, value, suggestion):
@@ -621,7 +842,12 @@ def test_background_key_for_other_kind_and_ranges(tmp_path):
     assert_names(err, "[background] count", "count = 10", len(text.splitlines()))
     assert 'does not apply to background kind "graticule"' in str(err)
     text = VALID + '\n[background]\nkind = "stars"\ntemperature = [9000.0, 3000.0]\n'
-    assert_names(error_of(tmp_path, text), "[background] temperature", "[9000.0, 3000.0]", len(text.splitlines()))
+    assert_names(
+        error_of(tmp_path, text),
+        "[background] temperature",
+        "[9000.0, 3000.0]",
+        len(text.splitlines()),
+    )
     text = VALID + '\n[background]\nkind = "graticule"\nspacing = 5.0\nwidth = 6.0\n'
     assert_names(error_of(tmp_path, text), "[background] width", "6.0", len(text.splitlines()))
 
@@ -629,7 +855,9 @@ def test_background_key_for_other_kind_and_ranges(tmp_path):
 def test_duplicate_body_names(tmp_path, fake_materials):
     text = VALID + "\n" + BODY
     err = error_of(tmp_path, text)
-    second_name_line = [i for i, line in enumerate(text.splitlines(), 1) if line == 'name = "rod"'][1]
+    second_name_line = [i for i, line in enumerate(text.splitlines(), 1) if line == 'name = "rod"'][
+        1
+    ]
     assert_names(err, "[body] name", '"rod"', second_name_line)
     assert "duplicate body name" in str(err) and "body #1" in str(err)
 
@@ -655,7 +883,9 @@ def test_animation_end_before_start_and_frames(tmp_path, fake_materials):
     assert_names(err, "[animation] end", "5e-09", line_of(text, "end ="))
     assert "before start" in str(err)
     text = VALID + "\n[animation]\nstart = 0.0\nend = 1.0\nframes = 0\n"
-    assert_names(error_of(tmp_path, text), "[animation] frames", "frames = 0", line_of(text, "frames ="))
+    assert_names(
+        error_of(tmp_path, text), "[animation] frames", "frames = 0", line_of(text, "frames =")
+    )
     text = VALID + "\n[animation]\nfps = 0\n"
     assert_names(error_of(tmp_path, text), "[animation] fps", "fps = 0", line_of(text, "fps ="))
 
@@ -663,8 +893,12 @@ def test_animation_end_before_start_and_frames(tmp_path, fake_materials):
 def test_surface_needs_exactly_one_kind(tmp_path, fake_materials):
     text = replace(VALID, "blackbody = 5800.0", "blackbody = 5800.0\ncolor = [0.5, 0.5, 0.5]")
     err = error_of(tmp_path, text)
-    assert_names(err, '[body.surface] color (body "rod")', "blackbody = 5800.0, color = [0.5, 0.5, 0.5]",
-                 line_of(text, "color"))
+    assert_names(
+        err,
+        '[body.surface] color (body "rod")',
+        "blackbody = 5800.0, color = [0.5, 0.5, 0.5]",
+        line_of(text, "color"),
+    )
     assert "exactly one kind" in str(err)
     text = replace(VALID, "blackbody = 5800.0", "scale = 2.0")
     err = error_of(tmp_path, text)
@@ -679,17 +913,46 @@ def test_surface_needs_exactly_one_kind(tmp_path, fake_materials):
 def test_surface_value_checks(tmp_path, fake_materials):
     cases = [
         ("color = [1.2, 0.5, 0.5]", '[body.surface] color (body "rod")', "[1.2, 0.5, 0.5]", "0..1"),
-        ("line = { nm = 656.28, width_nm = 0.0, radiance = 1.0 }", '[body.surface] line.width_nm (body "rod")',
-         "width_nm = 0.0", "> 0"),
-        ("line = { nm = 656.28, width = 1.0, radiance = 1.0 }", '[body.surface] line.width (body "rod")',
-         "unknown key", 'did you mean "width_nm"'),
+        (
+            "line = { nm = 656.28, width_nm = 0.0, radiance = 1.0 }",
+            '[body.surface] line.width_nm (body "rod")',
+            "width_nm = 0.0",
+            "> 0",
+        ),
+        (
+            "line = { nm = 656.28, width = 1.0, radiance = 1.0 }",
+            '[body.surface] line.width (body "rod")',
+            "unknown key",
+            'did you mean "width_nm"',
+        ),
         ("lines = []", '[body.surface] lines (body "rod")', "[]", "non-empty"),
-        ('pattern = { kind = "grid", period = 0.1, line_width = 0.2, first = { blackbody = 1000 }, '
-         "second = { blackbody = 2000 } }", '[body.surface] pattern.line_width (body "rod")', "0.2", "smaller"),
-        ('pattern = { kind = "grid", first = { blackbody = 1000 }, second = { blackbdy = 2000 } }',
-         '[body.surface] pattern.second.blackbdy (body "rod")', "2000", 'did you mean "blackbody"'),
-        ('pattern = { kind = "grid", first = { blackbody = 1000 } }', '[body.surface] pattern.second (body "rod")',
-         'missing required key "second"', "second"),
+        (
+            (
+                'pattern = { kind = "grid", period = 0.1, line_width = 0.2, first = { blackbody = 1000 }, '
+                "second = { blackbody = 2000 } }"
+            ),
+            '[body.surface] pattern.line_width (body "rod")',
+            "0.2",
+            "smaller",
+        ),
+        (
+            'pattern = { kind = "grid", first = { blackbody = 1000 }, second = { blackbdy = 2000 } }',
+            '[body.surface] pattern.second.blackbdy (body "rod")',
+            "2000",
+            'did you mean "blackbody"',
+        ),
+        (
+            'pattern = { kind = "grid", axes = [0, 3], first = { blackbody = 1000 }, second = { blackbody = 2000 } }',
+            '[body.surface] pattern.axes (body "rod")',
+            "[0, 3]",
+            "distinct values from 0, 1, 2",
+        ),
+        (
+            'pattern = { kind = "grid", first = { blackbody = 1000 } }',
+            '[body.surface] pattern.second (body "rod")',
+            'missing required key "second"',
+            "second",
+        ),
     ]
     for new, key, value, hint in cases:
         text = replace(VALID, "blackbody = 5800.0", new)
@@ -701,18 +964,24 @@ def test_surface_value_checks(tmp_path, fake_materials):
 def test_spectrum_and_texture_files(tmp_path, fake_materials):
     text = replace(VALID, "blackbody = 5800.0", 'spectrum = "missing.csv"')
     err = error_of(tmp_path, text)
-    assert_names(err, '[body.surface] spectrum (body "rod")', '"missing.csv"', line_of(text, "spectrum"))
+    assert_names(
+        err, '[body.surface] spectrum (body "rod")', '"missing.csv"', line_of(text, "spectrum")
+    )
     assert "not found" in str(err) and str(tmp_path / "missing.csv") in str(err)
     (tmp_path / "paint.png").write_bytes(b"not an image at all")
     text = replace(VALID, "blackbody = 5800.0", 'color = [0.5, 0.5, 0.5]\ntexture = "paint.png"')
     err = error_of(tmp_path, text)
-    assert_names(err, '[body.surface] texture (body "rod")', '"paint.png"', line_of(text, "texture"))
+    assert_names(
+        err, '[body.surface] texture (body "rod")', '"paint.png"', line_of(text, "texture")
+    )
     assert "not a readable image" in str(err)
 
 
 # --------------------------------------------------------------------------- mesh files
 
-MESH_BODY = CAMERA + """
+MESH_BODY = (
+    CAMERA
+    + """
 [[body]]
 name = "hull"
 shape = "mesh"
@@ -720,11 +989,14 @@ file = "{file}"
 [body.surface]
 blackbody = 5800.0
 """
+)
 
 
 def test_mesh_body_loads_and_scales(tmp_path, fake_materials):
     trimesh.creation.box(extents=(1.0, 2.0, 3.0)).export(tmp_path / "crate.obj")
-    text = MESH_BODY.format(file="crate.obj").replace('shape = "mesh"', 'shape = "mesh"\nscale = 0.5')
+    text = MESH_BODY.format(file="crate.obj").replace(
+        'shape = "mesh"', 'shape = "mesh"\nscale = 0.5'
+    )
     body = load_text(tmp_path, text).bodies[0]
     assert body.file == tmp_path / "crate.obj" and body.scale == 0.5 and body.center is True
 
@@ -734,8 +1006,13 @@ def test_mesh_body_loads_and_scales(tmp_path, fake_materials):
     [
         (None, "not found"),
         (lambda p: p.write_bytes(b""), "empty"),
-        (lambda p: p.write_bytes(b"ply\nformat binary_little_endian 1.0\nelement vertex 9\nproperty float x\n"
-                                 b"end_header\n\x00"), "cannot read mesh file"),
+        (
+            lambda p: p.write_bytes(
+                b"ply\nformat binary_little_endian 1.0\nelement vertex 9\nproperty float x\n"
+                b"end_header\n\x00"
+            ),
+            "cannot read mesh file",
+        ),
         (lambda p: p.mkdir(), "not a file"),
     ],
 )
@@ -751,8 +1028,10 @@ def test_bad_mesh_files(tmp_path, fake_materials, make, problem):
         assert isinstance(err, MeshError)
 
 
-@pytest.mark.skipif(not hasattr(__import__("os"), "geteuid") or __import__("os").geteuid() == 0,
-                    reason="root reads files regardless of permissions")
+@pytest.mark.skipif(
+    not hasattr(__import__("os"), "geteuid") or __import__("os").geteuid() == 0,
+    reason="root reads files regardless of permissions",
+)
 def test_unreadable_mesh_file(tmp_path, fake_materials):
     mesh = tmp_path / "hull.obj"
     trimesh.creation.box().export(mesh)
@@ -766,6 +1045,43 @@ def test_unreadable_mesh_file(tmp_path, fake_materials):
 
 
 # --------------------------------------------------------------------------- real materials
+
+
+def test_documented_example_builds_real_materials(tmp_path):
+    materials = pytest.importorskip("relview.materials")
+    (tmp_path / "meshes").mkdir()
+    trimesh.creation.box(extents=(2.0, 1.0, 0.5)).export(tmp_path / "meshes" / "hull.obj")
+    (tmp_path / "hydrogen.csv").write_text("nm,radiance\n400,0.1\n700,0.2\n")
+    scene = load_text(tmp_path, scene_format_example())
+    kinds = [type(b.surface).__name__ for b in scene.bodies]
+    assert kinds == ["Pattern", "Blackbody", "Reflective", "EmissionLines", "TabulatedSpectrum"]
+    assert all(isinstance(b.surface, materials.Surface) for b in scene.bodies)
+
+
+def test_malformed_spectrum_csv_names_scene_key_and_csv_line(tmp_path):
+    pytest.importorskip("relview.materials")
+    (tmp_path / "glow.csv").write_text("nm,radiance\n400,0.1\n500,abc\n")
+    text = replace(VALID, "blackbody = 5800.0", 'spectrum = "glow.csv"')
+    err = error_of(tmp_path, text)
+    assert_names(
+        err, '[body.surface] spectrum (body "rod")', '"glow.csv"', line_of(text, "spectrum")
+    )
+    assert "glow.csv, line 3" in str(err)
+
+
+def test_motion_kinds_from_relview_motion_are_registered(tmp_path, fake_materials):
+    pytest.importorskip("relview.motion")
+    text = replace(
+        VALID,
+        'kind = "uniform"\nbeta = [0.5, 0.0, 0.0]',
+        'kind = "hyperbolic"\nacceleration = [9.81, 0, 0]',
+    )
+    motion = load_text(tmp_path, text).bodies[0].motion
+    assert type(motion).__name__ == "HyperbolicMotion"
+    err = error_of(tmp_path, replace(text, "acceleration =", "acceleraton ="))
+    assert_names(
+        err, '[body.motion] acceleraton (body "rod")', "acceleraton", line_of(text, "acceleration")
+    )
 
 
 def test_real_materials_are_built(tmp_path):
