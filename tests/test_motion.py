@@ -495,3 +495,27 @@ def test_motion_tables():
         motion_from_table("path", {"times": [0, 1e-9], "positions": [[0, 0, 0], [1, 0, 0]]})
     with pytest.raises(MotionTableError, match="did you mean 'orbit'"):
         motion_from_table("orbitt", {})
+
+
+def test_loader_builds_registered_kinds_and_names_bad_keys():
+    from relview.errors import SceneError
+    from relview.loader import MOTION_KINDS, scene_from_dict
+
+    assert {"hyperbolic", "orbit", "path", "spin", "rolling"} <= set(MOTION_KINDS)
+
+    def scene(motion):
+        return {
+            "camera": {"position": [0.0, -5.0, 0.0], "look_at": [0.0, 0.0, 0.0]},
+            "body": [{"name": "probe", "shape": "sphere", "radius": 0.1, "motion": motion,
+                      "surface": {"blackbody": 5800.0}}],
+        }
+
+    s = scene_from_dict(scene({"kind": "rolling", "radius": 0.3, "beta": [0.5, 0.0, 0.0]}))
+    assert isinstance(s.bodies[0].motion, RollingMotion)
+    s = scene_from_dict(scene({"kind": "spin", "angular_velocity": 1e6,
+                               "base": {"kind": "hyperbolic", "acceleration": [0.0, 0.0, 9.81]}}))
+    assert isinstance(s.bodies[0].motion.base, HyperbolicMotion)
+    with pytest.raises(SceneError, match=r"period.*-2.*must be positive"):
+        scene_from_dict(scene({"kind": "orbit", "radius": 1.0, "period": -2.0}))
+    with pytest.raises(SceneError, match=r"accelleration.*did you mean 'acceleration'"):
+        scene_from_dict(scene({"kind": "hyperbolic", "accelleration": [1.0, 0.0, 0.0]}))
