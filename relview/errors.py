@@ -73,17 +73,6 @@ class UserError(Exception):
     def __str__(self) -> str:  # keep str() in step with attribute edits
         return self.format()
 
-    def relocated(self, *, file=None, key=None, value=_UNSET, line=None, column=None) -> UserError:
-        """A copy of this error (same class) with the given location fields filled in."""
-        return type(self)(
-            self.message,
-            file=file if file is not None else self.file,
-            key=key if key is not None else self.key,
-            value=value if value is not _UNSET else (self.value if self.has_value else _UNSET),
-            line=line if line is not None else self.line,
-            column=column if column is not None else self.column,
-        )
-
 
 class SceneError(UserError):
     """A scene file (or the dict given to Scene.from_dict) is malformed or invalid."""

@@ -34,6 +34,7 @@ import importlib.util
 import json
 import math
 import numbers
+import os
 import re
 import tomllib
 from collections.abc import Callable, Iterable, Mapping
@@ -528,6 +529,8 @@ class Table:
 
     def path_value(self, key: str, default: Any = _REQUIRED, *, what: str = "file") -> Path:
         """A file path, relative to the scene file, that must name an existing file."""
+        if isinstance(self.data.get(key), os.PathLike):  # Scene.from_dict with Path objects
+            self.data = dict(self.data, **{key: os.fspath(self.data[key])})
         value = self.string(key, default)
         if value is default and default is not _REQUIRED:
             return default
@@ -582,12 +585,15 @@ def register_motion(kind: str, parser: MotionParser) -> None:
 def _load_motion_plugins() -> None:
     global _motion_plugins_loaded
     if not _motion_plugins_loaded:
-        _motion_plugins_loaded = True
         if importlib.util.find_spec("relview.motion") is not None:
             importlib.import_module("relview.motion")
+        _motion_plugins_loaded = True
 
 
 def _parse_motion(body: Table) -> Any:
+    given = body.data.get("motion")
+    if given is not None and not isinstance(given, Mapping) and hasattr(given, "kind"):
+        return given  # a ready-made motion object (Scene.from_dict in scripts)
     table = body.table("motion", None, section="body.motion")
     if table is None:
         return UniformMotion()  # at rest at the scene origin
@@ -775,7 +781,14 @@ def build_surface(spec: tuple[str, dict]) -> Any:
     return getattr(materials, name)(**kwargs)
 
 
+def _is_surface_object(value: Any) -> bool:
+    """A ready-made relview.materials surface (Scene.from_dict in scripts)."""
+    return hasattr(value, "observed_xyz") and hasattr(value, "key")
+
+
 def _parse_surface(body: Table) -> Any:
+    if _is_surface_object(body.data.get("surface")):
+        return body.data["surface"]
     table = body.table("surface", section="body.surface")
     spec = surface_spec(table)
     kind = next(k for k in SURFACE_KINDS if table.has(k))
@@ -871,7 +884,8 @@ def _parse_camera(root: Table) -> Camera:
         raise t.error(
             "up",
             f"up = {show(t.data.get('up', [0.0, 0.0, 1.0]))} is parallel to the view direction "
-            f"{show(np.round(forward / np.linalg.norm(forward), 6))}; the image's vertical is undefined",
+            f"{show(np.round(forward / np.linalg.norm(forward), 6))}; the image's vertical is "
+            "undefined: give an up vector across the view",
             t.data.get("up"),
         )
     projection = t.string("projection", "pinhole", choices=PROJECTIONS)

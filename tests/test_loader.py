@@ -20,6 +20,7 @@ import pytest
 import trimesh
 
 import relview
+from relview import loader
 from relview.errors import MeshError, SceneError, UserError
 from relview.loader import MOTION_KINDS, load_scene, register_motion, scene_from_dict
 from relview.scene import Scene, UniformMotion
@@ -406,6 +407,54 @@ def test_from_dict_builds_the_same_scene(tmp_path, fake_materials):
     with pytest.raises(SceneError) as info:
         scene_from_dict(data, source="my-script")
     assert str(info.value).startswith("my-script: [camera] fov: ")
+
+
+def test_from_dict_accepts_paths_and_ready_made_objects(tmp_path, fake_materials):
+    trimesh.creation.box(extents=(1.0, 1.0, 1.0)).export(tmp_path / "cube.stl")
+    surface = fake_materials.Blackbody(4000.0)
+    surface.observed_xyz = surface.key = lambda *a: None  # the surface interface
+    motion = UniformMotion(beta=np.array([0.1, 0.0, 0.0]))
+    data = {
+        "camera": {"position": [0.0, -5.0, 0.0], "direction": [0.0, 1.0, 0.0]},
+        "body": [
+            {"shape": "mesh", "file": tmp_path / "cube.stl", "surface": surface, "motion": motion}
+        ],
+    }
+    b = scene_from_dict(data, base_dir=tmp_path).bodies[0]
+    assert b.file == tmp_path / "cube.stl" and b.surface is surface and b.motion is motion
+
+
+def test_line_numbers_in_later_bodies_and_dotted_keys(tmp_path, fake_materials):
+    second = replace(BODY, 'name = "rod"', 'name = "beam"').replace(
+        "beta = [0.5, 0.0, 0.0]", "beta = [0.0, 0.0, 1.5]"
+    )
+    text = VALID + "\n" + second
+    err = error_of(tmp_path, text)
+    assert_names(err, '[body.motion] beta (body "beam")', "[0.0, 0.0, 1.5]", line_of(text, "1.5"))
+    # dotted keys inside a [[body]] table, and a multi-line array before them
+    text = (
+        CAMERA
+        + '[[body]]\nname = "dot"\nshape = "box"\nsize = [\n  1.0,  # x [m]\n  1.0,\n  1.0,\n]\n'
+        + 'motion.kind = "uniform"\nmotion.beta = [0.0, 2.0, 0.0]\nsurface.blackbody = 3000\n'
+    )
+    err = error_of(tmp_path, text)
+    assert_names(
+        err, '[body.motion] beta (body "dot")', "[0.0, 2.0, 0.0]", line_of(text, "motion.beta")
+    )
+
+
+def test_index_lines_follows_tables_and_arrays_of_tables():
+    text = (
+        '[camera]\nposition = [0, 0, 0]\n[[body]]\nname = "a"\n[body.surface]\nblackbody = 1\n'
+        '[[body]]\n"name" = "b"\nsurface = { line = { nm = 500 } }\nnote = """\nfov = 1\n"""\nshape = "box"\n'
+    )
+    lines = loader.index_lines(text)
+    assert lines[("camera", "position")] == 2
+    assert lines[("body", 0)] == 3 and lines[("body", 0, "surface", "blackbody")] == 6
+    assert lines[("body", 1)] == 7 and lines[("body", 1, "name")] == 8
+    assert lines[("body", 1, "surface")] == 9
+    assert ("body", 1, "fov") not in lines  # inside a multi-line string
+    assert lines[("body", 1, "shape")] == 13
 
 
 def test_registered_motion_kind_is_used(tmp_path, fake_materials):
