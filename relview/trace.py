@@ -56,6 +56,10 @@ class FrameGroup:
     # For light-cone snapshots (non-uniform motion) the hit's body-frame point is
     # interpolated from these per-vertex body coordinates instead of a rigid map.
     vertex_body_coords: np.ndarray | None = None
+    # Light-cone snapshots also carry per-vertex velocities (S, beta) and each vertex's
+    # barycentric (u, v) in its original mesh face, interpolated the same way.
+    vertex_beta: np.ndarray | None = None
+    vertex_bary: np.ndarray | None = None
     bvh: bvh_mod.BVH | None = None  # built on first use, kept while the group lives
 
 
@@ -188,6 +192,15 @@ class Tracer:
                 vb = g.vertex_body_coords
                 rest[sel] = (w0[:, None] * vb[tri_v[:, 0]] + u[sel, None] * vb[tri_v[:, 1]]
                              + v[sel, None] * vb[tri_v[:, 2]])
+                if g.vertex_beta is not None:  # snapshot: velocity of the emitting point
+                    vb = g.vertex_beta
+                    beta[sel] = (w0[:, None] * vb[tri_v[:, 0]] + u[sel, None] * vb[tri_v[:, 1]]
+                                 + v[sel, None] * vb[tri_v[:, 2]])
+                if g.vertex_bary is not None:  # (u, v) in the original face, for UV lookups
+                    vb = g.vertex_bary
+                    face_uv = (w0[:, None] * vb[tri_v[:, 0]] + u[sel, None] * vb[tri_v[:, 1]]
+                               + v[sel, None] * vb[tri_v[:, 2]])
+                    u[sel], v[sel] = face_uv[:, 0], face_uv[:, 1]
                 continue
             # hit point in the frame: o' + l d'  (spatial rows of the frame map)
             m = g.matrix[1:, :]
