@@ -7,8 +7,10 @@ moving through S sees them aberrated, Doppler-shifted and beamed like any body:
   drawn on the sky sphere, glowing as a blackbody; evaluated per pixel.
 * ``stars``: point-like blackbody stars of our own generation (seeded, uniform over
   the sphere, log-uniform temperatures, brightness spread over five astronomical
-  magnitudes). Each star is a tiny disc of rest-frame solid angle STAR_SOLID_ANGLE,
-  far below a pixel, so it is splatted into the pixel its aberrated direction falls in.
+  magnitudes). Each star is a small disc of rest-frame solid angle STAR_SOLID_ANGLE
+  (about a pixel of a 960-wide 60 deg view) radiating as a Planck blackbody times
+  ``luminance`` (a scale factor) times 10^(-0.4 m); it is splatted into the pixel its
+  aberrated direction falls in.
   Its radiance transforms with the surface rule (XYZ at D T) and its solid angle as
   1/D^2 (aberration; Rybicki & Lightman ch. 4), so its flux goes as D^2 in total
   power (D^4 radiance x D^-2 solid angle).
@@ -26,8 +28,8 @@ from relview.lorentz import aberrate_to_camera, lorentz_factor
 from relview.scene import Background, Camera, Effects
 
 T_REF_K = 1000.0
-#: Rest-frame solid angle of each star's disc, steradians (about 0.11 mrad across).
-STAR_SOLID_ANGLE = 1.0e-8
+#: Rest-frame solid angle of each star's disc, steradians (about 1.1 mrad across).
+STAR_SOLID_ANGLE = 1.0e-6
 #: Brightness spread of the generated stars, in astronomical magnitudes (Pogson's ratio).
 STAR_MAGNITUDE_RANGE = 5.0
 
@@ -43,10 +45,10 @@ def blackbody_xyz(temperature_k: np.ndarray) -> np.ndarray:
     return _reference_table().lookup(t / T_REF_K)
 
 
-def _observed(temperature_k, luminance, doppler, effects: Effects) -> np.ndarray:
-    """XYZ of blackbodies scaled to ``luminance`` cd/m2 at rest, seen with factor D."""
+def _observed(temperature_k, scale, doppler, effects: Effects) -> np.ndarray:
+    """XYZ of blackbodies (Planck radiance x ``scale``) seen with factor D."""
     t = np.asarray(temperature_k, float)
-    scale = np.asarray(luminance, float) / blackbody_xyz(t)[..., 1]
+    scale = np.asarray(scale, float)
     dc, bright = spectrum.effect_factors(doppler, effects.doppler, effects.beaming)
     return blackbody_xyz(t * dc) * (scale * bright)[..., None]
 
@@ -81,13 +83,14 @@ def sky_xyz(bg: Background, d_scene: np.ndarray, beta_cam: np.ndarray,
     on = (dlat <= half) | (dlon <= half)
     if np.any(on):
         dop = _camera_doppler(d_scene[on], beta_cam, effects)
-        out[on] = _observed(np.full(on.sum(), _line_temperature(bg)),
-                            np.full(on.sum(), float(bg.luminance)), dop, effects)
+        t = _line_temperature(bg)
+        scale = float(bg.luminance) / blackbody_xyz(np.array([t]))[0, 1]  # cd/m2 at rest
+        out[on] = _observed(np.full(on.sum(), t), np.full(on.sum(), scale), dop, effects)
     return out
 
 
 def generate_stars(bg: Background):
-    """(directions (N,3) unit in S, temperatures (N,) K, rest luminance (N,) cd/m2)."""
+    """(directions (N,3) unit in S, temperatures (N,) K, radiance scale (N,) of Planck's)."""
     rng = np.random.default_rng(int(bg.seed))
     n = int(bg.count)
     z = rng.uniform(-1.0, 1.0, n)
@@ -97,8 +100,8 @@ def generate_stars(bg: Background):
     t = np.atleast_1d(np.asarray(bg.temperature, float))
     temps = np.exp(rng.uniform(np.log(t.min()), np.log(t.max()), n))
     mags = rng.uniform(0.0, STAR_MAGNITUDE_RANGE, n)
-    lum = float(bg.luminance) * 10.0 ** (-0.4 * mags)  # Pogson: 5 magnitudes = factor 100
-    return dirs, temps, lum
+    scale = float(bg.luminance) * 10.0 ** (-0.4 * mags)  # Pogson: 5 magnitudes = factor 100
+    return dirs, temps, scale
 
 
 def star_splat(bg: Background, camera: Camera, width: int, height: int, beta_cam: np.ndarray,
