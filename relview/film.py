@@ -77,6 +77,7 @@ __all__ = [
     "exposure_white",
     "exr_available",
     "false_colour",
+    "figure_metadata",
     "gamut_map",
     "safe_output_path",
     "save_layer_figure",
@@ -886,6 +887,30 @@ def false_colour(
     return rgb
 
 
+def figure_metadata(fmt: str, metadata: Mapping[str, Any] | None) -> dict[str, str] | None:
+    """Provenance for matplotlib's ``savefig(metadata=...)`` in the keys each format allows.
+
+    PNG: every entry as its own text chunk. PDF (document information dictionary) and
+    SVG (Dublin Core): only fixed keys exist, so the whole record goes as JSON into
+    ``Subject`` (PDF) or ``Description`` (SVG), with ``Title`` and ``Creator`` set.
+    Other formats: None (matplotlib has no metadata for them).
+    """
+    if not metadata:
+        return None
+    fmt = fmt.lower()
+    if fmt == "png":
+        return {str(k): v if isinstance(v, str) else json.dumps(v, default=_json_default)
+                for k, v in metadata.items()}
+    record = _metadata_json(metadata)
+    title = str(metadata.get("title") or metadata.get("scene") or "relview figure")
+    creator = f"relview {metadata.get('relview_version', '')}".strip()
+    if fmt == "pdf":
+        return {"Title": title, "Subject": record, "Creator": creator}
+    if fmt == "svg":
+        return {"Title": title, "Description": record, "Creator": creator}
+    return None
+
+
 def save_layer_figure(
     path: str | os.PathLike,
     values: Any,
@@ -899,12 +924,14 @@ def save_layer_figure(
     title: str | None = None,
     dpi: int = 100,
     overwrite: bool = False,
+    metadata: Mapping[str, Any] | None = None,
 ) -> Path:
     """A figure of an (H, W) layer in false colour with a labelled colour bar (atomic).
 
     The colour bar reads ``label (unit)``; NaN pixels are shown in :data:`NAN_RGB`
     and noted under the bar. The format follows the file extension (png, pdf,
-    svg, ...). Returns the path written.
+    svg, ...). ``metadata`` (provenance) is stored as :func:`figure_metadata`
+    describes. Returns the path written.
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.cm import ScalarMappable
@@ -936,4 +963,5 @@ def save_layer_figure(
         bar.ax.yaxis.set_minor_formatter(plain if vmax / vmin < 100.0 else NullFormatter())
     if not valid.all():
         bar.ax.set_xlabel("grey: no data", fontsize="small")
-    return _atomic_write(path, lambda fh: fig.savefig(fh, format=fmt), overwrite)
+    meta = figure_metadata(fmt, metadata)
+    return _atomic_write(path, lambda fh: fig.savefig(fh, format=fmt, metadata=meta), overwrite)
