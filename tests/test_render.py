@@ -1,0 +1,116 @@
+"""End-to-end rendering: layers, effect switches, demo scenes, the command line."""
+
+import dataclasses
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+import relview
+from relview.cli import main
+from relview.lorentz import C
+from relview.materials import Blackbody
+from relview.scene import Body, Camera, Effects, RenderSettings, Scene, UniformMotion
+
+ROOT = Path(__file__).resolve().parents[1]
+SCENES = sorted((ROOT / "scenes").glob("*.toml"))
+
+
+def two_body_scene(effects=Effects(), cam_beta=(0.3, 0.0, 0.0), res=(80, 45)):
+    bodies = [
+        Body(name="a", shape="box", size=np.array([1.0, 0.6, 0.6]), surface=Blackbody(6000.0),
+             motion=UniformMotion(beta=np.array([0.8, 0, 0]), position=np.array([0.5, 0, 0]))),
+        Body(name="b", shape="sphere", radius=0.4, surface=Blackbody(3000.0),
+             motion=UniformMotion(beta=np.array([-0.5, 0, 0.1]),
+                                  position=np.array([-1.0, 1.0, 0.3]))),
+    ]
+    cam = Camera(position=np.array([0.0, -4.0, 0.5]), look_at=np.zeros(3), fov=80.0,
+                 beta=np.array(cam_beta, float), time=1e-9)
+    return Scene(camera=cam, bodies=bodies,
+                 render=RenderSettings(resolution=res, effects=effects))
+
+
+def test_layers_are_consistent_with_null_rays_and_doppler_formula():
+    scene = two_body_scene()
+    f = relview.render(scene)
+    lay = f.layers
+    hit = lay["body"] >= 0
+    assert hit.sum() > 100
+    # emission events lie on the camera's past light cone: c (t_c - t_e) = |x_e - x_c|
+    dist = np.linalg.norm(lay["emit_position"][hit] - scene.camera.position, axis=-1)
+    assert C * (scene.camera.time - lay["emit_time"][hit]) == pytest.approx(dist, rel=1e-9)
+    assert np.isnan(lay["doppler"][~hit]).all()
+    assert (lay["xyz"][hit, 1] > 0).all()
+    assert f.image.shape == (45, 80, 3)
+
+
+def test_all_switches_off_equals_plain_render_of_the_same_instant():
+    # With every effect off the picture must be the non-relativistic one: each body drawn
+    # where it is at the camera time (Galilean, light instantaneous), rest-frame colour,
+    # camera motion ignored. Compare with a scene of the same bodies at rest there.
+    off = Effects(delay=False, contraction=False, aberration=False, doppler=False,
+                  beaming=False)
+    moving = two_body_scene(off)
+    t = moving.camera.time
+    still = []
+    for b in moving.bodies:
+        m = b.motion
+        pos = m.position + m.beta * C * (t - m.time)
+        still.append(dataclasses.replace(b, motion=UniformMotion(position=pos)))
+    plain = dataclasses.replace(moving, bodies=still, camera=dataclasses.replace(
+        moving.camera, beta=np.zeros(3)), render=RenderSettings(resolution=(80, 45)))
+    a = relview.render(moving)
+    b = relview.render(plain)
+    assert np.array_equal(a.layers["body"], b.layers["body"])
+    assert a.layers["xyz"] == pytest.approx(b.layers["xyz"], rel=1e-9, abs=1e-9)
+
+
+@pytest.mark.parametrize("name", ["delay", "contraction", "aberration", "doppler", "beaming"])
+def test_each_switch_changes_the_picture(name):
+    full = relview.render(two_body_scene())
+    part = relview.render(two_body_scene(Effects(**{name: False})))
+    assert not np.allclose(full.layers["xyz"], part.layers["xyz"])
+
+
+@pytest.mark.parametrize("path", SCENES, ids=[p.stem for p in SCENES])
+def test_demo_scene_checks_and_renders(path, capsys):
+    assert main(["check", str(path)]) == 0
+    scene = relview.load_scene(path)
+    frame = relview.render(scene, resolution=(96, 54))
+    assert np.isfinite(frame.image).all()
+    assert (frame.layers["body"] >= 0).any()
+
+
+def test_cli_render_writes_png_and_layers_without_overwriting(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    scene = ROOT / "scenes" / "sphere-flyby.toml"
+    assert main(["render", str(scene), "--resolution", "64x36", "--layers", "--quiet"]) == 0
+    first = tmp_path / "outputs" / "sphere-flyby.png"
+    assert first.exists() and (tmp_path / "outputs" / "sphere-flyby.npz").exists()
+    before = first.read_bytes()
+    assert main(["render", str(scene), "--resolution", "64x36", "--quiet"]) == 0
+    assert first.read_bytes() == before
+    assert (tmp_path / "outputs" / "sphere-flyby-1.png").exists()
+    npz = np.load(tmp_path / "outputs" / "sphere-flyby.npz")
+    for key in ("xyz", "doppler", "emit_time", "emit_position", "rest_position", "body",
+                "image"):
+        assert key in npz.files
+
+
+def test_cli_probe_json(capsys):
+    import json
+
+    scene = ROOT / "scenes" / "capsule-flyby.toml"
+    assert main(["probe", str(scene), "--body", "capsule", "--point", "5,0,0", "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert set(data) >= {"emit_time", "emit_position", "direction", "pixel", "visible",
+                         "doppler"}
+
+
+def test_cli_user_errors_exit_2(tmp_path, capsys):
+    bad = tmp_path / "bad.toml"
+    bad.write_text("[camera]\nposition = [0, 0, 0]\nlook_at = [1, 0, 0]\nfvo = 3\n")
+    assert main(["check", str(bad)]) == 2
+    err = capsys.readouterr().err
+    assert "fvo" in err and "fov" in err and "Traceback" not in err
+    assert main(["render", str(bad), "--bogus"]) == 2
