@@ -269,10 +269,18 @@ class TabulatedSpectrum(SpectralSurface):
         return self._key
 
     def spectral_radiance(self, wavelength_nm):
-        return np.interp(wavelength_nm, self.wavelength_nm, self.radiance, left=0.0, right=0.0)
+        w = np.asarray(wavelength_nm, dtype=float)
+        # zero outside the table; a relative slack of 5e-10 lets a table end mapped to
+        # lambda/D and back (rounding) still count as inside (knots_nm marks 1e-9 outside)
+        lo, hi = self.wavelength_nm[0], self.wavelength_nm[-1]
+        inside = (w >= lo * (1.0 - 5e-10)) & (w <= hi * (1.0 + 5e-10))
+        return np.where(inside, np.interp(w, self.wavelength_nm, self.radiance), 0.0)
 
     def knots_nm(self):
-        return self.wavelength_nm
+        # The table's points, plus points just outside its ends, where the radiance drops to
+        # zero: without them the trapezoid rule would ramp down to the next grid point.
+        w = self.wavelength_nm
+        return np.concatenate([[w[0] * (1.0 - 1e-9)], w, [w[-1] * (1.0 + 1e-9)]])
 
     def __repr__(self):
         return f"TabulatedSpectrum(<{self.wavelength_nm.size} rows>, name={self.name!r})"

@@ -144,7 +144,10 @@ def spectrum_to_xyz(wavelength_nm, radiance) -> np.ndarray:
         )
     if w.size > 1 and np.any(np.diff(w) <= 0):
         raise ValueError("spectrum_to_xyz: wavelengths must increase strictly")
-    inside = w[(w > VISIBLE_MIN_NM) & (w < VISIBLE_MAX_NM)]
+    # the samples, and points just outside their ends (the spectrum steps to zero there)
+    edges = [w[0] * (1.0 - 1e-9), w[-1] * (1.0 + 1e-9)]
+    pts = np.concatenate([w, edges])
+    inside = pts[(pts > VISIBLE_MIN_NM) & (pts < VISIBLE_MAX_NM)]
     grid = np.union1d(CMF_WAVELENGTHS_NM, inside)
     flat = r.reshape(-1, w.shape[0])
     samples = np.stack(
@@ -153,6 +156,18 @@ def spectrum_to_xyz(wavelength_nm, radiance) -> np.ndarray:
     cmf = cmf_at(grid)  # (G, 3)
     xyz = K_M_LM_PER_W * np.trapezoid(samples[:, :, None] * cmf[None, :, :], grid, axis=1)
     return xyz.reshape(r.shape[:-1] + (3,))
+
+
+def doppler_shifted_radiance(radiance: Callable[[np.ndarray], np.ndarray], wavelength_nm, doppler):
+    """Observed spectral radiance L_lambda,obs(lambda) = D^5 L_lambda,emit(D lambda).
+
+    From the invariance of L_nu / nu^3 (Rybicki & Lightman, Radiative Processes in
+    Astrophysics, ch. 4): L_nu,obs(nu) = D^3 L_nu,emit(nu / D); per unit wavelength
+    (L_lambda = L_nu c / lambda^2, lambda_emit = D lambda_obs) this is D^5 L_lambda(D lambda).
+    ``radiance`` is the rest-frame spectral radiance (W/(sr m^2 nm)); broadcasts.
+    """
+    d = np.asarray(doppler, dtype=float)
+    return d**5 * np.asarray(radiance(d * np.asarray(wavelength_nm, dtype=float)), dtype=float)
 
 
 def observed_xyz_direct(
@@ -186,7 +201,7 @@ def observed_xyz_direct(
             cmf = cmf_at(grid)
         else:
             grid, cmf = cmf_grid, cmf_vals
-        obs = dv**5 * np.asarray(radiance(dv * grid), dtype=float)
+        obs = doppler_shifted_radiance(radiance, grid, dv)
         out.reshape(-1, 3)[i] = K_M_LM_PER_W * np.trapezoid(obs[:, None] * cmf, grid, axis=0)
     return out
 
@@ -334,11 +349,33 @@ class DopplerTable:
         log_d = np.arange(
             math.floor(math.log(d_min) / self.step), math.ceil(math.log(d_max) / self.step) + 1
         ) * self.step
+        log_d = self._with_feature_nodes(log_d)
         xyz = self._integrate(log_d)
         # Values below this count as zero when judging the interpolation (docs/colour.md).
         self.floor = 1e-6 * max(float(xyz[:, 1].max()), np.finfo(float).tiny)
         self.log_d, self.xyz, self.mid_xyz = self._refined(log_d, xyz)
         self._choose_rules()
+
+    def _with_feature_nodes(self, log_d: np.ndarray) -> np.ndarray:
+        """Add nodes where a knot crosses an end of the CMF range (D = knot / 360 nm and
+        knot / 830 nm), strictly inside ``log_d``'s span. There XYZ(D) can change over a
+        span narrower than the base step (a narrow line leaving the visible, a table's
+        end), which midpoint checks alone could miss."""
+        if self.knots_nm is None or self.knots_nm.size == 0 or log_d.size < 2:
+            return log_d
+        k = np.log(self.knots_nm[self.knots_nm > 0])
+        feats = np.concatenate([k - math.log(VISIBLE_MIN_NM), k - math.log(VISIBLE_MAX_NM)])
+        feats = feats[(feats > log_d[0]) & (feats < log_d[-1])]
+        if feats.size == 0:
+            return log_d
+        # Dense knots map to nearly equal ln D: keep the two ends of each cluster (features
+        # closer than step/4) and, inside long clusters, one node every step/4.
+        feats = np.unique(feats)
+        gap = np.diff(feats) > self.step / 4.0
+        ends = np.concatenate([[True], gap]) | np.concatenate([gap, [True]])
+        thinned = np.unique(np.floor(feats / (self.step / 4.0)), return_index=True)[1]
+        chosen = np.union1d(feats[ends], feats[thinned])
+        return np.union1d(log_d, chosen)
 
     def _integrate(self, log_d: np.ndarray) -> np.ndarray:
         return observed_xyz_direct(self.radiance, np.exp(log_d), self.knots_nm)
@@ -390,12 +427,14 @@ class DopplerTable:
         start, end = self.log_d[0], self.log_d[-1]
         if log_lo < start:
             ld = start - np.arange(math.ceil((start - log_lo) / self.step), -1, -1) * self.step
+            ld = self._with_feature_nodes(ld)
             nodes, vals, mids = self._refined(ld, np.concatenate([self._integrate(ld[:-1]), self.xyz[:1]]))
             self.log_d = np.concatenate([nodes[:-1], self.log_d])
             self.xyz = np.concatenate([vals[:-1], self.xyz])
             self.mid_xyz = np.concatenate([mids, self.mid_xyz])
         if log_hi > end:
             ld = end + np.arange(0, math.ceil((log_hi - end) / self.step) + 1) * self.step
+            ld = self._with_feature_nodes(ld)
             nodes, vals, mids = self._refined(ld, np.concatenate([self.xyz[-1:], self._integrate(ld[1:])]))
             self.log_d = np.concatenate([self.log_d, nodes[1:]])
             self.xyz = np.concatenate([self.xyz, vals[1:]])
