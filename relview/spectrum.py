@@ -106,7 +106,7 @@ def cie_d65_relative_spd(wavelength_nm) -> np.ndarray:
     at 5 nm steps) the table is interpolated linearly. Outside it the spectrum continues as
     a Planckian radiator at D65's correlated colour temperature (6504 K), scaled to meet
     the table at its nearest end. This extension is our own declared rule (CIE tabulates
-    D65 only from 300 to 830 nm), chosen because it is continuous, positive, falls off in
+    D65 from 300 to 830 nm, from memory), chosen because it is continuous, positive, falls off in
     the ultraviolet and follows a thermal shape into the infrared, which Doppler shifts
     bring into view.
     """
@@ -243,7 +243,8 @@ def _rgb_to_xyz_matrix(primaries_xy: np.ndarray, white_xy: np.ndarray) -> np.nda
 
 
 #: Linear sRGB -> XYZ, derived from the primaries and white in full precision. The 4-digit
-#: matrices printed in IEC 61966-2-1 agree with it to 1e-4 (tests/test_spectrum.py).
+#: matrices printed in IEC 61966-2-1 agree to 1e-4 (RGB->XYZ) and 3.7e-4 (XYZ->RGB, rounded
+#: there from a slightly different derivation); see tests/test_spectrum.py.
 LINEAR_SRGB_TO_XYZ = _rgb_to_xyz_matrix(SRGB_PRIMARIES_XY, SRGB_WHITE_XY)
 #: XYZ -> linear sRGB, the exact inverse (so round trips are exact).
 XYZ_TO_LINEAR_SRGB = np.linalg.inv(LINEAR_SRGB_TO_XYZ)
