@@ -258,42 +258,54 @@ def pack(bvhs: list[BVH]) -> BVHSet:
                   np.array(toff, np.int64))
 
 
+#: reciprocal used for a zero direction component: huge but finite, so that a slab
+#: bound exactly at the ray origin gives 0 * big = 0 instead of NaN
+_BIG = 1e300
+
+
+@njit(cache=True, inline="always")
+def _entry(node, ox, oy, oz, ix, iy, iz, l_min, l_max, node_lo, node_hi):
+    """Entry parameter of the ray into a node's box within [l_min, l_max], or inf."""
+    t0 = (node_lo[node, 0] - ox) * ix
+    t1 = (node_hi[node, 0] - ox) * ix
+    tn = min(t0, t1)
+    tf = max(t0, t1)
+    t0 = (node_lo[node, 1] - oy) * iy
+    t1 = (node_hi[node, 1] - oy) * iy
+    tn = max(tn, min(t0, t1))
+    tf = min(tf, max(t0, t1))
+    t0 = (node_lo[node, 2] - oz) * iz
+    t1 = (node_hi[node, 2] - oz) * iz
+    tn = max(tn, min(t0, t1))
+    tf = min(tf, max(t0, t1))
+    tn = max(tn, l_min)
+    tf = min(tf, l_max)
+    if tn <= tf:
+        return tn
+    return np.inf
+
+
 @njit(cache=True, inline="always")
 def first_hit(ox, oy, oz, dx, dy, dz, l_min, l_max, root, node_lo, node_hi, node_left,
-              node_right, node_start, node_count, v0, e1, e2, stack):
+              node_right, node_start, node_count, v0, e1, e2, stack, stack_t):
     """Nearest triangle hit with l in (l_min, l_max); returns (l, packed triangle, u, v).
 
-    ``stack`` is a scratch int64 array of length STACK_SIZE owned by the caller.
+    ``stack`` (int64) and ``stack_t`` (float64) are scratch arrays of length STACK_SIZE
+    owned by the caller. Children are entered nearest first; a postponed child is skipped
+    when a hit nearer than its entry point has been found meanwhile.
     """
-    # reciprocal direction; IEEE infinities make the slab test work for axis-parallel rays
-    idx = 1.0 / dx if dx != 0.0 else np.inf
-    idy = 1.0 / dy if dy != 0.0 else np.inf
-    idz = 1.0 / dz if dz != 0.0 else np.inf
+    ix = 1.0 / dx if dx != 0.0 else _BIG
+    iy = 1.0 / dy if dy != 0.0 else _BIG
+    iz = 1.0 / dz if dz != 0.0 else _BIG
     best = l_max
     best_tri = -1
     best_u = 0.0
     best_v = 0.0
+    if _entry(root, ox, oy, oz, ix, iy, iz, l_min, best, node_lo, node_hi) == np.inf:
+        return best, best_tri, best_u, best_v
+    node = root
     sp = 0
-    stack[0] = root
-    sp = 1
-    while sp > 0:
-        sp -= 1
-        node = stack[sp]
-        # slab test
-        t0 = (node_lo[node, 0] - ox) * idx
-        t1 = (node_hi[node, 0] - ox) * idx
-        tn = min(t0, t1)
-        tf = max(t0, t1)
-        t0 = (node_lo[node, 1] - oy) * idy
-        t1 = (node_hi[node, 1] - oy) * idy
-        tn = max(tn, min(t0, t1))
-        tf = min(tf, max(t0, t1))
-        t0 = (node_lo[node, 2] - oz) * idz
-        t1 = (node_hi[node, 2] - oz) * idz
-        tn = max(tn, min(t0, t1))
-        tf = min(tf, max(t0, t1))
-        if tf < tn or tf < l_min or tn > best:
-            continue
+    while True:
         cnt = node_count[node]
         if cnt > 0:
             s = node_start[node]
@@ -330,19 +342,34 @@ def first_hit(ox, oy, oz, dx, dy, dz, l_min, l_max, root, node_lo, node_hi, node
                     best_tri = k
                     best_u = u
                     best_v = v
+            node = -1
         else:
             a = node_left[node]
             b = node_right[node]
-            # visit the nearer child first: push the farther one below it
-            ca = (node_lo[a, 0] + node_hi[a, 0]) * dx + (node_lo[a, 1] + node_hi[a, 1]) * dy + (
-                node_lo[a, 2] + node_hi[a, 2]) * dz
-            cb = (node_lo[b, 0] + node_hi[b, 0]) * dx + (node_lo[b, 1] + node_hi[b, 1]) * dy + (
-                node_lo[b, 2] + node_hi[b, 2]) * dz
-            if ca <= cb:
-                stack[sp] = b
-                stack[sp + 1] = a
+            ta = _entry(a, ox, oy, oz, ix, iy, iz, l_min, best, node_lo, node_hi)
+            tb = _entry(b, ox, oy, oz, ix, iy, iz, l_min, best, node_lo, node_hi)
+            if ta <= tb:
+                if ta == np.inf:
+                    node = -1
+                else:
+                    node = a
+                    if tb != np.inf:
+                        stack[sp] = b
+                        stack_t[sp] = tb
+                        sp += 1
             else:
-                stack[sp] = a
-                stack[sp + 1] = b
-            sp += 2
+                node = b
+                if ta != np.inf:
+                    stack[sp] = a
+                    stack_t[sp] = ta
+                    sp += 1
+        if node < 0:
+            # pop the nearest postponed node that can still hold a nearer hit
+            while sp > 0:
+                sp -= 1
+                if stack_t[sp] <= best:
+                    node = stack[sp]
+                    break
+            if node < 0:
+                break
     return best, best_tri, best_u, best_v

@@ -93,6 +93,10 @@ def ray_four_direction(d_scene: np.ndarray, effects: Effects) -> np.ndarray:
     return k
 
 
+#: rays handled together by one thread: neighbouring pixels share traversal paths
+RAY_CHUNK = 256
+
+
 @njit(parallel=True, cache=True)
 def _cast(ray_o, ray_k, g_origin, g_matrix, roots, node_lo, node_hi, node_left, node_right,
           node_start, node_count, v0, e1, e2, l_min):
@@ -103,41 +107,89 @@ def _cast(ray_o, ray_k, g_origin, g_matrix, roots, node_lo, node_hi, node_left, 
     out_tri = np.full(n, -1, np.int64)
     out_u = np.zeros(n)
     out_v = np.zeros(n)
-    for i in prange(n):
+    n_chunks = (n + RAY_CHUNK - 1) // RAY_CHUNK
+    for c in prange(n_chunks):
         stack = np.empty(bvh_mod.STACK_SIZE, np.int64)
-        best = np.inf
-        best_tri = -1
-        bu = 0.0
-        bv = 0.0
-        for g in range(n_groups):
-            # rest-frame ray: o' = M (E - e0), d' = M k (spatial rows only)
-            e0 = ray_o[i, 0] - g_origin[g, 0]
-            e1_ = ray_o[i, 1] - g_origin[g, 1]
-            e2_ = ray_o[i, 2] - g_origin[g, 2]
-            e3 = ray_o[i, 3] - g_origin[g, 3]
-            ox = g_matrix[g, 1, 0] * e0 + g_matrix[g, 1, 1] * e1_ + g_matrix[g, 1, 2] * e2_ + g_matrix[g, 1, 3] * e3
-            oy = g_matrix[g, 2, 0] * e0 + g_matrix[g, 2, 1] * e1_ + g_matrix[g, 2, 2] * e2_ + g_matrix[g, 2, 3] * e3
-            oz = g_matrix[g, 3, 0] * e0 + g_matrix[g, 3, 1] * e1_ + g_matrix[g, 3, 2] * e2_ + g_matrix[g, 3, 3] * e3
-            k0 = ray_k[i, 0]
-            k1 = ray_k[i, 1]
-            k2 = ray_k[i, 2]
-            k3 = ray_k[i, 3]
-            dx = g_matrix[g, 1, 0] * k0 + g_matrix[g, 1, 1] * k1 + g_matrix[g, 1, 2] * k2 + g_matrix[g, 1, 3] * k3
-            dy = g_matrix[g, 2, 0] * k0 + g_matrix[g, 2, 1] * k1 + g_matrix[g, 2, 2] * k2 + g_matrix[g, 2, 3] * k3
-            dz = g_matrix[g, 3, 0] * k0 + g_matrix[g, 3, 1] * k1 + g_matrix[g, 3, 2] * k2 + g_matrix[g, 3, 3] * k3
-            l, tri, u, v = bvh_mod.first_hit(ox, oy, oz, dx, dy, dz, l_min, best, roots[g],
-                                             node_lo, node_hi, node_left, node_right,
-                                             node_start, node_count, v0, e1, e2, stack)
-            if tri >= 0:
-                best = l
-                best_tri = tri
-                bu = u
-                bv = v
-        out_l[i] = best
-        out_tri[i] = best_tri
-        out_u[i] = bu
-        out_v[i] = bv
+        stack_t = np.empty(bvh_mod.STACK_SIZE)
+        for i in range(c * RAY_CHUNK, min(n, (c + 1) * RAY_CHUNK)):
+            best = np.inf
+            best_tri = -1
+            bu = 0.0
+            bv = 0.0
+            for g in range(n_groups):
+                # rest-frame ray: o' = M (E - e0), d' = M k (spatial rows only)
+                m = g_matrix[g]
+                e0 = ray_o[i, 0] - g_origin[g, 0]
+                e1_ = ray_o[i, 1] - g_origin[g, 1]
+                e2_ = ray_o[i, 2] - g_origin[g, 2]
+                e3 = ray_o[i, 3] - g_origin[g, 3]
+                ox = m[1, 0] * e0 + m[1, 1] * e1_ + m[1, 2] * e2_ + m[1, 3] * e3
+                oy = m[2, 0] * e0 + m[2, 1] * e1_ + m[2, 2] * e2_ + m[2, 3] * e3
+                oz = m[3, 0] * e0 + m[3, 1] * e1_ + m[3, 2] * e2_ + m[3, 3] * e3
+                k0 = ray_k[i, 0]
+                k1 = ray_k[i, 1]
+                k2 = ray_k[i, 2]
+                k3 = ray_k[i, 3]
+                dx = m[1, 0] * k0 + m[1, 1] * k1 + m[1, 2] * k2 + m[1, 3] * k3
+                dy = m[2, 0] * k0 + m[2, 1] * k1 + m[2, 2] * k2 + m[2, 3] * k3
+                dz = m[3, 0] * k0 + m[3, 1] * k1 + m[3, 2] * k2 + m[3, 3] * k3
+                l, tri, u, v = bvh_mod.first_hit(ox, oy, oz, dx, dy, dz, l_min, best, roots[g],
+                                                 node_lo, node_hi, node_left, node_right,
+                                                 node_start, node_count, v0, e1, e2, stack,
+                                                 stack_t)
+                if tri >= 0:
+                    best = l
+                    best_tri = tri
+                    bu = u
+                    bv = v
+            out_l[i] = best
+            out_tri[i] = best_tri
+            out_u[i] = bu
+            out_v[i] = bv
     return out_l, out_tri, out_u, out_v
+
+
+@njit(parallel=True, cache=True)
+def _resolve(ray_o, ray_k, l, tri, tri_group, tri_body, tri_local, tri_slot, g_origin,
+             g_matrix, g_beta, slot_offset, slot_rotation):
+    """Per ray: body, face, emission event, body-frame hit point and emitter velocity.
+
+    Rigid (uniform-motion) bodies map the frame hit point back to body axes through their
+    slot's offset and rotation; triangles with slot -1 (light-cone snapshots) leave the
+    body-frame point to the caller.
+    """
+    n = ray_o.shape[0]
+    body = np.full(n, -1, np.int64)
+    face = np.full(n, -1, np.int64)
+    group = np.full(n, -1, np.int64)
+    emit = np.full((n, 4), np.nan)
+    rest = np.full((n, 3), np.nan)
+    beta = np.full((n, 3), np.nan)
+    for i in prange(n):
+        t = tri[i]
+        if t < 0:
+            continue
+        g = tri_group[t]
+        group[i] = g
+        body[i] = tri_body[t]
+        face[i] = tri_local[t]
+        for a in range(4):
+            emit[i, a] = ray_o[i, a] + l[i] * ray_k[i, a]
+        for a in range(3):
+            beta[i, a] = g_beta[g, a]
+        s = tri_slot[t]
+        if s < 0:
+            continue
+        rel = np.empty(3)
+        for a in range(3):
+            x = 0.0
+            for b in range(4):
+                x += g_matrix[g, a + 1, b] * (emit[i, b] - g_origin[g, b])
+            rel[a] = x - slot_offset[s, a]
+        for a in range(3):  # R^T rel: frame axes -> body axes
+            rest[i, a] = (slot_rotation[s, 0, a] * rel[0] + slot_rotation[s, 1, a] * rel[1]
+                          + slot_rotation[s, 2, a] * rel[2])
+    return body, face, group, emit, rest, beta
 
 
 class Tracer:
@@ -153,65 +205,68 @@ class Tracer:
             if g.bvh is None:
                 g.bvh = bvh_mod.build_bvh(g.vertices, g.faces)
         self.packed = bvh_mod.pack([g.bvh for g in groups]) if groups else None
+        if not groups:
+            return
+        # per packed triangle: scene body, face in the body's mesh, rigid-transform slot
+        p = self.packed
+        body, local, slot, offs, rots = [], [], [], [], []
+        for g in groups:
+            gface = g.bvh.face_id
+            body.append(g.face_body[gface])
+            local.append(g.face_local[gface])
+            if g.vertex_body_coords is not None:
+                slot.append(np.full(len(gface), -1, np.int64))
+                continue
+            # one slot per body of the group; map body index -> slot
+            first = len(offs)
+            lookup = {b: first + j for j, b in enumerate(g.bodies)}
+            offs.extend(g.body_offset)
+            rots.extend(g.body_rotation)
+            slot.append(np.array([lookup[b] for b in g.face_body[gface]], np.int64))
+        self.tri_body = np.concatenate(body)
+        self.tri_local = np.concatenate(local)
+        self.tri_slot = np.concatenate(slot)
+        self.slot_offset = np.array(offs, float).reshape(-1, 3)
+        self.slot_rotation = np.array(rots, float).reshape(-1, 3, 3)
+        self.g_origin = np.stack([g.origin_event for g in groups])
+        self.g_matrix = np.stack([g.matrix for g in groups])
+        self.g_beta = np.stack([np.asarray(g.beta, float) for g in groups])
+        assert len(self.tri_body) == len(p.v0)
 
     def cast(self, ray_origin: np.ndarray, d_scene: np.ndarray, effects: Effects,
              l_min: float = 1e-9) -> Hits:
         """Cast backward null rays from (N, 4) events along (N, 3) unit S directions."""
-        n = len(d_scene)
         k = ray_four_direction(d_scene, effects)
         if self.packed is None:
             return _empty_hits(ray_origin, k)
         p = self.packed
-        g_origin = np.stack([g.origin_event for g in self.groups])
-        g_matrix = np.stack([g.matrix for g in self.groups])
-        l, tri, u, v = _cast(np.ascontiguousarray(ray_origin, dtype=np.float64),
-                             np.ascontiguousarray(k), g_origin, g_matrix, p.root, p.node_lo,
+        ray_o = np.ascontiguousarray(ray_origin, dtype=np.float64)
+        l, tri, u, v = _cast(ray_o, k, self.g_origin, self.g_matrix, p.root, p.node_lo,
                              p.node_hi, p.node_left, p.node_right, p.node_start, p.node_count,
                              p.v0, p.e1, p.e2, l_min)
-        hit = tri >= 0
-        group = np.where(hit, p.tri_group[np.maximum(tri, 0)], -1)
-        gface = np.where(hit, p.tri_face[np.maximum(tri, 0)], -1)
-        body = np.full(n, -1, np.int64)
-        face = np.full(n, -1, np.int64)
-        rest = np.full((n, 3), np.nan)
-        beta = np.full((n, 3), np.nan)
-        emit = np.full((n, 4), np.nan)
-        l_safe = np.where(hit, l, 0.0)
-        emit[hit] = ray_origin[hit] + l_safe[hit, None] * k[hit]
+        body, face, group, emit, rest, beta = _resolve(
+            ray_o, k, l, tri, p.tri_group, self.tri_body, self.tri_local, self.tri_slot,
+            self.g_origin, self.g_matrix, self.g_beta, self.slot_offset, self.slot_rotation)
         for gi, g in enumerate(self.groups):
+            if g.vertex_body_coords is None:
+                continue
             sel = np.nonzero(group == gi)[0]
             if len(sel) == 0:
                 continue
-            fidx = gface[sel]
-            body[sel] = g.face_body[fidx]
-            face[sel] = g.face_local[fidx]
-            beta[sel] = g.beta
-            if g.vertex_body_coords is not None:
-                tri_v = g.faces[fidx]
-                w0 = 1.0 - u[sel] - v[sel]
-                vb = g.vertex_body_coords
-                rest[sel] = (w0[:, None] * vb[tri_v[:, 0]] + u[sel, None] * vb[tri_v[:, 1]]
-                             + v[sel, None] * vb[tri_v[:, 2]])
-                if g.vertex_beta is not None:  # snapshot: velocity of the emitting point
-                    vb = g.vertex_beta
-                    beta[sel] = (w0[:, None] * vb[tri_v[:, 0]] + u[sel, None] * vb[tri_v[:, 1]]
-                                 + v[sel, None] * vb[tri_v[:, 2]])
-                if g.vertex_bary is not None:  # (u, v) in the original face, for UV lookups
-                    vb = g.vertex_bary
-                    face_uv = (w0[:, None] * vb[tri_v[:, 0]] + u[sel, None] * vb[tri_v[:, 1]]
-                               + v[sel, None] * vb[tri_v[:, 2]])
-                    u[sel], v[sel] = face_uv[:, 0], face_uv[:, 1]
-                continue
-            # hit point in the frame: o' + l d'  (spatial rows of the frame map)
-            m = g.matrix[1:, :]
-            x_frame = (emit[sel] - g.origin_event) @ m.T
-            for j, b in enumerate(g.bodies):
-                sb = g.face_body[fidx] == b
-                if np.any(sb):
-                    rel = x_frame[sb] - g.body_offset[j]
-                    rest[sel[sb]] = rel @ g.body_rotation[j]  # frame -> body axes (R^T x)
-        return Hits(body, face, np.stack([u, v], -1), np.where(hit, l, np.inf), emit, rest, beta,
-                    group)
+            # light-cone snapshot: interpolate per-vertex data over the hit triangle
+            tri_v = g.faces[p.tri_face[tri[sel]]]
+            w = np.stack([1.0 - u[sel] - v[sel], u[sel], v[sel]], -1)
+
+            def interp(values):
+                return np.einsum("nk,nkc->nc", w, values[tri_v])
+
+            rest[sel] = interp(g.vertex_body_coords)
+            if g.vertex_beta is not None:  # velocity of the emitting point
+                beta[sel] = interp(g.vertex_beta)
+            if g.vertex_bary is not None:  # (u, v) in the original face, for UV lookups
+                face_uv = interp(g.vertex_bary)
+                u[sel], v[sel] = face_uv[:, 0], face_uv[:, 1]
+        return Hits(body, face, np.stack([u, v], -1), l, emit, rest, beta, group)
 
 
 def _empty_hits(ray_origin, k) -> Hits:
