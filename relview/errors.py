@@ -88,3 +88,7 @@ class OutputError(UserError):
 
 class MeshWarning(UserWarning):
     """A mesh file was accepted with a repair or a caveat (degenerate triangles, open edges)."""
+
+
+class SceneWarning(UserWarning):
+    """A scene is valid but will not look as intended (e.g. the camera is inside a body)."""
