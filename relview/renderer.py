@@ -140,6 +140,38 @@ def doppler_of_hits(hits: Hits, d_scene: np.ndarray, beta_cam: np.ndarray,
     return d
 
 
+def bodies_around_camera(scene: Scene, context: RenderContext,
+                         camera_event: np.ndarray) -> list[str]:
+    """Names of the uniformly moving bodies whose inside holds the exposure event.
+
+    The event is mapped into each body's rest frame (the same boost, or Galilean map
+    without contraction, the tracer uses), where the body is its static rest-frame
+    mesh; the point is tested with trimesh's ray-parity ``contains``. Being inside a
+    rigid body's world tube does not depend on the frame. Open meshes and planes have
+    no inside and are skipped.
+    """
+    from relview.trace import frame_matrix
+
+    inside = []
+    for i, body in enumerate(scene.bodies):
+        motion = body.motion
+        if not isinstance(motion, UniformMotion) or body.shape == "plane":
+            continue
+        origin = np.concatenate([[C * motion.time], np.asarray(motion.position, float)])
+        m = frame_matrix(np.asarray(motion.beta, float), context.effects)
+        x = (m @ (np.asarray(camera_event, float) - origin))[1:]
+        vertices, faces = context.meshes[i]
+        if np.any(x < vertices.min(axis=0)) or np.any(x > vertices.max(axis=0)):
+            continue
+        import trimesh
+
+        mesh = trimesh.Trimesh(vertices=np.array(vertices), faces=np.array(faces), process=False)
+        mesh.merge_vertices()
+        if mesh.is_watertight and bool(mesh.contains(x[None, :])[0]):
+            inside.append(body.name)
+    return inside
+
+
 def estimate_bytes(width: int, height: int) -> int:
     """Working memory of one frame: layers plus one ray batch."""
     return width * height * BYTES_PER_PIXEL + RAYS_PER_BATCH * 400
@@ -175,6 +207,14 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
         context = RenderContext(scene, effects)
     t = scene.camera.time if time is None else time
     event, beta_cam = camera_state(scene, t)
+    for name in bodies_around_camera(scene, context, event):
+        import warnings
+
+        from relview.errors import SceneWarning
+
+        warnings.warn(f"{scene.source_path or 'scene'}: the camera is inside body {name!r} "
+                      f"at t = {t:.6g} s (tested in the body's rest frame); every ray starts "
+                      "inside it, so the image shows its inner faces", SceneWarning, stacklevel=2)
     tracer = context.tracer(event)
     cam = scene.camera
     if not effects.aberration:
