@@ -8,8 +8,10 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import sys
 import traceback
+import warnings
 from pathlib import Path
 
 from relview.errors import UserError
@@ -53,7 +55,19 @@ def _point(text: str):
         p = []
     if len(p) != 3:
         raise argparse.ArgumentTypeError(f"expected X,Y,Z in metres such as 0.5,0,0, got {text!r}")
+    if not all(math.isfinite(v) for v in p):
+        raise argparse.ArgumentTypeError(f"X,Y,Z must be finite numbers, got {text!r}")
     return p
+
+
+def _time(text: str) -> float:
+    try:
+        v = float(text)
+    except ValueError:
+        v = math.nan
+    if not math.isfinite(v):
+        raise argparse.ArgumentTypeError(f"expected a finite time in seconds, got {text!r}")
+    return v
 
 
 def add_frame_options(p: argparse.ArgumentParser) -> None:
@@ -87,6 +101,12 @@ def scene_with_overrides(args):
         settings = dataclasses.replace(settings, samples=args.samples)
     if getattr(args, "exposure", None) is not None:
         settings = dataclasses.replace(settings, exposure=args.exposure)
+    from relview.renderer import check_memory
+
+    # Refuse a frame that cannot fit before any work, naming where the size came from.
+    source = ("--resolution" if getattr(args, "resolution", None)
+              else f"{args.scene}: render.resolution")
+    check_memory(*settings.resolution, source=source)
     off = {n: False for n in EFFECTS if getattr(args, f"no_{n}", False)}
     if off:
         settings = dataclasses.replace(settings,
@@ -125,25 +145,57 @@ def cmd_probe(args) -> int:
         near = difflib.get_close_matches(args.body, names, n=1)
         hint = f"; did you mean {near[0]!r}?" if near else f"; bodies: {', '.join(names)}"
         raise UserError(f"{args.scene}: --body {args.body!r}: no such body{hint}")
-    r = probe(scene, args.body, args.point, time=args.time)
+    if args.times is not None or args.csv or args.plot:
+        return _probe_over_time(scene, args)
+    for i, point in enumerate(args.point):
+        r = probe(scene, args.body, point, time=args.time)
+        if args.json:
+            print(json.dumps(r.to_dict(), indent=2))
+            continue
+        rows = [
+            ("body", r.body),
+            ("point (rest frame)", "(%.6g, %.6g, %.6g) m" % r.point),
+            ("emission time", f"{r.emit_time:.9g} s"),
+            ("emission position", "(%.6g, %.6g, %.6g) m" % r.emit_position),
+            ("light delay", f"{r.light_delay:.6g} s"),
+            ("direction (camera)", "(%.6f, %.6f, %.6f)" % r.direction),
+            ("pixel", "(%.2f, %.2f)%s" % (*r.pixel, "" if r.in_view else "  (outside the view)")),
+            ("visible", "yes" if r.visible else "no (hidden)"),
+            ("Doppler factor D", f"{r.doppler:.6g}"),
+            ("beta at emission", "(%.6g, %.6g, %.6g)" % r.beta_emit),
+        ]
+        width = max(len(k) for k, _ in rows)
+        if i:
+            print()
+        for k, v in rows:
+            print(f"{k:<{width}}  {v}")
+    return 0
+
+
+def _probe_over_time(scene, args) -> int:
+    """relview probe --times / --csv / --plot: a probe table (relview.timeline)."""
+    import numpy as np
+
+    from relview import timeline
+
+    if args.times is not None and args.time is not None:
+        raise UserError("give either --time S (one exposure) or --times A:B:N, not both")
+    if args.times is not None:
+        times = timeline.parse_times(args.times)
+    else:
+        times = np.array([scene.camera.time if args.time is None else args.time])
+    table = timeline.probe_table(scene, args.body, args.point, times,
+                                 progress=not args.quiet)
+    if args.csv:
+        for path in timeline.write_csv(table, args.csv, overwrite=args.overwrite):
+            print(f"wrote {path}", file=sys.stderr)
+    if args.plot:
+        for path in timeline.write_plot(table, args.plot, overwrite=args.overwrite):
+            print(f"wrote {path}", file=sys.stderr)
     if args.json:
-        print(json.dumps(r.to_dict(), indent=2))
-        return 0
-    rows = [
-        ("body", r.body),
-        ("point (rest frame)", "(%.6g, %.6g, %.6g) m" % r.point),
-        ("emission time", f"{r.emit_time:.9g} s"),
-        ("emission position", "(%.6g, %.6g, %.6g) m" % r.emit_position),
-        ("light delay", f"{r.light_delay:.6g} s"),
-        ("direction (camera)", "(%.6f, %.6f, %.6f)" % r.direction),
-        ("pixel", "(%.2f, %.2f)%s" % (*r.pixel, "" if r.in_view else "  (outside the view)")),
-        ("visible", "yes" if r.visible else "no (hidden)"),
-        ("Doppler factor D", f"{r.doppler:.6g}"),
-        ("beta at emission", "(%.6g, %.6g, %.6g)" % r.beta_emit),
-    ]
-    width = max(len(k) for k, _ in rows)
-    for k, v in rows:
-        print(f"{k:<{width}}  {v}")
+        print(json.dumps(timeline.table_json(table), indent=2, allow_nan=False))
+    elif not (args.csv or args.plot):
+        print(timeline.format_rows(table))
     return 0
 
 
@@ -154,7 +206,7 @@ def cmd_check(args) -> int:
     w, h = scene.render.resolution
     from relview.renderer import check_memory, estimate_bytes
 
-    check_memory(w, h)
+    check_memory(w, h, source=f"{args.scene}: render.resolution")
     print(f"{args.scene}: ok  ({len(scene.bodies)} bodies, {w}x{h}, "
           f"about {estimate_bytes(w, h) / 2**20:.0f} MiB per frame)")
     return 0
@@ -173,19 +225,27 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("scene", metavar="SCENE")
     p.add_argument("-o", "--output", metavar="FILE",
                    help="output image (.png, .npz or .exr); default outputs/SCENE.png")
-    p.add_argument("--time", type=float, metavar="S", help="exposure time (s), scene frame")
+    p.add_argument("--time", type=_time, metavar="S", help="exposure time (s), scene frame")
     p.add_argument("--layers", action="store_true", help="also write the float layers as .npz")
     p.add_argument("--bits", type=int, choices=(8, 16), default=8, help="PNG bit depth")
     add_frame_options(p)
     p.set_defaults(func=cmd_render)
 
-    p = sub.add_parser("probe", help="where, when and how one body point is seen")
+    p = sub.add_parser("probe", help="where, when and how body points are seen, at one "
+                       "time or over a time range")
     p.add_argument("scene", metavar="SCENE")
     p.add_argument("--body", required=True, metavar="NAME")
-    p.add_argument("--point", required=True, type=_point, metavar="X,Y,Z",
-                   help="point in the body's rest frame, metres")
-    p.add_argument("--time", type=float, metavar="S", help="exposure time (s), scene frame")
+    p.add_argument("--point", required=True, type=_point, action="append", metavar="X,Y,Z",
+                   help="point in the body's rest frame, metres (repeat for more points; "
+                   "two points add the photographed length between them; write --point=-1,0,0 when X is negative)")
+    p.add_argument("--time", type=_time, metavar="S", help="exposure time (s), scene frame")
+    p.add_argument("--times", metavar="A:B:N",
+                   help="N exposure times from A to B seconds: a probe table over time")
     p.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    p.add_argument("--csv", metavar="FILE",
+                   help="write the probe table as CSV (commented provenance header)")
+    p.add_argument("--plot", metavar="FILE",
+                   help="plot the probe table against time (.png, .pdf or .svg)")
     add_frame_options(p)
     p.set_defaults(func=cmd_probe)
 
@@ -211,10 +271,23 @@ def _extra_commands():
     return regs
 
 
+def _show_warning(message, category, filename, lineno, file=None, line=None):
+    """User warnings (mesh repairs, camera inside a body) as one plain line."""
+    if issubclass(category, UserWarning):
+        print(f"relview: warning: {message}", file=sys.stderr)
+    else:
+        _default_show_warning(message, category, filename, lineno, file, line)
+
+
+_default_show_warning = warnings.showwarning
+
+
 def main(argv=None) -> int:
     try:
-        args = build_parser().parse_args(argv)
-        return int(args.func(args) or 0)
+        with warnings.catch_warnings():
+            warnings.showwarning = _show_warning
+            args = build_parser().parse_args(argv)
+            return int(args.func(args) or 0)
     except UserError as e:
         print(f"relview: error: {e}", file=sys.stderr)
         return 2
