@@ -1,0 +1,202 @@
+"""Bodies in any motion as seen on the camera's past light cone (snapshot meshes).
+
+For one exposure event E = (ct_c, x_c), every point p of a body is seen where it was
+when the light reaching E left it: the retarded event of p
+(:meth:`relview.motion.RigidKinematics.retarded`). Replacing each vertex of the body's
+rest-frame mesh by its retarded position gives a static triangle mesh in the scene
+frame S, the *snapshot*. A backward null ray from E that meets the snapshot at path
+length l meets it at the event (ct_c - l, x_c + l d), which for a vertex is exactly its
+emission event; so the snapshot is ray-cast by :mod:`relview.trace` as a frame group
+at rest (identity map), with per-vertex velocities for the Doppler factor and per-
+vertex body coordinates for the surface (physics.md, "Any other motion").
+
+Straight edges and flat faces do not stay straight or flat on the light cone, so
+each mesh face is tessellated into n^2 sub-triangles (n segments per edge, the same
+n for the whole body, so shared edges are split identically and the snapshot stays
+watertight). n is chosen so that the *measured* interpolation error stays below a
+tolerance: for sub-edges, the exact retarded image of the edge midpoint is compared
+with the midpoint of the chord between the imaged ends,
+
+    error = max( |x_exact - x_chord| / |x_exact - x_c|,   (radians seen from E)
+                 |beta_exact - beta_chord| )                (velocity / c)
+
+The chord error of a smooth map falls as 1/n^2, which sets n; the error is measured
+again after tessellating (:class:`Snapshot`.error) and n raised if needed, up to a
+triangle budget.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from relview.motion import as_kinematics
+from relview.trace import FrameGroup
+
+#: Default interpolation tolerance (radians as seen from the camera, and beta) when no
+#: scene is at hand. A 960-pixel-wide 60 degree image has 1.1e-3 rad pixels.
+DEFAULT_TOLERANCE = 1e-4
+#: With a scene, the default tolerance is this fraction of one pixel's angular width
+#: (common practice: sub-pixel geometric error is invisible).
+PIXEL_FRACTION = 0.25
+#: Largest number of snapshot triangles per body.
+DEFAULT_MAX_TRIANGLES = 2_000_000
+#: Sub-edges checked per round at most (a seeded random sample beyond that).
+MAX_CHECKED_EDGES = 50_000
+
+
+@dataclass
+class Snapshot:
+    """One body's mesh on the past light cone of a camera event."""
+
+    vertices: np.ndarray  # (V, 3) m, retarded positions in S
+    faces: np.ndarray  # (F, 3) indices into vertices
+    parent_face: np.ndarray  # (F,) face of the original mesh each triangle comes from
+    body_coords: np.ndarray  # (V, 3) m, rest-frame position of each vertex (mesh axes)
+    bary: np.ndarray  # (V, 2) (u, v) of each vertex in its original face
+    emit_event: np.ndarray  # (V, 4) [ct, x, y, z] m
+    beta: np.ndarray  # (V, 3) velocity / c at emission
+    segments: int  # n: segments per original edge
+    error: float  # measured interpolation error (see module docstring)
+
+
+def _tessellation(n: int):
+    """Integer barycentrics (j, k) of the (n+1)(n+2)/2 points of one face split into n^2
+    triangles, and those triangles (local indices, same orientation as the face)."""
+    jk = [(j, k) for j in range(n + 1) for k in range(n + 1 - j)]
+    index = {p: i for i, p in enumerate(jk)}
+    tris = []
+    for j in range(n):
+        for k in range(n - j):
+            tris.append((index[(j, k)], index[(j + 1, k)], index[(j, k + 1)]))
+            if k < n - j - 1:
+                tris.append((index[(j + 1, k)], index[(j + 1, k + 1)], index[(j, k + 1)]))
+    return np.array(jk, dtype=np.int64), np.array(tris, dtype=np.int64)
+
+
+def _split_faces(vertices: np.ndarray, faces: np.ndarray, n: int):
+    """Every face split into n^2 triangles with its own copy of its points.
+
+    Points are ((i A + j B) + k C) / n with integer weights; a point on a shared edge has
+    a zero weight on the third corner and so comes out bit-identical in both faces
+    (x + 0 = x and addition commutes in IEEE arithmetic)."""
+    jk, tris = _tessellation(n)
+    j = jk[:, 0].astype(float)
+    k = jk[:, 1].astype(float)
+    i = n - j - k
+    a, b, c = (vertices[faces[:, m]] for m in range(3))  # (F, 3) each
+    pts = ((i[None, :, None] * a[:, None] + j[None, :, None] * b[:, None]) + k[None, :, None] * c[:, None]) / n
+    per_face = jk.shape[0]
+    f = faces.shape[0]
+    points = pts.reshape(f * per_face, 3)
+    sub_faces = (tris[None] + per_face * np.arange(f)[:, None, None]).reshape(-1, 3)
+    parent = np.repeat(np.arange(f), tris.shape[0])
+    bary = np.tile(np.stack([j, k], 1) / n, (f, 1))
+    return points, sub_faces, parent, bary
+
+
+def _solve_unique(kin, points, camera_event, effects):
+    """Retarded events and velocities of points, solving each distinct point once."""
+    uniq, inverse = np.unique(points, axis=0, return_inverse=True)
+    ev, beta = kin.retarded(uniq, camera_event, delay=effects.delay, contraction=effects.contraction)
+    inverse = inverse.reshape(-1)
+    return ev[inverse], beta[inverse]
+
+
+def _chord_error(kin, points, ev, beta, faces, camera_event, effects, rng) -> float:
+    """Largest chord error (module docstring) over the sub-edges of ``faces``."""
+    edges = np.concatenate([faces[:, [0, 1]], faces[:, [1, 2]], faces[:, [2, 0]]])
+    edges = np.unique(np.sort(edges, axis=1), axis=0)
+    if edges.shape[0] > MAX_CHECKED_EDGES:
+        edges = edges[rng.choice(edges.shape[0], MAX_CHECKED_EDGES, replace=False)]
+    a, b = edges[:, 0], edges[:, 1]
+    ok = np.all(np.isfinite(ev[a]), axis=1) & np.all(np.isfinite(ev[b]), axis=1)
+    a, b = a[ok], b[ok]
+    if a.size == 0:
+        return 0.0
+    mid = 0.5 * (points[a] + points[b])
+    ev_mid, beta_mid = kin.retarded(mid, camera_event, delay=effects.delay, contraction=effects.contraction)
+    chord = 0.5 * (ev[a, 1:] + ev[b, 1:])
+    rng_dist = np.linalg.norm(ev_mid[:, 1:] - camera_event[1:], axis=1)
+    angle = np.linalg.norm(ev_mid[:, 1:] - chord, axis=1) / np.maximum(rng_dist, 1e-300)
+    dbeta = np.linalg.norm(beta_mid - 0.5 * (beta[a] + beta[b]), axis=1)
+    worst = np.nanmax(np.maximum(angle, dbeta)) if angle.size else 0.0
+    return float(worst)
+
+
+def snapshot(motion, vertices, faces, camera_event, effects, tolerance: float = DEFAULT_TOLERANCE,
+             max_triangles: int = DEFAULT_MAX_TRIANGLES, segments: int | None = None) -> Snapshot:
+    """The mesh (rest-frame vertices (V,3) m, faces (F,3)) of a body moving with ``motion``,
+    placed on the past light cone of ``camera_event`` (4,) [ct, x, y, z] m.
+
+    ``segments`` fixes n; otherwise n is chosen for ``tolerance`` (see module docstring),
+    limited so that F n^2 <= ``max_triangles``; the measured error is in the result.
+    Faces with a vertex that no light from reaches the camera (NaN) are dropped.
+    """
+    kin = as_kinematics(motion)
+    vertices = np.asarray(vertices, float)
+    faces = np.asarray(faces, np.int64)
+    cam = np.asarray(camera_event, float).reshape(4)
+    rng = np.random.default_rng(0)
+    n_cap = max(1, int(math.floor(math.sqrt(max_triangles / max(len(faces), 1)))))
+    n = 1 if segments is None else int(segments)
+    for _ in range(4):
+        pts, sub, parent, bary = _split_faces(vertices, faces, n)
+        ev, beta = _solve_unique(kin, pts, cam, effects)
+        err = _chord_error(kin, pts, ev, beta, sub, cam, effects, rng)
+        if segments is not None or err <= tolerance or n >= n_cap:
+            break
+        # chord error ~ 1/n^2: aim 20% below the tolerance
+        n = min(n_cap, max(n + 1, int(math.ceil(n * math.sqrt(err / (0.8 * tolerance))))))
+    keep = np.all(np.isfinite(ev[sub, 0]), axis=1)
+    positions = np.where(np.isfinite(ev[:, 1:]), ev[:, 1:], 0.0)  # unused where NaN (faces dropped)
+    return Snapshot(positions, sub[keep], parent[keep], pts, bary, ev, beta, n, err)
+
+
+def pixel_tolerance(scene) -> float:
+    """PIXEL_FRACTION of the angular width (rad) of one pixel of the scene's camera
+    (horizontal field of view / width; the panorama spans 2 pi)."""
+    try:
+        width = float(scene.render.resolution[0])
+        fov = 360.0 if scene.camera.projection == "panorama" else float(scene.camera.fov)
+    except AttributeError:
+        return DEFAULT_TOLERANCE
+    return PIXEL_FRACTION * math.radians(fov) / width
+
+
+def snapshot_groups(scene, meshes, indices, camera_event, effects, tolerance: float | None = None,
+                    max_triangles: int = DEFAULT_MAX_TRIANGLES) -> list[FrameGroup]:
+    """Frame groups (one per body in ``indices``) of light-cone snapshots, for
+    :class:`relview.trace.Tracer`. ``meshes[i]`` is body i's rest-frame mesh (vertices
+    along the rest-frame axes, rotation applied). ``tolerance`` (rad and beta) defaults to
+    :func:`pixel_tolerance`. Each group has ``.snapshot`` attached (segments, measured
+    error)."""
+    if tolerance is None:
+        tolerance = pixel_tolerance(scene)
+    groups = []
+    cam = np.asarray(camera_event, float).reshape(4)
+    for i in indices:
+        body = scene.bodies[i]
+        verts, faces = meshes[i]
+        snap = snapshot(body.motion, verts, faces, cam, effects, tolerance, max_triangles)
+        rot = body.rotation_matrix()
+        group = FrameGroup(
+            beta=np.zeros(3),
+            origin_event=np.zeros(4),
+            matrix=np.eye(4),
+            bodies=[i],
+            body_offset=[np.zeros(3)],
+            body_rotation=[rot],
+            face_body=np.full(len(snap.faces), i, np.int64),
+            face_local=snap.parent_face,
+            vertices=snap.vertices,
+            faces=snap.faces,
+            vertex_body_coords=snap.body_coords @ rot,  # rest-frame axes -> body axes (R^T p)
+            vertex_beta=snap.beta,
+            vertex_bary=snap.bary,
+        )
+        group.snapshot = snap
+        groups.append(group)
+    return groups

@@ -1,0 +1,126 @@
+"""Light-cone snapshots of bodies in any motion (relview.lightcone).
+
+The exact boosted ray caster for uniform motion (relview.trace; physics.md "Uniform
+motion, exact method") is the reference the snapshot must converge to; the retarded
+events of single points come from relview.motion, itself checked against closed forms
+and scipy in tests/test_motion.py.
+"""
+
+from types import SimpleNamespace
+
+import numpy as np
+import pytest
+import trimesh
+
+from relview.lightcone import snapshot, snapshot_groups
+from relview.motion import RollingMotion, Uniform
+from relview.scene import Body, Effects, UniformMotion
+from relview.trace import Tracer, uniform_groups
+
+
+def box_mesh():
+    m = trimesh.creation.box([1.0, 0.4, 0.3])
+    return np.asarray(m.vertices, float), np.asarray(m.faces, np.int64)
+
+
+def rays_covering(camera_event, targets, n=41):
+    """A rectangular fan of unit directions from the camera covering the points ``targets``."""
+    to = targets - camera_event[1:]
+    to /= np.linalg.norm(to, axis=1)[:, None]
+    fwd = to.mean(axis=0)
+    fwd /= np.linalg.norm(fwd)
+    right = np.cross(fwd, [0.0, 0.0, 1.0])
+    right /= np.linalg.norm(right)
+    up = np.cross(right, fwd)
+    x = (to @ right) / (to @ fwd)
+    y = (to @ up) / (to @ fwd)
+    a, b = np.meshgrid(np.linspace(x.min() * 1.1, x.max() * 1.1, n), np.linspace(y.min() * 1.1, y.max() * 1.1, n))
+    d = fwd + a.reshape(-1, 1) * right + b.reshape(-1, 1) * up
+    return d / np.linalg.norm(d, axis=1)[:, None]
+
+
+def cast(groups, camera_event, d, effects):
+    origin = np.broadcast_to(camera_event, (len(d), 4))
+    return Tracer(groups).cast(np.ascontiguousarray(origin), d, effects)
+
+
+@pytest.mark.parametrize("effects", [Effects(), Effects(delay=False), Effects(contraction=False)])
+def test_snapshot_converges_to_exact_uniform_method(effects):
+    verts, faces = box_mesh()
+    motion = UniformMotion(beta=np.array([0.8, 0.2, 0.0]), position=np.array([0.0, 0.0, 0.0]), time=0.0)
+    body = Body(name="box", shape="mesh", surface=None, motion=motion, rotation=np.array([0.0, 0.0, 25.0]))
+    rot = body.rotation_matrix()
+    meshes = [(verts @ rot.T, faces)]
+    cam = np.array([0.0, 0.5, -2.5, 0.2])
+    exact_groups = uniform_groups([body], meshes, effects)
+    corners = Uniform(motion).retarded(meshes[0][0], cam, effects.delay, effects.contraction)[0][:, 1:]
+    d = rays_covering(cam, corners)
+    ref = cast(exact_groups, cam, d, effects)
+    assert ref.hit.sum() > 300
+    scene = SimpleNamespace(bodies=[body])
+    previous = np.inf
+    for tol in (1e-2, 1e-3, 1e-4):
+        (group,) = snapshot_groups(scene, meshes, [0], cam, effects, tolerance=tol)
+        assert group.snapshot.error <= tol
+        hits = cast([group], cam, d, effects)
+        both = hits.hit & ref.hit
+        assert both.sum() >= 0.97 * ref.hit.sum()
+        dl = np.abs(hits.l[both] - ref.l[both]) / ref.l[both]
+        drest = np.linalg.norm(hits.rest_position[both] - ref.rest_position[both], axis=1) / ref.l[both]
+        dbeta = np.linalg.norm(hits.beta_emit[both] - ref.beta_emit[both], axis=1)
+        worst = max(dl.max(), drest.max())
+        # the snapshot error is controlled by the tolerance (chord error; a few times it
+        # inside triangles of an elongated image) and shrinks with it
+        assert worst <= 4 * tol
+        assert worst < previous or worst < 1e-12
+        assert dbeta.max() < 1e-12  # uniform motion: every vertex has the same velocity
+        previous = worst
+
+
+def test_snapshot_vertices_are_retarded_points_and_bary_maps_to_parent_face():
+    verts, faces = box_mesh()
+    motion = RollingMotion(radius=0.5, beta=np.array([0.6, 0.0, 0.0]), position=np.array([0.0, 0.0, 0.5]))
+    cam = np.array([1.0, 0.3, -3.0, 0.4])
+    snap = snapshot(motion, verts, faces, cam, Effects(), segments=3)
+    ev, beta = motion.retarded(snap.body_coords, cam)
+    np.testing.assert_array_equal(snap.vertices, ev[:, 1:])
+    np.testing.assert_array_equal(snap.beta, beta)
+    # each snapshot vertex's (u, v) in its original face reproduces its rest position
+    f = faces[snap.parent_face]
+    for corner in range(3):
+        v_idx = snap.faces[:, corner]
+        u, v = snap.bary[v_idx, 0], snap.bary[v_idx, 1]
+        p = (1 - u - v)[:, None] * verts[f[:, 0]] + u[:, None] * verts[f[:, 1]] + v[:, None] * verts[f[:, 2]]
+        np.testing.assert_allclose(p, snap.body_coords[v_idx], atol=1e-15)
+    # shared edges split identically: a watertight snapshot (every edge used by two faces)
+    pos = np.round(snap.vertices, 12)
+    _, canon = np.unique(pos, axis=0, return_inverse=True)
+    tri = canon.reshape(-1)[snap.faces]
+    edges = np.sort(np.concatenate([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [2, 0]]]), axis=1)
+    _, counts = np.unique(edges, axis=0, return_counts=True)
+    assert np.all(counts == 2)
+
+
+def test_rolling_wheel_contact_point_seen_at_rest():
+    # A wheel (cylinder, axle along y) rolling along x: the hit at the contact point's
+    # retarded image has beta ~ 0 (rolling without slipping; relview.motion tests check
+    # the exact point), up to the snapshot's interpolation tolerance.
+    wheel = trimesh.creation.cylinder(radius=0.5, height=0.2, sections=32)
+    wheel.apply_transform(trimesh.transformations.rotation_matrix(np.pi / 2, [1, 0, 0]))
+    verts, faces = np.asarray(wheel.vertices, float), np.asarray(wheel.faces, np.int64)
+    motion = RollingMotion(radius=0.5, beta=np.array([0.7, 0.0, 0.0]), position=np.array([0.0, 0.0, 0.5]))
+    contact = motion.contact_point() + np.array([0.0, -0.0999, 0.0])  # on the near face
+    x0, _ = motion.state(contact[None], 0.0)  # touching the ground at t = 0
+    d = np.array([0.2, 0.95, -0.25])
+    d /= np.linalg.norm(d)
+    cam = np.concatenate([[4.0], x0[0] - 4.0 * d])  # its light from t = 0 arrives here
+    ev, beta = motion.retarded(contact[None], cam)
+    assert ev[0, 0] == pytest.approx(0.0, abs=1e-12) and np.linalg.norm(beta) < 1e-14
+    body = Body(name="wheel", shape="mesh", surface=None, motion=motion)
+    tol = 2e-3
+    (group,) = snapshot_groups(SimpleNamespace(bodies=[body]), [(verts, faces)], [0], cam, Effects(), tolerance=tol)
+    hits = cast([group], cam, d[None], Effects())
+    assert hits.hit[0]
+    np.testing.assert_allclose(hits.beta_emit[0], beta[0], atol=2 * tol)
+    np.testing.assert_allclose(hits.rest_position[0], contact, atol=2 * tol * hits.l[0])
+    assert hits.emit_event[0, 0] == pytest.approx(ev[0, 0], abs=2 * tol * hits.l[0])
