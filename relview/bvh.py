@@ -228,6 +228,10 @@ class BVHSet:
     tri_group: np.ndarray  # (F_total,) group of each packed triangle
     tri_face: np.ndarray  # (F_total,) face index within the group's input list
     tri_offset: np.ndarray  # (G,) first packed triangle of each group
+    # interleaved copies for the traversal kernel (one cache line per node / triangle)
+    nodes: np.ndarray = None  # (M, 6) float32: lo xyz, hi xyz
+    links: np.ndarray = None  # (M, 4) int64: left, right, first triangle, count
+    tris: np.ndarray = None  # (F, 9) float64: v0, e1, e2
 
 
 def pack(bvhs: list[BVH]) -> BVHSet:
@@ -253,9 +257,17 @@ def pack(bvhs: list[BVH]) -> BVHSet:
         n_off += len(b.node_lo)
         t_off += len(b.v0)
     cat = np.concatenate
-    return BVHSet(np.array(roots, np.int64), cat(lo), cat(hi), cat(left), cat(right), cat(start),
-                  cat(count), cat(v0), cat(e1), cat(e2), cat(grp), cat(face),
-                  np.array(toff, np.int64))
+    out = BVHSet(np.array(roots, np.int64), cat(lo), cat(hi), cat(left), cat(right), cat(start),
+                 cat(count), cat(v0), cat(e1), cat(e2), cat(grp), cat(face),
+                 np.array(toff, np.int64))
+    # Node boxes in float32, rounded outwards so that no float64 hit is ever culled.
+    lo32 = np.nextafter(out.node_lo.astype(np.float32), np.float32(-np.inf))
+    hi32 = np.nextafter(out.node_hi.astype(np.float32), np.float32(np.inf))
+    out.nodes = np.ascontiguousarray(np.concatenate([lo32, hi32], axis=1))
+    out.links = np.ascontiguousarray(np.stack([out.node_left, out.node_right, out.node_start,
+                                               out.node_count], axis=1))
+    out.tris = np.ascontiguousarray(np.concatenate([out.v0, out.e1, out.e2], axis=1))
+    return out
 
 
 #: reciprocal used for a zero direction component: huge but finite, so that a slab
@@ -264,18 +276,18 @@ _BIG = 1e300
 
 
 @njit(cache=True, inline="always")
-def _entry(node, ox, oy, oz, ix, iy, iz, l_min, l_max, node_lo, node_hi):
+def _entry(node, ox, oy, oz, ix, iy, iz, l_min, l_max, nodes):
     """Entry parameter of the ray into a node's box within [l_min, l_max], or inf."""
-    t0 = (node_lo[node, 0] - ox) * ix
-    t1 = (node_hi[node, 0] - ox) * ix
+    t0 = (nodes[node, 0] - ox) * ix
+    t1 = (nodes[node, 3] - ox) * ix
     tn = min(t0, t1)
     tf = max(t0, t1)
-    t0 = (node_lo[node, 1] - oy) * iy
-    t1 = (node_hi[node, 1] - oy) * iy
+    t0 = (nodes[node, 1] - oy) * iy
+    t1 = (nodes[node, 4] - oy) * iy
     tn = max(tn, min(t0, t1))
     tf = min(tf, max(t0, t1))
-    t0 = (node_lo[node, 2] - oz) * iz
-    t1 = (node_hi[node, 2] - oz) * iz
+    t0 = (nodes[node, 2] - oz) * iz
+    t1 = (nodes[node, 5] - oz) * iz
     tn = max(tn, min(t0, t1))
     tf = min(tf, max(t0, t1))
     tn = max(tn, l_min)
@@ -286,8 +298,7 @@ def _entry(node, ox, oy, oz, ix, iy, iz, l_min, l_max, node_lo, node_hi):
 
 
 @njit(cache=True, inline="always")
-def first_hit(ox, oy, oz, dx, dy, dz, l_min, l_max, root, node_lo, node_hi, node_left,
-              node_right, node_start, node_count, v0, e1, e2, stack, stack_t):
+def first_hit(ox, oy, oz, dx, dy, dz, l_min, l_max, root, nodes, links, tris, stack, stack_t):
     """Nearest triangle hit with l in (l_min, l_max); returns (l, packed triangle, u, v).
 
     ``stack`` (int64) and ``stack_t`` (float64) are scratch arrays of length STACK_SIZE
@@ -301,22 +312,22 @@ def first_hit(ox, oy, oz, dx, dy, dz, l_min, l_max, root, node_lo, node_hi, node
     best_tri = -1
     best_u = 0.0
     best_v = 0.0
-    if _entry(root, ox, oy, oz, ix, iy, iz, l_min, best, node_lo, node_hi) == np.inf:
+    if _entry(root, ox, oy, oz, ix, iy, iz, l_min, best, nodes) == np.inf:
         return best, best_tri, best_u, best_v
     node = root
     sp = 0
     while True:
-        cnt = node_count[node]
+        cnt = links[node, 3]
         if cnt > 0:
-            s = node_start[node]
+            s = links[node, 2]
             for k in range(s, s + cnt):
                 # Moeller-Trumbore
-                ax_ = e1[k, 0]
-                ay_ = e1[k, 1]
-                az_ = e1[k, 2]
-                bx_ = e2[k, 0]
-                by_ = e2[k, 1]
-                bz_ = e2[k, 2]
+                ax_ = tris[k, 3]
+                ay_ = tris[k, 4]
+                az_ = tris[k, 5]
+                bx_ = tris[k, 6]
+                by_ = tris[k, 7]
+                bz_ = tris[k, 8]
                 px = dy * bz_ - dz * by_
                 py = dz * bx_ - dx * bz_
                 pz = dx * by_ - dy * bx_
@@ -324,9 +335,9 @@ def first_hit(ox, oy, oz, dx, dy, dz, l_min, l_max, root, node_lo, node_hi, node
                 if det == 0.0:
                     continue
                 inv = 1.0 / det
-                tx = ox - v0[k, 0]
-                ty = oy - v0[k, 1]
-                tz = oz - v0[k, 2]
+                tx = ox - tris[k, 0]
+                ty = oy - tris[k, 1]
+                tz = oz - tris[k, 2]
                 u = (tx * px + ty * py + tz * pz) * inv
                 if u < 0.0 or u > 1.0:
                     continue
@@ -344,10 +355,10 @@ def first_hit(ox, oy, oz, dx, dy, dz, l_min, l_max, root, node_lo, node_hi, node
                     best_v = v
             node = -1
         else:
-            a = node_left[node]
-            b = node_right[node]
-            ta = _entry(a, ox, oy, oz, ix, iy, iz, l_min, best, node_lo, node_hi)
-            tb = _entry(b, ox, oy, oz, ix, iy, iz, l_min, best, node_lo, node_hi)
+            a = links[node, 0]
+            b = links[node, 1]
+            ta = _entry(a, ox, oy, oz, ix, iy, iz, l_min, best, nodes)
+            tb = _entry(b, ox, oy, oz, ix, iy, iz, l_min, best, nodes)
             if ta <= tb:
                 if ta == np.inf:
                     node = -1

@@ -93,13 +93,15 @@ def ray_four_direction(d_scene: np.ndarray, effects: Effects) -> np.ndarray:
     return k
 
 
+#: IEEE-safe fast-math: fused multiply-add and reassociation, but NaN/inf kept exact
+_FAST = {"contract", "arcp", "nsz", "reassoc"}
+
 #: rays handled together by one thread: neighbouring pixels share traversal paths
 RAY_CHUNK = 256
 
 
-@njit(parallel=True, cache=True)
-def _cast(ray_o, ray_k, g_origin, g_matrix, roots, node_lo, node_hi, node_left, node_right,
-          node_start, node_count, v0, e1, e2, l_min):
+@njit(parallel=True, cache=True, fastmath=_FAST)
+def _cast(ray_o, ray_k, g_origin, g_matrix, roots, nodes, links, tris, l_min):
     """For every ray, the nearest hit over all frame groups (l, packed triangle, u, v)."""
     n = ray_o.shape[0]
     n_groups = roots.shape[0]
@@ -134,9 +136,7 @@ def _cast(ray_o, ray_k, g_origin, g_matrix, roots, node_lo, node_hi, node_left, 
                 dy = m[2, 0] * k0 + m[2, 1] * k1 + m[2, 2] * k2 + m[2, 3] * k3
                 dz = m[3, 0] * k0 + m[3, 1] * k1 + m[3, 2] * k2 + m[3, 3] * k3
                 l, tri, u, v = bvh_mod.first_hit(ox, oy, oz, dx, dy, dz, l_min, best, roots[g],
-                                                 node_lo, node_hi, node_left, node_right,
-                                                 node_start, node_count, v0, e1, e2, stack,
-                                                 stack_t)
+                                                 nodes, links, tris, stack, stack_t)
                 if tri >= 0:
                     best = l
                     best_tri = tri
@@ -241,9 +241,8 @@ class Tracer:
             return _empty_hits(ray_origin, k)
         p = self.packed
         ray_o = np.ascontiguousarray(ray_origin, dtype=np.float64)
-        l, tri, u, v = _cast(ray_o, k, self.g_origin, self.g_matrix, p.root, p.node_lo,
-                             p.node_hi, p.node_left, p.node_right, p.node_start, p.node_count,
-                             p.v0, p.e1, p.e2, l_min)
+        l, tri, u, v = _cast(ray_o, k, self.g_origin, self.g_matrix, p.root, p.nodes, p.links,
+                             p.tris, l_min)
         body, face, group, emit, rest, beta = _resolve(
             ray_o, k, l, tri, p.tri_group, self.tri_body, self.tri_local, self.tri_slot,
             self.g_origin, self.g_matrix, self.g_beta, self.slot_offset, self.slot_rotation)
