@@ -1,0 +1,636 @@
+"""Comparison sheets and false-colour layer maps: the figures that go into papers.
+
+A *sheet* shows one exposure event of a scene as several labelled panels side by
+side, each a render of the same camera at the same scene time with a different set
+of effects (docs/figures.md defines every panel precisely):
+
+* ``rest``: every body at rest (beta = 0) where it is at the exposure time, the
+  camera at rest too: the rest-frame shapes, placed where they are now;
+* ``measured``: the scene frame's one-instant picture: light instantaneous (delay
+  off), Lorentz kinematics (contraction on), no camera aberration, no Doppler
+  colour or beaming: the Lorentz-contracted bodies, shape only;
+* ``photograph``: every effect on: what the camera records;
+* ``classical``: light delay with Galilean kinematics (contraction off) and the
+  classical Doppler factor;
+* ``delay-only``, ``aberration-only``, ``doppler-only``, ``beaming-only``: the
+  ``measured`` panel with exactly that one effect switched on.
+
+A *layer map* shows one data layer of a render (Doppler factor, light delay, body
+index, ...) in false colour with a labelled colour bar (film.save_layer_figure).
+
+Every file carries provenance: scene hash, relview version and settings, in the PNG
+text chunks or PDF/SVG metadata, and in a JSON sidecar next to the figure.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from relview.errors import OutputError, UserError
+from relview.lorentz import C, lorentz_factor
+from relview.scene import Effects, Scene, UniformMotion
+
+# --------------------------------------------------------------------------- panels
+
+
+@dataclass(frozen=True)
+class PanelKind:
+    """One kind of panel: the effects it renders with and how it is labelled."""
+
+    name: str
+    effects: Effects
+    subtitle: str
+    at_rest: bool = False  # render the rest scene (every beta = 0) instead of the scene
+
+
+_SHAPE_ONLY = dict(delay=False, contraction=True, aberration=False, doppler=False,
+                   beaming=False)
+
+PANELS: dict[str, PanelKind] = {
+    k.name: k
+    for k in (
+        PanelKind("rest", Effects(), "bodies and camera at rest, placed where they are at t",
+                  at_rest=True),
+        PanelKind("measured", Effects(**_SHAPE_ONLY),
+                  "one instant in the scene frame (no light delay);\nLorentz-contracted; "
+                  "shape only: no Doppler colour or beaming"),
+        PanelKind("photograph", Effects(),
+                  "all effects: light delay, contraction,\naberration, Doppler colour, beaming"),
+        PanelKind("classical",
+                  Effects(delay=True, contraction=False, aberration=False, doppler=True,
+                          beaming=True),
+                  "light delay with Galilean motion;\nclassical Doppler colour and beaming"),
+        PanelKind("delay-only", Effects(**{**_SHAPE_ONLY, "delay": True}),
+                  "measured + light delay;\nshape only: no Doppler colour or beaming"),
+        PanelKind("aberration-only", Effects(**{**_SHAPE_ONLY, "aberration": True}),
+                  "measured + the camera's aberration;\nno light delay, no Doppler, no beaming"),
+        PanelKind("doppler-only", Effects(**{**_SHAPE_ONLY, "doppler": True}),
+                  "measured + Doppler colour shift;\nno light delay, no beaming"),
+        PanelKind("beaming-only", Effects(**{**_SHAPE_ONLY, "beaming": True}),
+                  "measured + beaming (brightness ~ D^4);\nno light delay, no colour shift"),
+    )
+}
+
+DEFAULT_PANELS = ("rest", "measured", "photograph")
+
+
+def panel_kind(name: str) -> PanelKind:
+    """The panel called ``name`` ('delay only', 'delay_only' and 'delay-only' are one)."""
+    key = "-".join(str(name).strip().lower().replace("_", " ").split())
+    try:
+        return PANELS[key]
+    except KeyError:
+        import difflib
+
+        near = difflib.get_close_matches(key, PANELS, n=1)
+        hint = f"; did you mean {near[0]!r}?" if near else ""
+        raise UserError(f"--panels: unknown panel {name!r}{hint} "
+                        f"Choose from: {', '.join(PANELS)}") from None
+
+
+def parse_panels(text: str) -> list[PanelKind]:
+    """'rest,measured,photograph' -> panel kinds, in that order, no repeats."""
+    kinds = [panel_kind(p) for p in str(text).split(",") if p.strip()]
+    if not kinds:
+        raise UserError(f"--panels: no panel named in {text!r}; e.g. rest,measured,photograph")
+    names = [k.name for k in kinds]
+    dup = {n for n in names if names.count(n) > 1}
+    if dup:
+        raise UserError(f"--panels {text!r}: panel {sorted(dup)[0]!r} is named twice")
+    return kinds
+
+
+# --------------------------------------------------------------------------- body state
+
+
+def body_state(scene: Scene, index: int, time_s: float) -> tuple[np.ndarray, np.ndarray]:
+    """(position of the body origin (3,) m, its beta (3,)) at scene time ``time_s``."""
+    motion = scene.bodies[index].motion
+    if isinstance(motion, UniformMotion):
+        beta = np.asarray(motion.beta, float)
+        pos = np.asarray(motion.position, float) + beta * C * (time_s - motion.time)
+        return pos, beta
+    x, beta = motion.state(np.zeros((1, 3)), C * time_s)
+    return np.asarray(x[0], float), np.asarray(beta[0], float)
+
+
+def main_body_index(scene: Scene, body=None, time_s: float = 0.0) -> int | None:
+    """The body named ``body`` (or index), else the fastest at ``time_s`` (first on ties)."""
+    if not scene.bodies:
+        return None
+    if body is not None:
+        if isinstance(body, (int, np.integer)):
+            return int(body)
+        try:
+            return scene.body_index(body)
+        except KeyError:
+            names = ", ".join(b.name for b in scene.bodies)
+            raise UserError(f"--body {body!r}: no such body; bodies: {names}") from None
+    speeds = [float(np.linalg.norm(body_state(scene, i, time_s)[1]))
+              for i in range(len(scene.bodies))]
+    return int(np.argmax(speeds))
+
+
+def _attitude_degrees(body, time_s: float) -> np.ndarray:
+    """Rest-frame orientation (x, y, z turns, degrees) of a non-uniform body at ``time_s``.
+
+    Axes are followed with Galilean kinematics (contraction=False), so they stay rigid
+    and orthonormal; the Euler angles use the same convention as Body.rotation_matrix
+    (R = Rz Ry Rx, i.e. scipy's extrinsic 'xyz').
+    """
+    from scipy.spatial.transform import Rotation
+
+    r0 = body.rotation_matrix()
+    pts = np.vstack([np.zeros(3), r0.T])  # origin and the body axes in rest-frame axes
+    x, _ = body.motion.state(pts, np.full(4, C * time_s), contraction=False)
+    m = (x[1:] - x[0]).T
+    return Rotation.from_matrix(m).as_euler("xyz", degrees=True)
+
+
+def rest_scene(scene: Scene, time_s: float) -> Scene:
+    """The scene with every body and the camera at rest where they are at ``time_s``.
+
+    Bodies keep their rest-frame shapes (no contraction, since beta = 0); bodies on
+    non-uniform worldlines also keep their orientation at ``time_s``.
+    """
+    from relview.renderer import camera_state
+
+    bodies = []
+    for i, b in enumerate(scene.bodies):
+        pos, _ = body_state(scene, i, time_s)
+        rotation = b.rotation if isinstance(b.motion, UniformMotion) else _attitude_degrees(b,
+                                                                                          time_s)
+        bodies.append(dataclasses.replace(
+            b, rotation=np.asarray(rotation, float),
+            motion=UniformMotion(beta=np.zeros(3), position=pos, time=time_s)))
+    event, _ = camera_state(scene, time_s)
+    camera = dataclasses.replace(scene.camera, position=event[1:].copy(), time=time_s,
+                                 beta=np.zeros(3))
+    return dataclasses.replace(scene, bodies=bodies, camera=camera)
+
+
+# --------------------------------------------------------------------------- scale bar
+
+
+def metres_per_pixel(camera, width: int, distance_m: float) -> float:
+    """Image scale (m per pixel) of a length across the view at distance ``distance_m``.
+
+    pinhole: 2 d tan(fov/2) / W, with d the depth of the point along the view axis
+    (the pinhole's image plane maps a length L at depth d to f L / d pixels,
+    f = W / (2 tan(fov/2)) pixels).
+    fisheye (equidistant): d fov / W, fov in radians (fov/2 spans W/2 pixels along any
+    radius, so each pixel is fov/W radians; arc length = d x angle, small lengths).
+    panorama (equirectangular): d 2 pi / W, exact on the horizon row, where a pixel is
+    2 pi / W radians of longitude; elsewhere across the image it shrinks as cos(lat).
+    """
+    if not (distance_m > 0 and math.isfinite(distance_m)):
+        return math.nan
+    if camera.projection == "pinhole":
+        return 2.0 * distance_m * math.tan(math.radians(camera.fov) / 2.0) / width
+    if camera.projection == "fisheye":
+        return distance_m * math.radians(camera.fov) / width
+    if camera.projection == "panorama":
+        return distance_m * 2.0 * math.pi / width
+    raise ValueError(f"unknown projection {camera.projection!r}")
+
+
+def scale_distance(camera, camera_position: np.ndarray, point: np.ndarray) -> float:
+    """The distance :func:`metres_per_pixel` wants: depth along the view axis (pinhole),
+    straight-line distance (fisheye, panorama). m, scene frame."""
+    sep = np.asarray(point, float) - np.asarray(camera_position, float)
+    if camera.projection == "pinhole":
+        return float(sep @ camera.forward())
+    return float(np.linalg.norm(sep))
+
+
+def nice_length(max_m: float) -> float:
+    """The largest 1, 2 or 5 x 10^k metres not above ``max_m`` (common practice for bars)."""
+    if not (max_m > 0 and math.isfinite(max_m)):
+        return math.nan
+    k = math.floor(math.log10(max_m))
+    for m in (5.0, 2.0, 1.0):
+        if m * 10.0**k <= max_m:
+            return m * 10.0**k
+    return 10.0**k  # pragma: no cover - 1 x 10^k always fits
+
+
+def format_length(metres: float) -> str:
+    for unit, f in (("km", 1e3), ("m", 1.0), ("cm", 1e-2), ("mm", 1e-3), ("um", 1e-6)):
+        if metres >= f * 0.999:
+            return f"{metres / f:g} {unit}"
+    return f"{metres:g} m"
+
+
+# --------------------------------------------------------------------------- rendering
+
+
+@dataclass
+class Panel:
+    """One rendered panel of a sheet."""
+
+    kind: PanelKind
+    frame: object  # relview.renderer.Frame
+    metres_per_pixel: float  # at the main body's centre as drawn in this panel; NaN if none
+    scale_distance_m: float  # the distance that scale refers to
+    exposure: str  # "held" or "each"
+
+    @property
+    def title(self) -> str:
+        return self.kind.name
+
+
+@dataclass
+class Sheet:
+    """The panels of one exposure event, and where the figure went (if written)."""
+
+    scene: Scene
+    time: float  # s, scene-frame time of the exposure
+    panels: list[Panel]
+    main_body: str | None
+    beta: np.ndarray  # of the main body at ``time``
+    gamma: float
+    white: float | None  # cd/m2 held across panels, None with exposure="each"
+    metadata: dict = field(default_factory=dict)
+    path: Path | None = None
+    sidecar: Path | None = None
+
+    def panel(self, name: str) -> Panel:
+        key = panel_kind(name).name
+        for p in self.panels:
+            if p.kind.name == key:
+                return p
+        raise KeyError(name)
+
+
+def _panel_scene(scene: Scene, kind: PanelKind, time_s: float) -> Scene:
+    return rest_scene(scene, time_s) if kind.at_rest else scene
+
+
+def _drawn_centre(scene: Scene, index: int, time_s: float, effects: Effects, context):
+    """Where the main body's origin is drawn: its emission position for this panel."""
+    from relview.probes import probe_many
+
+    r = probe_many(scene, index, np.zeros((1, 3)), time_s, effects, context=context)[0]
+    return np.asarray(r.emit_position, float)
+
+
+def render_panels(scene: Scene, time: float | None = None, panels=DEFAULT_PANELS, *,
+                  resolution=None, exposure: str = "held", body=None,
+                  progress: bool = False) -> Sheet:
+    """Render the panels of one exposure event (no file written; see :func:`compare_sheet`).
+
+    ``exposure``: "held" (default): one white level for every panel, the one the scene's
+    exposure setting gives the first panel (a fixed setting is used as it is);
+    "each": every panel exposed by itself (brightness then not comparable).
+    """
+    from relview.renderer import RenderContext, camera_state, render
+
+    if exposure not in ("held", "each"):
+        raise UserError(f"exposure mode must be 'held' or 'each', got {exposure!r}")
+    kinds = parse_panels(panels) if isinstance(panels, str) else [
+        k if isinstance(k, PanelKind) else panel_kind(k) for k in panels]
+    if not kinds:
+        raise UserError("a comparison sheet needs at least one panel")
+    t = scene.camera.time if time is None else float(time)
+    res = tuple(resolution or scene.render.resolution)
+    bi = main_body_index(scene, body, t)
+    beta = body_state(scene, bi, t)[1] if bi is not None else np.zeros(3)
+    white = None
+    out = []
+    bar = None
+    if progress:
+        from tqdm import tqdm
+
+        bar = tqdm(total=len(kinds), desc="panels", unit="panel", leave=False)
+    for kind in kinds:
+        s = _panel_scene(scene, kind, t)
+        context = RenderContext(s, kind.effects)
+        setting = scene.render.exposure if (exposure == "each" or white is None) else white
+        frame = render(s, t, resolution=res, effects=kind.effects, exposure=setting,
+                       context=context)
+        if exposure == "held" and white is None:
+            white = frame.white
+        mpp, dist = math.nan, math.nan
+        if bi is not None:
+            centre = _drawn_centre(s, bi, t, kind.effects, context)
+            cam_pos = camera_state(s, t)[0][1:]
+            dist = scale_distance(s.camera, cam_pos, centre)
+            mpp = metres_per_pixel(s.camera, res[0], dist)
+        out.append(Panel(kind, frame, mpp, dist, exposure))
+        if bar is not None:
+            bar.update(1)
+    if bar is not None:
+        bar.close()
+    name = scene.bodies[bi].name if bi is not None else None
+    sheet = Sheet(scene, t, out, name, beta, float(lorentz_factor(beta)), white)
+    sheet.metadata = sheet_provenance(sheet)
+    return sheet
+
+
+def sheet_provenance(sheet: Sheet) -> dict:
+    """Everything needed to make the sheet again, and the numbers printed on it."""
+    from relview import __version__
+
+    scene = sheet.scene
+    first = sheet.panels[0].frame
+    return {
+        "relview_version": __version__,
+        "title": f"relview comparison: {scene.title or scene.source_path or 'scene'}",
+        "scene": str(scene.source_path or ""),
+        "scene_sha256": scene.source_hash,
+        "time_s": repr(sheet.time),
+        "resolution": first.metadata.get("resolution", ""),
+        "samples": first.metadata.get("samples", ""),
+        "projection": scene.camera.projection,
+        "main_body": sheet.main_body or "",
+        "beta": [float(v) for v in sheet.beta],
+        "gamma": sheet.gamma,
+        "exposure_mode": sheet.panels[0].exposure,
+        "panels": [
+            {
+                "name": p.kind.name,
+                "effects": dataclasses.asdict(p.kind.effects),
+                "bodies_at_rest": p.kind.at_rest,
+                "white_cd_m2": float(p.frame.white),
+                "metres_per_pixel": None if math.isnan(p.metres_per_pixel)
+                else p.metres_per_pixel,
+                "scale_distance_m": None if math.isnan(p.scale_distance_m)
+                else p.scale_distance_m,
+            }
+            for p in sheet.panels
+        ],
+    }
+
+
+# --------------------------------------------------------------------------- drawing
+
+
+def _figure_format(path: Path) -> str:
+    fmt = path.suffix.lstrip(".").lower()
+    if fmt not in ("png", "pdf", "svg"):
+        raise OutputError(f"unknown figure type {path.suffix or '(none)'!r}; "
+                          "use .png (slides), .pdf or .svg (papers)", file=path)
+    return fmt
+
+
+def _draw_scale_bar(ax, mpp: float, width: int, height: int) -> None:
+    """A bar of a round length in the lower left, about a quarter of the panel wide."""
+    length = nice_length(0.3 * width * mpp)
+    if not math.isfinite(length):
+        return
+    px = length / mpp
+    x0, y0 = 0.05 * width, 0.92 * height
+    for colour, lw in (("black", 4.0), ("white", 2.0)):
+        ax.plot([x0, x0 + px], [y0, y0], color=colour, lw=lw, solid_capstyle="butt")
+    ax.text(x0 + px / 2, y0 - 0.03 * height, format_length(length), color="white",
+            ha="center", va="bottom", fontsize="small",
+            bbox=dict(facecolor="black", alpha=0.5, lw=0, pad=1.0))
+
+
+def _time_text(t: float) -> str:
+    return f"t = {t:.6g} s ({t * 1e9:.4g} ns)" if t else "t = 0 s"
+
+
+def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
+    """A matplotlib Figure of the sheet: panels side by side (wrapping after ``columns``)."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    from relview import film
+
+    n = len(sheet.panels)
+    ncol = min(n, columns)
+    nrow = math.ceil(n / ncol)
+    h, w = sheet.panels[0].frame.image.shape[:2]
+    panel_w = 4.0
+    fig = Figure(figsize=(panel_w * ncol, nrow * (panel_w * h / w + 1.1) + 0.7), dpi=100)
+    FigureCanvasAgg(fig)
+    axes = fig.subplots(nrow, ncol, squeeze=False)
+    for ax in axes.ravel()[n:]:
+        ax.set_axis_off()
+    for ax, p in zip(axes.ravel(), sheet.panels):
+        ax.imshow(film.to_8bit(p.frame.image, tone), interpolation="nearest")
+        ax.set_xticks([])
+        ax.set_yticks([])
+        expo = (f"white {p.frame.white:.3g} cd/m2, held" if p.exposure == "held"
+                else f"white {p.frame.white:.3g} cd/m2, own auto")
+        ax.set_title(p.kind.name, fontsize="large", fontweight="bold")
+        ax.text(0.0, -0.02, f"{p.kind.subtitle}\n{expo}", transform=ax.transAxes,
+                fontsize="x-small", ha="left", va="top")
+        if math.isfinite(p.metres_per_pixel):
+            _draw_scale_bar(ax, p.metres_per_pixel, w, h)
+    b = np.linalg.norm(sheet.beta)
+    head = (f"{sheet.scene.title + ': ' if sheet.scene.title else ''}"
+            f"{_time_text(sheet.time)}")
+    if sheet.main_body:
+        head += (f";  {sheet.main_body}: beta = {b:.4g}, gamma = {sheet.gamma:.4g};  "
+                 f"scale bars at {sheet.main_body}'s centre as drawn")
+    fig.suptitle(head, fontsize="medium")
+    foot = (f"relview {sheet.metadata.get('relview_version', '')}  scene sha256 "
+            f"{sheet.scene.source_hash[:16]}  {sheet.metadata.get('resolution', '')}")
+    fig.text(0.995, 0.003, foot, ha="right", va="bottom", fontsize=6, color="0.4")
+    fig.tight_layout(rect=(0, 0.02, 1, 0.97))
+    return fig
+
+
+def _sidecar_path(path: Path) -> Path:
+    return path.with_name(path.name + ".json")
+
+
+def save_figure(fig, path, metadata: dict, overwrite: bool = False) -> tuple[Path, Path]:
+    """Write a matplotlib figure (format by extension) and its JSON sidecar, atomically.
+
+    Returns (figure path, sidecar path); numbered names are used instead of replacing
+    existing files unless ``overwrite``.
+    """
+    from relview import film
+
+    path = Path(path)
+    fmt = _figure_format(path)
+    meta = film.figure_metadata(fmt, metadata)
+    written = film._atomic_write(path, lambda fh: fig.savefig(fh, format=fmt, metadata=meta),
+                                 overwrite)
+    side = film.write_json_sidecar(_sidecar_path(written), metadata, overwrite=overwrite)
+    return written, side
+
+
+def compare_sheet(scene: Scene, time: float | None = None, panels=DEFAULT_PANELS,
+                  out=None, *, resolution=None, exposure: str = "held", body=None,
+                  overwrite: bool = False, progress: bool = False) -> Sheet:
+    """Render a comparison sheet of one exposure event; write it to ``out`` if given.
+
+    ``panels``: names (see :data:`PANELS`) as a list or a comma-separated string.
+    ``out``: .png for slides, .pdf or .svg for papers; a JSON sidecar
+    ``<out>.json`` holds the provenance. Returns the :class:`Sheet`.
+    """
+    if out is not None:
+        _figure_format(Path(out))  # refuse a bad extension before rendering
+    sheet = render_panels(scene, time, panels, resolution=resolution, exposure=exposure,
+                          body=body, progress=progress)
+    if out is not None:
+        fig = draw_sheet(sheet)
+        sheet.path, sheet.sidecar = save_figure(fig, out, sheet.metadata, overwrite)
+    return sheet
+
+
+# --------------------------------------------------------------------------- layer maps
+
+
+@dataclass(frozen=True)
+class LayerView:
+    """How one data layer is shown: label, unit, scale and colour map."""
+
+    label: str
+    unit: str
+    log: bool
+    cmap: str
+    note: str
+
+
+LAYERS: dict[str, LayerView] = {
+    "doppler": LayerView("Doppler factor D = nu_obs / nu_emit", "", True, "RdBu",
+                         "blue: approaching (D > 1), red: receding (D < 1)"),
+    "delay": LayerView("light delay t_exposure - t_emit", "ns", False, "viridis",
+                       "time light took from the surface to the camera"),
+    "emit_time": LayerView("emission time t_emit - t_exposure", "ns", False, "viridis",
+                           "scene-frame time the light left the surface"),
+    "distance": LayerView("distance to the emission point", "m", False, "viridis",
+                          "scene frame, from the camera at the exposure event"),
+    "body": LayerView("body index", "", False, "tab10", "which body each pixel sees"),
+    "luminance": LayerView("luminance Y", "cd/m2", True, "magma", "CIE 1931 Y, observed"),
+}
+
+
+def layer_values(frame, layer: str, camera_position: np.ndarray) -> np.ndarray:
+    """(H, W) float values of the named map layer from a Frame (NaN where nothing)."""
+    L = frame.layers
+    if layer == "doppler":
+        return np.asarray(L["doppler"], float)
+    if layer == "delay":
+        return (frame.time - np.asarray(L["emit_time"], float)) * 1e9
+    if layer == "emit_time":
+        return (np.asarray(L["emit_time"], float) - frame.time) * 1e9
+    if layer == "distance":
+        return np.linalg.norm(np.asarray(L["emit_position"], float) - camera_position, axis=-1)
+    if layer == "body":
+        b = np.asarray(L["body"], float)
+        return np.where(b >= 0, b, np.nan)
+    if layer == "luminance":
+        y = np.asarray(L["xyz"], float)[..., 1]
+        return np.where(y > 0, y, np.nan)
+    raise UserError(f"--layer {layer!r}: unknown layer; choose from: {', '.join(LAYERS)}")
+
+
+def layer_map(scene: Scene, layer: str, out, time: float | None = None, *,
+              panel: str | None = None, resolution=None, overwrite: bool = False,
+              vmin: float | None = None, vmax: float | None = None,
+              progress: bool = False) -> tuple[Path, Path, np.ndarray]:
+    """Render once and write a false-colour map of ``layer`` with a labelled colour bar.
+
+    ``panel``: render with that panel's effects (and rest scene for "rest"); default:
+    the scene's own effects. Returns (figure path, sidecar path, (H, W) values).
+    """
+    from relview import film
+    from relview.renderer import camera_state, render
+
+    if layer not in LAYERS:
+        raise UserError(f"--layer {layer!r}: unknown layer; choose from: {', '.join(LAYERS)}")
+    view = LAYERS[layer]
+    out = Path(out)
+    _figure_format(out)  # refuse a bad extension before rendering
+    t = scene.camera.time if time is None else float(time)
+    if panel is not None:
+        kind = panel_kind(panel)
+        s, effects = _panel_scene(scene, kind, t), kind.effects
+    else:
+        s, effects = scene, scene.render.effects
+    frame = render(s, t, resolution=resolution, effects=effects, progress=progress)
+    values = layer_values(frame, layer, camera_state(s, t)[0][1:])
+    if layer == "doppler" and vmin is None and vmax is None:
+        finite = values[np.isfinite(values) & (values > 0)]
+        # symmetric on the log axis about D = 1, so white means no shift
+        m = float(np.max(np.abs(np.log(finite)))) if finite.size else 0.0
+        m = max(m, math.log(1.01))
+        vmin, vmax = math.exp(-m), math.exp(m)
+    if layer == "body" and vmin is None and vmax is None:
+        vmin, vmax = -0.5, 9.5  # tab10 has ten colours: one per body index 0..9
+    title = f"{view.label}: {_time_text(t)}"
+    if panel is not None:
+        title += f" ({panel_kind(panel).name})"
+    meta = dict(frame.metadata)
+    meta.update({"title": f"relview layer map: {layer}", "layer": layer,
+                 "layer_unit": view.unit, "layer_note": view.note,
+                 "panel": panel_kind(panel).name if panel else ""})
+    written = film.save_layer_figure(out, values, view.label, view.unit, view.log,
+                                     vmin=vmin, vmax=vmax, cmap=view.cmap, title=title,
+                                     overwrite=overwrite, metadata=meta)
+    side = film.write_json_sidecar(_sidecar_path(written), meta, overwrite=overwrite)
+    return written, side, values
+
+
+# --------------------------------------------------------------------------- command line
+
+
+def cmd_compare(args) -> int:
+    from relview.cli import default_output, scene_with_overrides
+
+    scene = scene_with_overrides(args)
+    if args.layer:
+        out = Path(args.output) if args.output else default_output(args.scene,
+                                                                  f"-{args.layer}.png")
+        written, side, _ = layer_map(scene, args.layer, out, args.time, panel=args.panel,
+                                     overwrite=args.overwrite, progress=not args.quiet)
+        print(f"wrote {written}\nwrote {side}")
+        return 0
+    if args.panel:
+        raise UserError("--panel goes with --layer; for a sheet use --panels LIST")
+    out = Path(args.output) if args.output else default_output(args.scene, "-compare.png")
+    sheet = compare_sheet(scene, args.time, args.panels, out, exposure=args.exposure_mode,
+                          body=args.body, overwrite=args.overwrite, progress=not args.quiet)
+    for p in sheet.panels:
+        scale = (f"{p.metres_per_pixel:.4g} m/px at {p.scale_distance_m:.4g} m"
+                 if math.isfinite(p.metres_per_pixel) else "no scale")
+        print(f"  {p.kind.name:<16} white {p.frame.white:.4g} cd/m2  {scale}")
+    print(f"wrote {sheet.path}\nwrote {sheet.sidecar}")
+    return 0
+
+
+def register_cli(subparsers) -> None:
+    """Add the ``compare`` command (picked up by relview.cli)."""
+    from relview.cli import add_frame_options
+
+    p = subparsers.add_parser(
+        "compare", help="side-by-side panels of one exposure (rest / measured / photograph), "
+        "or a false-colour map of one data layer")
+    p.add_argument("scene", metavar="SCENE")
+    p.add_argument("-o", "--output", metavar="FILE",
+                   help="figure: .png (slides), .pdf or .svg (papers); a FILE.json sidecar "
+                   "is written beside it")
+    p.add_argument("--time", type=float, metavar="S", help="exposure time (s), scene frame")
+    p.add_argument("--panels", default=",".join(DEFAULT_PANELS), metavar="LIST",
+                   help=f"comma-separated panels from: {', '.join(PANELS)} "
+                   f"(default {','.join(DEFAULT_PANELS)})")
+    p.add_argument("--body", metavar="NAME",
+                   help="the main body for speed and scale bar (default: the fastest)")
+    p.add_argument("--exposure-mode", choices=("held", "each"), default="held",
+                   help="held: one white level for all panels (default); each: per panel")
+    p.add_argument("--layer", choices=tuple(LAYERS), metavar="NAME",
+                   help=f"instead of a sheet, a false-colour map of one layer: "
+                   f"{', '.join(LAYERS)}")
+    p.add_argument("--panel", metavar="NAME",
+                   help="with --layer: render with this panel's effects (default: the scene's)")
+    add_frame_options(p)
+    p.set_defaults(func=cmd_compare)
+
+
+__all__ = [
+    "DEFAULT_PANELS", "LAYERS", "PANELS", "Panel", "PanelKind", "Sheet", "body_state",
+    "compare_sheet", "draw_sheet", "layer_map", "layer_values", "main_body_index",
+    "metres_per_pixel", "nice_length", "panel_kind", "parse_panels", "register_cli",
+    "render_panels", "rest_scene", "save_figure", "scale_distance", "sheet_provenance",
+]
