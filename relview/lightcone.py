@@ -155,6 +155,21 @@ def snapshot(motion, vertices, faces, camera_event, effects, tolerance: float = 
     return Snapshot(positions, sub[keep], parent[keep], pts, bary, ev, beta, n, err)
 
 
+def check_body_speed(scene, index: int, vertices) -> None:
+    """Reject a body some point of which would move at or above c under its motion
+    (:meth:`relview.motion.RigidKinematics.validate` over the mesh's radius), as a
+    SceneError naming the scene file and the body."""
+    from relview.errors import SceneError
+
+    body = scene.bodies[index]
+    extent = float(np.sqrt((np.asarray(vertices, float) ** 2).sum(axis=1).max())) if len(vertices) else 0.0
+    try:
+        as_kinematics(body.motion).validate(extent)
+    except ValueError as err:
+        source = getattr(scene, "source_path", None)
+        raise SceneError(str(err), file=source, key=f'[body.motion] (body "{body.name}")') from None
+
+
 def pixel_tolerance(scene) -> float:
     """PIXEL_FRACTION of the angular width (rad) of one pixel of the scene's camera
     (horizontal field of view / width; the panorama spans 2 pi)."""
@@ -180,6 +195,7 @@ def snapshot_groups(scene, meshes, indices, camera_event, effects, tolerance: fl
     for i in indices:
         body = scene.bodies[i]
         verts, faces = meshes[i]
+        check_body_speed(scene, i, verts)
         snap = snapshot(body.motion, verts, faces, cam, effects, tolerance, max_triangles)
         rot = body.rotation_matrix()
         group = FrameGroup(

@@ -498,12 +498,6 @@ class HyperbolicMotion(RigidKinematics):
                 "and reach c)"
             )
 
-    def max_speed(self, extent_m: float, times_ct=None) -> float:
-        if times_ct is None:
-            self._closed_form_check(float(extent_m))
-            return 1.0  # approached as t -> +-inf, never reached
-        return super().max_speed(extent_m, times_ct)
-
     def proper_acceleration(self, xi_m) -> np.ndarray:
         """Proper acceleration (m/s^2) of the point ``xi_m`` metres ahead of the origin along
         the acceleration: c^2 / (L + xi) (Born-rigid; Rindler 2006, §3.8)."""

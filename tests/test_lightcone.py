@@ -124,3 +124,16 @@ def test_rolling_wheel_contact_point_seen_at_rest():
     np.testing.assert_allclose(hits.beta_emit[0], beta[0], atol=2 * tol)
     np.testing.assert_allclose(hits.rest_position[0], contact, atol=2 * tol * hits.l[0])
     assert hits.emit_event[0, 0] == pytest.approx(ev[0, 0], abs=2 * tol * hits.l[0])
+
+
+def test_body_too_large_for_its_motion_is_a_scene_error():
+    # A 3 m box on an orbit of radius 1 m at beta = 0.9: its outer points would exceed c
+    # (relview.motion OrbitMotion.outward_limit, 0.144 m here).
+    from relview.errors import SceneError
+    from relview.motion import OrbitMotion
+
+    verts, faces = box_mesh()
+    body = Body(name="crate", shape="mesh", surface=None,
+                motion=OrbitMotion(center=np.zeros(3), radius=1.0, beta=0.9))
+    with pytest.raises(SceneError, match=r'body "crate".*cannot follow this orbit'):
+        snapshot_groups(SimpleNamespace(bodies=[body]), [(verts * 3, faces)], [0], np.zeros(4), Effects())

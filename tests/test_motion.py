@@ -401,6 +401,14 @@ def test_spin_on_path_matches_brentq():
     check_retarded_against_brentq(mot, pts, np.array([4.0, 1.0, -3.0, 0.5]))  # scipy brentq, independent
 
 
+def test_spin_on_hyperbolic_matches_brentq():
+    base = HyperbolicMotion(acceleration=np.array([0.0, 2.0e16, 0.0]), position=np.array([0.0, 1.0, 0.0]), time=0.0)
+    mot = SpinMotion(base=base, axis=np.array([0.0, 1.0, 0.0]), angular_velocity=0.6 * C)
+    mot.validate(1.0)
+    pts = RNG.uniform(-0.6, 0.6, size=(6, 3))
+    check_retarded_against_brentq(mot, pts, np.array([3.0, 2.0, -2.0, 0.5]))  # scipy brentq, independent
+
+
 def test_spin_rejects_rim_at_light_speed():
     mot = SpinMotion(base=UniformMotion(beta=np.array([0.5, 0, 0])), angular_velocity=0.5 * C)  # 0.5 c at 1 m
     mot.validate(1.9)
