@@ -17,7 +17,9 @@ Projections:
 from __future__ import annotations
 
 import numpy as np
+from numba import njit, prange
 
+from relview.lorentz import boost_matrix
 from relview.scene import Camera
 
 PROJECTIONS = ("pinhole", "panorama", "fisheye")
@@ -113,3 +115,64 @@ def pixel_solid_angle(camera: Camera, width: int, height: int) -> np.ndarray:
         with np.errstate(invalid="ignore", divide="ignore"):
             om = np.where(theta > 1e-9, k * k * np.sin(theta) / np.maximum(theta, 1e-300), k * k)
     return om.reshape(height, width)
+
+
+_PROJECTION_CODE = {"pinhole": 0, "panorama": 1, "fisheye": 2}
+
+
+@njit(parallel=True, cache=True)
+def _scene_directions(px, width, height, basis, code, fov_rad, to_scene, aberrate):
+    n = px.shape[0]
+    out = np.empty((n, 3))
+    valid = np.ones(n, np.bool_)
+    f = (width / 2.0) / np.tan(fov_rad / 2.0)
+    half = fov_rad / 2.0
+    for i in prange(n):
+        x = px[i, 0] - width / 2.0
+        y = height / 2.0 - px[i, 1]
+        if code == 0:
+            r = np.sqrt(x * x + y * y + f * f)
+            lx, ly, lz = x / r, y / r, f / r
+        elif code == 1:
+            lon = x / width * 2.0 * np.pi
+            lat = y / height * np.pi
+            lx = np.cos(lat) * np.sin(lon)
+            ly = np.sin(lat)
+            lz = np.cos(lat) * np.cos(lon)
+        else:
+            th = np.sqrt(x * x + y * y) / (width / 2.0) * half
+            if th > min(half, np.pi):
+                valid[i] = False
+            ph = np.arctan2(y, x)
+            st = np.sin(th)
+            lx, ly, lz = st * np.cos(ph), st * np.sin(ph), np.cos(th)
+        dx = lx * basis[0, 0] + ly * basis[1, 0] + lz * basis[2, 0]
+        dy = lx * basis[0, 1] + ly * basis[1, 1] + lz * basis[2, 1]
+        dz = lx * basis[0, 2] + ly * basis[1, 2] + lz * basis[2, 2]
+        if aberrate:
+            # photon 4-momentum (1, -d) in the camera frame, boosted into S
+            k0 = to_scene[0, 0] - to_scene[0, 1] * dx - to_scene[0, 2] * dy - to_scene[0, 3] * dz
+            k1 = to_scene[1, 0] - to_scene[1, 1] * dx - to_scene[1, 2] * dy - to_scene[1, 3] * dz
+            k2 = to_scene[2, 0] - to_scene[2, 1] * dx - to_scene[2, 2] * dy - to_scene[2, 3] * dz
+            k3 = to_scene[3, 0] - to_scene[3, 1] * dx - to_scene[3, 2] * dy - to_scene[3, 3] * dz
+            dx, dy, dz = -k1 / k0, -k2 / k0, -k3 / k0
+        out[i, 0] = dx
+        out[i, 1] = dy
+        out[i, 2] = dz
+    return out, valid
+
+
+def scene_directions(camera: Camera, width: int, height: int, pixels: np.ndarray,
+                     beta_cam=None):
+    """(N, 2) pixel positions -> ((N, 3) unit S directions towards the source, (N,) valid).
+
+    The same as :func:`pixels_to_directions` followed by
+    :func:`relview.lorentz.aberrate_to_scene` with ``beta_cam`` (None or zero: no
+    aberration), fused into one compiled loop.
+    """
+    beta = np.zeros(3) if beta_cam is None else np.asarray(beta_cam, float)
+    aberrate = bool(np.any(beta))
+    to_scene = boost_matrix(-beta)
+    return _scene_directions(np.ascontiguousarray(pixels, dtype=np.float64), float(width),
+                             float(height), camera.basis(), _PROJECTION_CODE[camera.projection],
+                             float(np.radians(camera.fov)), to_scene, aberrate)

@@ -15,6 +15,7 @@ All functions take plain numpy arrays and broadcast over leading axes.
 from __future__ import annotations
 
 import numpy as np
+from numba import njit, prange
 
 #: Speed of light in vacuum, m/s (exact, SI definition since 1983).
 C = 299_792_458.0
@@ -132,3 +133,33 @@ def contract(x_rest, beta) -> np.ndarray:
     g = float(lorentz_factor(beta))
     along = (x_rest @ beta) / b2
     return x_rest - np.multiply.outer(along, beta) * (1.0 - 1.0 / g)
+
+
+@njit(parallel=True, cache=True)
+def _doppler_along(beta_emit, d_scene, beta_cam, relativistic):
+    n = d_scene.shape[0]
+    out = np.empty(n)
+    bc2 = beta_cam[0] ** 2 + beta_cam[1] ** 2 + beta_cam[2] ** 2
+    g_cam = 1.0 / np.sqrt(1.0 - bc2) if relativistic else 1.0
+    for i in prange(n):
+        # n = -d: propagation direction, emitter -> camera
+        num = 1.0 + (beta_cam[0] * d_scene[i, 0] + beta_cam[1] * d_scene[i, 1]
+                     + beta_cam[2] * d_scene[i, 2])
+        den = 1.0 + (beta_emit[i, 0] * d_scene[i, 0] + beta_emit[i, 1] * d_scene[i, 1]
+                     + beta_emit[i, 2] * d_scene[i, 2])
+        if relativistic:
+            be2 = beta_emit[i, 0] ** 2 + beta_emit[i, 1] ** 2 + beta_emit[i, 2] ** 2
+            den = den / np.sqrt(1.0 - be2)
+        out[i] = g_cam * num / den
+    return out
+
+
+def doppler_along(beta_emit, d_scene, beta_cam, relativistic: bool = True) -> np.ndarray:
+    """D for (N, 3) emitter velocities seen along (N, 3) unit S directions towards them.
+
+    Same formula as :func:`doppler_factor` with n = -d; ``relativistic=False`` drops the
+    gamma factors (classical Doppler factor of light moving at c in S). Compiled loop.
+    """
+    be = np.ascontiguousarray(np.broadcast_to(beta_emit, np.shape(d_scene)), dtype=np.float64)
+    return _doppler_along(be, np.ascontiguousarray(d_scene, dtype=np.float64),
+                          np.asarray(beta_cam, dtype=np.float64).reshape(3), bool(relativistic))

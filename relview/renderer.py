@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from relview import camera as cam_mod
-from relview.lorentz import C, lorentz_factor
+from relview.lorentz import C
 from relview.scene import Effects, Scene, UniformMotion
 from relview.trace import Hits, Tracer, uniform_groups
 
@@ -122,13 +122,9 @@ def doppler_along(beta_emit: np.ndarray, d_scene: np.ndarray, beta_cam: np.ndarr
     kinematics, no time dilation) the gammas are dropped: the classical Doppler
     factor for light moving at c in S.
     """
-    n = -np.asarray(d_scene, float)
-    num = 1.0 - n @ np.asarray(beta_cam, float)
-    den = 1.0 - np.sum(beta_emit * n, axis=-1)
-    if effects.contraction:
-        num = num * lorentz_factor(beta_cam)
-        den = den * lorentz_factor(beta_emit)
-    return num / den
+    from relview.lorentz import doppler_along as _kernel
+
+    return _kernel(beta_emit, d_scene, beta_cam, relativistic=effects.contraction)
 
 
 def doppler_of_hits(hits: Hits, d_scene: np.ndarray, beta_cam: np.ndarray,
@@ -241,13 +237,7 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
         px = centres[a:b]
         if s > 0:
             px = px + rng.uniform(-0.5, 0.5, size=px.shape)
-        d_cam, valid = cam_mod.pixels_to_directions(cam, width, height, px)
-        if np.any(beta_for_rays):
-            from relview.lorentz import aberrate_to_scene
-
-            d_s = aberrate_to_scene(d_cam, beta_for_rays)
-        else:
-            d_s = d_cam
+        d_s, valid = cam_mod.scene_directions(cam, width, height, px, beta_for_rays)
         origin = np.broadcast_to(event, (len(d_s), 4))
         hits = tracer.cast(origin, d_s, effects)
         hits.body[~valid] = -1

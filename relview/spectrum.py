@@ -20,6 +20,7 @@ import math
 from typing import Callable, Hashable
 
 import numpy as np
+from numba import njit, prange
 import scipy.constants as sc
 
 # --------------------------------------------------------------------------------------
@@ -451,16 +452,39 @@ class DopplerTable:
         ld = np.log(d)
         if ld.min() < self.log_d[0] or ld.max() > self.log_d[-1]:
             self._grow(float(ld.min()), float(ld.max()))
-        i = np.clip(np.searchsorted(self.log_d, ld, side="right") - 1, 0, len(self.log_d) - 2)
-        t = ((ld - self.log_d[i]) / (self.log_d[i + 1] - self.log_d[i]))[..., None]
-        lin = (1.0 - t) * self.xyz[i] + t * self.xyz[i + 1]
-        with np.errstate(invalid="ignore", over="ignore"):
-            in_log = np.exp((1.0 - t) * self._log_xyz[i] + t * self._log_xyz[i + 1])
-        return np.where(self.use_log[i], in_log, lin)
+        flat = _interpolate_table(np.ascontiguousarray(ld.ravel()), self.log_d, self.xyz,
+                                  self._log_xyz, np.ascontiguousarray(self.use_log))
+        return flat.reshape(ld.shape + (3,))
 
     def direct(self, doppler) -> np.ndarray:
         """The same quantity by direct integration (slow; for checks)."""
         return observed_xyz_direct(self.radiance, doppler, self.knots_nm)
+
+
+@njit(parallel=True, cache=True)
+def _interpolate_table(ld, log_d, xyz, log_xyz, use_log):
+    """Per value: bracket ln D by bisection, then interpolate each channel linearly in
+    (ln D, ln XYZ) where the interval allows it (use_log), else linearly in XYZ."""
+    n = ld.shape[0]
+    m = log_d.shape[0]
+    out = np.empty((n, 3))
+    for j in prange(n):
+        x = ld[j]
+        lo = 0
+        hi = m - 1
+        while hi - lo > 1:  # log_d[lo] <= x < log_d[hi] (clamped to the end intervals)
+            mid = (lo + hi) >> 1
+            if log_d[mid] <= x:
+                lo = mid
+            else:
+                hi = mid
+        t = (x - log_d[lo]) / (log_d[lo + 1] - log_d[lo])
+        for c in range(3):
+            if use_log[lo, c]:
+                out[j, c] = np.exp((1.0 - t) * log_xyz[lo, c] + t * log_xyz[lo + 1, c])
+            else:
+                out[j, c] = (1.0 - t) * xyz[lo, c] + t * xyz[lo + 1, c]
+    return out
 
 
 _TABLE_CACHE: dict[Hashable, DopplerTable] = {}
