@@ -105,25 +105,111 @@ def _solve_unique(kin, points, camera_event, effects):
     return ev[inverse], beta[inverse]
 
 
-def _chord_error(kin, points, ev, beta, faces, camera_event, effects, rng) -> float:
-    """Largest chord error (module docstring) over the sub-edges of ``faces``."""
+def _chord_errors(kin, points, ev, beta, a, b, camera_event, effects):
+    """Chord error (module docstring) of edges a-b, with the exact midpoint images.
+    NaN where an end has no retarded event."""
+    mid = 0.5 * (points[a] + points[b])
+    ev_mid, beta_mid = _solve_unique(kin, mid, camera_event, effects)
+    chord = 0.5 * (ev[a, 1:] + ev[b, 1:])
+    dist = np.linalg.norm(ev_mid[:, 1:] - camera_event[1:], axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        angle = np.linalg.norm(ev_mid[:, 1:] - chord, axis=1) / dist
+    dbeta = np.linalg.norm(beta_mid - 0.5 * (beta[a] + beta[b]), axis=1)
+    return np.maximum(angle, dbeta), mid, ev_mid, beta_mid
+
+
+def _uniform_error(kin, points, ev, beta, faces, camera_event, effects, rng) -> float:
+    """Largest chord error over the sub-edges of ``faces`` (a seeded sample if many)."""
     edges = np.concatenate([faces[:, [0, 1]], faces[:, [1, 2]], faces[:, [2, 0]]])
     edges = np.unique(np.sort(edges, axis=1), axis=0)
     if edges.shape[0] > MAX_CHECKED_EDGES:
         edges = edges[rng.choice(edges.shape[0], MAX_CHECKED_EDGES, replace=False)]
-    a, b = edges[:, 0], edges[:, 1]
-    ok = np.all(np.isfinite(ev[a]), axis=1) & np.all(np.isfinite(ev[b]), axis=1)
-    a, b = a[ok], b[ok]
-    if a.size == 0:
-        return 0.0
-    mid = 0.5 * (points[a] + points[b])
-    ev_mid, beta_mid = kin.retarded(mid, camera_event, delay=effects.delay, contraction=effects.contraction)
-    chord = 0.5 * (ev[a, 1:] + ev[b, 1:])
-    rng_dist = np.linalg.norm(ev_mid[:, 1:] - camera_event[1:], axis=1)
-    angle = np.linalg.norm(ev_mid[:, 1:] - chord, axis=1) / np.maximum(rng_dist, 1e-300)
-    dbeta = np.linalg.norm(beta_mid - 0.5 * (beta[a] + beta[b]), axis=1)
-    worst = np.nanmax(np.maximum(angle, dbeta)) if angle.size else 0.0
-    return float(worst)
+    err, _, _, _ = _chord_errors(kin, points, ev, beta, edges[:, 0], edges[:, 1], camera_event, effects)
+    err = err[np.isfinite(err)]
+    return float(err.max()) if err.size else 0.0
+
+
+def _split_marked(tri, mid, parent):
+    """One red-green refinement step. ``mid`` (F, 3) holds the new vertex on edge j
+    (vertex j to j+1) or -1. Faces keep their orientation; faces sharing an edge split it
+    the same way, so the mesh stays conforming."""
+    marked = mid >= 0
+    count = marked.sum(axis=1)
+    # rotate each face so that a single marked edge is edge 0, or the single unmarked
+    # edge of a two-marked face is edge 2
+    shift = np.zeros(len(tri), np.int64)
+    one = count == 1
+    shift[one] = np.argmax(marked[one], axis=1)
+    two = count == 2
+    shift[two] = (np.argmin(marked[two], axis=1) + 1) % 3
+    order = (np.arange(3)[None] + shift[:, None]) % 3
+    v = np.take_along_axis(tri, order, axis=1)
+    m = np.take_along_axis(mid, order, axis=1)
+    v0, v1, v2 = v[:, 0], v[:, 1], v[:, 2]
+    m0, m1, m2 = m[:, 0], m[:, 1], m[:, 2]
+    parts, owners = [], []
+
+    def add(sel, *corners):
+        parts.append(np.stack([c[sel] for c in corners], axis=1))
+        owners.append(parent[sel])
+
+    keep = count == 0
+    add(keep, v0, v1, v2)
+    add(one, v0, m0, v2)
+    add(one, m0, v1, v2)
+    add(two, m0, v1, m1)
+    add(two, v0, m0, m1)
+    add(two, v0, m1, v2)
+    three = count == 3
+    add(three, v0, m0, m2)
+    add(three, m0, v1, m1)
+    add(three, m2, m1, v2)
+    add(three, m0, m1, m2)
+    return np.concatenate(parts), np.concatenate(owners)
+
+
+def _adaptive(kin, vertices, faces, cam, effects, tolerance, max_triangles, max_rounds=14):
+    """Red-green refinement of every edge whose chord error exceeds the tolerance; the
+    exact midpoint images computed for the test become the new vertices."""
+    f0 = len(faces)
+    points = vertices[faces].reshape(-1, 3)  # each face owns its corners (per-face bary)
+    tri = np.arange(3 * f0, dtype=np.int64).reshape(f0, 3)
+    parent = np.arange(f0, dtype=np.int64)
+    bary = np.tile(np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]]), (f0, 1))
+    ev, beta = _solve_unique(kin, points, cam, effects)
+    good = np.empty(0, np.int64)  # keys of edges measured within tolerance
+    error = 0.0
+    for _ in range(max_rounds):
+        ends = np.stack([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [2, 0]]], axis=1)  # (F, 3, 2)
+        key = np.minimum(ends[..., 0], ends[..., 1]) * (1 << 32) + np.maximum(ends[..., 0], ends[..., 1])
+        ukey, inverse = np.unique(key.ravel(), return_inverse=True)
+        todo = np.nonzero(~np.isin(ukey, good, assume_unique=True))[0]
+        if todo.size == 0:
+            break
+        a, b = ukey[todo] >> 32, ukey[todo] & 0xFFFFFFFF
+        err, mid_pts, ev_mid, beta_mid = _chord_errors(kin, points, ev, beta, a, b, cam, effects)
+        bad = np.isfinite(err) & (err > tolerance)
+        ok = ~bad
+        if np.any(ok & np.isfinite(err)):
+            error = max(error, float(np.max(err[ok & np.isfinite(err)])))
+        good = np.union1d(good, ukey[todo[ok]])
+        if not np.any(bad):
+            break
+        mid_of = np.full(len(ukey), -1, np.int64)
+        new = len(points) + np.arange(int(bad.sum()))
+        mid_of[todo[bad]] = new
+        mid = mid_of[inverse.reshape(-1)].reshape(-1, 3)
+        if len(tri) + int((mid >= 0).sum()) > max_triangles:  # budget reached: stop here
+            error = max(error, float(np.max(err[bad])))
+            break
+        points = np.concatenate([points, mid_pts[bad]])
+        ev = np.concatenate([ev, ev_mid[bad]])
+        beta = np.concatenate([beta, beta_mid[bad]])
+        bary = np.concatenate([bary, 0.5 * (bary[a[bad]] + bary[b[bad]])])
+        tri, parent = _split_marked(tri, mid, parent)
+    else:
+        error = max(error, tolerance)  # rounds exhausted: not verified below the tolerance
+    return points, tri, parent, bary, ev, beta, error
 
 
 def snapshot(motion, vertices, faces, camera_event, effects, tolerance: float = DEFAULT_TOLERANCE,
@@ -131,25 +217,25 @@ def snapshot(motion, vertices, faces, camera_event, effects, tolerance: float = 
     """The mesh (rest-frame vertices (V,3) m, faces (F,3)) of a body moving with ``motion``,
     placed on the past light cone of ``camera_event`` (4,) [ct, x, y, z] m.
 
-    ``segments`` fixes n; otherwise n is chosen for ``tolerance`` (see module docstring),
-    limited so that F n^2 <= ``max_triangles``; the measured error is in the result.
-    Faces with a vertex that no light from reaches the camera (NaN) are dropped.
+    Default: adaptive red-green refinement until every edge's measured chord error is
+    within ``tolerance`` (or the mesh reaches ``max_triangles``). ``segments`` instead
+    splits every face uniformly into segments^2 triangles. The measured error is in the
+    result (``segments`` is 0 for the adaptive mesh). Faces with a vertex that no light
+    from reaches the camera (NaN) are dropped.
     """
     kin = as_kinematics(motion)
     vertices = np.asarray(vertices, float)
     faces = np.asarray(faces, np.int64)
     cam = np.asarray(camera_event, float).reshape(4)
-    rng = np.random.default_rng(0)
-    n_cap = max(1, int(math.floor(math.sqrt(max_triangles / max(len(faces), 1)))))
-    n = 1 if segments is None else int(segments)
-    for _ in range(4):
+    if segments is None:
+        pts, sub, parent, bary, ev, beta, err = _adaptive(kin, vertices, faces, cam, effects, tolerance,
+                                                          max_triangles)
+        n = 0
+    else:
+        n = int(segments)
         pts, sub, parent, bary = _split_faces(vertices, faces, n)
         ev, beta = _solve_unique(kin, pts, cam, effects)
-        err = _chord_error(kin, pts, ev, beta, sub, cam, effects, rng)
-        if segments is not None or err <= tolerance or n >= n_cap:
-            break
-        # chord error ~ 1/n^2: aim 20% below the tolerance
-        n = min(n_cap, max(n + 1, int(math.ceil(n * math.sqrt(err / (0.8 * tolerance))))))
+        err = _uniform_error(kin, pts, ev, beta, sub, cam, effects, np.random.default_rng(0))
     keep = np.all(np.isfinite(ev[sub, 0]), axis=1)
     positions = np.where(np.isfinite(ev[:, 1:]), ev[:, 1:], 0.0)  # unused where NaN (faces dropped)
     return Snapshot(positions, sub[keep], parent[keep], pts, bary, ev, beta, n, err)
