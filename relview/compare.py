@@ -48,8 +48,8 @@ class PanelKind:
     at_rest: bool = False  # render the rest scene (every beta = 0) instead of the scene
 
 
-_SHAPE_ONLY = dict(delay=False, contraction=True, aberration=False, doppler=False,
-                   beaming=False)
+_SHAPE_ONLY = {"delay": False, "contraction": True, "aberration": False, "doppler": False,
+               "beaming": False}
 
 PANELS: dict[str, PanelKind] = {
     k.name: k
@@ -101,7 +101,7 @@ def parse_panels(text: str) -> list[PanelKind]:
     names = [k.name for k in kinds]
     dup = {n for n in names if names.count(n) > 1}
     if dup:
-        raise UserError(f"--panels {text!r}: panel {sorted(dup)[0]!r} is named twice")
+        raise UserError(f"--panels {text!r}: panel {min(dup)!r} is named twice")
     return kinds
 
 
@@ -285,7 +285,8 @@ def render_panels(scene: Scene, time: float | None = None, panels=DEFAULT_PANELS
     """Render the panels of one exposure event (no file written; see :func:`compare_sheet`).
 
     ``exposure``: "held" (default): one white level for every panel, the one the scene's
-    exposure setting gives the first panel (a fixed setting is used as it is);
+    exposure setting gives the first panel without Doppler colour or beaming (or, if
+    every panel has them, an extra unshown "rest" render); a fixed setting is used as it is;
     "each": every panel exposed by itself (brightness then not comparable).
     """
     from relview.renderer import RenderContext, camera_state, render
@@ -301,13 +302,24 @@ def render_panels(scene: Scene, time: float | None = None, panels=DEFAULT_PANELS
     bi = main_body_index(scene, body, t)
     beta = body_state(scene, bi, t)[1] if bi is not None else np.zeros(3)
     white = None
-    out = []
+    # Held exposure is set by rest-frame brightness: the first panel without Doppler colour
+    # and beaming goes first and fixes the white; with none among the panels, an unshown
+    # "rest" render fixes it. Every sheet of a scene then maps the same light to white.
+    order = sorted(range(len(kinds)), key=lambda i: kinds[i].effects.doppler
+                   or kinds[i].effects.beaming)
+    if exposure == "held" and scene.render.exposure != "auto":
+        white = float(scene.render.exposure)
+    elif exposure == "held" and all(k.effects.doppler or k.effects.beaming for k in kinds):
+        white = render(_panel_scene(scene, PANELS["rest"], t), t, resolution=res,
+                       effects=PANELS["rest"].effects).white
+    out: list[Panel | None] = [None] * len(kinds)
     bar = None
     if progress:
         from tqdm import tqdm
 
         bar = tqdm(total=len(kinds), desc="panels", unit="panel", leave=False)
-    for kind in kinds:
+    for i in order:
+        kind = kinds[i]
         s = _panel_scene(scene, kind, t)
         context = RenderContext(s, kind.effects)
         setting = scene.render.exposure if (exposure == "each" or white is None) else white
@@ -321,7 +333,7 @@ def render_panels(scene: Scene, time: float | None = None, panels=DEFAULT_PANELS
             cam_pos = camera_state(s, t)[0][1:]
             dist = scale_distance(s.camera, cam_pos, centre)
             mpp = metres_per_pixel(s.camera, res[0], dist)
-        out.append(Panel(kind, frame, mpp, dist, exposure))
+        out[i] = Panel(kind, frame, mpp, dist, exposure)
         if bar is not None:
             bar.update(1)
     if bar is not None:
@@ -389,7 +401,7 @@ def _draw_scale_bar(ax, mpp: float, width: int, height: int) -> None:
         ax.plot([x0, x0 + px], [y0, y0], color=colour, lw=lw, solid_capstyle="butt")
     ax.text(x0 + px / 2, y0 - 0.03 * height, format_length(length), color="white",
             ha="center", va="bottom", fontsize="small",
-            bbox=dict(facecolor="black", alpha=0.5, lw=0, pad=1.0))
+            bbox={"facecolor": "black", "alpha": 0.5, "lw": 0, "pad": 1.0})
 
 
 def _time_text(t: float) -> str:
@@ -408,7 +420,8 @@ def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
     nrow = math.ceil(n / ncol)
     h, w = sheet.panels[0].frame.image.shape[:2]
     panel_w = 4.0
-    fig = Figure(figsize=(panel_w * ncol, nrow * (panel_w * h / w + 1.1) + 0.7), dpi=100)
+    fig = Figure(figsize=(panel_w * ncol, nrow * (panel_w * h / w + 1.0) + 0.5), dpi=100,
+                 layout="constrained")
     FigureCanvasAgg(fig)
     axes = fig.subplots(nrow, ncol, squeeze=False)
     for ax in axes.ravel()[n:]:
@@ -433,8 +446,7 @@ def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
     fig.suptitle(head, fontsize="medium")
     foot = (f"relview {sheet.metadata.get('relview_version', '')}  scene sha256 "
             f"{sheet.scene.source_hash[:16]}  {sheet.metadata.get('resolution', '')}")
-    fig.text(0.995, 0.003, foot, ha="right", va="bottom", fontsize=6, color="0.4")
-    fig.tight_layout(rect=(0, 0.02, 1, 0.97))
+    fig.supxlabel(foot, x=0.995, ha="right", fontsize=6, color="0.4")
     return fig
 
 
@@ -559,7 +571,7 @@ def layer_map(scene: Scene, layer: str, out, time: float | None = None, *,
         vmin, vmax = math.exp(-m), math.exp(m)
     if layer == "body" and vmin is None and vmax is None:
         vmin, vmax = -0.5, 9.5  # tab10 has ten colours: one per body index 0..9
-    title = f"{view.label}: {_time_text(t)}"
+    title = f"{scene.title + ': ' if scene.title else ''}{layer}, {_time_text(t)}"
     if panel is not None:
         title += f" ({panel_kind(panel).name})"
     meta = dict(frame.metadata)

@@ -44,8 +44,8 @@ COLUMNS: dict[str, tuple[str, str]] = {
     "emit_z_m": ("m", "scene frame z"),
     "light_delay_s": ("s", "exposure time minus emission time"),
     "azimuth_deg": ("deg", "apparent direction, camera frame: angle right of the view axis"),
-    "elevation_deg": ("deg", "apparent direction, camera frame: angle above the image "
-                             "horizontal plane"),
+    "elevation_deg": ("deg", ("apparent direction, camera frame: angle above the image "
+                              "horizontal plane")),
     "pixel_x": ("px", "image column, from the left edge (centres at half-integers)"),
     "pixel_y": ("px", "image row, from the top edge"),
     "in_view": ("", "the projection has an image of the direction (pixel may be off-image)"),
@@ -57,12 +57,12 @@ COLUMNS: dict[str, tuple[str, str]] = {
 LENGTH_COLUMNS: dict[str, tuple[str, str]] = {
     "time_s": ("s", "exposure time, scene frame"),
     "photographed_length_m": ("m", "distance between the two emission positions"),
-    "photographed_along_motion_m": ("m", "its component along the body's velocity at the "
-                                         "first point's emission (NaN at rest)"),
+    "photographed_along_motion_m": ("m", ("its component along the body's velocity at the "
+                                          "first point's emission (NaN at rest)")),
     "angular_separation_deg": ("deg", "angle between the two apparent directions"),
     "rest_length_m": ("m", "L0, distance between the points in the body's rest frame"),
-    "contracted_length_m": ("m", "distance between the points at one instant of the scene "
-                                 "frame (L0 / gamma along the motion)"),
+    "contracted_length_m": ("m", ("distance between the points at one instant of the "
+                                  "scene frame (L0 / gamma along the motion)")),
 }
 
 _BOOL_COLUMNS = ("in_view", "visible")
@@ -138,7 +138,7 @@ def table_provenance(scene: Scene, body_name: str, points: np.ndarray, times: np
         "scene_sha256": scene.source_hash,
         "body": body_name,
         "points_m": [[float(v) for v in p] for p in points],
-        "times_s": [float(times[0]), float(times[-1]), int(len(times))],
+        "times_s": [float(times[0]), float(times[-1]), len(times)],
         "effects": dataclasses.asdict(effects),
         "resolution": "x".join(str(v) for v in scene.render.resolution),
         "projection": scene.camera.projection,
@@ -351,9 +351,11 @@ def draw_table(table: ProbeTable):
     axes[0].legend(fontsize="x-small", ncol=2)
     axes[1].set_ylabel("Doppler factor D")
     axes[1].set_yscale("log")
-    plain = FuncFormatter(lambda v, _pos: f"{v:g}")  # 0.6, 1, 2 rather than 6 x 10^-1
-    axes[1].yaxis.set_major_formatter(plain)
-    axes[1].yaxis.set_minor_formatter(plain)
+    # plain numbers (0.5, 1, 2) rather than 5 x 10^-1; minor ticks labelled at 2, 3 and 5 only
+    axes[1].yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+    axes[1].yaxis.set_minor_formatter(FuncFormatter(
+        lambda v, _pos: f"{v:g}" if v > 0 and round(v / 10 ** math.floor(math.log10(v)))
+        in (2, 3, 5) else ""))
     axes[1].axhline(1.0, color="0.6", lw=0.8)
     axes[2].set_ylabel("light delay (ns)")
     if table.length:

@@ -134,6 +134,9 @@ def test_held_exposure_and_each():
     held = compare.render_panels(scene, 0.0, "rest,measured,beaming-only")
     whites = {p.frame.white for p in held.panels}
     assert len(whites) == 1 and held.white == whites.pop()
+    # held exposure is fixed by rest-frame brightness, even when every panel is beamed
+    beamed = compare.render_panels(scene, 0.0, "photograph,classical")
+    assert beamed.white == pytest.approx(held.panel("rest").frame.white, rel=1e-12)
     each = compare.render_panels(scene, DIST / C, "photograph,beaming-only", exposure="each")
     assert each.white is None
     assert all(p.exposure == "each" for p in each.panels)
