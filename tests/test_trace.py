@@ -194,20 +194,18 @@ def _outline_directions(tr, cam_event, centre_dir, n_az=90, effects=Effects()):
     a = np.cross(c, [0, 0, 1.0])
     a /= np.linalg.norm(a)
     b = np.cross(c, a)
-    out = []
-    for phi in np.linspace(0, 2 * np.pi, n_az, endpoint=False):
-        e = np.cos(phi) * a + np.sin(phi) * b
-        lo, hi = 0.0, 1.5  # angle from c: lo hits, hi misses
-        for _ in range(40):
-            mid = 0.5 * (lo + hi)
-            d = np.cos(mid) * c + np.sin(mid) * e
-            h = tr.cast(cam_event[None, :], d[None, :], effects)
-            if h.hit[0]:
-                lo = mid
-            else:
-                hi = mid
-        out.append(np.cos(lo) * c + np.sin(lo) * e)
-    return np.array(out)
+    phi = np.linspace(0, 2 * np.pi, n_az, endpoint=False)
+    e = np.cos(phi)[:, None] * a + np.sin(phi)[:, None] * b
+    lo = np.zeros(n_az)  # angle from c: lo hits, hi misses (all azimuths at once)
+    hi = np.full(n_az, 1.5)
+    ev = np.tile(cam_event, (n_az, 1))
+    for _ in range(40):
+        mid = 0.5 * (lo + hi)
+        d = np.cos(mid)[:, None] * c + np.sin(mid)[:, None] * e
+        h = tr.cast(ev, d, effects)
+        lo = np.where(h.hit, mid, lo)
+        hi = np.where(h.hit, hi, mid)
+    return np.cos(lo)[:, None] * c + np.sin(lo)[:, None] * e
 
 
 def _circle_residual(dirs):
