@@ -40,6 +40,7 @@ from __future__ import annotations
 
 import difflib
 import math
+import re
 from dataclasses import dataclass, field
 from typing import Any, Callable
 
@@ -1062,8 +1063,11 @@ def motion_from_table(kind: str, table: dict, where: str = "motion"):
                                  time=_get_num(table, "time", where, 0.0))
     except MotionTableError:
         raise
-    except ValueError as err:  # from a constructor's own checks: the table as a whole
-        raise MotionTableError(f"{where}: {err}") from None
+    except ValueError as err:  # from a constructor's own checks: name the key it mentions
+        msg = str(err)
+        found = [(m.start(), k) for k in MOTION_KEYS[kind] if (m := re.search(rf"\b{k}\b", msg))]
+        key = min(found)[1] if found else None  # the key named first
+        raise MotionTableError(f"{where}: {msg}", key, table.get(key) if key else None) from None
     raise AssertionError(kind)  # unreachable: every kind above returns
 
 

@@ -501,6 +501,12 @@ def test_motion_tables():
         motion_from_table("orbit", {"radius": 1.0, "beta": 1.2})
     with pytest.raises(MotionTableError, match=r"segment 0 .*\|beta\| = "):
         motion_from_table("path", {"times": [0, 1e-9], "positions": [[0, 0, 0], [1, 0, 0]]})
+    with pytest.raises(MotionTableError, match=r"positions must be 3 points") as err:
+        motion_from_table("path", {"times": [0, 1, 2], "positions": [[0, 0, 0], [1, 0, 0]]})
+    assert err.value.key == "positions"
+    with pytest.raises(MotionTableError, match="perpendicular") as err:
+        motion_from_table("rolling", {"radius": 1.0, "beta": [0.5, 0, 0], "axis": [1, 0, 0]})
+    assert err.value.key == "axis"
     with pytest.raises(MotionTableError, match="did you mean 'orbit'"):
         motion_from_table("orbitt", {})
 
