@@ -10,19 +10,19 @@ emission event; so the snapshot is ray-cast by :mod:`relview.trace` as a frame g
 at rest (identity map), with per-vertex velocities for the Doppler factor and per-
 vertex body coordinates for the surface (physics.md, "Any other motion").
 
-Straight edges and flat faces do not stay straight or flat on the light cone, so
-each mesh face is tessellated into n^2 sub-triangles (n segments per edge, the same
-n for the whole body, so shared edges are split identically and the snapshot stays
-watertight). n is chosen so that the *measured* interpolation error stays below a
-tolerance: for sub-edges, the exact retarded image of the edge midpoint is compared
-with the midpoint of the chord between the imaged ends,
+Straight edges and flat faces do not stay straight or flat on the light cone, so the
+mesh is refined where the *measured* interpolation error exceeds a tolerance. For each
+edge, the exact retarded image of its midpoint is compared with the midpoint of the
+chord between its imaged ends,
 
     error = max( |x_exact - x_chord| / |x_exact - x_c|,   (radians seen from E)
                  |beta_exact - beta_chord| )                (velocity / c)
 
-The chord error of a smooth map falls as 1/n^2, which sets n; the error is measured
-again after tessellating (:class:`Snapshot`.error) and n raised if needed, up to a
-triangle budget.
+and edges above the tolerance are split at that midpoint (red-green refinement: a face
+with 1, 2 or 3 split edges becomes 2, 3 or 4 faces), round after round, until every
+edge passes or a triangle budget is reached. Faces sharing an edge split it the same
+way, so the snapshot stays watertight. The achieved error is reported
+(:class:`Snapshot`.error); docs/motion.md gives the checks and costs.
 """
 
 from __future__ import annotations
@@ -58,7 +58,7 @@ class Snapshot:
     bary: np.ndarray  # (V, 2) (u, v) of each vertex in its original face
     emit_event: np.ndarray  # (V, 4) [ct, x, y, z] m
     beta: np.ndarray  # (V, 3) velocity / c at emission
-    segments: int  # n: segments per original edge
+    segments: int  # n for uniform n^2 splitting; 0 for adaptive refinement
     error: float  # measured interpolation error (see module docstring)
 
 
