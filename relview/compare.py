@@ -48,31 +48,56 @@ class PanelKind:
     at_rest: bool = False  # render the rest scene (every beta = 0) instead of the scene
 
 
-_SHAPE_ONLY = {"delay": False, "contraction": True, "aberration": False, "doppler": False,
-               "beaming": False}
+_SHAPE_ONLY = {
+    "delay": False,
+    "contraction": True,
+    "aberration": False,
+    "doppler": False,
+    "beaming": False,
+}
 
 PANELS: dict[str, PanelKind] = {
     k.name: k
     for k in (
-        PanelKind("rest", Effects(), "bodies and camera at rest, placed where they are at t",
-                  at_rest=True),
-        PanelKind("measured", Effects(**_SHAPE_ONLY),
-                  "one instant in the scene frame (no light delay);\nLorentz-contracted; "
-                  "shape only: no Doppler colour or beaming"),
-        PanelKind("photograph", Effects(),
-                  "all effects: light delay, contraction,\naberration, Doppler colour, beaming"),
-        PanelKind("classical",
-                  Effects(delay=True, contraction=False, aberration=False, doppler=True,
-                          beaming=True),
-                  "light delay with Galilean motion;\nclassical Doppler colour and beaming"),
-        PanelKind("delay-only", Effects(**{**_SHAPE_ONLY, "delay": True}),
-                  "measured + light delay;\nshape only: no Doppler colour or beaming"),
-        PanelKind("aberration-only", Effects(**{**_SHAPE_ONLY, "aberration": True}),
-                  "measured + the camera's aberration;\nno light delay, no Doppler, no beaming"),
-        PanelKind("doppler-only", Effects(**{**_SHAPE_ONLY, "doppler": True}),
-                  "measured + Doppler colour shift;\nno light delay, no beaming"),
-        PanelKind("beaming-only", Effects(**{**_SHAPE_ONLY, "beaming": True}),
-                  "measured + beaming (brightness ~ D^4);\nno light delay, no colour shift"),
+        PanelKind(
+            "rest", Effects(), "bodies and camera at rest, placed where they are at t", at_rest=True
+        ),
+        PanelKind(
+            "measured",
+            Effects(**_SHAPE_ONLY),
+            "one instant in the scene frame (no light delay);\nLorentz-contracted; "
+            "shape only: no Doppler colour or beaming",
+        ),
+        PanelKind(
+            "photograph",
+            Effects(),
+            "all effects: light delay, contraction,\naberration, Doppler colour, beaming",
+        ),
+        PanelKind(
+            "classical",
+            Effects(delay=True, contraction=False, aberration=False, doppler=True, beaming=True),
+            "light delay with Galilean motion;\nclassical Doppler colour and beaming",
+        ),
+        PanelKind(
+            "delay-only",
+            Effects(**{**_SHAPE_ONLY, "delay": True}),
+            "measured + light delay;\nshape only: no Doppler colour or beaming",
+        ),
+        PanelKind(
+            "aberration-only",
+            Effects(**{**_SHAPE_ONLY, "aberration": True}),
+            "measured + the camera's aberration;\nno light delay, no Doppler, no beaming",
+        ),
+        PanelKind(
+            "doppler-only",
+            Effects(**{**_SHAPE_ONLY, "doppler": True}),
+            "measured + Doppler colour shift;\nno light delay, no beaming",
+        ),
+        PanelKind(
+            "beaming-only",
+            Effects(**{**_SHAPE_ONLY, "beaming": True}),
+            "measured + beaming (brightness ~ D^4);\nno light delay, no colour shift",
+        ),
     )
 }
 
@@ -89,8 +114,9 @@ def panel_kind(name: str) -> PanelKind:
 
         near = difflib.get_close_matches(key, PANELS, n=1)
         hint = f"; did you mean {near[0]!r}?" if near else ""
-        raise UserError(f"--panels: unknown panel {name!r}{hint} "
-                        f"Choose from: {', '.join(PANELS)}") from None
+        raise UserError(
+            f"--panels: unknown panel {name!r}{hint} Choose from: {', '.join(PANELS)}"
+        ) from None
 
 
 def parse_panels(text: str) -> list[PanelKind]:
@@ -131,46 +157,59 @@ def main_body_index(scene: Scene, body=None, time_s: float = 0.0) -> int | None:
         except KeyError:
             names = ", ".join(b.name for b in scene.bodies)
             raise UserError(f"--body {body!r}: no such body; bodies: {names}") from None
-    speeds = [float(np.linalg.norm(body_state(scene, i, time_s)[1]))
-              for i in range(len(scene.bodies))]
+    speeds = [
+        float(np.linalg.norm(body_state(scene, i, time_s)[1])) for i in range(len(scene.bodies))
+    ]
     return int(np.argmax(speeds))
 
 
-def _attitude_degrees(body, time_s: float) -> np.ndarray:
-    """Rest-frame orientation (x, y, z turns, degrees) of a non-uniform body at ``time_s``.
+def rest_pose(scene: Scene, index: int, time_s: float) -> tuple[np.ndarray, np.ndarray]:
+    """(origin position (3,) m, rotation (x, y, z turns, degrees)) of a body at rest as it
+    stands at scene time ``time_s``.
 
-    Axes are followed with Galilean kinematics (contraction=False), so they stay rigid
-    and orthonormal; the Euler angles use the same convention as Body.rotation_matrix
-    (R = Rz Ry Rx, i.e. scipy's extrinsic 'xyz').
+    Uniform motion: the origin's position at ``time_s`` and the body's own rotation.
+    Other motions (relview.motion, rigid-body worldlines): the rest-frame configuration
+    tied to the reference event of the origin's worldline at ``time_s``: origin X(s)
+    plus the attitude M(s) and offset of the motion (docs/motion.md, "events"), so a spin
+    shows its angle phase + omega (tau(s) - tau(time)). Euler angles use the convention
+    of Body.rotation_matrix (R = Rz Ry Rx, scipy's extrinsic 'xyz').
     """
+    body = scene.bodies[index]
+    motion = body.motion
+    if isinstance(motion, UniformMotion):
+        return body_state(scene, index, time_s)[0], np.asarray(body.rotation, float)
     from scipy.spatial.transform import Rotation
 
-    r0 = body.rotation_matrix()
-    pts = np.vstack([np.zeros(3), r0.T])  # origin and the body axes in rest-frame axes
-    x, _ = body.motion.state(pts, np.full(4, C * time_s), contraction=False)
-    m = (x[1:] - x[0]).T
-    return Rotation.from_matrix(m).as_euler("xyz", degrees=True)
+    s = np.array([C * time_s])
+    x0 = np.asarray(motion._origin(s)[0], float)[0]
+    m, _, offset, _ = motion._attitude(s, relativistic=True)
+    rotation = np.asarray(m[0], float) @ body.rotation_matrix()
+    angles = Rotation.from_matrix(rotation).as_euler("xyz", degrees=True)
+    return x0 + np.asarray(offset[0], float), angles
 
 
 def rest_scene(scene: Scene, time_s: float) -> Scene:
     """The scene with every body and the camera at rest where they are at ``time_s``.
 
     Bodies keep their rest-frame shapes (no contraction, since beta = 0); bodies on
-    non-uniform worldlines also keep their orientation at ``time_s``.
+    non-uniform worldlines keep their orientation at ``time_s`` (:func:`rest_pose`).
     """
     from relview.renderer import camera_state
 
     bodies = []
     for i, b in enumerate(scene.bodies):
-        pos, _ = body_state(scene, i, time_s)
-        rotation = b.rotation if isinstance(b.motion, UniformMotion) else _attitude_degrees(b,
-                                                                                          time_s)
-        bodies.append(dataclasses.replace(
-            b, rotation=np.asarray(rotation, float),
-            motion=UniformMotion(beta=np.zeros(3), position=pos, time=time_s)))
+        pos, rotation = rest_pose(scene, i, time_s)
+        bodies.append(
+            dataclasses.replace(
+                b,
+                rotation=rotation,
+                motion=UniformMotion(beta=np.zeros(3), position=pos, time=time_s),
+            )
+        )
     event, _ = camera_state(scene, time_s)
-    camera = dataclasses.replace(scene.camera, position=event[1:].copy(), time=time_s,
-                                 beta=np.zeros(3))
+    camera = dataclasses.replace(
+        scene.camera, position=event[1:].copy(), time=time_s, beta=np.zeros(3)
+    )
     return dataclasses.replace(scene, bodies=bodies, camera=camera)
 
 
@@ -279,9 +318,16 @@ def _drawn_centre(scene: Scene, index: int, time_s: float, effects: Effects, con
     return np.asarray(r.emit_position, float)
 
 
-def render_panels(scene: Scene, time: float | None = None, panels=DEFAULT_PANELS, *,
-                  resolution=None, exposure: str = "held", body=None,
-                  progress: bool = False) -> Sheet:
+def render_panels(
+    scene: Scene,
+    time: float | None = None,
+    panels=DEFAULT_PANELS,
+    *,
+    resolution=None,
+    exposure: str = "held",
+    body=None,
+    progress: bool = False,
+) -> Sheet:
     """Render the panels of one exposure event (no file written; see :func:`compare_sheet`).
 
     ``exposure``: "held" (default): one white level for every panel, the one the scene's
@@ -293,8 +339,11 @@ def render_panels(scene: Scene, time: float | None = None, panels=DEFAULT_PANELS
 
     if exposure not in ("held", "each"):
         raise UserError(f"exposure mode must be 'held' or 'each', got {exposure!r}")
-    kinds = parse_panels(panels) if isinstance(panels, str) else [
-        k if isinstance(k, PanelKind) else panel_kind(k) for k in panels]
+    kinds = (
+        parse_panels(panels)
+        if isinstance(panels, str)
+        else [k if isinstance(k, PanelKind) else panel_kind(k) for k in panels]
+    )
     if not kinds:
         raise UserError("a comparison sheet needs at least one panel")
     t = scene.camera.time if time is None else float(time)
@@ -305,13 +354,18 @@ def render_panels(scene: Scene, time: float | None = None, panels=DEFAULT_PANELS
     # Held exposure is set by rest-frame brightness: the first panel without Doppler colour
     # and beaming goes first and fixes the white; with none among the panels, an unshown
     # "rest" render fixes it. Every sheet of a scene then maps the same light to white.
-    order = sorted(range(len(kinds)), key=lambda i: kinds[i].effects.doppler
-                   or kinds[i].effects.beaming)
+    order = sorted(
+        range(len(kinds)), key=lambda i: kinds[i].effects.doppler or kinds[i].effects.beaming
+    )
     if exposure == "held" and scene.render.exposure != "auto":
         white = float(scene.render.exposure)
     elif exposure == "held" and all(k.effects.doppler or k.effects.beaming for k in kinds):
-        white = render(_panel_scene(scene, PANELS["rest"], t), t, resolution=res,
-                       effects=PANELS["rest"].effects).white
+        white = render(
+            _panel_scene(scene, PANELS["rest"], t),
+            t,
+            resolution=res,
+            effects=PANELS["rest"].effects,
+        ).white
     out: list[Panel | None] = [None] * len(kinds)
     bar = None
     if progress:
@@ -323,8 +377,9 @@ def render_panels(scene: Scene, time: float | None = None, panels=DEFAULT_PANELS
         s = _panel_scene(scene, kind, t)
         context = RenderContext(s, kind.effects)
         setting = scene.render.exposure if (exposure == "each" or white is None) else white
-        frame = render(s, t, resolution=res, effects=kind.effects, exposure=setting,
-                       context=context)
+        frame = render(
+            s, t, resolution=res, effects=kind.effects, exposure=setting, context=context
+        )
         if exposure == "held" and white is None:
             white = frame.white
         mpp, dist = math.nan, math.nan
@@ -369,10 +424,8 @@ def sheet_provenance(sheet: Sheet) -> dict:
                 "effects": dataclasses.asdict(p.kind.effects),
                 "bodies_at_rest": p.kind.at_rest,
                 "white_cd_m2": float(p.frame.white),
-                "metres_per_pixel": None if math.isnan(p.metres_per_pixel)
-                else p.metres_per_pixel,
-                "scale_distance_m": None if math.isnan(p.scale_distance_m)
-                else p.scale_distance_m,
+                "metres_per_pixel": None if math.isnan(p.metres_per_pixel) else p.metres_per_pixel,
+                "scale_distance_m": None if math.isnan(p.scale_distance_m) else p.scale_distance_m,
             }
             for p in sheet.panels
         ],
@@ -385,8 +438,11 @@ def sheet_provenance(sheet: Sheet) -> dict:
 def _figure_format(path: Path) -> str:
     fmt = path.suffix.lstrip(".").lower()
     if fmt not in ("png", "pdf", "svg"):
-        raise OutputError(f"unknown figure type {path.suffix or '(none)'!r}; "
-                          "use .png (slides), .pdf or .svg (papers)", file=path)
+        raise OutputError(
+            f"unknown figure type {path.suffix or '(none)'!r}; "
+            "use .png (slides), .pdf or .svg (papers)",
+            file=path,
+        )
     return fmt
 
 
@@ -399,9 +455,16 @@ def _draw_scale_bar(ax, mpp: float, width: int, height: int) -> None:
     x0, y0 = 0.05 * width, 0.92 * height
     for colour, lw in (("black", 4.0), ("white", 2.0)):
         ax.plot([x0, x0 + px], [y0, y0], color=colour, lw=lw, solid_capstyle="butt")
-    ax.text(x0 + px / 2, y0 - 0.03 * height, format_length(length), color="white",
-            ha="center", va="bottom", fontsize="small",
-            bbox={"facecolor": "black", "alpha": 0.5, "lw": 0, "pad": 1.0})
+    ax.text(
+        x0 + px / 2,
+        y0 - 0.03 * height,
+        format_length(length),
+        color="white",
+        ha="center",
+        va="bottom",
+        fontsize="small",
+        bbox={"facecolor": "black", "alpha": 0.5, "lw": 0, "pad": 1.0},
+    )
 
 
 def _time_text(t: float) -> str:
@@ -420,8 +483,11 @@ def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
     nrow = math.ceil(n / ncol)
     h, w = sheet.panels[0].frame.image.shape[:2]
     panel_w = 4.0
-    fig = Figure(figsize=(panel_w * ncol, nrow * (panel_w * h / w + 1.0) + 0.5), dpi=100,
-                 layout="constrained")
+    fig = Figure(
+        figsize=(panel_w * ncol, nrow * (panel_w * h / w + 1.0) + 0.5),
+        dpi=100,
+        layout="constrained",
+    )
     FigureCanvasAgg(fig)
     axes = fig.subplots(nrow, ncol, squeeze=False)
     for ax in axes.ravel()[n:]:
@@ -430,22 +496,35 @@ def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
         ax.imshow(film.to_8bit(p.frame.image, tone), interpolation="nearest")
         ax.set_xticks([])
         ax.set_yticks([])
-        expo = (f"white {p.frame.white:.3g} cd/m2, held" if p.exposure == "held"
-                else f"white {p.frame.white:.3g} cd/m2, own auto")
+        expo = (
+            f"white {p.frame.white:.3g} cd/m2, held"
+            if p.exposure == "held"
+            else f"white {p.frame.white:.3g} cd/m2, own auto"
+        )
         ax.set_title(p.kind.name, fontsize="large", fontweight="bold")
-        ax.text(0.0, -0.02, f"{p.kind.subtitle}\n{expo}", transform=ax.transAxes,
-                fontsize="x-small", ha="left", va="top")
+        ax.text(
+            0.0,
+            -0.02,
+            f"{p.kind.subtitle}\n{expo}",
+            transform=ax.transAxes,
+            fontsize="x-small",
+            ha="left",
+            va="top",
+        )
         if math.isfinite(p.metres_per_pixel):
             _draw_scale_bar(ax, p.metres_per_pixel, w, h)
     b = np.linalg.norm(sheet.beta)
-    head = (f"{sheet.scene.title + ': ' if sheet.scene.title else ''}"
-            f"{_time_text(sheet.time)}")
+    head = f"{sheet.scene.title + ': ' if sheet.scene.title else ''}{_time_text(sheet.time)}"
     if sheet.main_body:
-        head += (f";  {sheet.main_body}: beta = {b:.4g}, gamma = {sheet.gamma:.4g};  "
-                 f"scale bars at {sheet.main_body}'s centre as drawn")
+        head += (
+            f";  {sheet.main_body}: beta = {b:.4g}, gamma = {sheet.gamma:.4g};  "
+            f"scale bars at {sheet.main_body}'s centre as drawn"
+        )
     fig.suptitle(head, fontsize="medium")
-    foot = (f"relview {sheet.metadata.get('relview_version', '')}  scene sha256 "
-            f"{sheet.scene.source_hash[:16]}  {sheet.metadata.get('resolution', '')}")
+    foot = (
+        f"relview {sheet.metadata.get('relview_version', '')}  scene sha256 "
+        f"{sheet.scene.source_hash[:16]}  {sheet.metadata.get('resolution', '')}"
+    )
     fig.supxlabel(foot, x=0.995, ha="right", fontsize=6, color="0.4")
     return fig
 
@@ -465,15 +544,25 @@ def save_figure(fig, path, metadata: dict, overwrite: bool = False) -> tuple[Pat
     path = Path(path)
     fmt = _figure_format(path)
     meta = film.figure_metadata(fmt, metadata)
-    written = film._atomic_write(path, lambda fh: fig.savefig(fh, format=fmt, metadata=meta),
-                                 overwrite)
+    written = film._atomic_write(
+        path, lambda fh: fig.savefig(fh, format=fmt, metadata=meta), overwrite
+    )
     side = film.write_json_sidecar(_sidecar_path(written), metadata, overwrite=overwrite)
     return written, side
 
 
-def compare_sheet(scene: Scene, time: float | None = None, panels=DEFAULT_PANELS,
-                  out=None, *, resolution=None, exposure: str = "held", body=None,
-                  overwrite: bool = False, progress: bool = False) -> Sheet:
+def compare_sheet(
+    scene: Scene,
+    time: float | None = None,
+    panels=DEFAULT_PANELS,
+    out=None,
+    *,
+    resolution=None,
+    exposure: str = "held",
+    body=None,
+    overwrite: bool = False,
+    progress: bool = False,
+) -> Sheet:
     """Render a comparison sheet of one exposure event; write it to ``out`` if given.
 
     ``panels``: names (see :data:`PANELS`) as a list or a comma-separated string.
@@ -482,8 +571,9 @@ def compare_sheet(scene: Scene, time: float | None = None, panels=DEFAULT_PANELS
     """
     if out is not None:
         _figure_format(Path(out))  # refuse a bad extension before rendering
-    sheet = render_panels(scene, time, panels, resolution=resolution, exposure=exposure,
-                          body=body, progress=progress)
+    sheet = render_panels(
+        scene, time, panels, resolution=resolution, exposure=exposure, body=body, progress=progress
+    )
     if out is not None:
         fig = draw_sheet(sheet)
         sheet.path, sheet.sidecar = save_figure(fig, out, sheet.metadata, overwrite)
@@ -505,14 +595,34 @@ class LayerView:
 
 
 LAYERS: dict[str, LayerView] = {
-    "doppler": LayerView("Doppler factor D = nu_obs / nu_emit", "", True, "RdBu",
-                         "blue: approaching (D > 1), red: receding (D < 1)"),
-    "delay": LayerView("light delay t_exposure - t_emit", "ns", False, "viridis",
-                       "time light took from the surface to the camera"),
-    "emit_time": LayerView("emission time t_emit - t_exposure", "ns", False, "viridis",
-                           "scene-frame time the light left the surface"),
-    "distance": LayerView("distance to the emission point", "m", False, "viridis",
-                          "scene frame, from the camera at the exposure event"),
+    "doppler": LayerView(
+        "Doppler factor D = nu_obs / nu_emit",
+        "",
+        True,
+        "RdBu",
+        "blue: approaching (D > 1), red: receding (D < 1)",
+    ),
+    "delay": LayerView(
+        "light delay t_exposure - t_emit",
+        "ns",
+        False,
+        "viridis",
+        "time light took from the surface to the camera",
+    ),
+    "emit_time": LayerView(
+        "emission time t_emit - t_exposure",
+        "ns",
+        False,
+        "viridis",
+        "scene-frame time the light left the surface",
+    ),
+    "distance": LayerView(
+        "distance to the emission point",
+        "m",
+        False,
+        "viridis",
+        "scene frame, from the camera at the exposure event",
+    ),
     "body": LayerView("body index", "", False, "tab10", "which body each pixel sees"),
     "luminance": LayerView("luminance Y", "cd/m2", True, "magma", "CIE 1931 Y, observed"),
 }
@@ -538,10 +648,19 @@ def layer_values(frame, layer: str, camera_position: np.ndarray) -> np.ndarray:
     raise UserError(f"--layer {layer!r}: unknown layer; choose from: {', '.join(LAYERS)}")
 
 
-def layer_map(scene: Scene, layer: str, out, time: float | None = None, *,
-              panel: str | None = None, resolution=None, overwrite: bool = False,
-              vmin: float | None = None, vmax: float | None = None,
-              progress: bool = False) -> tuple[Path, Path, np.ndarray]:
+def layer_map(
+    scene: Scene,
+    layer: str,
+    out,
+    time: float | None = None,
+    *,
+    panel: str | None = None,
+    resolution=None,
+    overwrite: bool = False,
+    vmin: float | None = None,
+    vmax: float | None = None,
+    progress: bool = False,
+) -> tuple[Path, Path, np.ndarray]:
     """Render once and write a false-colour map of ``layer`` with a labelled colour bar.
 
     ``panel``: render with that panel's effects (and rest scene for "rest"); default:
@@ -575,12 +694,28 @@ def layer_map(scene: Scene, layer: str, out, time: float | None = None, *,
     if panel is not None:
         title += f" ({panel_kind(panel).name})"
     meta = dict(frame.metadata)
-    meta.update({"title": f"relview layer map: {layer}", "layer": layer,
-                 "layer_unit": view.unit, "layer_note": view.note,
-                 "panel": panel_kind(panel).name if panel else ""})
-    written = film.save_layer_figure(out, values, view.label, view.unit, view.log,
-                                     vmin=vmin, vmax=vmax, cmap=view.cmap, title=title,
-                                     overwrite=overwrite, metadata=meta)
+    meta.update(
+        {
+            "title": f"relview layer map: {layer}",
+            "layer": layer,
+            "layer_unit": view.unit,
+            "layer_note": view.note,
+            "panel": panel_kind(panel).name if panel else "",
+        }
+    )
+    written = film.save_layer_figure(
+        out,
+        values,
+        view.label,
+        view.unit,
+        view.log,
+        vmin=vmin,
+        vmax=vmax,
+        cmap=view.cmap,
+        title=title,
+        overwrite=overwrite,
+        metadata=meta,
+    )
     side = film.write_json_sidecar(_sidecar_path(written), meta, overwrite=overwrite)
     return written, side, values
 
@@ -593,20 +728,37 @@ def cmd_compare(args) -> int:
 
     scene = scene_with_overrides(args)
     if args.layer:
-        out = Path(args.output) if args.output else default_output(args.scene,
-                                                                  f"-{args.layer}.png")
-        written, side, _ = layer_map(scene, args.layer, out, args.time, panel=args.panel,
-                                     overwrite=args.overwrite, progress=not args.quiet)
+        out = Path(args.output) if args.output else default_output(args.scene, f"-{args.layer}.png")
+        written, side, _ = layer_map(
+            scene,
+            args.layer,
+            out,
+            args.time,
+            panel=args.panel,
+            overwrite=args.overwrite,
+            progress=not args.quiet,
+        )
         print(f"wrote {written}\nwrote {side}")
         return 0
     if args.panel:
         raise UserError("--panel goes with --layer; for a sheet use --panels LIST")
     out = Path(args.output) if args.output else default_output(args.scene, "-compare.png")
-    sheet = compare_sheet(scene, args.time, args.panels, out, exposure=args.exposure_mode,
-                          body=args.body, overwrite=args.overwrite, progress=not args.quiet)
+    sheet = compare_sheet(
+        scene,
+        args.time,
+        args.panels,
+        out,
+        exposure=args.exposure_mode,
+        body=args.body,
+        overwrite=args.overwrite,
+        progress=not args.quiet,
+    )
     for p in sheet.panels:
-        scale = (f"{p.metres_per_pixel:.4g} m/px at {p.scale_distance_m:.4g} m"
-                 if math.isfinite(p.metres_per_pixel) else "no scale")
+        scale = (
+            f"{p.metres_per_pixel:.4g} m/px at {p.scale_distance_m:.4g} m"
+            if math.isfinite(p.metres_per_pixel)
+            else "no scale"
+        )
         print(f"  {p.kind.name:<16} white {p.frame.white:.4g} cd/m2  {scale}")
     print(f"wrote {sheet.path}\nwrote {sheet.sidecar}")
     return 0
@@ -617,32 +769,74 @@ def register_cli(subparsers) -> None:
     from relview.cli import add_frame_options
 
     p = subparsers.add_parser(
-        "compare", help="side-by-side panels of one exposure (rest / measured / photograph), "
-        "or a false-colour map of one data layer")
+        "compare",
+        help="side-by-side panels of one exposure (rest / measured / photograph), "
+        "or a false-colour map of one data layer",
+    )
     p.add_argument("scene", metavar="SCENE")
-    p.add_argument("-o", "--output", metavar="FILE",
-                   help="figure: .png (slides), .pdf or .svg (papers); a FILE.json sidecar "
-                   "is written beside it")
+    p.add_argument(
+        "-o",
+        "--output",
+        metavar="FILE",
+        help="figure: .png (slides), .pdf or .svg (papers); a FILE.json sidecar "
+        "is written beside it",
+    )
     p.add_argument("--time", type=float, metavar="S", help="exposure time (s), scene frame")
-    p.add_argument("--panels", default=",".join(DEFAULT_PANELS), metavar="LIST",
-                   help=f"comma-separated panels from: {', '.join(PANELS)} "
-                   f"(default {','.join(DEFAULT_PANELS)})")
-    p.add_argument("--body", metavar="NAME",
-                   help="the main body for speed and scale bar (default: the fastest)")
-    p.add_argument("--exposure-mode", choices=("held", "each"), default="held",
-                   help="held: one white level for all panels (default); each: per panel")
-    p.add_argument("--layer", choices=tuple(LAYERS), metavar="NAME",
-                   help=f"instead of a sheet, a false-colour map of one layer: "
-                   f"{', '.join(LAYERS)}")
-    p.add_argument("--panel", metavar="NAME",
-                   help="with --layer: render with this panel's effects (default: the scene's)")
+    p.add_argument(
+        "--panels",
+        default=",".join(DEFAULT_PANELS),
+        metavar="LIST",
+        help=f"comma-separated panels from: {', '.join(PANELS)} "
+        f"(default {','.join(DEFAULT_PANELS)})",
+    )
+    p.add_argument(
+        "--body",
+        metavar="NAME",
+        help="the main body for speed and scale bar (default: the fastest)",
+    )
+    p.add_argument(
+        "--exposure-mode",
+        choices=("held", "each"),
+        default="held",
+        help="held: one white level for all panels (default); each: per panel",
+    )
+    p.add_argument(
+        "--layer",
+        choices=tuple(LAYERS),
+        metavar="NAME",
+        help=f"instead of a sheet, a false-colour map of one layer: {', '.join(LAYERS)}",
+    )
+    p.add_argument(
+        "--panel",
+        metavar="NAME",
+        help="with --layer: render with this panel's effects (default: the scene's)",
+    )
     add_frame_options(p)
     p.set_defaults(func=cmd_compare)
 
 
 __all__ = [
-    "DEFAULT_PANELS", "LAYERS", "PANELS", "Panel", "PanelKind", "Sheet", "body_state",
-    "compare_sheet", "draw_sheet", "layer_map", "layer_values", "main_body_index",
-    "metres_per_pixel", "nice_length", "panel_kind", "parse_panels", "register_cli",
-    "render_panels", "rest_scene", "save_figure", "scale_distance", "sheet_provenance",
+    "DEFAULT_PANELS",
+    "LAYERS",
+    "PANELS",
+    "Panel",
+    "PanelKind",
+    "Sheet",
+    "body_state",
+    "compare_sheet",
+    "draw_sheet",
+    "layer_map",
+    "layer_values",
+    "main_body_index",
+    "metres_per_pixel",
+    "nice_length",
+    "panel_kind",
+    "parse_panels",
+    "register_cli",
+    "render_panels",
+    "rest_pose",
+    "rest_scene",
+    "save_figure",
+    "scale_distance",
+    "sheet_provenance",
 ]

@@ -44,8 +44,10 @@ COLUMNS: dict[str, tuple[str, str]] = {
     "emit_z_m": ("m", "scene frame z"),
     "light_delay_s": ("s", "exposure time minus emission time"),
     "azimuth_deg": ("deg", "apparent direction, camera frame: angle right of the view axis"),
-    "elevation_deg": ("deg", ("apparent direction, camera frame: angle above the image "
-                              "horizontal plane")),
+    "elevation_deg": (
+        "deg",
+        ("apparent direction, camera frame: angle above the image horizontal plane"),
+    ),
     "pixel_x": ("px", "image column, from the left edge (centres at half-integers)"),
     "pixel_y": ("px", "image row, from the top edge"),
     "in_view": ("", "the projection has an image of the direction (pixel may be off-image)"),
@@ -57,12 +59,19 @@ COLUMNS: dict[str, tuple[str, str]] = {
 LENGTH_COLUMNS: dict[str, tuple[str, str]] = {
     "time_s": ("s", "exposure time, scene frame"),
     "photographed_length_m": ("m", "distance between the two emission positions"),
-    "photographed_along_motion_m": ("m", ("its component along the body's velocity at the "
-                                          "first point's emission (NaN at rest)")),
+    "photographed_along_motion_m": (
+        "m",
+        ("its component along the body's velocity at the first point's emission (NaN at rest)"),
+    ),
     "angular_separation_deg": ("deg", "angle between the two apparent directions"),
     "rest_length_m": ("m", "L0, distance between the points in the body's rest frame"),
-    "contracted_length_m": ("m", ("distance between the points at one instant of the "
-                                  "scene frame (L0 / gamma along the motion)")),
+    "contracted_length_m": (
+        "m",
+        (
+            "distance between the points at one instant of the "
+            "scene frame (L0 / gamma along the motion)"
+        ),
+    ),
 }
 
 _BOOL_COLUMNS = ("in_view", "visible")
@@ -78,8 +87,9 @@ def parse_times(text: str) -> np.ndarray:
             raise ValueError
         a, b, n = float(parts[0]), float(parts[1]), int(parts[2])
     except ValueError:
-        raise UserError(f"--times {text!r}: expected START:END:COUNT in seconds, "
-                        "e.g. 0:4e-8:21") from None
+        raise UserError(
+            f"--times {text!r}: expected START:END:COUNT in seconds, e.g. 0:4e-8:21"
+        ) from None
     if not (math.isfinite(a) and math.isfinite(b)):
         raise UserError(f"--times {text!r}: start and end must be finite numbers")
     if n < 1:
@@ -127,8 +137,9 @@ class ProbeTable:
         return sorted({r["point"] for r in self.rows})
 
 
-def table_provenance(scene: Scene, body_name: str, points: np.ndarray, times: np.ndarray,
-                     effects: Effects) -> dict:
+def table_provenance(
+    scene: Scene, body_name: str, points: np.ndarray, times: np.ndarray, effects: Effects
+) -> dict:
     from relview import __version__
 
     return {
@@ -145,8 +156,9 @@ def table_provenance(scene: Scene, body_name: str, points: np.ndarray, times: np
     }
 
 
-def probe_table(scene: Scene, body, points, times, effects: Effects | None = None,
-                progress: bool = False) -> ProbeTable:
+def probe_table(
+    scene: Scene, body, points, times, effects: Effects | None = None, progress: bool = False
+) -> ProbeTable:
     """Probe rest-frame ``points`` (N, 3) m of ``body`` (name or index) at every time (s)."""
     from relview.probes import probe_many, retarded_events
     from relview.renderer import RenderContext, camera_state
@@ -170,15 +182,28 @@ def probe_table(scene: Scene, body, points, times, effects: Effects | None = Non
         res = probe_many(scene, bi, pts, float(t), effects, context=context)
         az, el = apparent_angles(np.array([r.direction for r in res]), scene.camera)
         for k, r in enumerate(res):
-            rows.append({
-                "time_s": float(t), "body": name, "point": k,
-                "point_x_m": r.point[0], "point_y_m": r.point[1], "point_z_m": r.point[2],
-                "emit_time_s": r.emit_time, "emit_x_m": r.emit_position[0],
-                "emit_y_m": r.emit_position[1], "emit_z_m": r.emit_position[2],
-                "light_delay_s": r.light_delay, "azimuth_deg": float(az[k]),
-                "elevation_deg": float(el[k]), "pixel_x": r.pixel[0], "pixel_y": r.pixel[1],
-                "in_view": r.in_view, "visible": r.visible, "doppler": r.doppler,
-            })
+            rows.append(
+                {
+                    "time_s": float(t),
+                    "body": name,
+                    "point": k,
+                    "point_x_m": r.point[0],
+                    "point_y_m": r.point[1],
+                    "point_z_m": r.point[2],
+                    "emit_time_s": r.emit_time,
+                    "emit_x_m": r.emit_position[0],
+                    "emit_y_m": r.emit_position[1],
+                    "emit_z_m": r.emit_position[2],
+                    "light_delay_s": r.light_delay,
+                    "azimuth_deg": float(az[k]),
+                    "elevation_deg": float(el[k]),
+                    "pixel_x": r.pixel[0],
+                    "pixel_y": r.pixel[1],
+                    "in_view": r.in_view,
+                    "visible": r.visible,
+                    "doppler": r.doppler,
+                }
+            )
         if len(pts) == 2:
             e = np.array([r.emit_position for r in res])
             sep = e[1] - e[0]
@@ -187,15 +212,18 @@ def probe_table(scene: Scene, body, points, times, effects: Effects | None = Non
             d = np.array([r.direction for r in res])
             event, _ = camera_state(scene, float(t))
             now, _ = retarded_events(scene, bi, pts, event, instant)
-            length.append({
-                "time_s": float(t),
-                "photographed_length_m": float(np.linalg.norm(sep)),
-                "photographed_along_motion_m": float(sep @ beta / b) if b > 0 else math.nan,
-                "angular_separation_deg": float(np.degrees(np.arccos(np.clip(d[0] @ d[1],
-                                                                              -1.0, 1.0)))),
-                "rest_length_m": float(np.linalg.norm(pts[1] - pts[0])),
-                "contracted_length_m": float(np.linalg.norm(now[1, 1:] - now[0, 1:])),
-            })
+            length.append(
+                {
+                    "time_s": float(t),
+                    "photographed_length_m": float(np.linalg.norm(sep)),
+                    "photographed_along_motion_m": float(sep @ beta / b) if b > 0 else math.nan,
+                    "angular_separation_deg": float(
+                        np.degrees(np.arccos(np.clip(d[0] @ d[1], -1.0, 1.0)))
+                    ),
+                    "rest_length_m": float(np.linalg.norm(pts[1] - pts[0])),
+                    "contracted_length_m": float(np.linalg.norm(now[1, 1:] - now[0, 1:])),
+                }
+            )
     meta = table_provenance(scene, name, pts, times, effects)
     return ProbeTable(rows, length or None, meta)
 
@@ -214,8 +242,16 @@ def _csv_text(rows: list[dict], columns: dict, metadata: dict, what: str) -> str
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(list(columns))
     for r in rows:
-        w.writerow([repr(float(r[c])) if isinstance(r[c], float) else
-                    str(r[c]).lower() if isinstance(r[c], bool) else r[c] for c in columns])
+        w.writerow(
+            [
+                repr(float(r[c]))
+                if isinstance(r[c], float)
+                else str(r[c]).lower()
+                if isinstance(r[c], bool)
+                else r[c]
+                for c in columns
+            ]
+        )
     return buf.getvalue()
 
 
@@ -234,12 +270,19 @@ def length_csv_path(path) -> Path:
 def write_csv(table: ProbeTable, path, overwrite: bool = False) -> list[Path]:
     """Write the rows as CSV (commented provenance header, '#' lines); with a length
     table also ``NAME.length.csv``. Returns the paths written."""
-    out = [_write_text(path, _csv_text(table.rows, COLUMNS, table.metadata, "probe table"),
-                       overwrite)]
+    out = [
+        _write_text(path, _csv_text(table.rows, COLUMNS, table.metadata, "probe table"), overwrite)
+    ]
     if table.length:
-        out.append(_write_text(length_csv_path(out[0]), _csv_text(
-            table.length, LENGTH_COLUMNS, table.metadata, "photographed length table"),
-            overwrite))
+        out.append(
+            _write_text(
+                length_csv_path(out[0]),
+                _csv_text(
+                    table.length, LENGTH_COLUMNS, table.metadata, "photographed length table"
+                ),
+                overwrite,
+            )
+        )
     return out
 
 
@@ -280,15 +323,23 @@ def table_json(table: ProbeTable) -> dict:
     """The whole table as one JSON-ready dict (NaN becomes null)."""
 
     def clean(rows):
-        return [{k: (None if isinstance(v, float) and not math.isfinite(v) else v)
-                 for k, v in r.items()} for r in rows]
+        return [
+            {
+                k: (None if isinstance(v, float) and not math.isfinite(v) else v)
+                for k, v in r.items()
+            }
+            for r in rows
+        ]
 
-    doc = {"metadata": table.metadata,
-           "columns": {k: {"unit": u, "meaning": m} for k, (u, m) in COLUMNS.items()},
-           "rows": clean(table.rows)}
+    doc = {
+        "metadata": table.metadata,
+        "columns": {k: {"unit": u, "meaning": m} for k, (u, m) in COLUMNS.items()},
+        "rows": clean(table.rows),
+    }
     if table.length:
-        doc["length_columns"] = {k: {"unit": u, "meaning": m}
-                                 for k, (u, m) in LENGTH_COLUMNS.items()}
+        doc["length_columns"] = {
+            k: {"unit": u, "meaning": m} for k, (u, m) in LENGTH_COLUMNS.items()
+        }
         doc["length"] = clean(table.length)
     return doc
 
@@ -305,8 +356,11 @@ def read_json(path) -> ProbeTable:
     def unclean(rows):
         return [{k: (math.nan if v is None else v) for k, v in r.items()} for r in rows]
 
-    return ProbeTable(unclean(doc["rows"]), unclean(doc["length"]) if "length" in doc
-                      else None, doc.get("metadata", {}))
+    return ProbeTable(
+        unclean(doc["rows"]),
+        unclean(doc["length"]) if "length" in doc else None,
+        doc.get("metadata", {}),
+    )
 
 
 # --------------------------------------------------------------------------- plot
@@ -337,13 +391,18 @@ def draw_table(table: ProbeTable):
         t = table.column("time_s", k) / f
         seen = table.column("visible", k).astype(bool) & table.column("in_view", k).astype(bool)
         colour = f"C{k % 10}"
-        for ax, name, style in ((axes[0], "azimuth_deg", "-"), (axes[0], "elevation_deg", ":"),
-                                (axes[1], "doppler", "-"), (axes[2], "light_delay_s", "-")):
+        for ax, name, style in (
+            (axes[0], "azimuth_deg", "-"),
+            (axes[0], "elevation_deg", ":"),
+            (axes[1], "doppler", "-"),
+            (axes[2], "light_delay_s", "-"),
+        ):
             y = table.column(name, k).astype(float)
             if name == "light_delay_s":
                 y = y * 1e9
-            label = f"point {k}" + {"azimuth_deg": " azimuth", "elevation_deg": " elevation"
-                                    }.get(name, "")
+            label = f"point {k}" + {"azimuth_deg": " azimuth", "elevation_deg": " elevation"}.get(
+                name, ""
+            )
             ax.plot(t, y, style, color=colour, label=label)
             ax.plot(t[seen], y[seen], "o", color=colour, ms=3)
             ax.plot(t[~seen], y[~seen], "o", mfc="none", color=colour, ms=4)
@@ -353,26 +412,46 @@ def draw_table(table: ProbeTable):
     axes[1].set_yscale("log")
     # plain numbers (0.5, 1, 2) rather than 5 x 10^-1; minor ticks labelled at 2, 3 and 5 only
     axes[1].yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
-    axes[1].yaxis.set_minor_formatter(FuncFormatter(
-        lambda v, _pos: f"{v:g}" if v > 0 and round(v / 10 ** math.floor(math.log10(v)))
-        in (2, 3, 5) else ""))
+    axes[1].yaxis.set_minor_formatter(
+        FuncFormatter(
+            lambda v, _pos: (
+                f"{v:g}"
+                if v > 0 and round(v / 10 ** math.floor(math.log10(v))) in (2, 3, 5)
+                else ""
+            )
+        )
+    )
     axes[1].axhline(1.0, color="0.6", lw=0.8)
     axes[2].set_ylabel("light delay (ns)")
     if table.length:
         t = table.length_column("time_s") / f
         ax = axes[3]
-        ax.plot(t, table.length_column("photographed_length_m"), "-o", ms=3, color="C3",
-                label="photographed")
+        ax.plot(
+            t,
+            table.length_column("photographed_length_m"),
+            "-o",
+            ms=3,
+            color="C3",
+            label="photographed",
+        )
         ax.plot(t, table.length_column("rest_length_m"), "--", color="0.3", label="rest L0")
-        ax.plot(t, table.length_column("contracted_length_m"), ":", color="C0",
-                label="one instant (contracted)")
+        ax.plot(
+            t,
+            table.length_column("contracted_length_m"),
+            ":",
+            color="C0",
+            label="one instant (contracted)",
+        )
         ax.set_ylabel("length (m)")
         ax.legend(fontsize="x-small")
     axes[-1].set_xlabel(f"exposure time ({unit})")
     m = table.metadata
-    fig.suptitle(f"{m.get('body', '')}: probe table  (relview {m.get('relview_version', '')}, "
-                 f"scene sha256 {str(m.get('scene_sha256', ''))[:12]})\n"
-                 "filled markers: visible; hollow: hidden or out of view", fontsize="small")
+    fig.suptitle(
+        f"{m.get('body', '')}: probe table  (relview {m.get('relview_version', '')}, "
+        f"scene sha256 {str(m.get('scene_sha256', ''))[:12]})\n"
+        "filled markers: visible; hollow: hidden or out of view",
+        fontsize="small",
+    )
     fig.tight_layout()
     return fig
 
@@ -384,35 +463,65 @@ def write_plot(table: ProbeTable, path, overwrite: bool = False) -> tuple[Path, 
 
     path = Path(path)
     if path.suffix.lower() not in (".png", ".pdf", ".svg"):
-        raise OutputError(f"unknown plot type {path.suffix or '(none)'!r}; "
-                          "use .png, .pdf or .svg", file=path)
+        raise OutputError(
+            f"unknown plot type {path.suffix or '(none)'!r}; use .png, .pdf or .svg", file=path
+        )
     return save_figure(draw_table(table), path, table.metadata, overwrite)
 
 
 def format_rows(table: ProbeTable) -> str:
     """A compact text table for the terminal."""
-    head = ("time_s", "pt", "emit_time_s", "az_deg", "el_deg", "pixel_x", "pixel_y", "seen",
-            "D")
+    head = ("time_s", "pt", "emit_time_s", "az_deg", "el_deg", "pixel_x", "pixel_y", "seen", "D")
     lines = ["  ".join(f"{h:>12}" for h in head)]
     for r in table.rows:
         seen = "yes" if (r["visible"] and r["in_view"]) else "no"
-        vals = (f"{r['time_s']:.6g}", str(r["point"]), f"{r['emit_time_s']:.6g}",
-                f"{r['azimuth_deg']:.4f}", f"{r['elevation_deg']:.4f}", f"{r['pixel_x']:.2f}",
-                f"{r['pixel_y']:.2f}", seen, f"{r['doppler']:.5g}")
+        vals = (
+            f"{r['time_s']:.6g}",
+            str(r["point"]),
+            f"{r['emit_time_s']:.6g}",
+            f"{r['azimuth_deg']:.4f}",
+            f"{r['elevation_deg']:.4f}",
+            f"{r['pixel_x']:.2f}",
+            f"{r['pixel_y']:.2f}",
+            seen,
+            f"{r['doppler']:.5g}",
+        )
         lines.append("  ".join(f"{v:>12}" for v in vals))
     if table.length:
         lines.append("")
-        lines.append("  ".join(f"{h:>14}" for h in ("time_s", "photographed_m", "rest_m",
-                                                     "contracted_m")))
+        lines.append(
+            "  ".join(f"{h:>14}" for h in ("time_s", "photographed_m", "rest_m", "contracted_m"))
+        )
         for r in table.length:
-            lines.append("  ".join(f"{v:>14}" for v in (
-                f"{r['time_s']:.6g}", f"{r['photographed_length_m']:.6g}",
-                f"{r['rest_length_m']:.6g}", f"{r['contracted_length_m']:.6g}")))
+            lines.append(
+                "  ".join(
+                    f"{v:>14}"
+                    for v in (
+                        f"{r['time_s']:.6g}",
+                        f"{r['photographed_length_m']:.6g}",
+                        f"{r['rest_length_m']:.6g}",
+                        f"{r['contracted_length_m']:.6g}",
+                    )
+                )
+            )
     return "\n".join(lines)
 
 
 __all__ = [
-    "COLUMNS", "LENGTH_COLUMNS", "ProbeTable", "apparent_angles", "draw_table",
-    "format_rows", "length_csv_path", "parse_times", "probe_table", "read_csv", "read_json",
-    "table_json", "table_provenance", "write_csv", "write_json", "write_plot",
+    "COLUMNS",
+    "LENGTH_COLUMNS",
+    "ProbeTable",
+    "apparent_angles",
+    "draw_table",
+    "format_rows",
+    "length_csv_path",
+    "parse_times",
+    "probe_table",
+    "read_csv",
+    "read_json",
+    "table_json",
+    "table_provenance",
+    "write_csv",
+    "write_json",
+    "write_plot",
 ]

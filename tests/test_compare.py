@@ -29,14 +29,22 @@ def box_scene(beta=BETA, projection="pinhole", fov=FOV_DEG):
         camera["projection"] = projection
     if projection == "panorama":
         del camera["fov"]
-    return Scene.from_dict({
-        "scene": {"title": "test crate"},
-        "render": {"resolution": [WIDTH_PX, HEIGHT_PX]},
-        "camera": camera,
-        "body": [{"name": "crate", "shape": "box", "size": [LENGTH, DEPTH, HEIGHT],
-                  "motion": {"beta": [beta, 0.0, 0.0], "position": [0.0, 0.0, 0.0]},
-                  "surface": {"color": [0.8, 0.6, 0.3]}}],
-    })
+    return Scene.from_dict(
+        {
+            "scene": {"title": "test crate"},
+            "render": {"resolution": [WIDTH_PX, HEIGHT_PX]},
+            "camera": camera,
+            "body": [
+                {
+                    "name": "crate",
+                    "shape": "box",
+                    "size": [LENGTH, DEPTH, HEIGHT],
+                    "motion": {"beta": [beta, 0.0, 0.0], "position": [0.0, 0.0, 0.0]},
+                    "surface": {"color": [0.8, 0.6, 0.3]},
+                }
+            ],
+        }
+    )
 
 
 def width_px(frame, body=0) -> int:
@@ -47,8 +55,7 @@ def width_px(frame, body=0) -> int:
 
 @pytest.fixture(scope="module")
 def sheet_now():
-    return compare.compare_sheet(box_scene(), time=0.0,
-                                 panels=("rest", "measured", "photograph"))
+    return compare.compare_sheet(box_scene(), time=0.0, panels=("rest", "measured", "photograph"))
 
 
 def test_measured_panel_is_lorentz_contracted(sheet_now):
@@ -103,7 +110,8 @@ def test_scale_for_other_projections():
     # at distance d is d * angle. Panorama: 2 pi / W radians per pixel on the horizon row.
     fish = box_scene(projection="fisheye", fov=120.0).camera
     assert compare.metres_per_pixel(fish, 200, 50.0) == pytest.approx(
-        50.0 * math.radians(120.0) / 200)
+        50.0 * math.radians(120.0) / 200
+    )
     pano = box_scene(projection="panorama").camera
     assert compare.metres_per_pixel(pano, 360, 10.0) == pytest.approx(10.0 * 2 * math.pi / 360)
     assert math.isnan(compare.metres_per_pixel(pano, 360, -1.0))  # behind a pinhole: no bar
@@ -148,8 +156,12 @@ def test_panel_definitions():
     assert not (P["measured"].effects.doppler or P["measured"].effects.beaming)
     assert all(vars(P["photograph"].effects).values())
     assert P["classical"].effects.delay and not P["classical"].effects.contraction
-    for name, switch in (("delay-only", "delay"), ("aberration-only", "aberration"),
-                         ("doppler-only", "doppler"), ("beaming-only", "beaming")):
+    for name, switch in (
+        ("delay-only", "delay"),
+        ("aberration-only", "aberration"),
+        ("doppler-only", "doppler"),
+        ("beaming-only", "beaming"),
+    ):
         on = {k for k, v in vars(P[name].effects).items() if v}
         assert on == {"contraction", switch}
     assert compare.panel_kind("Delay only").name == "delay-only"
@@ -161,8 +173,9 @@ def test_panel_definitions():
 
 def test_sheet_files_and_provenance(tmp_path):
     scene = box_scene()
-    png = compare.compare_sheet(scene, 0.0, "rest,measured", tmp_path / "s.png",
-                                resolution=(64, 36))
+    png = compare.compare_sheet(
+        scene, 0.0, "rest,measured", tmp_path / "s.png", resolution=(64, 36)
+    )
     assert png.path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (ISO/IEC 15948)
     text = Image.open(png.path).text
     assert text["scene_sha256"] == scene.source_hash
@@ -178,8 +191,7 @@ def test_sheet_files_and_provenance(tmp_path):
     body = svg.path.read_text()
     assert "<svg" in body and scene.source_hash in body
     # an existing sheet is never replaced without overwrite
-    again = compare.compare_sheet(scene, 0.0, "measured", tmp_path / "s.png",
-                                  resolution=(64, 36))
+    again = compare.compare_sheet(scene, 0.0, "measured", tmp_path / "s.png", resolution=(64, 36))
     assert again.path.name == "s-1.png"
     with pytest.raises(OutputError, match="unknown figure type"):
         compare.compare_sheet(scene, 0.0, "measured", tmp_path / "s.jpg")
@@ -220,13 +232,76 @@ beta = [{BETA}, 0.0, 0.0]
 color = [0.8, 0.6, 0.3]
 """)
     out = tmp_path / "sheet.png"
-    code = cli.main(["compare", str(path), "-o", str(out), "--panels", "rest,measured",
-                     "--quiet"])
+    code = cli.main(["compare", str(path), "-o", str(out), "--panels", "rest,measured", "--quiet"])
     assert code == 0
     assert out.exists() and (tmp_path / "sheet.png.json").exists()
-    code = cli.main(["compare", str(path), "--layer", "doppler", "--time", str(DIST / C),
-                     "-o", str(tmp_path / "map.pdf"), "--quiet"])
+    code = cli.main(
+        [
+            "compare",
+            str(path),
+            "--layer",
+            "doppler",
+            "--time",
+            str(DIST / C),
+            "-o",
+            str(tmp_path / "map.pdf"),
+            "--quiet",
+        ]
+    )
     assert code == 0 and (tmp_path / "map.pdf").read_bytes()[:5] == b"%PDF-"
     assert cli.main(["compare", str(path), "-o", str(tmp_path / "x.gif"), "--quiet"]) == 2
     assert cli.main(["compare", str(path), "--panels", "nope", "--quiet"]) == 2
     assert "unknown panel" in capsys.readouterr().err
+
+
+def spinning_scene(base_beta=(0.0, 0.0, 0.0), omega=1.0e7):
+    return Scene.from_dict(
+        {
+            "render": {"resolution": [64, 36]},
+            "camera": {"position": [0.0, -20.0, 0.0], "look_at": [0.0, 0.0, 0.0], "fov": 60.0},
+            "body": [
+                {
+                    "name": "top",
+                    "shape": "box",
+                    "size": [2.0, 0.5, 0.5],
+                    "motion": {
+                        "kind": "spin",
+                        "axis": [0.0, 0.0, 1.0],
+                        "angular_velocity": omega,
+                        "base": {"kind": "uniform", "beta": list(base_beta)},
+                    },
+                    "surface": {"color": [0.5, 0.5, 0.5]},
+                },
+                {
+                    "name": "probe",
+                    "shape": "sphere",
+                    "radius": 0.2,
+                    "motion": {
+                        "kind": "hyperbolic",
+                        "acceleration": [1.0e16, 0.0, 0.0],
+                        "position": [0.0, 0.0, 3.0],
+                    },
+                    "surface": {"color": [0.5, 0.5, 0.5]},
+                },
+            ],
+        }
+    )
+
+
+def test_rest_scene_of_spinning_and_accelerated_bodies():
+    omega, t = 1.0e7, 5.0e-8  # rad/s, s: 0.5 rad of turn
+    # spin about z with its base at rest: the angle is omega t (definition of the spin
+    # angle, docs/motion.md), read back through the Euler angles of the rest scene
+    rest = compare.rest_scene(spinning_scene(omega=omega), t)
+    assert rest.bodies[0].rotation == pytest.approx([0.0, 0.0, math.degrees(omega * t)], abs=1e-9)
+    # on a base moving at beta = 0.6 the spin runs on the base's proper time, t / gamma
+    # with gamma = 1.25 (time dilation, Einstein 1905)
+    moving = compare.rest_scene(spinning_scene(base_beta=(0.6, 0.0, 0.0), omega=omega), t)
+    assert moving.bodies[0].rotation[2] == pytest.approx(math.degrees(omega * t / 1.25), rel=1e-9)
+    assert moving.bodies[0].motion.position == pytest.approx([0.6 * C * t, 0.0, 0.0])
+    # hyperbolic motion from rest at t = 0: x(t) = x0 + sqrt(L^2 + (ct)^2) - L, L = c^2/a
+    # (Rindler, Relativity: Special, General and Cosmological, 2006, section 3.8)
+    L = C**2 / 1.0e16
+    x = math.sqrt(L * L + (C * t) ** 2) - L
+    assert moving.bodies[1].motion.position == pytest.approx([x, 0.0, 3.0], rel=1e-12)
+    assert not np.any(moving.bodies[1].motion.beta)

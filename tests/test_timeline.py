@@ -15,15 +15,28 @@ from relview.scene import Scene
 ROD = 2.0  # m, rest length
 
 
-def rod_scene(beta=(0.6, 0.0, 0.0), camera=(0.0, -3.0, 0.0), look_at=(0.0, 0.0, 0.0),
-              fov=90.0, position=(0.0, 0.0, 0.0)):
-    return Scene.from_dict({
-        "render": {"resolution": [64, 36]},
-        "camera": {"position": list(camera), "look_at": list(look_at), "fov": fov},
-        "body": [{"name": "rod", "shape": "box", "size": [ROD, 0.05, 0.05],
-                  "motion": {"beta": list(beta), "position": list(position)},
-                  "surface": {"color": [0.5, 0.5, 0.5]}}],
-    })
+def rod_scene(
+    beta=(0.6, 0.0, 0.0),
+    camera=(0.0, -3.0, 0.0),
+    look_at=(0.0, 0.0, 0.0),
+    fov=90.0,
+    position=(0.0, 0.0, 0.0),
+):
+    return Scene.from_dict(
+        {
+            "render": {"resolution": [64, 36]},
+            "camera": {"position": list(camera), "look_at": list(look_at), "fov": fov},
+            "body": [
+                {
+                    "name": "rod",
+                    "shape": "box",
+                    "size": [ROD, 0.05, 0.05],
+                    "motion": {"beta": list(beta), "position": list(position)},
+                    "surface": {"color": [0.5, 0.5, 0.5]},
+                }
+            ],
+        }
+    )
 
 
 ENDS = [[-ROD / 2, 0.0, 0.0], [ROD / 2, 0.0, 0.0]]
@@ -68,15 +81,20 @@ def test_head_on_rod_is_stretched_by_the_doppler_factor():
     scene = rod_scene(camera=(50.0, 0.0, 0.0), look_at=(0.0, 0.0, 0.0), fov=30.0)
     table = timeline.probe_table(scene, "rod", ENDS, [0.0, 1e-8])
     assert table.length_column("photographed_length_m") == pytest.approx(
-        ROD * math.sqrt(1.6 / 0.4), rel=1e-12)
+        ROD * math.sqrt(1.6 / 0.4), rel=1e-12
+    )
     # and the approaching rod's Doppler factor is the same sqrt((1+b)/(1-b)) = 2
     assert table.column("doppler") == pytest.approx(2.0, rel=1e-12)
 
 
 def test_columns_units_and_angles():
     # a body at rest: a point at (3, 10, 4) m from a camera at the origin looking along +y
-    scene = rod_scene(beta=(0.0, 0.0, 0.0), camera=(0.0, 0.0, 0.0), look_at=(0.0, 1.0, 0.0),
-                      position=(3.0, 10.0, 4.0))
+    scene = rod_scene(
+        beta=(0.0, 0.0, 0.0),
+        camera=(0.0, 0.0, 0.0),
+        look_at=(0.0, 1.0, 0.0),
+        position=(3.0, 10.0, 4.0),
+    )
     table = timeline.probe_table(scene, "rod", [[0.0, 0.0, 0.0]], [0.0, 1e-9])
     assert list(table.rows[0]) == list(timeline.COLUMNS)
     for name, (unit, _) in timeline.COLUMNS.items():  # unit suffix in every column name
@@ -162,8 +180,18 @@ color = [0.5, 0.5, 0.5]
     assert cli.main(["probe", str(path), "--body", "rod", "--point", "1,0,0"]) == 0
     out = capsys.readouterr().out
     assert "Doppler factor D" in out and "emission time" in out
-    args = ["probe", str(path), "--body", "rod", "--point=-1,0,0", "--point", "1,0,0",
-            "--times", "0:2e-8:3", "--quiet"]
+    args = [
+        "probe",
+        str(path),
+        "--body",
+        "rod",
+        "--point=-1,0,0",
+        "--point",
+        "1,0,0",
+        "--times",
+        "0:2e-8:3",
+        "--quiet",
+    ]
     assert cli.main(args + ["--json"]) == 0
     doc = json.loads(capsys.readouterr().out)
     assert len(doc["rows"]) == 6 and len(doc["length"]) == 3
