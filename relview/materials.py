@@ -299,10 +299,12 @@ def _split_fields(line: str) -> list[str]:
 
 
 def _mallett_basis() -> tuple[np.ndarray, np.ndarray]:
-    """Mallett & Yuksel (2019) sRGB basis spectra from colour-science (380-780 nm, 5 nm)."""
-    from colour.recovery import MSDS_BASIS_FUNCTIONS_sRGB_MALLETT2019 as basis
+    """Mallett & Yuksel (2019) sRGB basis spectra from colour-science (380-780 nm, 5 nm),
+    through the cached extract in relview.colour_data."""
+    from relview.colour_data import tables
 
-    return np.asarray(basis.wavelengths, dtype=float), np.asarray(basis.values, dtype=float)
+    t = tables()
+    return np.asarray(t["basis_nm"], dtype=float), np.asarray(t["basis"], dtype=float)
 
 
 BASIS_WAVELENGTHS_NM, BASIS_VALUES = _mallett_basis()

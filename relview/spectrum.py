@@ -42,13 +42,12 @@ VISIBLE_MAX_NM = 830.0
 
 
 def _load_cmfs() -> tuple[np.ndarray, np.ndarray]:
-    """CIE 1931 2-degree colour-matching functions from colour-science (360-830 nm, 1 nm)."""
-    import colour
+    """CIE 1931 2-degree colour-matching functions from colour-science (360-830 nm, 1 nm),
+    through the cached extract in relview.colour_data."""
+    from relview.colour_data import tables
 
-    cmfs = colour.MSDS_CMFS["CIE 1931 2 Degree Standard Observer"]
-    wavelengths = np.asarray(cmfs.wavelengths, dtype=float)
-    values = np.asarray(cmfs.values, dtype=float)
-    return wavelengths, values
+    t = tables()
+    return np.asarray(t["cmf_nm"], dtype=float), np.asarray(t["cmf"], dtype=float)
 
 
 #: (M,) nm and (M, 3) xbar, ybar, zbar of the CIE 1931 2-degree standard observer.
@@ -91,10 +90,10 @@ D65_CCT_K = 6504.0
 
 
 def _load_d65() -> tuple[np.ndarray, np.ndarray]:
-    import colour
+    from relview.colour_data import tables
 
-    sd = colour.SDS_ILLUMINANTS["D65"]
-    return np.asarray(sd.wavelengths, dtype=float), np.asarray(sd.values, dtype=float)
+    t = tables()
+    return np.asarray(t["d65_nm"], dtype=float), np.asarray(t["d65"], dtype=float)
 
 
 D65_WAVELENGTHS_NM, D65_VALUES = _load_d65()
