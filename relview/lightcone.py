@@ -249,11 +249,15 @@ def check_body_speed(scene, index: int, vertices) -> None:
 
     body = scene.bodies[index]
     extent = float(np.sqrt((np.asarray(vertices, float) ** 2).sum(axis=1).max())) if len(vertices) else 0.0
+    kin = as_kinematics(body.motion)
+    if getattr(kin, "_validated_extent", -1.0) >= extent:  # done for an earlier frame
+        return
     try:
-        as_kinematics(body.motion).validate(extent)
+        kin.validate(extent)
     except ValueError as err:
         source = getattr(scene, "source_path", None)
         raise SceneError(str(err), file=source, key=f'[body.motion] (body "{body.name}")') from None
+    kin._validated_extent = extent
 
 
 def pixel_tolerance(scene) -> float:
