@@ -471,6 +471,19 @@ def _time_text(t: float) -> str:
     return f"t = {t:.6g} s ({t * 1e9:.4g} ns)" if t else "t = 0 s"
 
 
+def _speed_text(sheet: Sheet, panel: Panel) -> str:
+    """Per-panel line: time, and the main body's speed (or that it is shown at rest)."""
+    text = _time_text(sheet.time)
+    if sheet.main_body:
+        b = float(np.linalg.norm(sheet.beta))
+        speed = f"beta = {b:.4g}, gamma = {sheet.gamma:.4g}"
+        if panel.kind.at_rest:
+            text += f"; {sheet.main_body} shown at rest (moves at {speed})"
+        else:
+            text += f"; {sheet.main_body}: {speed}"
+    return text
+
+
 def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
     """A matplotlib Figure of the sheet: panels side by side (wrapping after ``columns``)."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
@@ -505,7 +518,7 @@ def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
         ax.text(
             0.0,
             -0.02,
-            f"{p.kind.subtitle}\n{expo}",
+            f"{p.kind.subtitle}\n{_speed_text(sheet, p)}\n{expo}",
             transform=ax.transAxes,
             fontsize="x-small",
             ha="left",
@@ -742,6 +755,16 @@ def cmd_compare(args) -> int:
         return 0
     if args.panel:
         raise UserError("--panel goes with --layer; for a sheet use --panels LIST")
+    off = [
+        f"--no-{n}"
+        for n in ("delay", "contraction", "aberration", "doppler", "beaming")
+        if getattr(args, f"no_{n.replace('-', '_')}", False)
+    ]
+    if off:
+        raise UserError(
+            f"{' '.join(off)}: a comparison sheet sets every panel's effects itself "
+            "(docs/figures.md); choose panels with --panels, e.g. --panels measured,delay-only"
+        )
     out = Path(args.output) if args.output else default_output(args.scene, "-compare.png")
     sheet = compare_sheet(
         scene,

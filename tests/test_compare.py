@@ -252,6 +252,9 @@ color = [0.8, 0.6, 0.3]
     assert cli.main(["compare", str(path), "-o", str(tmp_path / "x.gif"), "--quiet"]) == 2
     assert cli.main(["compare", str(path), "--panels", "nope", "--quiet"]) == 2
     assert "unknown panel" in capsys.readouterr().err
+    # effect switches would be silently ignored on a sheet: refused, pointing at --panels
+    assert cli.main(["compare", str(path), "--no-doppler", "--quiet"]) == 2
+    assert "--panels" in capsys.readouterr().err
 
 
 def spinning_scene(base_beta=(0.0, 0.0, 0.0), omega=1.0e7):
