@@ -2,7 +2,7 @@
 
 Sources: Rindler, Relativity: Special, General and Cosmological (2006): §3.6 velocity
 addition, §3.8 hyperbolic motion; the Doppler factor and its transverse value 1/gamma
-(physics.md, Rybicki & Lightman 1979 eq. 4.11); scipy.optimize.brentq as an independent
+(physics.md, Rybicki & Lightman 1979, ch. 4); scipy.optimize.brentq as an independent
 root finder; scipy.integrate.quad for proper time.
 """
 
@@ -229,7 +229,7 @@ def test_hyperbolic_rejects_body_beyond_horizon():
 
 def test_orbit_transverse_doppler():
     # Velocity perpendicular to the line of sight at emission: D = 1/gamma (transverse
-    # Doppler shift; physics.md, Rybicki & Lightman 1979 eq. 4.11 with beta.n = 0).
+    # Doppler shift; physics.md, Rybicki & Lightman 1979, ch. 4 with beta.n = 0).
     beta = 0.8
     mot = OrbitMotion(center=np.array([1.0, 2.0, 0.0]), radius=5.0, beta=beta, axis=np.array([0.0, 0.0, 1.0]),
                       phase=30.0, time=0.0)
