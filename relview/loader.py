@@ -536,21 +536,31 @@ class Table:
             return default
         if not value.strip():
             raise self.error(key, f"empty path: {key} = {show(value)}", value)
-        path = Path(value).expanduser()
+        try:
+            path = Path(value).expanduser()
+        except RuntimeError:  # "~name/..." for a user that does not exist
+            raise self.error(
+                key, f"{what} not found: {key} = {show(value)} (no such user's home)", value
+            ) from None
         if not path.is_absolute():
             path = self.doc.base_dir / path
-        if not path.exists():
+        try:
+            exists, is_file = path.exists(), path.is_file()
+        except (OSError, ValueError) as exc:  # e.g. a name too long for the file system
+            reason = getattr(exc, "strerror", None) or str(exc)
+            raise self.error(key, f"unusable path {key} = {show(value)}: {reason}", value) from None
+        if not exists:
             raise self.error(
                 key, f"{what} not found: {key} = {show(value)} (looked for {path})", value
             )
-        if not path.is_file():
+        if not is_file:
             raise self.error(key, f"{what} is not a file: {key} = {show(value)} ({path})", value)
         try:
             with open(path, "rb") as fh:
                 fh.read(1)
         except OSError as exc:
             raise self.error(
-                key, f"cannot read {what} {key} = {show(value)}: {exc.strerror}", value
+                key, f"cannot read {what}: {key} = {show(value)}: {exc.strerror}", value
             ) from exc
         self.doc.referenced.append(path)
         return path
@@ -826,7 +836,8 @@ def _parse_render(root: Table) -> RenderSettings:
     t = root.table("render", None, section="render")
     if t is None:
         return RenderSettings()
-    t.check_keys(("resolution", "samples", "exposure", "seed", "effects"))
+    t.check_keys(("resolution", "samples", "exposure", "seed", "effects", "shutter",
+                  "shutter_samples"))
     defaults = RenderSettings()
     exposure: float | str = "auto"
     if t.has("exposure"):
@@ -846,13 +857,42 @@ def _parse_render(root: Table) -> RenderSettings:
         exposure=exposure,
         effects=effects,
         seed=t.integer("seed", defaults.seed, low=0, high=2**63 - 1),
+        shutter=t.number("shutter", 0.0, nonnegative=True, unit="s"),
+        shutter_samples=t.integer("shutter_samples", defaults.shutter_samples, low=1,
+                                  high=4096),
     )
+
+
+def _unit(v: np.ndarray) -> np.ndarray:
+    """v / |v| for a nonzero finite vector, without overflow for huge entries."""
+    v = v / np.abs(v).max()
+    return v / np.linalg.norm(v)
 
 
 def _parse_camera(root: Table) -> Camera:
     t = root.table("camera", section="camera")
-    t.check_keys(("position", "look_at", "direction", "up", "fov", "time", "beta", "projection"))
-    position = t.vector("position", 3, unit="m")
+    t.check_keys(("position", "look_at", "direction", "up", "fov", "time", "beta", "projection",
+                  "motion"))
+    time = t.number("time", 0.0, unit="s")
+    motion = None
+    if t.has("motion"):
+        # The camera rides any motion kind; its place and velocity follow the worldline.
+        for clash in ("position", "beta"):
+            if t.has(clash):
+                raise t.error(clash, f"{clash} = {show(t.data[clash])} cannot be given with "
+                              "[camera.motion], which sets the camera's worldline; remove it",
+                              t.data[clash])
+        m = t.table("motion", None, section="camera.motion")
+        _load_motion_plugins()
+        kind = m.string("kind", "uniform", choices=sorted(MOTION_KINDS))
+        motion = MOTION_KINDS[kind](m)
+        from relview.lorentz import C as _C
+        from relview.motion import camera_state
+
+        position, _beta = camera_state(motion, _C * time)
+        position = np.asarray(position, float)
+    else:
+        position = t.vector("position", 3, unit="m")
     if t.has("look_at") == t.has("direction"):
         both = t.has("look_at")
         raise t.error(
@@ -867,8 +907,10 @@ def _parse_camera(root: Table) -> Camera:
     look_at = direction = None
     if t.has("look_at"):
         look_at = t.vector("look_at", 3, unit="m")
-        forward = look_at - position
-        if np.linalg.norm(forward) <= 1e-12 * max(1.0, float(np.linalg.norm(position))):
+        # Compare in units of the larger coordinate, so huge values cannot overflow.
+        size = max(1.0, float(np.abs(position).max()), float(np.abs(look_at).max()))
+        forward = look_at / size - position / size
+        if np.linalg.norm(forward) <= 1e-12:
             raise t.error(
                 "look_at",
                 f"look_at = {show(t.data['look_at'])} equals the camera position; the view direction is undefined",
@@ -877,14 +919,14 @@ def _parse_camera(root: Table) -> Camera:
     else:
         direction = t.vector("direction", 3, nonzero=True)
         forward = direction
-        direction = direction / np.linalg.norm(direction)
+        direction = _unit(direction)
     up = t.vector("up", 3, (0.0, 0.0, 1.0), nonzero=True)
-    sine = np.linalg.norm(np.cross(forward / np.linalg.norm(forward), up / np.linalg.norm(up)))
+    sine = np.linalg.norm(np.cross(_unit(forward), _unit(up)))
     if sine < 1e-6:
         raise t.error(
             "up",
             f"up = {show(t.data.get('up', [0.0, 0.0, 1.0]))} is parallel to the view direction "
-            f"{show(np.round(forward / np.linalg.norm(forward), 6))}; the image's vertical is "
+            f"{show(np.round(_unit(forward), 6))}; the image's vertical is "
             "undefined: give an up vector across the view",
             t.data.get("up"),
         )
@@ -910,9 +952,10 @@ def _parse_camera(root: Table) -> Camera:
         direction=direction,
         up=up,
         fov=fov,
-        time=t.number("time", 0.0, unit="s"),
-        beta=t.beta("beta"),
+        time=time,
+        beta=np.zeros(3) if motion is not None else t.beta("beta"),
         projection=projection,
+        motion=motion,
     )
 
 
@@ -966,6 +1009,17 @@ def _parse_body(t: Table, index: int, seen: dict[str, int]) -> Body:
         body.center = t.boolean("center", True)
         body.file = t.path_value("file", what="mesh file")
         _check_mesh(t, body)
+    from relview.shapes import MAX_COORDINATE
+
+    for key in ("size", "radius", "height"):
+        value = getattr(body, key, None)
+        if value is not None and np.max(value) > MAX_COORDINATE:
+            raise t.error(
+                key,
+                f"{key} = {show(t.data[key])} m is too large to compute with; the largest "
+                f"usable size is {MAX_COORDINATE:.0e} m",
+                t.data[key],
+            )
 
     body.motion = _parse_motion(t)
     body.surface = _parse_surface(t)
@@ -1179,5 +1233,10 @@ def load_scene(path: str | Path) -> Scene:
         raise SceneError(
             f"TOML syntax error: {msg}{snippet}", file=source, line=line, column=column
         ) from None
+    if not data:
+        what = "is empty" if not text.strip() else "holds only comments"
+        raise SceneError(
+            f"the scene file {what}; a scene needs at least a [camera] table", file=source
+        )
     doc = _Document(source, path.parent, text)
     return _build(data, doc, raw, path)

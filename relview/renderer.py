@@ -188,6 +188,22 @@ def check_memory(width: int, height: int, source: str = "render.resolution") -> 
                         "lower the resolution")
 
 
+def exposure_times(t: float, shutter: float, samples: int, shutter_samples: int) -> np.ndarray:
+    """Scene times (s) of the exposure events of one frame.
+
+    Sample 0 is the nominal exposure event t (it also fills the data layers). With an
+    open shutter (``shutter`` > 0 s) the frame integrates samples * shutter_samples events
+    in all; the others are stratified evenly over [t - shutter/2, t + shutter/2]
+    (relativistic motion blur: each is a full retarded-time picture). Without a shutter
+    every sample is at t and only the pixel position is jittered.
+    """
+    n = samples * (shutter_samples if shutter > 0 else 1)
+    if shutter <= 0 or n == 1:
+        return np.full(n, float(t))
+    rest = t + shutter * ((np.arange(n - 1) + 0.5) / (n - 1) - 0.5)
+    return np.concatenate([[float(t)], rest])
+
+
 def render(scene: Scene, time: float | None = None, *, resolution=None, samples=None,
            exposure=None, effects: Effects | None = None, context: RenderContext | None = None,
            progress: bool = False) -> Frame:
@@ -211,12 +227,7 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
         warnings.warn(f"{scene.source_path or 'scene'}: the camera is inside body {name!r} "
                       f"at t = {t:.6g} s (tested in the body's rest frame); every ray starts "
                       "inside it, so the image shows its inner faces", SceneWarning, stacklevel=2)
-    tracer = context.tracer(event)
     cam = scene.camera
-    if not effects.aberration:
-        beta_for_rays = np.zeros(3)
-    else:
-        beta_for_rays = beta_cam
     rng = np.random.default_rng(scene.render.seed)
     n_pix = width * height
     xyz = np.zeros((n_pix, 3))
@@ -226,27 +237,36 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
     layer_rest = np.full((n_pix, 3), np.nan)
     layer_body = np.full(n_pix, -1, np.int64)
     centres = cam_mod.pixel_grid(width, height)
-    batches = [(s, a) for s in range(samples) for a in range(0, n_pix, RAYS_PER_BATCH)]
+    times = exposure_times(t, scene.render.shutter, samples, scene.render.shutter_samples)
+    n_samples = len(times)
+    batches = [(s, a) for s in range(n_samples) for a in range(0, n_pix, RAYS_PER_BATCH)]
     bar = None
     if progress:
         from tqdm import tqdm
 
         bar = tqdm(total=len(batches), desc="render", unit="batch", leave=False)
+    state = {}
     for s, a in batches:
+        if s not in state:  # one exposure event (and light-cone snapshot) per sample
+            state.clear()
+            ev, beta_c = (event, beta_cam) if s == 0 else camera_state(scene, times[s])
+            state[s] = (ev, beta_c, context.tracer(ev))
+        ev, beta_c, tracer = state[s]
         b = min(a + RAYS_PER_BATCH, n_pix)
         px = centres[a:b]
-        if s > 0:
+        if s > 0 and samples > 1:
             px = px + rng.uniform(-0.5, 0.5, size=px.shape)
-        d_s, valid = cam_mod.scene_directions(cam, width, height, px, beta_for_rays)
-        origin = np.broadcast_to(event, (len(d_s), 4))
+        d_s, valid = cam_mod.scene_directions(cam, width, height, px,
+                                              beta_c if effects.aberration else None)
+        origin = np.broadcast_to(ev, (len(d_s), 4))
         hits = tracer.cast(origin, d_s, effects)
         hits.body[~valid] = -1
-        dop = doppler_of_hits(hits, d_s, beta_cam, effects)
+        dop = doppler_of_hits(hits, d_s, beta_c, effects)
         col = shade(scene, context, hits, dop, effects)
         miss = (hits.body < 0) & valid
         if np.any(miss):
-            col[miss] = sky.sky_xyz(scene.background, d_s[miss], beta_cam, effects)
-        xyz[a:b] += col / samples
+            col[miss] = sky.sky_xyz(scene.background, d_s[miss], beta_c, effects)
+        xyz[a:b] += col / n_samples
         if s == 0:
             layer_d[a:b] = dop
             layer_t[a:b] = hits.emit_event[:, 0] / C

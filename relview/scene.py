@@ -34,6 +34,8 @@ class RenderSettings:
     exposure: float | str = "auto"  # "auto" or the luminance (cd/m2) that maps to white
     effects: Effects = field(default_factory=Effects)
     seed: int = 0  # jitter seed, so renders are reproducible
+    shutter: float = 0.0  # s, exposure duration (0: an ideal instant shutter)
+    shutter_samples: int = 8  # exposure events per pixel sample across an open shutter
 
 
 @dataclass
@@ -46,6 +48,9 @@ class Camera:
     time: float = 0.0  # s, scene-frame time of the exposure
     beta: np.ndarray = field(default_factory=lambda: np.zeros(3))  # velocity / c
     projection: str = "pinhole"  # pinhole | panorama | fisheye
+    # Optional worldline of the camera (any motion kind of relview.motion); when given,
+    # position and beta follow it and `position` holds its place at `time`.
+    motion: Any = None
 
     def forward(self) -> np.ndarray:
         if self.direction is not None:

@@ -114,3 +114,66 @@ def test_cli_user_errors_exit_2(tmp_path, capsys):
     err = capsys.readouterr().err
     assert "fvo" in err and "fov" in err and "Traceback" not in err
     assert main(["render", str(bad), "--bogus"]) == 2
+
+
+def _dict_scene(camera, bodies=None, render=None):
+    body = {"name": "star", "shape": "sphere", "radius": 0.5, "detail": 3,
+            "motion": {"position": [0.0, 40.0, 0.0]}, "surface": {"blackbody": 5000.0}}
+    data = {"camera": camera, "body": bodies or [body]}
+    if render:
+        data["render"] = render
+    return relview.Scene.from_dict(data)
+
+
+def test_camera_riding_uniform_motion_equals_camera_beta():
+    a = _dict_scene({"position": [0, 0, 0], "direction": [1, 1, 0], "beta": [0.6, 0, 0],
+                     "time": 2e-8, "fov": 90.0})
+    b = _dict_scene({"direction": [1, 1, 0], "time": 2e-8, "fov": 90.0,
+                     "motion": {"kind": "uniform", "beta": [0.6, 0, 0],
+                                "position": [0, 0, 0], "time": 2e-8}})
+    fa = relview.render(a, resolution=(48, 27))
+    fb = relview.render(b, resolution=(48, 27))
+    assert np.array_equal(fa.layers["body"], fb.layers["body"])
+    assert fa.layers["xyz"] == pytest.approx(fb.layers["xyz"], rel=1e-9)
+
+
+def test_accelerating_camera_aberrates_with_its_velocity_at_the_exposure():
+    # Hyperbolic motion from rest (Rindler 2006, sec. 3.8): after proper acceleration a for
+    # scene time t the velocity is beta = a t / sqrt(c^2 + a^2 t^2). A source at rest, seen at
+    # 90 deg in S, appears at arccos(beta) from the direction of motion (Einstein 1905).
+    a = 9.81e8  # m/s2
+    t = 0.5  # s
+    beta = a * t / np.sqrt(C**2 + (a * t) ** 2)
+    sc = _dict_scene({"direction": [1, 0, 0], "time": t, "fov": 120.0,
+                      "motion": {"kind": "hyperbolic", "acceleration": [a, 0, 0],
+                                 "position": [0, 0, 0], "time": 0.0}})
+    x_cam = C**2 / a * (np.sqrt(1 + (a * t / C) ** 2) - 1)
+    # a point-like source abeam of the camera's position at the exposure (90 deg in S)
+    sc.bodies[0].motion.position = np.array([x_cam, 40.0, 0.0])
+    r = relview.probe(sc, "star", [0.0, -0.5, 0.0])
+    assert r.emit_position[0] == pytest.approx(x_cam, abs=1e-6)
+    assert np.degrees(np.arccos(r.direction[0])) == pytest.approx(np.degrees(np.arccos(beta)),
+                                                                  abs=1e-6)
+
+
+def test_open_shutter_integrates_the_exposure_events():
+    # An open shutter is the mean of instant pictures over the stratified exposure times.
+    from relview.renderer import exposure_times
+
+    cam = {"position": [0, -5, 0], "look_at": [0, 0, 0], "fov": 60.0}
+    body = {"name": "b", "shape": "box", "size": [1, 1, 1],
+            "motion": {"beta": [0.9, 0, 0], "position": [4.0, 0, 0]},
+            "surface": {"blackbody": 6000.0}}
+    sh = 4e-9
+    blur = _dict_scene(cam, [body], {"shutter": sh, "shutter_samples": 4, "exposure": 1e6})
+    times = exposure_times(0.0, sh, 1, 4)
+    assert times[0] == 0.0 and len(times) == 4
+    assert times[1:].min() >= -sh / 2 and times[1:].max() <= sh / 2
+    f = relview.render(blur, resolution=(64, 36))
+    inst = _dict_scene(cam, [body], {"exposure": 1e6})
+    mean = sum(relview.render(inst, ti, resolution=(64, 36)).layers["xyz"] for ti in times) / 4
+    assert (mean[..., 1] > 0).any()
+    assert f.layers["xyz"] == pytest.approx(mean, rel=1e-9, abs=1e-6)
+    # the streak is wider than the instant picture
+    assert (f.layers["xyz"][..., 1] > 0).sum() > (relview.render(inst, resolution=(64, 36))
+                                                  .layers["xyz"][..., 1] > 0).sum()
