@@ -147,6 +147,10 @@ def cmd_probe(args) -> int:
         raise UserError(f"{args.scene}: --body {args.body!r}: no such body{hint}")
     if args.times is not None or args.csv or args.plot:
         return _probe_over_time(scene, args)
+    if args.json and len(args.point) > 1:  # one JSON document: a list, one record per point
+        records = [probe(scene, args.body, q, time=args.time).to_dict() for q in args.point]
+        print(json.dumps(records, indent=2))
+        return 0
     for i, point in enumerate(args.point):
         r = probe(scene, args.body, point, time=args.time)
         if args.json:

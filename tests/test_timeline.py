@@ -194,6 +194,10 @@ color = [0.5, 0.5, 0.5]
     ]
     assert cli.main(args + ["--json"]) == 0
     doc = json.loads(capsys.readouterr().out)
+    # single time, two points, JSON: one document, a list of two records
+    assert cli.main(args[:7] + ["--json"]) == 0
+    records = json.loads(capsys.readouterr().out)
+    assert [r["point"] for r in records] == [[-1.0, 0.0, 0.0], [1.0, 0.0, 0.0]]
     assert len(doc["rows"]) == 6 and len(doc["length"]) == 3
     csv_path, plot_path = tmp_path / "r.csv", tmp_path / "r.png"
     assert cli.main(args + ["--csv", str(csv_path), "--plot", str(plot_path)]) == 0
