@@ -118,12 +118,36 @@ def default_output(scene_path: str, suffix: str) -> Path:
     return Path("outputs") / (Path(scene_path).stem + suffix)
 
 
+def check_output_path(path: Path) -> None:
+    """Refuse, before any rendering, an output path that could never be written.
+
+    The same reasons the writers in film.py give, found early so no work is lost.
+    """
+    from relview import film
+    from relview.errors import OutputError
+
+    ext = path.suffix.lower()
+    if ext not in (".png", ".npz", ".exr"):
+        raise OutputError(f"unknown image type {ext!r}; use .png, .npz or .exr", file=path)
+    if ext == ".exr" and not film.exr_available():
+        raise OutputError("cannot write .exr: no OpenEXR writer is installed; use .png or "
+                          ".npz", file=path)
+    film.safe_output_path(path)  # raises when the path is a directory
+    for parent in path.absolute().parents:
+        if parent.exists():
+            if not parent.is_dir():
+                raise OutputError(f"cannot create the directory: {parent} is a file, not a "
+                                  "directory", file=path)
+            break
+
+
 def cmd_render(args) -> int:
     from relview.renderer import render
 
     scene = scene_with_overrides(args)
-    frame = render(scene, time=args.time, progress=not args.quiet)
     out = Path(args.output) if args.output else default_output(args.scene, ".png")
+    check_output_path(out)
+    frame = render(scene, time=args.time, progress=not args.quiet)
     written = frame.save(out, overwrite=args.overwrite, bits=args.bits)
     print(f"wrote {written}  (white = {frame.white:.4g} cd/m2)")
     if args.layers:
