@@ -158,6 +158,26 @@ def _parts(loaded, path: Path) -> list[trimesh.Trimesh]:
     return [g for g in geoms if isinstance(g, trimesh.Trimesh) and len(g.faces) > 0]
 
 
+def _unreadable(path: Path, ext: str, exc: Exception) -> str:
+    """Why trimesh could not read a mesh file, in the user's terms."""
+    if isinstance(exc, ImportError):
+        # trimesh guesses the encoding of text that is not UTF-8 with an optional
+        # package; without it the real cause is the file's encoding.
+        raw = path.read_bytes()
+        try:
+            raw.decode("utf-8")
+        except UnicodeDecodeError as bad:
+            line = raw[: bad.start].count(b"\n") + 1
+            return (
+                f"cannot read mesh file: line {line} is not UTF-8 text "
+                f"(byte 0x{raw[bad.start]:02x}); save the file as UTF-8"
+            )
+    return (
+        f"cannot read mesh file (corrupt or not a valid .{ext} file?): "
+        f"{type(exc).__name__}: {exc}"
+    )
+
+
 def _read_mesh_file(path: Path) -> MeshData:
     """Read a mesh file as it is (no scaling), flattening multi-part files."""
     if not path.exists():
@@ -179,12 +199,7 @@ def _read_mesh_file(path: Path) -> MeshData:
         # process=False: keep the file's vertices as they are, so UVs stay aligned.
         loaded = trimesh.load(str(path), process=False)
     except Exception as exc:  # trimesh raises many types on corrupt input
-        raise MeshError(
-            f"cannot read mesh file (corrupt or not a {ext.upper()} file?): "
-            f"{type(exc).__name__}: {exc}",
-            file=path,
-            value=str(path),
-        ) from exc
+        raise MeshError(_unreadable(path, ext, exc), file=path, value=str(path)) from exc
     parts = _parts(loaded, path)
     if not parts:
         raise MeshError("mesh file contains no triangles", file=path, value=str(path))
@@ -217,12 +232,28 @@ def _read_mesh_file(path: Path) -> MeshData:
             file=path,
             value=str(path),
         )
+    _check_magnitude(vertices, path, "mesh file has vertex coordinates")
     if faces.min() < 0 or faces.max() >= len(vertices):
         raise MeshError(
             "mesh file has faces that index missing vertices", file=path, value=str(path)
         )
 
     return _clean(vertices, faces, uv, path)
+
+
+#: largest coordinate (m) accepted in a mesh: squares of lengths (areas, distances)
+#: must stay finite in float64, whose maximum is 1.8e308 (IEEE 754).
+MAX_COORDINATE = 1e150
+
+
+def _check_magnitude(vertices: np.ndarray, path: Path, what: str) -> None:
+    biggest = float(np.abs(vertices).max()) if vertices.size else 0.0
+    if not biggest <= MAX_COORDINATE:
+        raise MeshError(
+            f"{what} up to {biggest:.3g} m; the largest usable is {MAX_COORDINATE:.0e} m",
+            file=path,
+            value=str(path),
+        )
 
 
 def _clean(vertices: np.ndarray, faces: np.ndarray, uv: np.ndarray | None, path: Path) -> MeshData:
@@ -233,6 +264,10 @@ def _clean(vertices: np.ndarray, faces: np.ndarray, uv: np.ndarray | None, path:
     # Zero area up to rounding of the coordinates (relative tolerance a few hundred
     # float64 epsilons of the squared extent: common practice).
     degenerate = doubled_area <= 1e-14 * extent**2
+    if degenerate.all():
+        raise MeshError(
+            "mesh file has only degenerate (zero-area) triangles", file=path, value=str(path)
+        )
     if degenerate.any():
         warnings.warn(
             f"{path}: removed {int(degenerate.sum())} degenerate (zero-area) triangle(s) "
@@ -241,10 +276,6 @@ def _clean(vertices: np.ndarray, faces: np.ndarray, uv: np.ndarray | None, path:
             stacklevel=4,
         )
         faces = faces[~degenerate]
-        if len(faces) == 0:
-            raise MeshError(
-                "mesh file has only degenerate (zero-area) triangles", file=path, value=str(path)
-            )
         used = np.unique(faces)
         remap = np.full(len(vertices), -1, np.int64)
         remap[used] = np.arange(len(used))
@@ -282,7 +313,9 @@ def load_mesh_file(path: str | Path, scale: float = 1.0, center: bool = True) ->
     if cached is not None:
         return cached
     raw = _read_mesh_file(path)
-    vertices = raw.vertices * float(scale)
+    with np.errstate(over="ignore"):
+        vertices = raw.vertices * float(scale)
+    _check_magnitude(vertices, path, f"scale = {float(scale):.6g} gives vertex coordinates")
     if center:
         lo, hi = vertices.min(axis=0), vertices.max(axis=0)
         vertices = vertices - (lo + hi) / 2.0
