@@ -117,32 +117,58 @@ kind = "black"
 # --------------------------------------------------------------------------------------
 
 
-def timed_runs(fn, repeats: int, warmup: int = 1) -> list[float]:
-    """Wall-clock seconds of ``repeats`` calls of fn() after ``warmup`` untimed calls."""
+class Runs(list):
+    """Wall-clock seconds of repeated runs, with the CPU seconds each used alongside."""
+
+    def __init__(self, wall=(), cpu=None):
+        super().__init__(wall)
+        self.cpu = list(cpu) if cpu is not None else None
+
+
+def _cpu_seconds() -> float:
+    """CPU time of this process and its finished children (all threads), seconds."""
+    me = resource.getrusage(resource.RUSAGE_SELF)
+    ch = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return me.ru_utime + me.ru_stime + ch.ru_utime + ch.ru_stime
+
+
+def timed_runs(fn, repeats: int, warmup: int = 1) -> Runs:
+    """Wall-clock (and CPU) seconds of ``repeats`` calls of fn() after ``warmup`` untimed calls.
+
+    CPU seconds (summed over threads) change less than wall time when other processes
+    compete for the cores, so both are kept.
+    """
     for _ in range(warmup):
         fn()
-    out = []
+    wall, cpu = [], []
     for _ in range(repeats):
+        c0 = _cpu_seconds()
         t0 = time.perf_counter()
         fn()
-        out.append(time.perf_counter() - t0)
-    return out
+        wall.append(time.perf_counter() - t0)
+        cpu.append(_cpu_seconds() - c0)
+    return Runs(wall, cpu)
 
 
 class Stat:
-    """Median and spread of repeated timings (s)."""
+    """Median and spread of repeated timings (s), and the median CPU seconds if known."""
 
-    def __init__(self, runs: list[float]):
+    def __init__(self, runs):
         self.runs = list(runs)
         self.median = statistics.median(runs)
         self.min = min(runs)
         self.max = max(runs)
+        cpu = getattr(runs, "cpu", None)
+        self.cpu = statistics.median(cpu) if cpu else None
 
     def ms(self) -> str:
         return f"{self.median * 1e3:8.1f} [{self.min * 1e3:.1f}-{self.max * 1e3:.1f}]"
 
     def s(self) -> str:
         return f"{self.median:.2f} [{self.min:.2f}-{self.max:.2f}]"
+
+    def cpu_ms(self) -> str:
+        return "-" if self.cpu is None else f"{self.cpu * 1e3:.0f}"
 
 
 def load_str() -> str:
@@ -306,6 +332,17 @@ def bench_relview(scene, repeats: int) -> dict:
 
     timed_runs(kernel_run, repeats)
     res["kernel"] = Stat(kernel[1:])  # the first call was the warm-up
+    # the same on one thread: per-core traversal speed, comparable with Embree on 1 thread
+    import numba
+
+    threads = numba.get_num_threads()
+    numba.set_num_threads(1)
+    try:
+        kernel.clear()
+        timed_runs(kernel_run, repeats)
+        res["kernel_1thread"] = Stat(kernel[1:])
+    finally:
+        numba.set_num_threads(threads)
     body = frame.layers["body"]
     res["hit_fraction"] = float((body >= 0).mean())
     ys, xs = (body >= 0).nonzero()
@@ -611,20 +648,21 @@ def build_report(info: dict) -> str:
     add("")
     add("## Figures")
     add("")
-    add("| figure | time ms, median [min-max] | Mrays/s (median) |")
-    add("|---|---|---|")
+    add("| figure | wall ms, median [min-max] | CPU ms (median, all threads) | Mrays/s |")
+    add("|---|---|---|---|")
 
     def row(label, stat, rays=n):
-        mr = rays / stat.median / 1e6 if rays else float("nan")
-        add(f"| {label} | {stat.ms().strip()} | {mr:.2f} |" if rays else
-            f"| {label} | {stat.ms().strip()} | - |")
+        mr = f"{rays / stat.median / 1e6:.2f}" if rays else "-"
+        add(f"| {label} | {stat.ms().strip()} | {stat.cpu_ms()} | {mr} |")
 
     row("relview full frame, rest (`render`)", rest["frame"])
     row("relview trace alone, rest (`Tracer.cast`, one call)", rest["trace"])
     row("relview kernel alone, rest (`trace._cast`)", rest["kernel"])
+    row("relview kernel alone, rest, 1 thread", rest["kernel_1thread"])
     row(f"relview full frame, {MOVING_BETA}c", moving["frame"])
     row(f"relview trace alone, {MOVING_BETA}c", moving["trace"])
     row(f"relview kernel alone, {MOVING_BETA}c", moving["kernel"])
+    row(f"relview kernel alone, {MOVING_BETA}c, 1 thread", moving["kernel_1thread"])
     row("relview RenderContext build (mesh + BVH), rest", rest["context"], rays=0)
     if emb:
         row(f"Embree bare first-hit cast, 1 thread", emb["cast_1thread"])
@@ -633,11 +671,20 @@ def build_report(info: dict) -> str:
     add("")
     add("## Ratios against the targets")
     add("")
-    add("| ratio | value | target | met |")
-    add("|---|---|---|---|")
-    for label, value, target in info["ratios"]:
-        add(f"| {label} | {value:.2f} | <= {target} | {'yes' if value <= target else 'no'} |")
+    add("| ratio | wall-time ratio (medians) | CPU-time ratio | target | met (wall) |")
+    add("|---|---|---|---|---|")
+    for label, value, cpu, target in info["ratios"]:
+        cpu_s = "-" if cpu is None else f"{cpu:.2f}"
+        add(f"| {label} | {value:.2f} | {cpu_s} | <= {target} | "
+            f"{'yes' if value <= target else 'no'} |")
     add("")
+    add("The CPU-time ratio compares CPU seconds summed over threads; it moves less with the "
+        "load from other processes, but counts a 2-thread figure's both cores.")
+    add("")
+    if "kernel_vs_embree_1thread" in info:
+        add(f"Per-core traversal (no target): relview kernel / Embree cast, both on 1 thread, "
+            f"rest rays: {info['kernel_vs_embree_1thread']:.2f}.")
+        add("")
     if info.get("agreement"):
         add(f"Cross-check (rest rays): {info['agreement']}")
         add("")
@@ -645,8 +692,8 @@ def build_report(info: dict) -> str:
     add("## Start-up (second run, numba cache warm)")
     add("")
     add(f"- Whole command `relview render SCENE --resolution {STARTUP_RESOLUTION} -o FILE "
-        f"--quiet --overwrite`: {su['whole_cmd'].s()} s (target: rendering starts within "
-        f"{TARGET_STARTUP_S} s).")
+        f"--quiet --overwrite`: {su['whole_cmd'].s()} s wall, "
+        f"{su['whole_cmd'].cpu:.2f} s CPU (median).")
     add(f"- Instrumented `relview render` at {WIDTH}x{HEIGHT} (seconds from spawning the process; "
         f"{su['compiled_runs']} run(s) that had to compile numba code were left out):")
     add("")
@@ -737,23 +784,30 @@ def print_summary(info: dict) -> None:
     print(f"\nrelview frame benchmark  {info['date']}  {info['cpu']}  nproc={info['nproc']}")
     print(f"{info['triangles']} triangles, {WIDTH}x{HEIGHT}, {n} rays; median [min-max] of "
           f"{info['repeats']} runs; load {info['load_start']} -> {info['load_end']}\n")
-    print(f"{'figure':52s} {'ms':>28s} {'Mrays/s':>9s}")
+    print(f"{'figure':40s} {'wall ms':>28s} {'CPU ms':>7s} {'Mrays/s':>8s}")
     rows = [("relview frame, rest", rest["frame"]), ("relview trace, rest", rest["trace"]),
             ("relview kernel, rest", rest["kernel"]),
+            ("relview kernel, rest, 1 thread", rest["kernel_1thread"]),
             (f"relview frame, {MOVING_BETA}c", moving["frame"]),
             (f"relview trace, {MOVING_BETA}c", moving["trace"]),
-            (f"relview kernel, {MOVING_BETA}c", moving["kernel"])]
+            (f"relview kernel, {MOVING_BETA}c", moving["kernel"]),
+            (f"relview kernel, {MOVING_BETA}c, 1 thread", moving["kernel_1thread"])]
     if emb:
         rows += [("Embree cast, 1 thread", emb["cast_1thread"]),
                  (f"Embree cast, {emb['threads']} threads", emb["cast_nthreads"])]
     for lab, st in rows:
-        print(f"{lab:52s} {st.ms():>28s} {n / st.median / 1e6:9.2f}")
-    print(f"{'relview RenderContext build (BVH)':52s} {rest['context'].ms():>28s}")
+        print(f"{lab:40s} {st.ms():>28s} {st.cpu_ms():>7s} {n / st.median / 1e6:8.2f}")
+    print(f"{'relview RenderContext build (BVH)':40s} {rest['context'].ms():>28s} "
+          f"{rest['context'].cpu_ms():>7s}")
     if emb:
-        print(f"{'Embree scene build':52s} {emb['build'].ms():>28s}")
+        print(f"{'Embree scene build':40s} {emb['build'].ms():>28s} {emb['build'].cpu_ms():>7s}")
     print()
-    for label, value, target in info["ratios"]:
-        print(f"{label:60s} {value:7.2f}  (target <= {target})")
+    for label, value, cpu, target in info["ratios"]:
+        cpu_s = "" if cpu is None else f"  CPU-time ratio {cpu:.2f}"
+        print(f"{label:60s} {value:7.2f}  (target <= {target}){cpu_s}")
+    if "kernel_vs_embree_1thread" in info:
+        print(f"{'relview kernel / Embree cast, both 1 thread (per-core traversal)':60s} "
+              f"{info['kernel_vs_embree_1thread']:7.2f}")
     if info.get("agreement"):
         print("cross-check:", info["agreement"])
     su = info["startup"]
@@ -761,7 +815,8 @@ def print_summary(info: dict) -> None:
         print("WARNING: relview/*.py changed during the run; figures mix two code versions")
     print(f"numba compiles in this process: {info['compiles_main']}; start-up runs that "
           f"compiled (left out): {su['compiled_runs']}")
-    print(f"\nstart-up: whole command at {STARTUP_RESOLUTION}: {su['whole_cmd'].s()} s")
+    print(f"\nstart-up: whole command at {STARTUP_RESOLUTION}: {su['whole_cmd'].s()} s wall, "
+          f"{su['whole_cmd'].cpu:.2f} s CPU")
     for k, st in su["stages"].items():
         print(f"  {k:22s} {st.s()} s after spawn")
     for key, m in info["memory"].items():
@@ -839,22 +894,26 @@ def main(argv=None) -> int:
         info["loads"].append(("after Embree", load_str()))
 
         ratios = []
+
+        def ratio(label, a, b, target):
+            cpu = a.cpu / b.cpu if a.cpu and b.cpu else None
+            ratios.append((label, a.median / b.median, cpu, target))
+
+        r, m = info["rest"], info["moving"]
         if emb:
-            ratios.append((f"relview frame at rest / Embree cast ({emb['threads']} threads)",
-                           info["rest"]["frame"].median / emb["cast_nthreads"].median,
-                           TARGET_REST_VS_EMBREE))
-            ratios.append(("relview frame at rest / Embree cast (1 thread)",
-                           info["rest"]["frame"].median / emb["cast_1thread"].median,
-                           TARGET_REST_VS_EMBREE))
-            info["agreement"] = agreement(info["rest"], emb)
+            ratio(f"relview frame at rest / Embree cast ({emb['threads']} threads)", r["frame"],
+                  emb["cast_nthreads"], TARGET_REST_VS_EMBREE)
+            ratio("relview frame at rest / Embree cast (1 thread)", r["frame"],
+                  emb["cast_1thread"], TARGET_REST_VS_EMBREE)
+            info["kernel_vs_embree_1thread"] = (r["kernel_1thread"].median
+                                                / emb["cast_1thread"].median)
+            info["agreement"] = agreement(r, emb)
         else:
             print("embreex is not installed (pip install -e .[bench]): Embree figures skipped")
-        ratios.append((f"relview frame at {MOVING_BETA}c / relview frame at rest",
-                       info["moving"]["frame"].median / info["rest"]["frame"].median,
-                       TARGET_MOVING_VS_REST))
-        ratios.append((f"relview trace at {MOVING_BETA}c / relview trace at rest",
-                       info["moving"]["trace"].median / info["rest"]["trace"].median,
-                       TARGET_MOVING_VS_REST))
+        ratio(f"relview frame at {MOVING_BETA}c / relview frame at rest", m["frame"], r["frame"],
+              TARGET_MOVING_VS_REST)
+        ratio(f"relview trace at {MOVING_BETA}c / relview trace at rest", m["trace"], r["trace"],
+              TARGET_MOVING_VS_REST)
         info["ratios"] = ratios
 
         print("start-up (subprocesses) ...", flush=True)
