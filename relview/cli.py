@@ -235,6 +235,13 @@ def cmd_check(args) -> int:
     from relview.renderer import check_memory, estimate_bytes
 
     check_memory(w, h, source=f"{args.scene}: render.resolution")
+    from relview import lightcone, shapes
+    from relview.scene import UniformMotion
+
+    for i, body in enumerate(scene.bodies):
+        # every point of a body on a non-uniform worldline must stay below c
+        if not isinstance(body.motion, UniformMotion):
+            lightcone.check_body_speed(scene, i, shapes.mesh_data(body).vertices)
     print(f"{args.scene}: ok  ({len(scene.bodies)} bodies, {w}x{h}, "
           f"about {estimate_bytes(w, h) / 2**20:.0f} MiB per frame)")
     return 0

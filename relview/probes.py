@@ -99,9 +99,13 @@ def probe_many(scene: Scene, body, points, time: float | None = None,
     # visibility: cast the same backward ray and compare the first hit with the point
     if context is None or context.effects != effects:
         context = RenderContext(scene, effects)
-    hits = context.tracer(event).cast(np.broadcast_to(event, (len(pts), 4)), d_s, effects)
-    # visible when the first surface on that ray is not nearer than the point itself
-    tol = 1e-6 * np.maximum(dist, 1e-3)
+    tracer = context.tracer(event)
+    hits = tracer.cast(np.broadcast_to(event, (len(pts), 4)), d_s, effects)
+    # visible when the first surface on that ray is not nearer than the point itself; a
+    # light-cone snapshot places surfaces only to its measured angular error
+    snap_error = max((g.snapshot.error for g in tracer.groups if hasattr(g, "snapshot")),
+                     default=0.0)
+    tol = np.maximum(1e-6, 2.0 * snap_error) * np.maximum(dist, 1e-3)
     visible = hits.l >= dist - tol
     dop = doppler_along(beta_e, d_s, beta_cam, effects)  # of the point, not of what hides it
     out = []

@@ -177,3 +177,16 @@ def test_open_shutter_integrates_the_exposure_events():
     # the streak is wider than the instant picture
     assert (f.layers["xyz"][..., 1] > 0).sum() > (relview.render(inst, resolution=(64, 36))
                                                   .layers["xyz"][..., 1] > 0).sum()
+
+
+def test_check_rejects_a_body_whose_points_would_reach_c(tmp_path, capsys):
+    # A rigid body of extent e on a circular orbit of radius r at speed beta has points at
+    # up to r + e from the centre; their speed reaches c first (message from relview.motion).
+    bad = tmp_path / "orbit.toml"
+    bad.write_text('[camera]\nposition = [0, -12, 0]\nlook_at = [0, 0, 0]\n'
+                   '[[body]]\nname = "big"\nshape = "box"\nsize = [2, 2, 2]\n'
+                   '[body.motion]\nkind = "orbit"\nradius = 1.0\nbeta = 0.9\n'
+                   '[body.surface]\nblackbody = 5000.0\n')
+    assert main(["check", str(bad)]) == 2
+    err = capsys.readouterr().err
+    assert "big" in err and "reach c" in err and "Traceback" not in err
