@@ -258,8 +258,7 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
             px = px + rng.uniform(-0.5, 0.5, size=px.shape)
         d_s, valid = cam_mod.scene_directions(cam, width, height, px,
                                               beta_c if effects.aberration else None)
-        origin = np.broadcast_to(ev, (len(d_s), 4))
-        hits = tracer.cast(origin, d_s, effects)
+        hits = tracer.cast(ev, d_s, effects)
         hits.body[~valid] = -1
         dop = doppler_of_hits(hits, d_s, beta_c, effects)
         col = shade(scene, context, hits, dop, effects)

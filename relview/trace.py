@@ -85,14 +85,6 @@ def frame_matrix(beta: np.ndarray, effects: Effects) -> np.ndarray:
     return boost_matrix(beta) if effects.contraction else galilean_matrix(beta)
 
 
-def ray_four_direction(d_scene: np.ndarray, effects: Effects) -> np.ndarray:
-    """(N, 4) backward 4-direction per unit path length: (-1, d), or (0, d) without delay."""
-    k = np.empty(d_scene.shape[:-1] + (4,))
-    k[..., 0] = -1.0 if effects.delay else 0.0
-    k[..., 1:] = d_scene
-    return k
-
-
 #: IEEE-safe fast-math: fused multiply-add and reassociation, but NaN/inf kept exact
 _FAST = {"contract", "arcp", "nsz", "reassoc"}
 
@@ -101,9 +93,14 @@ RAY_CHUNK = 256
 
 
 @njit(parallel=True, cache=True, fastmath=_FAST)
-def _cast(ray_o, ray_k, g_origin, g_matrix, roots, nodes, links, tris, l_min):
-    """For every ray, the nearest hit over all frame groups (l, packed triangle, u, v)."""
-    n = ray_o.shape[0]
+def _cast(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links, tris, l_min):
+    """For every ray, the nearest hit over all frame groups (l, packed triangle, u, v).
+
+    ray_o: (N, 4) or (1, 4) start events (shared when one row); ray_d: (N, 3) unit S
+    directions; the backward 4-direction is (k_time, d) with k_time = -1 (light delay) or 0.
+    """
+    n = ray_d.shape[0]
+    o_step = 0 if ray_o.shape[0] == 1 else 1  # one shared start event, or one per ray
     n_groups = roots.shape[0]
     out_l = np.full(n, np.inf)
     out_tri = np.full(n, -1, np.int64)
@@ -121,17 +118,18 @@ def _cast(ray_o, ray_k, g_origin, g_matrix, roots, nodes, links, tris, l_min):
             for g in range(n_groups):
                 # rest-frame ray: o' = M (E - e0), d' = M k (spatial rows only)
                 m = g_matrix[g]
-                e0 = ray_o[i, 0] - g_origin[g, 0]
-                e1_ = ray_o[i, 1] - g_origin[g, 1]
-                e2_ = ray_o[i, 2] - g_origin[g, 2]
-                e3 = ray_o[i, 3] - g_origin[g, 3]
+                io = i * o_step
+                e0 = ray_o[io, 0] - g_origin[g, 0]
+                e1_ = ray_o[io, 1] - g_origin[g, 1]
+                e2_ = ray_o[io, 2] - g_origin[g, 2]
+                e3 = ray_o[io, 3] - g_origin[g, 3]
                 ox = m[1, 0] * e0 + m[1, 1] * e1_ + m[1, 2] * e2_ + m[1, 3] * e3
                 oy = m[2, 0] * e0 + m[2, 1] * e1_ + m[2, 2] * e2_ + m[2, 3] * e3
                 oz = m[3, 0] * e0 + m[3, 1] * e1_ + m[3, 2] * e2_ + m[3, 3] * e3
-                k0 = ray_k[i, 0]
-                k1 = ray_k[i, 1]
-                k2 = ray_k[i, 2]
-                k3 = ray_k[i, 3]
+                k0 = k_time
+                k1 = ray_d[i, 0]
+                k2 = ray_d[i, 1]
+                k3 = ray_d[i, 2]
                 dx = m[1, 0] * k0 + m[1, 1] * k1 + m[1, 2] * k2 + m[1, 3] * k3
                 dy = m[2, 0] * k0 + m[2, 1] * k1 + m[2, 2] * k2 + m[2, 3] * k3
                 dz = m[3, 0] * k0 + m[3, 1] * k1 + m[3, 2] * k2 + m[3, 3] * k3
@@ -150,7 +148,7 @@ def _cast(ray_o, ray_k, g_origin, g_matrix, roots, nodes, links, tris, l_min):
 
 
 @njit(parallel=True, cache=True)
-def _resolve(ray_o, ray_k, l, tri, tri_group, tri_body, tri_local, tri_slot, g_origin,
+def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_slot, g_origin,
              g_matrix, g_beta, slot_offset, slot_rotation):
     """Per ray: body, face, emission event, body-frame hit point and emitter velocity.
 
@@ -158,7 +156,8 @@ def _resolve(ray_o, ray_k, l, tri, tri_group, tri_body, tri_local, tri_slot, g_o
     slot's offset and rotation; triangles with slot -1 (light-cone snapshots) leave the
     body-frame point to the caller.
     """
-    n = ray_o.shape[0]
+    n = ray_d.shape[0]
+    o_step = 0 if ray_o.shape[0] == 1 else 1  # one shared start event, or one per ray
     body = np.full(n, -1, np.int64)
     face = np.full(n, -1, np.int64)
     group = np.full(n, -1, np.int64)
@@ -173,8 +172,10 @@ def _resolve(ray_o, ray_k, l, tri, tri_group, tri_body, tri_local, tri_slot, g_o
         group[i] = g
         body[i] = tri_body[t]
         face[i] = tri_local[t]
-        for a in range(4):
-            emit[i, a] = ray_o[i, a] + l[i] * ray_k[i, a]
+        io = i * o_step
+        emit[i, 0] = ray_o[io, 0] + l[i] * k_time
+        for a in range(3):
+            emit[i, a + 1] = ray_o[io, a + 1] + l[i] * ray_d[i, a]
         for a in range(3):
             beta[i, a] = g_beta[g, a]
         s = tri_slot[t]
@@ -235,17 +236,20 @@ class Tracer:
 
     def cast(self, ray_origin: np.ndarray, d_scene: np.ndarray, effects: Effects,
              l_min: float = 1e-9) -> Hits:
-        """Cast backward null rays from (N, 4) events along (N, 3) unit S directions."""
-        k = ray_four_direction(d_scene, effects)
+        """Cast backward null rays along (N, 3) unit S directions from (N, 4) start events,
+        or from one shared (4,) event."""
         if self.packed is None:
-            return _empty_hits(ray_origin, k)
+            return _empty_hits(len(d_scene))
         p = self.packed
-        ray_o = np.ascontiguousarray(ray_origin, dtype=np.float64)
-        l, tri, u, v = _cast(ray_o, k, self.g_origin, self.g_matrix, p.root, p.nodes, p.links,
-                             p.tris, l_min)
+        ray_o = np.ascontiguousarray(np.atleast_2d(ray_origin), dtype=np.float64)
+        ray_d = np.ascontiguousarray(d_scene, dtype=np.float64)
+        k_time = -1.0 if effects.delay else 0.0
+        l, tri, u, v = _cast(ray_o, ray_d, k_time, self.g_origin, self.g_matrix, p.root, p.nodes,
+                             p.links, p.tris, l_min)
         body, face, group, emit, rest, beta = _resolve(
-            ray_o, k, l, tri, p.tri_group, self.tri_body, self.tri_local, self.tri_slot,
-            self.g_origin, self.g_matrix, self.g_beta, self.slot_offset, self.slot_rotation)
+            ray_o, ray_d, k_time, l, tri, p.tri_group, self.tri_body, self.tri_local,
+            self.tri_slot, self.g_origin, self.g_matrix, self.g_beta, self.slot_offset,
+            self.slot_rotation)
         for gi, g in enumerate(self.groups):
             if g.vertex_body_coords is None:
                 continue
@@ -268,8 +272,7 @@ class Tracer:
         return Hits(body, face, np.stack([u, v], -1), l, emit, rest, beta, group)
 
 
-def _empty_hits(ray_origin, k) -> Hits:
-    n = len(k)
+def _empty_hits(n: int) -> Hits:
     return Hits(np.full(n, -1, np.int64), np.full(n, -1, np.int64), np.zeros((n, 2)),
                 np.full(n, np.inf), np.full((n, 4), np.nan), np.full((n, 3), np.nan),
                 np.full((n, 3), np.nan), np.full(n, -1, np.int64))
