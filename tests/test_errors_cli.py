@@ -662,3 +662,63 @@ def test_subprocess_warning_is_one_line_and_render_succeeds(tmp_path):
         "it is rendered as a surface seen from both sides"
     ]
     assert (tmp_path / "o.png").exists()
+
+
+# ============================================================================ animate
+
+
+ANIMATED = SCENE + "\n[animation]\nstart = 0.0\nend = 1.0e-8\nframes = 4\nfps = 24\n"
+
+
+@pytest.mark.parametrize(
+    "frames, words",
+    [
+        ("5:2", "--frames '5:2': the range is reversed (A:B is half-open, A < B; the "
+                "animation has frames 0..3)"),
+        ("2:2", "--frames '2:2': the range is empty"),
+        ("7:9", "--frames '7:9': the animation has 4 frame(s), indices 0..3"),
+        ("x:y", "--frames 'x:y': A and B must be whole frame indices"),
+        ("-1:2", "--frames '-1:2': frame indices start at 0"),
+    ],
+)
+def test_animate_bad_frame_ranges(tmp_path, capsys, frames, words):
+    scene = write(tmp_path, ANIMATED)
+    out_dir = tmp_path / "frames"
+    code, _, err = run(capsys, "animate", scene, f"--frames={frames}", "-o", out_dir,
+                       "--quiet", "--workers", "1")
+    assert_user_error(code, err, words)
+    assert not list(out_dir.glob("frame-*.png")) if out_dir.exists() else True
+
+
+def test_animate_without_animation_section(tmp_path, capsys):
+    scene = write(tmp_path, SCENE)
+    code, _, err = run(capsys, "animate", scene, "-o", tmp_path / "f", "--quiet")
+    assert_user_error(code, err, f"{scene}: has no [animation] section")
+
+
+def test_animate_rerun_keeps_finished_frames(tmp_path, capsys):
+    scene = write(tmp_path, ANIMATED)
+    out_dir = tmp_path / "frames"
+    common = ("-o", out_dir, "--quiet", "--workers", "1", "--resolution", "8x8")
+    code, _, err = run(capsys, "animate", scene, "--frames", "0:2", *common)
+    assert code == 0, err
+    first = {p.name: (p.read_bytes(), p.stat().st_mtime_ns) for p in out_dir.glob("*.png")}
+    assert sorted(first) == ["frame-00000.png", "frame-00001.png"]
+    code, out, _ = run(capsys, "animate", scene, *common)
+    assert code == 0 and "already done 2 of 4" in out
+    for name, state in first.items():
+        assert ((out_dir / name).read_bytes(), (out_dir / name).stat().st_mtime_ns) == state
+
+
+@pytest.mark.xfail(strict=True, reason="reported: animate re-renders frames made with other "
+                   "settings into the same names without --overwrite")
+def test_animate_never_replaces_finished_frames_without_overwrite(tmp_path, capsys):
+    scene = write(tmp_path, ANIMATED)
+    out_dir = tmp_path / "frames"
+    common = ("-o", out_dir, "--quiet", "--workers", "1")
+    assert run(capsys, "animate", scene, "--resolution", "8x8", *common)[0] == 0
+    first = {p.name: p.read_bytes() for p in out_dir.glob("*.png")}
+    code, _, _ = run(capsys, "animate", scene, "--resolution", "8x9", *common)
+    # Either refused (exit 2) or written beside the earlier frames: never replaced.
+    kept = all((out_dir / name).read_bytes() == data for name, data in first.items())
+    assert kept, f"exit {code}: finished frames were replaced without --overwrite"

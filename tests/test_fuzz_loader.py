@@ -64,7 +64,7 @@ KNOWN_KEYS = [
     "nm", "width_nm", "radiance", "period", "line_width", "axes", "first", "second",
     # motion kinds registered by relview.motion
     "acceleration", "axis", "period", "phase", "times", "positions", "base",
-    "angular_velocity", "center_offset",
+    "angular_velocity", "center_offset", "shutter", "shutter_samples",
 ]
 KNOWN_STRINGS = [
     "box", "sphere", "cylinder", "plane", "mesh", "pinhole", "panorama", "fisheye",
@@ -162,8 +162,10 @@ def test_random_structures_load_or_raise_user_error(base_dir, data):
 # A valid skeleton with random values put into the sections the loader reads.
 SECTION_KEYS = {
     "scene": ["title", "format"],
-    "render": ["resolution", "samples", "exposure", "seed", "effects"],
-    "camera": ["position", "look_at", "direction", "up", "fov", "time", "beta", "projection"],
+    "render": ["resolution", "samples", "exposure", "seed", "effects", "shutter",
+               "shutter_samples"],
+    "camera": ["position", "look_at", "direction", "up", "fov", "time", "beta", "projection",
+               "motion"],
     "background": ["kind", "count", "seed", "temperature", "luminance", "spacing", "width"],
     "animation": ["start", "end", "frames", "fps"],
 }
@@ -202,7 +204,8 @@ def skeleton_edits(draw):
         else:
             scene["body"][0]["surface"] = draw(FILE_SURFACES)
     for _ in range(draw(st.integers(1, 4))):
-        where = draw(st.sampled_from(["section", "body", "motion", "surface"]))
+        where = draw(st.sampled_from(["section", "body", "motion", "camera-motion",
+                                      "surface"]))
         if where == "section":
             section = draw(st.sampled_from(sorted(SECTION_KEYS)))
             key = draw(st.sampled_from(SECTION_KEYS[section]))
@@ -211,6 +214,12 @@ def skeleton_edits(draw):
             scene["body"][0][draw(st.sampled_from(BODY_KEYS))] = draw(ANY_VALUE)
         elif where == "motion":
             scene["body"][0]["motion"][draw(st.sampled_from(MOTION_KEYS))] = draw(ANY_VALUE)
+        elif where == "camera-motion":
+            camera = scene["camera"]
+            camera.pop("position", None)
+            motion = camera.setdefault("motion", {"kind": draw(st.sampled_from(
+                ["uniform", "hyperbolic", "orbit", "path", "spin", "rolling"]))})
+            motion[draw(st.sampled_from(MOTION_KEYS))] = draw(ANY_VALUE)
         else:
             surface = {draw(st.sampled_from(SURFACE_KEYS)): draw(ANY_VALUE)}
             scene["body"][0]["surface"] = surface
