@@ -51,6 +51,7 @@ from relview import film
 from relview.errors import OutputError, UserError
 
 __all__ = [
+    "AUTO_PARALLEL_MIN_SECONDS",
     "DEFAULT_WORKERS",
     "FLASH_DARKER_BELOW",
     "FLASH_LUMINANCE_CHANGE",
@@ -87,9 +88,16 @@ LOCK_NAME = ".manifest.lock"
 PROBE_FRAMES = 5
 PROBE_MAX_WIDTH = 160
 
-#: Local worker processes used when none are asked for. Measured with
-#: benchmarks/bench_animate.py (see docs/animation.md for the numbers).
+#: Local worker processes used for a long batch when none are asked for. Measured with
+#: benchmarks/bench_animate.py (numbers in docs/animation.md): once started, two
+#: processes with one numba thread each render more frames per minute on 2 cores than
+#: one process whose numba kernels use both cores, but starting a worker process
+#: (imports, numba cache) costs seconds.
 DEFAULT_WORKERS = 2
+#: Without --workers, the first frame is rendered in this process and timed; the rest
+#: go to DEFAULT_WORKERS processes only when they would take longer than this (s) in
+#: this process, several times the measured worker start-up.
+AUTO_PARALLEL_MIN_SECONDS = 20.0
 
 VIDEO_TYPES = (".mp4", ".gif")
 
@@ -819,7 +827,8 @@ def animate(
     whichever piece completes the set, or from a later rerun). ``cluster``: a Dask
     scheduler address ``"tcp://host:8786"``, ``"local:N"`` or a
     ``distributed.Client``; None renders on this machine with ``workers`` processes
-    (default :data:`DEFAULT_WORKERS`). ``overwrite``: allow writing into a directory
+    (default: this process, switching to :data:`DEFAULT_WORKERS` processes when the
+    frames left after the first would take more than :data:`AUTO_PARALLEL_MIN_SECONDS`). ``overwrite``: allow writing into a directory
     that holds other output (replacing files of the same names) and replace an
     existing video. ``unlock_exposure``: automatic exposure per frame instead of one
     locked white.
@@ -906,7 +915,7 @@ def animate(
 
     if todo:
         loop_started = _time.perf_counter()
-        results, summary.backend = _start_backend(renderer, todo, cluster, workers)
+        results, summary.backend = _start_backend(renderer, todo, cluster, workers, summary)
         bar = None
         if progress:
             from tqdm import tqdm
@@ -961,7 +970,7 @@ def animate(
     return summary
 
 
-def _start_backend(renderer: FrameRenderer, todo, cluster, workers):
+def _start_backend(renderer: FrameRenderer, todo, cluster, workers, summary):
     """An iterator of RenderedFrame for the jobs, and a description of where they run."""
     if cluster is not None:
         if workers is not None:
@@ -972,11 +981,27 @@ def _start_backend(renderer: FrameRenderer, todo, cluster, workers):
         from relview import farm
 
         return farm.render_frames(renderer, todo, cluster), f"dask {cluster}"
-    n = DEFAULT_WORKERS if workers is None else workers
-    n = min(n, len(todo))
+    if workers is None:
+        return _render_auto(renderer, todo, summary), "1 process"
+    n = min(workers, len(todo))
     if n <= 1:
         return _render_serial(renderer, todo), "1 process"
     return _render_processes(renderer, todo, n), f"{n} processes, 1 numba thread each"
+
+
+def _render_auto(renderer: FrameRenderer, jobs, summary) -> Iterator[RenderedFrame]:
+    """First frame here, timed; the rest in DEFAULT_WORKERS processes if that pays off."""
+    jobs = list(jobs)
+    started = _time.perf_counter()
+    yield renderer.render(*jobs[0])
+    per_frame = _time.perf_counter() - started
+    rest = jobs[1:]
+    if len(rest) >= 2 and per_frame * len(rest) > AUTO_PARALLEL_MIN_SECONDS:
+        n = min(DEFAULT_WORKERS, len(rest))
+        summary.backend = f"1 process for frame {jobs[0][0]}, then {n} processes"
+        yield from _render_processes(renderer, rest, n)
+    else:
+        yield from _render_serial(renderer, rest)
 
 
 def _current_frames(out_dir: Path, manifest: Manifest, digest: str, times) -> dict[int, dict]:
@@ -1047,7 +1072,8 @@ def register_cli(subparsers) -> None:
         "--workers",
         type=int,
         metavar="N",
-        help=f"local worker processes (default {DEFAULT_WORKERS})",
+        help=f"local worker processes, one numba thread each (default: {DEFAULT_WORKERS} for a "
+        f"batch that would take more than {AUTO_PARALLEL_MIN_SECONDS:.0f} s in one process)",
     )
     p.add_argument(
         "--unlock-exposure",

@@ -372,10 +372,14 @@ def test_command_line(scene_file, tmp_path, capsys):
     assert "reversed" in capsys.readouterr().err
 
 
-def test_two_worker_processes_give_the_same_bytes(scene_file, tmp_path):
+def test_worker_processes_give_the_same_bytes(scene_file, tmp_path, monkeypatch):
     one = run(scene_file, tmp_path / "one", workers=1)
-    two = run(scene_file, tmp_path / "two", workers=2)
-    assert two.backend.startswith("2 processes") and one.backend == "1 process"
+    assert one.backend == "1 process"
+    # short batches stay in this process; past the threshold the rest go to 2 processes
+    assert run(scene_file, tmp_path / "auto", workers=None).backend == "1 process"
+    monkeypatch.setattr(anim, "AUTO_PARALLEL_MIN_SECONDS", 0.0)
+    two = run(scene_file, tmp_path / "two", workers=None)
+    assert two.backend == "1 process for frame 0, then 2 processes"
     for k in range(5):
         name = anim.frame_name(k)
         assert (tmp_path / "one" / name).read_bytes() == (tmp_path / "two" / name).read_bytes()
