@@ -96,8 +96,10 @@ def scene_with_overrides(args):
     if getattr(args, "resolution", None):
         settings = dataclasses.replace(settings, resolution=args.resolution)
     if getattr(args, "samples", None) is not None:
-        if args.samples < 1:
-            raise UserError(f"--samples must be >= 1, got {args.samples}")
+        from relview.loader import MAX_SAMPLES
+
+        if not 1 <= args.samples <= MAX_SAMPLES:
+            raise UserError(f"--samples must be >= 1 and <= {MAX_SAMPLES}, got {args.samples}")
         settings = dataclasses.replace(settings, samples=args.samples)
     if getattr(args, "exposure", None) is not None:
         settings = dataclasses.replace(settings, exposure=args.exposure)
