@@ -68,6 +68,16 @@ LAMPS = ("D65",)  # named lamps besides a blackbody temperature in K
 #: tessellation levels accepted for ``body.detail`` (see relview.shapes)
 DETAIL_RANGE = (0, 7)
 
+# Upper limits of counts that size arrays or loops, so an extra digit is an error
+# message instead of running out of memory (all stars are held at once, about 200
+# bytes each; every sample and frame is a list entry before any work).
+#: most rays per pixel, ``render.samples``
+MAX_SAMPLES = 65536
+#: most stars in ``background.count`` (about 200 MB of star arrays)
+MAX_STARS = 1_000_000
+#: most frames in ``animation.frames`` (11.6 hours at 24 frames/s)
+MAX_FRAMES = 1_000_000
+
 _REQUIRED: Any = object()
 _UNSET: Any = object()
 
@@ -853,7 +863,7 @@ def _parse_render(root: Table) -> RenderSettings:
         effects = Effects(**{n: e.boolean(n, True) for n in names})
     return RenderSettings(
         resolution=t.int_vector("resolution", 2, defaults.resolution, low=1),
-        samples=t.integer("samples", defaults.samples, low=1),
+        samples=t.integer("samples", defaults.samples, low=1, high=MAX_SAMPLES),
         exposure=exposure,
         effects=effects,
         seed=t.integer("seed", defaults.seed, low=0, high=2**63 - 1),
@@ -1100,7 +1110,7 @@ def _parse_background(root: Table) -> Background:
             )
         return Background(
             kind="stars",
-            count=t.integer("count", defaults.count, low=0),
+            count=t.integer("count", defaults.count, low=0, high=MAX_STARS),
             seed=t.integer("seed", defaults.seed, low=0, high=2**63 - 1),
             temperature=(float(temperature[0]), float(temperature[1])),
             luminance=t.number("luminance", defaults.luminance, positive=True),
@@ -1137,7 +1147,7 @@ def _parse_animation(root: Table) -> Animation | None:
     return Animation(
         start=start,
         end=end,
-        frames=t.integer("frames", 1, low=1),
+        frames=t.integer("frames", 1, low=1, high=MAX_FRAMES),
         fps=t.number("fps", 24.0, positive=True, unit="frames/s"),
     )
 

@@ -382,7 +382,8 @@ def test_huge_resolution_in_scene_file_refused(tmp_path, capsys, monkeypatch, co
         (["render", "{scene}", "--exposure", "bright"], "expected 'auto' or a luminance"),
         (["render", "{scene}", "--time", "nan"], "expected a finite time in seconds"),
         (["render", "{scene}", "--time=-inf"], "expected a finite time in seconds"),
-        (["render", "{scene}", "--samples", "0"], "--samples must be >= 1, got 0"),
+        (["render", "{scene}", "--samples", "0"], "--samples must be >= 1 and <= 65536, got 0"),
+        (["render", "{scene}", "--samples", "1000000000"], "--samples must be >= 1 and <= 65536"),
         (["render", "{scene}", "--bits", "12"], "invalid choice: 12"),
         (["probe", "{scene}", "--body", "bal", "--point", "0,0,0"],
          "--body 'bal': no such body; did you mean 'ball'?"),
@@ -609,6 +610,34 @@ def test_huge_camera_coordinates_are_not_taken_for_look_at_equals_position(tmp_p
     path = write(tmp_path, edit("position = [0.0, -6.0, 0.0]", "position = [0.0, -1e300, 0.0]"))
     code, out, err = run(capsys, "check", path)
     assert code == 0, err
+
+
+@pytest.mark.parametrize(
+    "extra, key, words",
+    [
+        ('\n[background]\nkind = "stars"\ncount = 100000000000\n', "[background] count",
+         "count = 100000000000; must be >= 0 and <= 1000000"),
+        ("\n[animation]\nend = 1.0\nframes = 1000000000000\n", "[animation] frames",
+         "frames = 1000000000000; must be >= 1 and <= 1000000"),
+    ],
+    ids=["stars", "frames"],
+)
+def test_counts_that_would_exhaust_memory_are_refused(tmp_path, capsys, extra, key, words):
+    # background.count = 1e11 ran out of memory drawing the star field (MemoryError,
+    # exit 1); counts are now bounded in the loader.
+    text = SCENE + extra
+    path = write(tmp_path, text)
+    code, _, err = run(capsys, "render", path, "-o", tmp_path / "o.png")
+    line = line_of(text, key.split()[-1] + " =")
+    assert_user_error(code, err, f"{path}:{line}: {key}", words)
+
+
+def test_samples_in_scene_file_bounded(tmp_path, capsys):
+    path = write(tmp_path, edit("resolution = [16, 9]",
+                                "resolution = [16, 9]\nsamples = 1000000000"))
+    code, _, err = run(capsys, "check", path)
+    assert_user_error(code, err, f"{path}:6: [render] samples",
+                      "samples = 1000000000; must be >= 1 and <= 65536")
 
 
 def test_huge_mesh_scale_is_refused(tmp_path, capsys):

@@ -217,8 +217,10 @@ def skeleton_edits(draw):
         elif where == "camera-motion":
             camera = scene["camera"]
             camera.pop("position", None)
-            motion = camera.setdefault("motion", {"kind": draw(st.sampled_from(
-                ["uniform", "hyperbolic", "orbit", "path", "spin", "rolling"]))})
+            motion = camera.get("motion")
+            if not isinstance(motion, dict):  # absent, or a random value from "section"
+                motion = camera["motion"] = {"kind": draw(st.sampled_from(
+                    ["uniform", "hyperbolic", "orbit", "path", "spin", "rolling"]))}
             motion[draw(st.sampled_from(MOTION_KEYS))] = draw(ANY_VALUE)
         else:
             surface = {draw(st.sampled_from(SURFACE_KEYS)): draw(ANY_VALUE)}
