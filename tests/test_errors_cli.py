@@ -751,3 +751,34 @@ def test_animate_never_replaces_finished_frames_without_overwrite(tmp_path, caps
     # Either refused (exit 2) or written beside the earlier frames: never replaced.
     kept = all((out_dir / name).read_bytes() == data for name, data in first.items())
     assert kept, f"exit {code}: finished frames were replaced without --overwrite"
+
+
+# ============================================================================ reported, not ours
+# Problems found through the CLI in modules other engineers own; strict xfail so that
+# each test starts failing (XPASS) the moment the problem is fixed.
+
+
+@pytest.mark.xfail(strict=True, reason="reported: probe --times with a huge COUNT "
+                   "allocates the whole time array (MemoryError, exit 1)")
+def test_probe_times_count_that_cannot_fit(tmp_path, capsys):
+    scene = write(tmp_path, SCENE)
+    code, _, err = run(capsys, "probe", scene, "--body", "ball", "--point", "0,0,0",
+                       "--times", "0:1e-8:100000000000")
+    assert_user_error(code, err, "--times")
+
+
+@pytest.mark.xfail(strict=True, reason="reported: compare takes --time as a plain float, "
+                   "so nan renders a meaningless sheet")
+def test_compare_time_nan(tmp_path, capsys):
+    scene = write(tmp_path, SCENE)
+    code, _, err = run(capsys, "compare", scene, "--time", "nan", "-o", tmp_path / "c.png",
+                       "--quiet")
+    assert_user_error(code, err, "--time")
+
+
+@pytest.mark.xfail(strict=True, reason="reported: compare renders every panel before it "
+                   "finds that the output path cannot be written")
+def test_compare_refuses_unwritable_output_before_rendering(tmp_path, capsys, no_rendering):
+    scene = write(tmp_path, SCENE)
+    code, _, err = run(capsys, "compare", scene, "-o", scene / "c.png", "--quiet")
+    assert_user_error(code, err, "is a file, not a directory")
