@@ -782,3 +782,16 @@ def test_compare_refuses_unwritable_output_before_rendering(tmp_path, capsys, no
     scene = write(tmp_path, SCENE)
     code, _, err = run(capsys, "compare", scene, "-o", scene / "c.png", "--quiet")
     assert_user_error(code, err, "is a file, not a directory")
+
+
+@pytest.mark.xfail(strict=True, reason="reported: a light-cone snapshot of an accelerating "
+                   "body seen from 100 km has zero triangles (ValueError in bvh, exit 1)")
+def test_accelerating_body_seen_from_far_away_renders(tmp_path, capsys):
+    # At t = 0 the light reaching a camera 1e5 m away left about 3.3e-4 s earlier; the
+    # body (1e16 m/s^2, at rest at t = 0) was then approaching at gamma ~ 1e4.
+    text = edit('kind = "uniform"\nbeta = [0.5, 0.0, 0.0]',
+                'kind = "hyperbolic"\nacceleration = [1.0e16, 0.0, 0.0]')
+    text = edit("position = [0.0, -6.0, 0.0]", "position = [0.0, -1.0e5, 0.0]", text)
+    path = write(tmp_path, text)
+    code, _, err = run(capsys, "render", path, "-o", tmp_path / "far.png", "--quiet")
+    assert code == 0, err
