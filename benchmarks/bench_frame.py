@@ -177,13 +177,23 @@ def load_str() -> str:
 
 
 def cpu_model() -> str:
+    """Model name, family/model numbers, vector extensions and cache from /proc/cpuinfo."""
+    fields = {}
     try:
         for line in Path("/proc/cpuinfo").read_text().splitlines():
-            if line.startswith("model name"):
-                return line.split(":", 1)[1].strip()
+            if ":" not in line:
+                if fields:
+                    break  # first processor only
+                continue
+            key, value = (part.strip() for part in line.split(":", 1))
+            fields.setdefault(key, value)
     except OSError:
-        pass
-    return platform.processor() or "unknown"
+        return platform.processor() or "unknown"
+    wanted = ("sse4_2", "avx", "avx2", "fma", "avx512f")
+    flags = [f for f in fields.get("flags", "").split() if f in wanted]
+    return (f"{fields.get('model name', 'unknown')} (family {fields.get('cpu family', '?')}, "
+            f"model {fields.get('model', '?')}, {fields.get('cpu MHz', '?')} MHz, cache "
+            f"{fields.get('cache size', '?')}, {' '.join(flags)})")
 
 
 def versions() -> dict[str, str]:
@@ -514,11 +524,21 @@ def child_startup(scene_path: str, out_png: str) -> None:
     stamps = {"child_first_line": time.time()}
     import relview.cli as cli
     import relview.renderer as renderer  # noqa: F401  (imports trace -> numba, as render does)
-    from relview import loader, trace
+    from relview import bvh, loader, trace
 
     stamps["imported"] = time.time()
     orig_load, orig_ctx_init, orig_cast = loader.load_scene, renderer.RenderContext.__init__, \
         trace.Tracer.cast
+    orig_build = bvh.build_bvh
+    durations = {"bvh_build_calls": [], "cast_calls": []}  # seconds of each call
+    build_args = []
+
+    def build_bvh(*a, **k):
+        build_args.append((a, k))
+        t0 = time.perf_counter()
+        out = orig_build(*a, **k)
+        durations["bvh_build_calls"].append(time.perf_counter() - t0)
+        return out
 
     def load_scene(path):
         stamps.setdefault("load_start", time.time())
@@ -533,17 +553,28 @@ def child_startup(scene_path: str, out_png: str) -> None:
 
     def cast(self, *a, **k):
         stamps.setdefault("first_batch_start", time.time())
+        t0 = time.perf_counter()
         out = orig_cast(self, *a, **k)
+        durations["cast_calls"].append(time.perf_counter() - t0)
         stamps.setdefault("first_batch_end", time.time())
         return out
 
     loader.load_scene = load_scene
     renderer.RenderContext.__init__ = ctx_init
     trace.Tracer.cast = cast
+    bvh.build_bvh = build_bvh
     rc = cli.main(["render", scene_path, "-o", out_png, "--quiet", "--overwrite"])
     stamps["end"] = time.time()
+    if build_args:
+        # the same build again, warm: the difference from the first call is numba
+        # loading the cached build kernel (the start-up cost of compiled code)
+        a, k = build_args[0]
+        t0 = time.perf_counter()
+        orig_build(*a, **k)
+        durations["bvh_build_again"] = time.perf_counter() - t0
     stamps["rc"] = rc
     stamps["compiles"] = numba_compiles()
+    stamps["durations"] = durations
     print("BENCH_STAMPS " + json.dumps(stamps), flush=True)
 
 
@@ -612,6 +643,7 @@ def bench_startup(scene_path: Path, workdir: Path, repeats: int) -> dict:
     res = {"whole_cmd": Stat(timed_runs(whole, repeats)), "cmd": cmd}
     # instrumented runs at the benchmark resolution
     stages = []
+    durations = []
     child = [sys.executable, str(Path(__file__).resolve()), "--child", "startup", str(scene_path),
              str(workdir / "startup_full.png")]
     _child_json(child, "BENCH_STAMPS ")  # warm-up (fills the numba cache if it was stale)
@@ -625,6 +657,7 @@ def bench_startup(scene_path: Path, workdir: Path, repeats: int) -> dict:
             # relview's source changed under us (numba cache stale): not a warm start
             compiled += 1
             continue
+        durations.append(s.pop("durations", {}))
         stages.append({k: v - t_spawn for k, v in s.items() if k not in ("rc", "compiles")})
         if len(stages) == repeats:
             break
@@ -633,6 +666,16 @@ def bench_startup(scene_path: Path, workdir: Path, repeats: int) -> dict:
                            "being edited? rerun when it is quiet")
     res["stages"] = {k: Stat([st[k] for st in stages]) for k in stages[0]}
     res["compiled_runs"] = compiled
+    # numba cache loading: first call of a compiled stage minus the same work warm
+    d = [x for x in durations if x.get("bvh_build_calls") and "bvh_build_again" in x]
+    if d:
+        res["bvh_first"] = Stat([x["bvh_build_calls"][0] for x in d])
+        res["bvh_again"] = Stat([x["bvh_build_again"] for x in d])
+    c = [x["cast_calls"] for x in durations if len(x.get("cast_calls", [])) >= 2]
+    if c:
+        res["cast_first"] = Stat([x[0] for x in c])
+        res["cast_second"] = Stat([x[1] for x in c])
+        res["batches"] = len(c[0])
     return res
 
 
@@ -847,6 +890,14 @@ def build_report(info: dict) -> str:
         if k in su["stages"]:
             add(f"| {lab} | {su['stages'][k].s()} |")
     add("")
+    if "bvh_first" in su:
+        add(f"Loading cached compiled code (numba cache warm, no compilation): the BVH build "
+            f"takes {su['bvh_first'].s()} s on its first call in the command and "
+            f"{su['bvh_again'].s()} s when repeated in the same process; the first "
+            f"`Tracer.cast` batch {su['cast_first'].s()} s, the second "
+            f"{su['cast_second'].s()} s (the batches hold about the same number of rays; "
+            f"{su['batches']} batches). The differences are numba loading cached kernels.")
+        add("")
     fb = su["stages"]["first_batch_start"]
     add(f"Time from process start to the first batch of rays: median {fb.median:.2f} s, best "
         f"{fb.min:.2f} s (target <= {TARGET_STARTUP_S} s: median "
@@ -966,6 +1017,9 @@ def print_summary(info: dict) -> None:
           f"{su['whole_cmd'].cpu:.2f} s CPU")
     for k, st in su["stages"].items():
         print(f"  {k:22s} {st.s()} s after spawn")
+    if "bvh_first" in su:
+        print(f"  BVH build first call {su['bvh_first'].s()} s, again {su['bvh_again'].s()} s; "
+              f"cast first batch {su['cast_first'].s()} s, second {su['cast_second'].s()} s")
     for key, m in info["memory"].items():
         print(f"memory {key}: process peak {m['process_peak'] / 1024:.0f} MiB; before the frame "
               f"{m['peak_before_frame'] / 1024:.0f} MiB; during the frame "
@@ -1086,8 +1140,9 @@ def main(argv=None) -> int:
         info["fingerprint_end"] = relview_fingerprint()
 
     print_summary(info)
+    report = build_report(info)  # built even with --no-write, so a broken report shows
     if not args.no_write:
-        write_results(build_report(info))
+        write_results(report)
         print(f"\nwrote {RESULTS}")
     return 0
 
