@@ -9,16 +9,20 @@ Measures, in one run (see benchmarks/README.md for what each figure means):
 
 1. relview full frame (renderer.render: rays, trace, Doppler, shading, layers, exposure)
    with the body at rest, the trace alone (Tracer.cast on the same rays, one call) and
-   the numba kernel alone (trace._cast, without the Python post-processing of hits);
+   the time inside the numba kernel trace._cast during those casts (on 2 and 1 threads);
 2. the same with the body moving at 0.9c across the view;
 3. a bare first-hit cast of the rest-frame rays by Embree (embreex, the `bench` extra),
-   single-threaded and split over as many threads as numba uses, plus its scene build;
-4. rays per second, and the ratios against the targets;
+   single-threaded and split over as many threads as numba uses, plus its scene build,
+   and the per-ray cost of both casters for rays that miss the mesh's box, enter it and
+   miss, or hit;
+4. rays per second, and the ratios against the targets, also from paired rounds (frame,
+   Embree, moving frame timed back to back);
 5. start-up of a second `relview render SCENE` (numba cache warm): the whole command at a
    small resolution, and an instrumented run at 960x540 that stamps the time of import,
-   scene load, context build and the first batch of rays;
-6. peak resident memory (ru_maxrss) of a process that renders one full frame;
-7. a cProfile of one frame of each kind, split into trace kernel / trace glue /
+   scene load, context build and the first batch of rays, and the cost of loading the
+   cached compiled kernels;
+6. peak resident memory of a process that renders one full frame (VmHWM; ru_maxrss);
+7. a cProfile over several frames of each kind, split into trace kernel / trace glue /
    camera rays / Doppler / shading / exposure / the rest of render().
 
 The machine is shared: every timing is repeated (after one warm-up) and reported as
