@@ -60,7 +60,7 @@ def _point(text: str):
     return p
 
 
-def _time(text: str) -> float:
+def finite_time(text: str) -> float:
     try:
         v = float(text)
     except ValueError:
@@ -120,7 +120,11 @@ def default_output(scene_path: str, suffix: str) -> Path:
     return Path("outputs") / (Path(scene_path).stem + suffix)
 
 
-def check_output_path(path: Path) -> None:
+IMAGE_TYPES = (".png", ".npz", ".exr")
+FIGURE_TYPES = (".png", ".pdf", ".svg")
+
+
+def check_output_path(path: Path, types=IMAGE_TYPES) -> None:
     """Refuse, before any rendering, an output path that could never be written.
 
     The same reasons the writers in film.py give, found early so no work is lost.
@@ -129,8 +133,8 @@ def check_output_path(path: Path) -> None:
     from relview.errors import OutputError
 
     ext = path.suffix.lower()
-    if ext not in (".png", ".npz", ".exr"):
-        raise OutputError(f"unknown image type {ext!r}; use .png, .npz or .exr", file=path)
+    if ext not in types:
+        raise OutputError(f"unknown file type {ext!r}; use {', '.join(types)}", file=path)
     if ext == ".exr" and not film.exr_available():
         raise OutputError("cannot write .exr: no OpenEXR writer is installed; use .png or "
                           ".npz", file=path)
@@ -262,7 +266,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("scene", metavar="SCENE")
     p.add_argument("-o", "--output", metavar="FILE",
                    help="output image (.png, .npz or .exr); default outputs/SCENE.png")
-    p.add_argument("--time", type=_time, metavar="S", help="exposure time (s), scene frame")
+    p.add_argument("--time", type=finite_time, metavar="S", help="exposure time (s), scene frame")
     p.add_argument("--layers", action="store_true", help="also write the float layers as .npz")
     p.add_argument("--bits", type=int, choices=(8, 16), default=8, help="PNG bit depth")
     add_frame_options(p)
@@ -275,7 +279,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--point", required=True, type=_point, action="append", metavar="X,Y,Z",
                    help="point in the body's rest frame, metres (repeat for more points; "
                    "two points add the photographed length between them; write --point=-1,0,0 when X is negative)")
-    p.add_argument("--time", type=_time, metavar="S", help="exposure time (s), scene frame")
+    p.add_argument("--time", type=finite_time, metavar="S", help="exposure time (s), scene frame")
     p.add_argument("--times", metavar="A:B:N",
                    help="N exposure times from A to B seconds: a probe table over time")
     p.add_argument("--json", action="store_true", help="print JSON instead of a table")

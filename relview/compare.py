@@ -737,11 +737,12 @@ def layer_map(
 
 
 def cmd_compare(args) -> int:
-    from relview.cli import default_output, scene_with_overrides
+    from relview.cli import FIGURE_TYPES, check_output_path, default_output, scene_with_overrides
 
     scene = scene_with_overrides(args)
     if args.layer:
         out = Path(args.output) if args.output else default_output(args.scene, f"-{args.layer}.png")
+        check_output_path(out, FIGURE_TYPES)
         written, side, _ = layer_map(
             scene,
             args.layer,
@@ -766,6 +767,7 @@ def cmd_compare(args) -> int:
             "(docs/figures.md); choose panels with --panels, e.g. --panels measured,delay-only"
         )
     out = Path(args.output) if args.output else default_output(args.scene, "-compare.png")
+    check_output_path(out, FIGURE_TYPES)
     sheet = compare_sheet(
         scene,
         args.time,
@@ -789,7 +791,7 @@ def cmd_compare(args) -> int:
 
 def register_cli(subparsers) -> None:
     """Add the ``compare`` command (picked up by relview.cli)."""
-    from relview.cli import add_frame_options
+    from relview.cli import add_frame_options, finite_time
 
     p = subparsers.add_parser(
         "compare",
@@ -804,7 +806,7 @@ def register_cli(subparsers) -> None:
         help="figure: .png (slides), .pdf or .svg (papers); a FILE.json sidecar "
         "is written beside it",
     )
-    p.add_argument("--time", type=float, metavar="S", help="exposure time (s), scene frame")
+    p.add_argument("--time", type=finite_time, metavar="S", help="exposure time (s), scene frame")
     p.add_argument(
         "--panels",
         default=",".join(DEFAULT_PANELS),

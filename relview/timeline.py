@@ -79,6 +79,11 @@ _TEXT_COLUMNS = ("body",)
 _INT_COLUMNS = ("point",)
 
 
+#: Largest number of exposure times one probe table takes (each is a full retarded solve
+#: and a visibility cast per point).
+MAX_TIMES = 100_000
+
+
 def parse_times(text: str) -> np.ndarray:
     """'A:B:N' -> N evenly spaced times from A to B seconds (both included)."""
     parts = str(text).split(":")
@@ -94,6 +99,9 @@ def parse_times(text: str) -> np.ndarray:
         raise UserError(f"--times {text!r}: start and end must be finite numbers")
     if n < 1:
         raise UserError(f"--times {text!r}: COUNT must be >= 1, got {n}")
+    if n > MAX_TIMES:
+        raise UserError(f"--times {text!r}: COUNT = {n} is more than {MAX_TIMES} exposures; "
+                        "split the range into several runs")
     if b < a:
         raise UserError(f"--times {text!r}: END ({b}) is before START ({a})")
     if n == 1 and b != a:

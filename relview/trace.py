@@ -201,6 +201,9 @@ class Tracer:
     """
 
     def __init__(self, groups: list[FrameGroup]):
+        # a group can be empty: a light-cone snapshot of a body none of whose light
+        # reaches the camera event (e.g. beyond a hyperbolic worldline's horizon)
+        groups = [g for g in groups if len(g.faces)]
         self.groups = groups
         for g in groups:
             if g.bvh is None:
