@@ -14,6 +14,11 @@ directory. Two rates are printed:
 * "steady": (frames - 1) / time between the first and the last frame file's
   modification time, i.e. without start-up: what a long batch approaches.
 
+First, the seconds per frame of a render alone in this process with 1 and with 2 numba
+threads (interleaved). `relview animate` sets OMP_WAIT_POLICY=PASSIVE unless the user
+set it (numba's OpenMP layer otherwise spins while waiting, which costs much on a
+shared machine); this script does the same unless given --omp-active.
+
 Numba's cache is warmed first. The machine may be shared: the configurations are run
 in turn, ``--repeat`` times, and the median is reported.
 """
@@ -25,12 +30,49 @@ import dataclasses
 import os
 import statistics
 import tempfile
+import time
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
 
 
+def thread_comparison(scene, rounds: int = 2) -> None:
+    """Seconds per frame in this process with 1 and with 2 numba threads, interleaved.
+
+    Fixed white, no files: the render alone. Run once as it is and once with
+    --omp-active to see what OpenMP's spinning wait costs on a shared machine.
+    """
+    import numba
+
+    from relview.animate import FrameRenderer, frame_times
+
+    renderer = FrameRenderer(scene, 1.0e6)
+    times = frame_times(scene.animation)[:: max(1, scene.animation.frames // 12)]
+    spent: dict[int, list[float]] = {1: [], 2: []}
+    default = numba.get_num_threads()
+    for r in range(rounds):
+        for k, t in enumerate(times):
+            for n in (1, 2) if (r + k) % 2 else (2, 1):
+                numba.set_num_threads(min(n, numba.config.NUMBA_NUM_THREADS))
+                t0 = time.perf_counter()
+                renderer.render(k, t)
+                spent[n].append(time.perf_counter() - t0)
+    numba.set_num_threads(default)
+    print(
+        f"one process, render only, median s/frame: 1 numba thread "
+        f"{statistics.median(spent[1]):.4f}, 2 threads {statistics.median(spent[2]):.4f} "
+        f"(threading layer {numba.threading_layer()}, "
+        f"OMP_WAIT_POLICY={os.environ.get('OMP_WAIT_POLICY', '(default)')})",
+        flush=True,
+    )
+
+
 def main() -> None:
+    ap0 = argparse.ArgumentParser(add_help=False)
+    ap0.add_argument("--omp-active", action="store_true")
+    if not ap0.parse_known_args()[0].omp_active:
+        # as `relview animate` does (relview.animate.OMP_WAIT_POLICY), before numba loads
+        os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
     from relview.animate import FrameRenderer, animate
     from relview.loader import load_scene
     from relview.scene import Animation
@@ -40,6 +82,9 @@ def main() -> None:
     ap.add_argument("--frames", type=int, default=32)
     ap.add_argument("--repeat", type=int, default=3)
     ap.add_argument("--configs", default="1,2,local:2")
+    ap.add_argument(
+        "--omp-active", action="store_true", help="leave OpenMP's default (spinning) wait policy"
+    )
     args = ap.parse_args()
     w, h = (int(v) for v in args.resolution.split("x"))
     scene = load_scene(ROOT / "scenes" / "sphere-flyby.toml")
@@ -48,6 +93,7 @@ def main() -> None:
         animation=Animation(start=-6.0e-9, end=1.6e-8, frames=args.frames, fps=24.0),
     )
     FrameRenderer(scene, None).render(0, 0.0)  # compile / load numba's cache
+    thread_comparison(scene)
     print(
         f"scene {scene.source_path.name}, {w}x{h}, {args.frames} frames, "
         f"{os.cpu_count()} cores, load average {os.getloadavg()[0]:.1f}"

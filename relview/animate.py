@@ -51,7 +51,6 @@ from relview import film
 from relview.errors import OutputError, UserError
 
 __all__ = [
-    "AUTO_PARALLEL_MIN_SECONDS",
     "DEFAULT_WORKERS",
     "FLASH_DARKER_BELOW",
     "FLASH_LUMINANCE_CHANGE",
@@ -88,16 +87,12 @@ LOCK_NAME = ".manifest.lock"
 PROBE_FRAMES = 5
 PROBE_MAX_WIDTH = 160
 
-#: Local worker processes used for a long batch when none are asked for. Measured with
-#: benchmarks/bench_animate.py (numbers in docs/animation.md): once started, two
-#: processes with one numba thread each render more frames per minute on 2 cores than
-#: one process whose numba kernels use both cores, but starting a worker process
-#: (imports, numba cache) costs seconds.
-DEFAULT_WORKERS = 2
-#: Without --workers, the first frame is rendered in this process and timed; the rest
-#: go to DEFAULT_WORKERS processes only when they would take longer than this (s) in
-#: this process, several times the measured worker start-up.
-AUTO_PARALLEL_MIN_SECONDS = 20.0
+#: Local worker processes when none are asked for. Measured with
+#: benchmarks/bench_animate.py on this project's shared 2-core machines (numbers in
+#: docs/animation.md): one process, whose numba kernels use both cores, rendered batches
+#: at least as fast as two processes with one numba thread each, which first pay
+#: seconds of start-up (imports, numba's cache). ``--workers 2`` remains available.
+DEFAULT_WORKERS = 1
 
 VIDEO_TYPES = (".mp4", ".gif")
 
@@ -217,7 +212,9 @@ def mean_relative_luminance(rgb8: np.ndarray) -> float:
 # Flashes or Below Threshold": a general flash is "a pair of opposing changes in
 # relative luminance of 10% or more of the maximum relative luminance (1.0) where the
 # relative luminance of the darker image is below 0.80", and content passes when there
-# are "no more than three general flashes ... within any one-second period".
+# are "no more than three general flashes ... within any one-second period". (Quoted
+# from memory of the W3C text.) Counting each pair of opposing changes once, and
+# dating a change by the frame that completes it, is our reading of "pair" and "within".
 #: Smallest change of relative luminance that counts (10 % of the maximum, 1.0).
 FLASH_LUMINANCE_CHANGE = 0.10
 #: A change counts only when the darker of its two images is below this.
@@ -827,11 +824,10 @@ def animate(
     whichever piece completes the set, or from a later rerun). ``cluster``: a Dask
     scheduler address ``"tcp://host:8786"``, ``"local:N"`` or a
     ``distributed.Client``; None renders on this machine with ``workers`` processes
-    (default: this process, switching to :data:`DEFAULT_WORKERS` processes when the
-    frames left after the first would take more than :data:`AUTO_PARALLEL_MIN_SECONDS`). ``overwrite``: allow writing into a directory
-    that holds other output (replacing files of the same names) and replace an
-    existing video. ``unlock_exposure``: automatic exposure per frame instead of one
-    locked white.
+    (default :data:`DEFAULT_WORKERS`; 1 renders in this process).
+    ``overwrite``: allow writing into a directory that holds other output (replacing
+    files of the same names) and replace an existing video. ``unlock_exposure``:
+    automatic exposure per frame instead of one locked white.
     """
     started = _time.perf_counter()
     anim = scene.animation
@@ -855,6 +851,16 @@ def animate(
         )
     if workers is not None and workers < 1:
         raise UserError(f"--workers must be >= 1, got {workers}")
+    if cluster is not None:
+        if workers is not None:
+            raise UserError(
+                "--workers sets local worker processes; with --cluster give the workers to "
+                "the cluster (local:N, or start dask workers for a tcp:// scheduler)"
+            )
+        from relview import farm
+
+        if isinstance(cluster, str):
+            farm.parse_cluster(cluster)  # a malformed address fails before any work
     out_dir = Path(out_dir)
     identity = scene_identity(scene)
     earlier = _claim_directory(out_dir, identity, overwrite)
@@ -868,7 +874,9 @@ def animate(
         if prev.get("mode") == _exposure_mode(scene, unlock_exposure):
             exposure = prev  # a resumed run uses the same white
     if exposure is None:
-        exposure = decide_exposure(scene, times, unlock_exposure, context=renderer.context)
+        probing = _exposure_mode(scene, unlock_exposure) == "locked"
+        context = renderer.context if probing else None  # built only when probes need it
+        exposure = decide_exposure(scene, times, unlock_exposure, context=context)
     settings = dict(base, exposure_lock=exposure)
     digest = _digest(settings)
     renderer.white = exposure.get("white_cd_m2")
@@ -915,7 +923,7 @@ def animate(
 
     if todo:
         loop_started = _time.perf_counter()
-        results, summary.backend = _start_backend(renderer, todo, cluster, workers, summary)
+        results, summary.backend = _start_backend(renderer, todo, cluster, workers)
         bar = None
         if progress:
             from tqdm import tqdm
@@ -970,38 +978,16 @@ def animate(
     return summary
 
 
-def _start_backend(renderer: FrameRenderer, todo, cluster, workers, summary):
+def _start_backend(renderer: FrameRenderer, todo, cluster, workers):
     """An iterator of RenderedFrame for the jobs, and a description of where they run."""
     if cluster is not None:
-        if workers is not None:
-            raise UserError(
-                "--workers sets local worker processes; with --cluster give the workers to "
-                "the cluster (local:N, or start dask workers for a tcp:// scheduler)"
-            )
         from relview import farm
 
         return farm.render_frames(renderer, todo, cluster), f"dask {cluster}"
-    if workers is None:
-        return _render_auto(renderer, todo, summary), "1 process"
-    n = min(workers, len(todo))
+    n = min(DEFAULT_WORKERS if workers is None else workers, len(todo))
     if n <= 1:
         return _render_serial(renderer, todo), "1 process"
     return _render_processes(renderer, todo, n), f"{n} processes, 1 numba thread each"
-
-
-def _render_auto(renderer: FrameRenderer, jobs, summary) -> Iterator[RenderedFrame]:
-    """First frame here, timed; the rest in DEFAULT_WORKERS processes if that pays off."""
-    jobs = list(jobs)
-    started = _time.perf_counter()
-    yield renderer.render(*jobs[0])
-    per_frame = _time.perf_counter() - started
-    rest = jobs[1:]
-    if len(rest) >= 2 and per_frame * len(rest) > AUTO_PARALLEL_MIN_SECONDS:
-        n = min(DEFAULT_WORKERS, len(rest))
-        summary.backend = f"1 process for frame {jobs[0][0]}, then {n} processes"
-        yield from _render_processes(renderer, rest, n)
-    else:
-        yield from _render_serial(renderer, rest)
 
 
 def _current_frames(out_dir: Path, manifest: Manifest, digest: str, times) -> dict[int, dict]:
@@ -1072,8 +1058,8 @@ def register_cli(subparsers) -> None:
         "--workers",
         type=int,
         metavar="N",
-        help=f"local worker processes, one numba thread each (default: {DEFAULT_WORKERS} for a "
-        f"batch that would take more than {AUTO_PARALLEL_MIN_SECONDS:.0f} s in one process)",
+        help=f"local worker processes, one numba thread each when more than 1 "
+        f"(default {DEFAULT_WORKERS}: this process)",
     )
     p.add_argument(
         "--unlock-exposure",
@@ -1085,9 +1071,19 @@ def register_cli(subparsers) -> None:
     p.set_defaults(func=cmd_animate)
 
 
+#: OpenMP's wait policy for this command's own numba threads (set only if the user has
+#: not). numba's OpenMP threading layer otherwise spins while waiting; on a machine
+#: whose cores are shared (load above the core count) 2 spinning threads made a
+#: 320x180 frame ~3x slower than 1 thread, and "passive" removed that loss
+#: (benchmarks/bench_animate.py, docs/animation.md).
+OMP_WAIT_POLICY = "PASSIVE"
+
+
 def cmd_animate(args) -> int:
     import sys
 
+    # Before the first parallel kernel loads the OpenMP runtime, which reads it once.
+    os.environ.setdefault("OMP_WAIT_POLICY", OMP_WAIT_POLICY)
     from relview.cli import scene_with_overrides
 
     scene = scene_with_overrides(args)
