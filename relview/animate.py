@@ -1080,7 +1080,6 @@ OMP_WAIT_POLICY = "PASSIVE"
 
 
 def cmd_animate(args) -> int:
-    import sys
 
     # Before the first parallel kernel loads the OpenMP runtime, which reads it once.
     os.environ.setdefault("OMP_WAIT_POLICY", OMP_WAIT_POLICY)
@@ -1095,24 +1094,18 @@ def cmd_animate(args) -> int:
         )
     frames = parse_frame_range(args.frames, scene.animation.frames) if args.frames else None
     out = Path(args.output) if args.output else Path("outputs") / Path(args.scene).stem
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", FlashWarning)
-        summary = animate(
-            scene,
-            out,
-            frames=frames,
-            video=args.video,
-            cluster=args.cluster,
-            overwrite=args.overwrite,
-            progress=not args.quiet,
-            workers=args.workers,
-            unlock_exposure=args.unlock_exposure,
-        )
-    for w in caught:
-        if issubclass(w.category, FlashWarning):
-            print(f"relview: warning: {w.message}", file=sys.stderr)
-        else:
-            warnings.showwarning(w.message, w.category, w.filename, w.lineno)
+    # A FlashWarning is printed as "relview: warning: ..." by relview.cli.main.
+    summary = animate(
+        scene,
+        out,
+        frames=frames,
+        video=args.video,
+        cluster=args.cluster,
+        overwrite=args.overwrite,
+        progress=not args.quiet,
+        workers=args.workers,
+        unlock_exposure=args.unlock_exposure,
+    )
     exp = summary.exposure
     white = exp.get("white_cd_m2")
     how = {"fixed": "fixed", "locked": "locked", "per-frame": "per frame"}.get(exp.get("mode"))

@@ -427,6 +427,23 @@ def test_killed_batch_resumes(tmp_path):
         assert after[name] == stamp, f"{name} was redone"
 
 
+def test_pieces_of_a_job_array_share_one_directory(tmp_path):
+    """Two pieces run at the same time into one directory keep each other's records."""
+    scene_file = write_scene(tmp_path / "brick.toml", frames=8)
+    out = tmp_path / "out"
+    base = [sys.executable, "-m", "relview.cli", "animate", str(scene_file), "-o", str(out)]
+    pieces = [
+        subprocess.Popen([*base, "--quiet", "--frames", a], stderr=subprocess.PIPE)
+        for a in ("0:4", "4:8")
+    ]
+    for p in pieces:
+        assert p.wait(timeout=300) == 0, p.stderr.read().decode()
+    m = json.loads((out / "manifest.json").read_text())
+    assert sorted(m["frames"]) == [f"{k:05d}" for k in range(8)]
+    summary = run(scene_file, out)
+    assert summary.rendered == [] and summary.skipped == list(range(8))
+
+
 # ----------------------------------------------------------------------------- flashes
 
 
@@ -505,6 +522,17 @@ def test_flash_warning_from_a_batch(scene_file, tmp_path, monkeypatch):
     assert summary.flashes and summary.flashes[0].flashes == 4
     m = json.loads((tmp_path / "out" / "manifest.json").read_text())
     assert m["flash_check"]["episodes"][0]["first_frame"] == 0
+
+
+def test_flash_warning_on_the_command_line(scene_file, tmp_path, monkeypatch, capsys):
+    from relview.cli import main
+
+    write_scene(scene_file, frames=12)
+    levels = iter([0.05, 0.7] * 6)
+    monkeypatch.setattr(anim, "mean_relative_luminance", lambda rgb8: next(levels))
+    assert main(["animate", str(scene_file), "-o", str(tmp_path / "o"), "--quiet"]) == 0
+    err = capsys.readouterr().err
+    assert "relview: warning:" in err and "flashing: frames 0-11" in err
 
 
 # ----------------------------------------------------------------------------- video
