@@ -77,6 +77,14 @@ MAX_SAMPLES = 65536
 MAX_STARS = 1_000_000
 #: most frames in ``animation.frames`` (11.6 hours at 24 frames/s)
 MAX_FRAMES = 1_000_000
+# Temperatures whose Planck spectrum is representable in float64 over the visible
+# band: Planck's law overflows there above ~1e280 K, and a lamp below ~30 K has no
+# visible light at all (its white normalisation divides by zero). The limits are kept
+# well inside those measured edges.
+#: hottest blackbody, star or line temperature, K
+MAX_TEMPERATURE = 1e12
+#: coolest lamp lighting a reflective surface, K
+MIN_LAMP_TEMPERATURE = 100.0
 
 _REQUIRED: Any = object()
 _UNSET: Any = object()
@@ -676,7 +684,8 @@ def surface_spec(table: Table, depth: int = 0) -> tuple[str, dict]:
 
     if kind == "blackbody":
         return "Blackbody", {
-            "temperature_k": table.number("blackbody", positive=True, unit="K"),
+            "temperature_k": table.number("blackbody", positive=True, high=MAX_TEMPERATURE,
+                                          unit="K"),
             "scale": table.number("scale", 1.0, positive=True),
         }
     if kind == "line":
@@ -725,7 +734,8 @@ def surface_spec(table: Table, depth: int = 0) -> tuple[str, dict]:
             if isinstance(raw, str):
                 lamp = table.string("lamp", choices=LAMPS)
             else:
-                lamp = table.number("lamp", positive=True, unit="K")
+                lamp = table.number("lamp", low=MIN_LAMP_TEMPERATURE, high=MAX_TEMPERATURE,
+                                    unit="K")
         texture = None
         if table.has("texture"):
             texture = table.path_value("texture", what="texture image")
@@ -1102,6 +1112,13 @@ def _parse_background(root: Table) -> Background:
         return Background(kind="black")
     if kind == "stars":
         temperature = t.vector("temperature", 2, defaults.temperature, positive=True, unit="K")
+        if temperature[1] > MAX_TEMPERATURE:
+            raise t.error(
+                "temperature",
+                f"temperature = {show(t.data['temperature'])}: out of range; must be "
+                f"<= {MAX_TEMPERATURE:.0e} K",
+                t.data["temperature"],
+            )
         if temperature[0] > temperature[1]:
             raise t.error(
                 "temperature",
@@ -1123,7 +1140,7 @@ def _parse_background(root: Table) -> Background:
         raise t.error(
             "width", f"width = {show(width)} must be smaller than spacing = {show(spacing)}", width
         )
-    line_t = t.number("temperature", 6500.0, positive=True, unit="K")
+    line_t = t.number("temperature", 6500.0, positive=True, high=MAX_TEMPERATURE, unit="K")
     return Background(
         kind="graticule",
         spacing=spacing,

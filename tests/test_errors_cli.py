@@ -640,6 +640,27 @@ def test_samples_in_scene_file_bounded(tmp_path, capsys):
                       "samples = 1000000000; must be >= 1 and <= 65536")
 
 
+@pytest.mark.parametrize(
+    "surface, key, words",
+    [
+        ("color = [0.5, 0.5, 0.5]\nlamp = 5.5e-297", "[body.surface] lamp",
+         "out of range: lamp = 5.5e-297; must be >= 100.0 and <= 1000000000000.0 K"),
+        ("blackbody = 1e300", "[body.surface] blackbody",
+         "out of range: blackbody = 1e+300; must be <= 1000000000000.0 K"),
+    ],
+    ids=["cold-lamp", "hot-blackbody"],
+)
+def test_temperatures_outside_float64_planck_range(tmp_path, capsys, surface, key, words):
+    # Found by the slow render fuzz (tests/test_fuzz_loader.py): a 5.5e-297 K lamp has no
+    # visible light and its white normalisation divided by zero (ZeroDivisionError,
+    # exit 1); Planck's law overflows above ~1e280 K and a 1e300 K body rendered black.
+    text = edit("blackbody = 5000.0", surface)
+    path = write(tmp_path, text)
+    code, _, err = run(capsys, "render", path, "-o", tmp_path / "o.png")
+    line = line_of(text, surface.splitlines()[-1])
+    assert_user_error(code, err, f'{path}:{line}: {key} (body "ball")', words)
+
+
 def test_huge_mesh_scale_is_refused(tmp_path, capsys):
     write_cube(tmp_path / "cube.obj")
     path = write(tmp_path, mesh_scene("cube.obj").replace('file = "cube.obj"',

@@ -19,6 +19,8 @@ The CI profile is short (``RELVIEW_FUZZ_EXAMPLES`` examples per test, default 20
 For a long run outside CI::
 
     RELVIEW_FUZZ_EXAMPLES=20000 /tmp/venv/bin/pytest tests/test_fuzz_loader.py -q -m "slow or not slow"
+
+The slow tests also render demo scenes with extreme numbers at 4 x 3 pixels.
 """
 
 from __future__ import annotations
@@ -329,3 +331,63 @@ def test_truncated_or_binary_scene_files_raise_user_error(base_dir, raw, cut):
                       st.dictionaries(KEYS, ANY_VALUE, max_size=6)))
 def test_long_fuzz_run(base_dir, data):
     _accepts_or_user_error(lambda: scene_from_dict(data, base_dir=base_dir, source="fuzz.toml"))
+
+
+# ------------------------------------------------------------------ whole renders (slow)
+
+NUMERIC_FACTORS = st.sampled_from([-1.0, 0.0, 1e-300, 1e-9, 0.5, 0.999, 1.001, 2.0, 10.0,
+                                   1e6, 1e100, 1e300])
+
+
+def _numeric_leaves(node, path=()):
+    if isinstance(node, dict):
+        for k, v in node.items():
+            yield from _numeric_leaves(v, path + (k,))
+    elif isinstance(node, list):
+        for i, v in enumerate(node):
+            yield from _numeric_leaves(v, path + (i,))
+    elif isinstance(node, (int, float)) and not isinstance(node, bool):
+        yield path
+
+
+@st.composite
+def scaled_demo_scenes(draw):
+    """A demo scene with one to three numbers scaled by extreme factors, at 4 x 3 pixels."""
+    path = draw(st.sampled_from(DEMO_SCENES))
+    scene = tomllib.loads(path.read_text())
+    leaves = list(_numeric_leaves(scene))
+    for _ in range(draw(st.integers(1, 3))):
+        where = draw(st.sampled_from(leaves))
+        parent = scene
+        for part in where[:-1]:
+            parent = parent[part]
+        value, factor = parent[where[-1]], draw(NUMERIC_FACTORS)
+        if isinstance(value, float):
+            parent[where[-1]] = value * factor
+        elif abs(value * factor) < 2**62:
+            parent[where[-1]] = int(value * factor)
+    scene.setdefault("render", {})["resolution"] = [4, 3]
+    scene["render"].pop("samples", None)
+    return path.parent, scene
+
+
+@pytest.mark.slow
+@pytest.mark.skipif(not DEMO_SCENES, reason="no demo scenes in scenes/")
+@settings(max_examples=max(EXAMPLES, 1000), deadline=None,
+          suppress_health_check=list(HealthCheck))
+@given(case=scaled_demo_scenes())
+def test_scaled_demo_scenes_render_or_raise_user_error(case):
+    """Past the loader: a scene that loads must render (tiny) or raise UserError."""
+    from relview.renderer import render
+
+    base, data = case
+    scene = _accepts_or_user_error(lambda: scene_from_dict(data, base_dir=base))
+    if scene is None:
+        return
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            frame = render(scene, resolution=(4, 3), samples=1)
+        except UserError:
+            return
+    assert frame.image.shape == (3, 4, 3)
