@@ -738,13 +738,17 @@ def assemble_video(
         )
     if not frame_paths:
         raise OutputError("no frames to put in the video", file=path)
-    frames = [np.asarray(iio3.imread(p))[..., :3] for p in frame_paths]
+
+    def frames() -> Iterator[np.ndarray]:  # one at a time: an MP4 is streamed to ffmpeg
+        for p in frame_paths:
+            yield np.asarray(iio3.imread(p))[..., :3]
 
     def write(handle) -> None:
+        import shutil
+
         scratch = Path(handle.name + ext)
         try:
             if ext == ".mp4":
-                pad_h, pad_w = frames[0].shape[0] % 2, frames[0].shape[1] % 2
                 writer = iio2.get_writer(
                     str(scratch),
                     format="FFMPEG",
@@ -756,19 +760,21 @@ def assemble_video(
                     quality=8,
                 )
                 try:
-                    for f in frames:
-                        writer.append_data(np.pad(f, ((0, pad_h), (0, pad_w), (0, 0)), "edge"))
+                    for f in frames():
+                        pad = ((0, f.shape[0] % 2), (0, f.shape[1] % 2), (0, 0))
+                        writer.append_data(np.pad(f, pad, "edge"))
                 finally:
                     writer.close()
-            else:
+            else:  # pillow assembles a GIF in memory: GIFs are for short, small clips
                 iio3.imwrite(
                     scratch,
-                    np.stack(frames),
+                    np.stack(list(frames())),
                     extension=".gif",
                     duration=1000.0 / float(fps),
                     loop=0,
                 )
-            handle.write(scratch.read_bytes())
+            with open(scratch, "rb") as src:
+                shutil.copyfileobj(src, handle)
         finally:
             scratch.unlink(missing_ok=True)
 
