@@ -16,7 +16,9 @@ What makes a batch safe to stop and restart (docs/animation.md):
   pixels (scene sha256, resolution, samples, effects, exposure and the locked
   white, projection, frame times, PNG encoding);
 * a rerun skips frames whose file exists with the recorded sha256 under the
-  current settings digest, and renders the rest (missing, altered or stale);
+  current settings digest and renders missing ones; stale frames (altered, or made
+  under other settings or an older scene) are replaced only with ``overwrite``,
+  otherwise the run stops with a UserError naming them;
 * a frame file that was written but not yet recorded (the process was killed in
   between) is adopted when its own PNG text chunks carry the current settings
   digest and its index;
@@ -618,6 +620,18 @@ def _read_manifest(path: Path) -> dict | None:
     return data
 
 
+def _frame_ranges(indices: list[int]) -> str:
+    """[0, 1, 2, 5, 7, 8] -> 'frames 0-2, 5, 7-8'."""
+    parts, start = [], None
+    for i, k in enumerate(indices):
+        if start is None:
+            start = k
+        if i + 1 == len(indices) or indices[i + 1] != k + 1:
+            parts.append(f"{start}" if start == k else f"{start}-{k}")
+            start = None
+    return "frames " + ", ".join(parts)
+
+
 def _claim_directory(out_dir: Path, identity: str, overwrite: bool) -> dict | None:
     """Check that ``out_dir`` may hold this animation; returns its earlier manifest (or None).
 
@@ -925,6 +939,15 @@ def animate(
             summary.adopted.append(k)
             continue
         todo.append((k, float(times[k])))
+    # A frame file that is not this run's finished frame (other settings, an older scene,
+    # or edited since) is still somebody's output: replace it only when asked.
+    replaced = [k for k, _ in todo if (out_dir / frame_name(k)).exists()]
+    if replaced and not overwrite:
+        raise UserError(
+            f"{out_dir}: {len(replaced)} frame file(s) ({_frame_ranges(replaced)}) were made "
+            "with other settings or an earlier version of the scene, or changed since; pass "
+            "--overwrite to render them again in place, or write to another directory with -o"
+        )
     manifest.save()  # settings first, so the directory is claimed before any frame lands
 
     if todo:

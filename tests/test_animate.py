@@ -22,6 +22,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+
+from relview.errors import UserError
 from PIL import Image
 
 from relview import animate as anim
@@ -226,7 +228,11 @@ def test_resume_skips_finished_and_redoes_altered_or_missing(scene_file, tmp_pat
         fh.write(b"edited")
     (out / "frame-00003.png").unlink()
     counter.indices.clear()
-    summary = run(scene_file, out)
+    # an edited frame is somebody's file now: replaced only with overwrite
+    with pytest.raises(UserError, match="frames 2.*--overwrite"):
+        run(scene_file, out)
+    assert counter.indices == []
+    summary = run(scene_file, out, overwrite=True)
     assert sorted(counter.indices) == [2, 3] and summary.rendered == [2, 3]
     after = stamps(out)
     for name in ("frame-00000.png", "frame-00001.png", "frame-00004.png"):
@@ -240,12 +246,14 @@ def test_changed_scene_or_settings_redo_every_frame(scene_file, tmp_path, monkey
     run(scene_file, out)
     counter = RenderCounter(monkeypatch)
     write_scene(scene_file, temperature=3400.0)  # the scene file changed: its hash too
-    summary = run(scene_file, out)
+    with pytest.raises(UserError, match="frames 0-4.*--overwrite"):
+        run(scene_file, out)  # finished frames of the old scene are kept unless asked
+    summary = run(scene_file, out, overwrite=True)
     assert sorted(counter.indices) == [0, 1, 2, 3, 4] and summary.skipped == []
     counter.indices.clear()
     scene = load_scene(scene_file)
     scene = scene.replace(render=scene.render.__class__(resolution=(40, 24)))
-    anim.animate(scene, out, progress=False, workers=1)  # a setting changed
+    anim.animate(scene, out, progress=False, workers=1, overwrite=True)  # a setting changed
     assert sorted(counter.indices) == [0, 1, 2, 3, 4]
     with Image.open(out / "frame-00000.png") as im:
         assert im.size == (40, 24)

@@ -760,8 +760,6 @@ def test_animate_rerun_keeps_finished_frames(tmp_path, capsys):
         assert ((out_dir / name).read_bytes(), (out_dir / name).stat().st_mtime_ns) == state
 
 
-@pytest.mark.xfail(strict=True, reason="reported: animate re-renders frames made with other "
-                   "settings into the same names without --overwrite")
 def test_animate_never_replaces_finished_frames_without_overwrite(tmp_path, capsys):
     scene = write(tmp_path, ANIMATED)
     out_dir = tmp_path / "frames"
