@@ -3,7 +3,14 @@
 Public names (docs/scene-format.md): ``load_scene``, ``Scene``, ``render``, ``probe``.
 """
 
+import os
 from importlib.metadata import PackageNotFoundError, version
+
+# numba's OpenMP threads spin while they wait; on a machine whose cores are shared (load
+# above the core count) two spinning threads made a frame about 3x slower than one, and
+# the passive policy removed that loss (benchmarks/bench_animate.py). It must be set
+# before the first parallel kernel loads the OpenMP runtime; a user's own setting wins.
+os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
 
 try:
     __version__ = version("relview")

@@ -1100,18 +1100,9 @@ def register_cli(subparsers) -> None:
     p.set_defaults(func=cmd_animate)
 
 
-#: OpenMP's wait policy for this command's own numba threads (set only if the user has
-#: not). numba's OpenMP threading layer otherwise spins while waiting; on a machine
-#: whose cores are shared (load above the core count) 2 spinning threads made a
-#: 320x180 frame ~3x slower than 1 thread, and "passive" removed that loss
-#: (benchmarks/bench_animate.py, docs/animation.md).
-OMP_WAIT_POLICY = "PASSIVE"
 
 
 def cmd_animate(args) -> int:
-
-    # Before the first parallel kernel loads the OpenMP runtime, which reads it once.
-    os.environ.setdefault("OMP_WAIT_POLICY", OMP_WAIT_POLICY)
     from relview.cli import scene_with_overrides
 
     scene = scene_with_overrides(args)
