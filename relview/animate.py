@@ -391,7 +391,7 @@ class FrameRenderer:
 
         exposure = self.white if self.white is not None else self.scene.render.exposure
         frame = render(self.scene, time=float(time_s), exposure=exposure, context=self.context)
-        rgb8 = film.to_8bit(frame.image)
+        rgb8 = film.to_8bit(frame.image, getattr(self.scene.render, "tone", "none"))
         meta = dict(frame.metadata)
         meta.update(self.metadata)
         meta["frame_index"] = str(int(index))
@@ -480,7 +480,7 @@ def pixel_settings(scene, times: np.ndarray) -> dict[str, Any]:
         "projection": scene.camera.projection,
         "times_s": [float(t) for t in times],
         "png_bits": 8,
-        "tone": "none",
+        "tone": getattr(settings, "tone", "none"),
     }
 
 

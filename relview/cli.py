@@ -80,6 +80,9 @@ def add_frame_options(p: argparse.ArgumentParser) -> None:
     for name in EFFECTS:
         p.add_argument(f"--no-{name}", action="store_true",
                        help=f"switch the {name} effect off (docs/scene-format.md)")
+    p.add_argument("--tone", choices=("none", "reinhard"),
+                   help="display curve for PNGs: none (clip, default) or reinhard (Reinhard et al. "
+                   "2002, on luminance)")
     p.add_argument("--overwrite", action="store_true",
                    help="replace existing output files (default: write a numbered new name)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
@@ -103,6 +106,8 @@ def scene_with_overrides(args):
         settings = dataclasses.replace(settings, samples=args.samples)
     if getattr(args, "exposure", None) is not None:
         settings = dataclasses.replace(settings, exposure=args.exposure)
+    if getattr(args, "tone", None):
+        settings = dataclasses.replace(settings, tone=args.tone)
     from relview.renderer import check_memory
 
     # Refuse a frame that cannot fit before any work, naming where the size came from.

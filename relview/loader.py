@@ -857,7 +857,7 @@ def _parse_render(root: Table) -> RenderSettings:
     if t is None:
         return RenderSettings()
     t.check_keys(("resolution", "samples", "exposure", "seed", "effects", "shutter",
-                  "shutter_samples"))
+                  "shutter_samples", "tone"))
     defaults = RenderSettings()
     exposure: float | str = "auto"
     if t.has("exposure"):
@@ -880,6 +880,7 @@ def _parse_render(root: Table) -> RenderSettings:
         shutter=t.number("shutter", 0.0, nonnegative=True, unit="s"),
         shutter_samples=t.integer("shutter_samples", defaults.shutter_samples, low=1,
                                   high=4096),
+        tone=t.string("tone", "none", choices=("none", "reinhard")),
     )
 
 

@@ -38,12 +38,14 @@ class Frame:
     white: float  # cd/m2 mapped to white
     time: float  # s, scene-frame time of the exposure
     metadata: dict[str, str] = field(default_factory=dict)
+    tone: str = "none"  # display curve used by save() for PNGs (render.tone)
 
-    def save(self, path, overwrite: bool = False, bits: int = 8, tone: str = "none") -> Path:
+    def save(self, path, overwrite: bool = False, bits: int = 8, tone: str | None = None) -> Path:
         """Write by extension: .png (8 or 16 bit sRGB), .npz (float layers), .exr if available.
 
         An existing file is never replaced unless ``overwrite``: a numbered name is used.
-        Returns the path written. ``tone``: "none" (clip) or "reinhard" (film.py).
+        Returns the path written. ``tone``: "none" (clip) or "reinhard" (film.py);
+        default: the scene's render.tone.
         """
         from relview import film
 
@@ -51,7 +53,7 @@ class Frame:
         ext = path.suffix.lower()
         if ext == ".png":
             return film.write_png(path, self.image, bits=bits, metadata=self.metadata,
-                                  tone=tone, overwrite=overwrite)
+                                  tone=tone or self.tone, overwrite=overwrite)
         if ext == ".npz":
             layers = dict(self.layers)
             layers["image"] = self.image
@@ -293,7 +295,7 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
         "body": layer_body.reshape(height, width),
     }
     meta = provenance(scene, t, width, height, samples, effects, white)
-    return Frame(image, layers, white, t, meta)
+    return Frame(image, layers, white, t, meta, tone=scene.render.tone)
 
 
 def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
@@ -332,4 +334,6 @@ def provenance(scene: Scene, t: float, width: int, height: int, samples: int,
         "effects": json.dumps(effects.__dict__, sort_keys=True),
         "white_cd_m2": repr(float(white)),
         "projection": scene.camera.projection,
+        "tone": scene.render.tone,
+        "shutter_s": repr(float(scene.render.shutter)),
     }

@@ -36,6 +36,7 @@ class RenderSettings:
     seed: int = 0  # jitter seed, so renders are reproducible
     shutter: float = 0.0  # s, exposure duration (0: an ideal instant shutter)
     shutter_samples: int = 8  # exposure events per pixel sample across an open shutter
+    tone: str = "none"  # display curve for 8/16-bit images: "none" (clip) or "reinhard"
 
 
 @dataclass

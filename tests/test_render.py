@@ -190,3 +190,23 @@ def test_check_rejects_a_body_whose_points_would_reach_c(tmp_path, capsys):
     assert main(["check", str(bad)]) == 2
     err = capsys.readouterr().err
     assert "big" in err and "reach c" in err and "Traceback" not in err
+
+
+def test_tone_setting_reaches_the_png(tmp_path):
+    # Reinhard et al. 2002 eq. 4 compresses L -> L (1 + L/Lw^2)/(1 + L) (Lw = 4 here): a
+    # surface exposed to twice white (L = 2) is clipped by "none" but shown at
+    # 2 (1 + 2/16)/3 = 0.75 of full scale by "reinhard".
+    from PIL import Image
+
+    scene = _dict_scene({"position": [0, -3, 0], "look_at": [0, 40, 0], "fov": 20.0},
+                        render={"tone": "reinhard"})
+    probe_frame = relview.render(scene, resolution=(16, 9))
+    hit = probe_frame.layers["body"] >= 0
+    assert hit.any()
+    y = float(np.median(probe_frame.layers["xyz"][hit, 1]))
+    frame = relview.render(scene, resolution=(16, 9), exposure=y / 2.0)
+    assert frame.tone == "reinhard"
+    toned = np.asarray(Image.open(frame.save(tmp_path / "t.png")))
+    clipped = np.asarray(Image.open(frame.save(tmp_path / "c.png", tone="none")))
+    assert (clipped[hit] == 255).any()
+    assert toned[hit].max() < 255
