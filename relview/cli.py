@@ -30,7 +30,8 @@ def _resolution(text: str) -> tuple[int, int]:
     try:
         w, h = (int(v) for v in text.lower().split("x"))
     except ValueError:
-        raise argparse.ArgumentTypeError(f"expected WIDTHxHEIGHT such as 960x540, got {text!r}")
+        raise argparse.ArgumentTypeError(
+            f"expected WIDTHxHEIGHT such as 960x540, got {text!r}") from None
     if w < 1 or h < 1:
         raise argparse.ArgumentTypeError(f"resolution must be positive, got {text!r}")
     return w, h
@@ -42,7 +43,8 @@ def _exposure(text: str):
     try:
         v = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"expected 'auto' or a luminance in cd/m2, got {text!r}")
+        raise argparse.ArgumentTypeError(
+            f"expected 'auto' or a luminance in cd/m2, got {text!r}") from None
     if not v > 0 or v == float("inf"):
         raise argparse.ArgumentTypeError(f"exposure luminance must be > 0 and finite, got {text!r}")
     return v
@@ -179,7 +181,7 @@ def cmd_probe(args) -> int:
         names = [b.name for b in scene.bodies]
         near = difflib.get_close_matches(args.body, names, n=1)
         hint = f"; did you mean {near[0]!r}?" if near else f"; bodies: {', '.join(names)}"
-        raise UserError(f"{args.scene}: --body {args.body!r}: no such body{hint}")
+        raise UserError(f"{args.scene}: --body {args.body!r}: no such body{hint}") from None
     if args.times is not None or args.csv or args.plot:
         return _probe_over_time(scene, args)
     if args.json and len(args.point) > 1:  # one JSON document: a list, one record per point

@@ -54,7 +54,7 @@ def write_cache(path: Path = CACHE_PATH) -> Path:
     return path
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def tables() -> dict[str, np.ndarray]:
     """The tables from the cache file, or from colour-science when the file is missing."""
     try:

@@ -19,8 +19,8 @@ from __future__ import annotations
 import csv
 import math
 import os
+from collections.abc import Hashable
 from pathlib import Path
-from typing import Hashable
 
 import numpy as np
 
@@ -213,7 +213,7 @@ class TabulatedSpectrum(SpectralSurface):
         self._key = ("tabulated", self.name, w.tobytes(), r.tobytes())
 
     @classmethod
-    def from_csv(cls, path: str | os.PathLike) -> "TabulatedSpectrum":
+    def from_csv(cls, path: str | os.PathLike) -> TabulatedSpectrum:
         """Read two columns, wavelength (nm) and W/(sr m^2 nm), from a text file.
 
         Columns separated by a comma, semicolon, tab or spaces; a header line (the first

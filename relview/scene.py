@@ -141,7 +141,7 @@ class Scene:
     source_hash: str = ""  # sha256 of the scene file (and meshes), for provenance
 
     @classmethod
-    def from_dict(cls, data: dict, base_dir: str | Path = ".", source: str = "<dict>") -> "Scene":
+    def from_dict(cls, data: dict, base_dir: str | Path = ".", source: str = "<dict>") -> Scene:
         """Build and validate a Scene from the same structure a scene file holds."""
         from relview.loader import scene_from_dict
 
@@ -153,5 +153,5 @@ class Scene:
                 return i
         raise KeyError(name)
 
-    def replace(self, **changes) -> "Scene":
+    def replace(self, **changes) -> Scene:
         return dataclasses.replace(self, **changes)

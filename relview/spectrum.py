@@ -17,11 +17,11 @@ Everything here is plain numpy and vectorised over pixels.
 from __future__ import annotations
 
 import math
-from typing import Callable, Hashable
+from collections.abc import Callable, Hashable
 
 import numpy as np
-from numba import njit, prange
 import scipy.constants as sc
+from numba import njit, prange
 
 # --------------------------------------------------------------------------------------
 # Constants

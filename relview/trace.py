@@ -262,17 +262,18 @@ class Tracer:
             # light-cone snapshot: interpolate per-vertex data over the hit triangle
             tri_v = g.faces[p.tri_face[tri[sel]]]
             w = np.stack([1.0 - u[sel] - v[sel], u[sel], v[sel]], -1)
-
-            def interp(values):
-                return np.einsum("nk,nkc->nc", w, values[tri_v])
-
-            rest[sel] = interp(g.vertex_body_coords)
+            rest[sel] = _interpolate(w, tri_v, g.vertex_body_coords)
             if g.vertex_beta is not None:  # velocity of the emitting point
-                beta[sel] = interp(g.vertex_beta)
+                beta[sel] = _interpolate(w, tri_v, g.vertex_beta)
             if g.vertex_bary is not None:  # (u, v) in the original face, for UV lookups
-                face_uv = interp(g.vertex_bary)
+                face_uv = _interpolate(w, tri_v, g.vertex_bary)
                 u[sel], v[sel] = face_uv[:, 0], face_uv[:, 1]
         return Hits(body, face, np.stack([u, v], -1), l, emit, rest, beta, group)
+
+
+def _interpolate(weights: np.ndarray, tri_vertices: np.ndarray, values: np.ndarray):
+    """Barycentric blend of per-vertex ``values`` over each hit's triangle: (N, C)."""
+    return np.einsum("nk,nkc->nc", weights, values[tri_vertices])
 
 
 def _empty_hits(n: int) -> Hits:

@@ -22,8 +22,6 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-
-from relview.errors import UserError
 from PIL import Image
 
 from relview import animate as anim

@@ -3,8 +3,17 @@
 import numpy as np
 import pytest
 
-from relview.lorentz import (C, aberrate_to_camera, aberrate_to_scene, boost_event, boost_matrix,
-                             compose_velocities, contract, doppler_factor, lorentz_factor)
+from relview.lorentz import (
+    C,
+    aberrate_to_camera,
+    aberrate_to_scene,
+    boost_event,
+    boost_matrix,
+    compose_velocities,
+    contract,
+    doppler_factor,
+    lorentz_factor,
+)
 
 
 def test_speed_of_light_is_the_si_value():

@@ -20,7 +20,12 @@ from relview.materials import (
     sample_texture,
 )
 from relview.scene import Effects
-from relview.spectrum import observed_xyz_direct, planck_spectral_radiance, xyz_to_linear_srgb, xyz_to_xy
+from relview.spectrum import (
+    observed_xyz_direct,
+    planck_spectral_radiance,
+    xyz_to_linear_srgb,
+    xyz_to_xy,
+)
 
 CMFS = colour.MSDS_CMFS["CIE 1931 2 Degree Standard Observer"]
 ALL_ON = Effects()

@@ -1,6 +1,5 @@
 """relview.probe against independent root finding, the renderer's own layers and textbook values."""
 
-import dataclasses
 
 import numpy as np
 import pytest

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 import trimesh
 
-from relview.lorentz import C, lorentz_factor
+from relview.lorentz import lorentz_factor
 from relview.scene import Body, Effects, UniformMotion
 from relview.trace import Tracer, uniform_groups
 
