@@ -625,7 +625,10 @@ class OrbitMotion(RigidKinematics):
         r / beta^2 = c^2 / a, the Rindler-horizon distance of the centripetal acceleration."""
         b, g = self.speed, self.gamma
         k = g * g / (g + 1.0)
-        return self.radius * (1.0 - b) / (b * b * (g - b * k))
+        denominator = b * b * (g - b * k)
+        if denominator == 0.0:  # a speed so small that beta^2 underflows: no limit
+            return math.inf
+        return self.radius * (1.0 - b) / denominator
 
     def _closed_form_check(self, extent_m):
         limit = self.outward_limit()

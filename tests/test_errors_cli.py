@@ -807,8 +807,6 @@ def test_accelerating_body_seen_from_far_away_renders(tmp_path, capsys):
     assert code == 0, err
 
 
-@pytest.mark.xfail(strict=True, reason="reported: orbit motion with beta below ~1e-162 "
-                   "divides by beta^2 = 0 in motion.py (ZeroDivisionError, exit 1)")
 def test_orbit_with_vanishing_speed(tmp_path, capsys):
     # Found by the slow render fuzz (tests/test_fuzz_loader.py).
     text = edit('kind = "uniform"\nbeta = [0.5, 0.0, 0.0]\nposition = [0.0, 0.0, 0.0]',
