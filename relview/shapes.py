@@ -40,9 +40,11 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-import trimesh
 
 from relview.errors import MeshError, MeshWarning
+
+# trimesh is imported inside the functions that read mesh files: importing it costs
+# about 0.7 s of every command's start-up, and the primitives below do not need it.
 
 #: shapes a body may have
 SHAPES = ("box", "sphere", "cylinder", "plane", "mesh")
@@ -69,8 +71,10 @@ class MeshData:
     uv: np.ndarray | None
     source: str = ""
 
-    def to_trimesh(self) -> trimesh.Trimesh:
+    def to_trimesh(self):
         """A new trimesh.Trimesh (process=False: vertex order kept, UVs in ``visual.uv``)."""
+        import trimesh
+
         visual = None
         if self.uv is not None:
             visual = trimesh.visual.TextureVisuals(uv=np.array(self.uv))
@@ -111,20 +115,73 @@ def cylinder_sections(detail: int) -> int:
 
 @functools.lru_cache(maxsize=64)
 def _box(sx: float, sy: float, sz: float) -> MeshData:
-    m = trimesh.creation.box(extents=(sx, sy, sz))
-    return _mesh(m.vertices, m.faces, source=f"box {sx} x {sy} x {sz} m")
+    hx, hy, hz = sx / 2.0, sy / 2.0, sz / 2.0
+    corners = np.array([[x, y, z] for x in (-hx, hx) for y in (-hy, hy) for z in (-hz, hz)])
+    # two counter-clockwise triangles (seen from outside) per face; corner i has bits x y z
+    faces = np.array([
+        [0, 1, 3], [0, 3, 2],  # -x
+        [4, 6, 7], [4, 7, 5],  # +x
+        [0, 4, 5], [0, 5, 1],  # -y
+        [2, 3, 7], [2, 7, 6],  # +y
+        [0, 2, 6], [0, 6, 4],  # -z
+        [1, 5, 7], [1, 7, 3],  # +z
+    ])
+    return _mesh(corners, faces, source=f"box {sx} x {sy} x {sz} m")
+
+
+def _icosahedron() -> tuple[np.ndarray, np.ndarray]:
+    """Unit icosahedron: 12 vertices (cyclic permutations of (0, +-1, +-phi)), 20 faces."""
+    t = (1.0 + 5.0**0.5) / 2.0
+    v = np.array([[-1, t, 0], [1, t, 0], [-1, -t, 0], [1, -t, 0], [0, -1, t], [0, 1, t],
+                  [0, -1, -t], [0, 1, -t], [t, 0, -1], [t, 0, 1], [-t, 0, -1], [-t, 0, 1]],
+                 float)
+    f = np.array([[0, 11, 5], [0, 5, 1], [0, 1, 7], [0, 7, 10], [0, 10, 11], [1, 5, 9],
+                  [5, 11, 4], [11, 10, 2], [10, 7, 6], [7, 1, 8], [3, 9, 4], [3, 4, 2],
+                  [3, 2, 6], [3, 6, 8], [3, 8, 9], [4, 9, 5], [2, 4, 11], [6, 2, 10],
+                  [8, 6, 7], [9, 8, 1]])
+    return v / np.linalg.norm(v, axis=1, keepdims=True), f
+
+
+def _subdivide_to_sphere(v: np.ndarray, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Split each triangle into four at its edge midpoints, pushed out onto the unit sphere."""
+    edges = np.sort(np.concatenate([f[:, [0, 1]], f[:, [1, 2]], f[:, [2, 0]]]), axis=1)
+    unique, inverse = np.unique(edges, axis=0, return_inverse=True)
+    mid = v[unique[:, 0]] + v[unique[:, 1]]
+    mid /= np.linalg.norm(mid, axis=1, keepdims=True)
+    m = inverse.reshape(3, -1).T + len(v)  # midpoint of edges (0-1), (1-2), (2-0) per face
+    a, b, c = f[:, 0], f[:, 1], f[:, 2]
+    ab, bc, ca = m[:, 0], m[:, 1], m[:, 2]
+    faces = np.concatenate([np.stack([a, ab, ca], 1), np.stack([b, bc, ab], 1),
+                            np.stack([c, ca, bc], 1), np.stack([ab, bc, ca], 1)])
+    return np.concatenate([v, mid]), faces
 
 
 @functools.lru_cache(maxsize=64)
 def _sphere(radius: float, detail: int) -> MeshData:
-    m = trimesh.creation.icosphere(subdivisions=sphere_subdivisions(detail), radius=radius)
-    return _mesh(m.vertices, m.faces, source=f"sphere r = {radius} m")
+    v, f = _icosahedron()
+    for _ in range(sphere_subdivisions(detail)):
+        v, f = _subdivide_to_sphere(v, f)
+    return _mesh(v * radius, f, source=f"sphere r = {radius} m")
 
 
 @functools.lru_cache(maxsize=64)
 def _cylinder(radius: float, height: float, detail: int) -> MeshData:
-    m = trimesh.creation.cylinder(radius=radius, height=height, sections=cylinder_sections(detail))
-    return _mesh(m.vertices, m.faces, source=f"cylinder r = {radius} m, h = {height} m")
+    n = cylinder_sections(detail)
+    a = 2.0 * np.pi * np.arange(n) / n
+    ring = np.stack([radius * np.cos(a), radius * np.sin(a)], 1)
+    h = height / 2.0
+    bottom = np.column_stack([ring, np.full(n, -h)])
+    top = np.column_stack([ring, np.full(n, h)])
+    v = np.concatenate([bottom, top, [[0.0, 0.0, -h], [0.0, 0.0, h]]])
+    i = np.arange(n)
+    j = (i + 1) % n
+    cb, ct = 2 * n, 2 * n + 1  # cap centres
+    faces = np.concatenate([
+        np.stack([i, j, n + j], 1), np.stack([i, n + j, n + i], 1),  # side, outward
+        np.stack([np.full(n, cb), j, i], 1),  # bottom cap, normal -z
+        np.stack([np.full(n, ct), n + i, n + j], 1),  # top cap, normal +z
+    ])
+    return _mesh(v, faces, source=f"cylinder r = {radius} m, h = {height} m")
 
 
 @functools.lru_cache(maxsize=64)
@@ -144,11 +201,16 @@ _FILE_CACHE_LIMIT = 32
 
 
 def _supported_formats() -> str:
+    import trimesh
+
     return ", ".join(sorted(trimesh.available_formats()))
 
 
-def _parts(loaded, path: Path) -> list[trimesh.Trimesh]:
-    """Triangle meshes in what trimesh loaded, with scene-graph transforms applied."""
+def _parts(loaded, path: Path) -> list:
+    """Triangle meshes (trimesh.Trimesh) in what trimesh loaded, with scene-graph
+    transforms applied."""
+    import trimesh
+
     if isinstance(loaded, trimesh.Scene):
         geoms = loaded.dump(concatenate=False)
     elif isinstance(loaded, (list, tuple)):
@@ -180,6 +242,8 @@ def _unreadable(path: Path, ext: str, exc: Exception) -> str:
 
 def _read_mesh_file(path: Path) -> MeshData:
     """Read a mesh file as it is (no scaling), flattening multi-part files."""
+    import trimesh
+
     if not path.exists():
         raise MeshError("mesh file does not exist", file=path, value=str(path))
     if not path.is_file():
@@ -258,6 +322,8 @@ def _check_magnitude(vertices: np.ndarray, path: Path, what: str) -> None:
 
 def _clean(vertices: np.ndarray, faces: np.ndarray, uv: np.ndarray | None, path: Path) -> MeshData:
     """Drop zero-area triangles (with a warning) and warn about open meshes."""
+    import trimesh
+
     tri = vertices[faces]
     doubled_area = np.linalg.norm(np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0]), axis=1)
     extent = float(np.ptp(vertices, axis=0).max()) or 1.0
@@ -367,7 +433,7 @@ def mesh_data(body) -> MeshData:
     return _mesh(base.vertices @ r.T, base.faces, base.uv, source=base.source)
 
 
-def build_mesh(body) -> trimesh.Trimesh:
+def build_mesh(body):
     """The body's rest-frame mesh as a trimesh.Trimesh (UVs in ``visual.uv`` when present)."""
     return mesh_data(body).to_trimesh()
 
