@@ -731,8 +731,9 @@ def profile_frame(scene, ctx, frames: int) -> dict:
         "camera rays (pixel grid, directions, aberration)": cum("camera.py", "pixel_grid")
         + camera,
         "trace kernel (numba _cast)": kernel,
-        "trace glue (Tracer.cast outside the kernel)": cum("trace.py", "cast") - kernel,
-        "Doppler factor (doppler_of_hits)": cum("renderer.py", "doppler_of_hits"),
+        # since the hit resolution computes D itself, the Doppler factor is part of the glue
+        "trace glue + Doppler factor (Tracer.cast outside the kernel)":
+        cum("trace.py", "cast") - kernel + cum("renderer.py", "doppler_of_hits"),
         "shading (renderer.shade -> observed_xyz)": cum("renderer.py", "shade"),
         "sky (sky_xyz, star_splat)": cum("sky.py", "sky_xyz") + cum("sky.py", "star_splat"),
         "exposure (film.exposure_white + film.expose)": cum("film.py", "exposure_white")

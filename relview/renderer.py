@@ -89,6 +89,13 @@ class RenderContext:
         self.uniform_groups = uniform_groups(scene.bodies, self.meshes, self.effects, uniform)
         self._uniform_tracer = Tracer(self.uniform_groups) if not self.other else None
 
+    def pixel_centres(self, width: int, height: int) -> np.ndarray:
+        """(H*W, 2) pixel-centre positions, kept across the frames of an animation."""
+        if getattr(self, "_centres_size", None) != (width, height):
+            self._centres = cam_mod.pixel_grid(width, height)
+            self._centres_size = (width, height)
+        return self._centres
+
     def tracer(self, camera_event: np.ndarray) -> Tracer:
         """The tracer for one exposure event (light-cone snapshots join uniform groups)."""
         if not self.other:
@@ -127,15 +134,6 @@ def doppler_along(beta_emit: np.ndarray, d_scene: np.ndarray, beta_cam: np.ndarr
     from relview.lorentz import doppler_along as _kernel
 
     return _kernel(beta_emit, d_scene, beta_cam, relativistic=effects.contraction)
-
-
-def doppler_of_hits(hits: Hits, d_scene: np.ndarray, beta_cam: np.ndarray,
-                    effects: Effects) -> np.ndarray:
-    """D per ray, NaN on misses (see :func:`doppler_along`)."""
-    hit = hits.hit
-    d = np.full(len(d_scene), np.nan)
-    d[hit] = doppler_along(hits.beta_emit[hit], d_scene[hit], beta_cam, effects)
-    return d
 
 
 def bodies_around_camera(scene: Scene, context: RenderContext,
@@ -232,13 +230,14 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
     cam = scene.camera
     rng = np.random.default_rng(scene.render.seed)
     n_pix = width * height
-    xyz = np.zeros((n_pix, 3))
-    layer_d = np.full(n_pix, np.nan)
-    layer_t = np.full(n_pix, np.nan)
-    layer_pos = np.full((n_pix, 3), np.nan)
-    layer_rest = np.full((n_pix, 3), np.nan)
-    layer_body = np.full(n_pix, -1, np.int64)
-    centres = cam_mod.pixel_grid(width, height)
+    # sample 0 covers every pixel, so every array below is filled before it is read
+    xyz = np.empty((n_pix, 3))
+    layer_d = np.empty(n_pix)
+    layer_t = np.empty(n_pix)
+    layer_pos = np.empty((n_pix, 3))
+    layer_rest = np.empty((n_pix, 3))
+    layer_body = np.empty(n_pix, np.int64)
+    centres = context.pixel_centres(width, height)
     times = exposure_times(t, scene.render.shutter, samples, scene.render.shutter_samples)
     n_samples = len(times)
     batches = [(s, a) for s in range(n_samples) for a in range(0, n_pix, RAYS_PER_BATCH)]
@@ -260,14 +259,19 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
             px = px + rng.uniform(-0.5, 0.5, size=px.shape)
         d_s, valid = cam_mod.scene_directions(cam, width, height, px,
                                               beta_c if effects.aberration else None)
-        hits = tracer.cast(ev, d_s, effects)
-        hits.body[~valid] = -1
-        dop = doppler_of_hits(hits, d_s, beta_c, effects)
+        hits = tracer.cast(ev, d_s, effects, beta_cam=beta_c)
+        if not valid.all():
+            hits.body[~valid] = -1
+            hits.doppler[~valid] = np.nan
+        dop = hits.doppler
         col = shade(scene, context, hits, dop, effects)
         miss = (hits.body < 0) & valid
         if np.any(miss):
             col[miss] = sky.sky_xyz(scene.background, d_s[miss], beta_c, effects)
-        xyz[a:b] += col / n_samples
+        if s == 0:
+            xyz[a:b] = col
+        else:
+            xyz[a:b] += col
         if s == 0:
             layer_d[a:b] = dop
             layer_t[a:b] = hits.emit_event[:, 0] / C
@@ -278,6 +282,8 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
             bar.update(1)
     if bar is not None:
         bar.close()
+    if n_samples > 1:
+        xyz /= n_samples
     xyz_img = xyz.reshape(height, width, 3)
     stars = sky.star_splat(scene.background, cam, width, height, beta_cam, effects,
                            occluded=layer_body.reshape(height, width) >= 0)

@@ -35,7 +35,7 @@ import numpy as np
 from numba import njit, prange
 
 from relview import bvh as bvh_mod
-from relview.lorentz import C, boost_matrix, galilean_matrix
+from relview.lorentz import C, boost_matrix, doppler_along, galilean_matrix
 from relview.scene import Effects
 
 
@@ -75,6 +75,7 @@ class Hits:
     rest_position: np.ndarray  # (N, 3) hit point in the body's own frame, metres
     beta_emit: np.ndarray  # (N, 3) velocity of the emitting point in S (at emission)
     group: np.ndarray  # (N,) frame group index, -1 on a miss
+    doppler: np.ndarray | None = None  # (N,) D (NaN on a miss), when cast with beta_cam
 
     @property
     def hit(self) -> np.ndarray:
@@ -149,7 +150,7 @@ def _cast(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links, tris, l
 
 @njit(parallel=True, cache=True)
 def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_slot, g_origin,
-             g_matrix, g_beta, slot_offset, slot_rotation):
+             g_matrix, g_beta, slot_offset, slot_rotation, beta_cam, relativistic):
     """Per ray: body, face, emission event, body-frame hit point and emitter velocity.
 
     Rigid (uniform-motion) bodies map the frame hit point back to body axes through their
@@ -164,6 +165,9 @@ def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_s
     emit = np.full((n, 4), np.nan)
     rest = np.full((n, 3), np.nan)
     beta = np.full((n, 3), np.nan)
+    doppler = np.full(n, np.nan)
+    bc2 = beta_cam[0] ** 2 + beta_cam[1] ** 2 + beta_cam[2] ** 2
+    g_cam = 1.0 / np.sqrt(1.0 - bc2) if relativistic else 1.0
     for i in prange(n):
         t = tri[i]
         if t < 0:
@@ -178,6 +182,15 @@ def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_s
             emit[i, a + 1] = ray_o[io, a + 1] + l[i] * ray_d[i, a]
         for a in range(3):
             beta[i, a] = g_beta[g, a]
+        # D = gamma_cam (1 - beta_cam.n) / (gamma_emit (1 - beta_emit.n)), n = -d
+        # (lorentz.doppler_factor; gammas dropped for Galilean kinematics)
+        num = 1.0 + (beta_cam[0] * ray_d[i, 0] + beta_cam[1] * ray_d[i, 1]
+                     + beta_cam[2] * ray_d[i, 2])
+        den = 1.0 + (g_beta[g, 0] * ray_d[i, 0] + g_beta[g, 1] * ray_d[i, 1]
+                     + g_beta[g, 2] * ray_d[i, 2])
+        if relativistic:
+            den /= np.sqrt(1.0 - (g_beta[g, 0] ** 2 + g_beta[g, 1] ** 2 + g_beta[g, 2] ** 2))
+        doppler[i] = g_cam * num / den
         s = tri_slot[t]
         if s < 0:
             continue
@@ -190,7 +203,7 @@ def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_s
         for a in range(3):  # R^T rel: frame axes -> body axes
             rest[i, a] = (slot_rotation[s, 0, a] * rel[0] + slot_rotation[s, 1, a] * rel[1]
                           + slot_rotation[s, 2, a] * rel[2])
-    return body, face, group, emit, rest, beta
+    return body, face, group, emit, rest, beta, doppler
 
 
 class Tracer:
@@ -238,9 +251,10 @@ class Tracer:
         assert len(self.tri_body) == len(p.v0)
 
     def cast(self, ray_origin: np.ndarray, d_scene: np.ndarray, effects: Effects,
-             l_min: float = 1e-9) -> Hits:
+             l_min: float = 1e-9, beta_cam=None) -> Hits:
         """Cast backward null rays along (N, 3) unit S directions from (N, 4) start events,
-        or from one shared (4,) event."""
+        or from one shared (4,) event. With ``beta_cam`` the hits carry their Doppler
+        factor as seen by a camera of that velocity."""
         if self.packed is None:
             return _empty_hits(len(d_scene))
         p = self.packed
@@ -249,10 +263,11 @@ class Tracer:
         k_time = -1.0 if effects.delay else 0.0
         l, tri, u, v = _cast(ray_o, ray_d, k_time, self.g_origin, self.g_matrix, p.root, p.nodes,
                              p.links, p.tris, l_min)
-        body, face, group, emit, rest, beta = _resolve(
+        bc = np.zeros(3) if beta_cam is None else np.asarray(beta_cam, np.float64).reshape(3)
+        body, face, group, emit, rest, beta, doppler = _resolve(
             ray_o, ray_d, k_time, l, tri, p.tri_group, self.tri_body, self.tri_local,
             self.tri_slot, self.g_origin, self.g_matrix, self.g_beta, self.slot_offset,
-            self.slot_rotation)
+            self.slot_rotation, bc, bool(effects.contraction))
         for gi, g in enumerate(self.groups):
             if g.vertex_body_coords is None:
                 continue
@@ -265,10 +280,12 @@ class Tracer:
             rest[sel] = _interpolate(w, tri_v, g.vertex_body_coords)
             if g.vertex_beta is not None:  # velocity of the emitting point
                 beta[sel] = _interpolate(w, tri_v, g.vertex_beta)
+                doppler[sel] = doppler_along(beta[sel], ray_d[sel], bc, effects.contraction)
             if g.vertex_bary is not None:  # (u, v) in the original face, for UV lookups
                 face_uv = _interpolate(w, tri_v, g.vertex_bary)
                 u[sel], v[sel] = face_uv[:, 0], face_uv[:, 1]
-        return Hits(body, face, np.stack([u, v], -1), l, emit, rest, beta, group)
+        return Hits(body, face, np.stack([u, v], -1), l, emit, rest, beta, group,
+                    doppler if beta_cam is not None else None)
 
 
 def _interpolate(weights: np.ndarray, tri_vertices: np.ndarray, values: np.ndarray):
@@ -279,7 +296,7 @@ def _interpolate(weights: np.ndarray, tri_vertices: np.ndarray, values: np.ndarr
 def _empty_hits(n: int) -> Hits:
     return Hits(np.full(n, -1, np.int64), np.full(n, -1, np.int64), np.zeros((n, 2)),
                 np.full(n, np.inf), np.full((n, 4), np.nan), np.full((n, 3), np.nan),
-                np.full((n, 3), np.nan), np.full(n, -1, np.int64))
+                np.full((n, 3), np.nan), np.full(n, -1, np.int64), np.full(n, np.nan))
 
 
 def uniform_groups(bodies, meshes, effects: Effects, indices=None) -> list[FrameGroup]:
