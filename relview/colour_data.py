@@ -64,5 +64,12 @@ def tables() -> dict[str, np.ndarray]:
         return from_colour_science()
 
 
+def sampled(name: str) -> tuple[np.ndarray, np.ndarray]:
+    """One tabulated function as float arrays: (wavelengths nm (M,), values (M,) or (M, 3));
+    ``name`` is "cmf", "d65" or "basis"."""
+    t = tables()
+    return np.asarray(t[f"{name}_nm"], dtype=float), np.asarray(t[name], dtype=float)
+
+
 if __name__ == "__main__":
     print(f"wrote {write_cache()}")

@@ -24,7 +24,7 @@ from pathlib import Path
 
 import numpy as np
 
-from relview import spectrum
+from relview import colour_data, spectrum
 from relview.spectrum import apply_effects, cached_table, effect_factors
 
 # FWHM -> standard deviation of a Gaussian: FWHM = 2 sqrt(2 ln 2) sigma.
@@ -298,16 +298,9 @@ def _split_fields(line: str) -> list[str]:
 # --------------------------------------------------------------------------------------
 
 
-def _mallett_basis() -> tuple[np.ndarray, np.ndarray]:
-    """Mallett & Yuksel (2019) sRGB basis spectra from colour-science (380-780 nm, 5 nm),
-    through the cached extract in relview.colour_data."""
-    from relview.colour_data import tables
-
-    t = tables()
-    return np.asarray(t["basis_nm"], dtype=float), np.asarray(t["basis"], dtype=float)
-
-
-BASIS_WAVELENGTHS_NM, BASIS_VALUES = _mallett_basis()
+#: Mallett & Yuksel (2019) sRGB basis spectra from colour-science (380-780 nm, 5 nm),
+#: through the cached extract in relview.colour_data.
+BASIS_WAVELENGTHS_NM, BASIS_VALUES = colour_data.sampled("basis")
 
 
 def reflectance_basis(wavelength_nm) -> np.ndarray:

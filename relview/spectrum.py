@@ -23,6 +23,8 @@ import numpy as np
 import scipy.constants as sc
 from numba import njit, prange
 
+from relview import colour_data
+
 # --------------------------------------------------------------------------------------
 # Constants
 # --------------------------------------------------------------------------------------
@@ -41,17 +43,9 @@ VISIBLE_MIN_NM = 360.0
 VISIBLE_MAX_NM = 830.0
 
 
-def _load_cmfs() -> tuple[np.ndarray, np.ndarray]:
-    """CIE 1931 2-degree colour-matching functions from colour-science (360-830 nm, 1 nm),
-    through the cached extract in relview.colour_data."""
-    from relview.colour_data import tables
-
-    t = tables()
-    return np.asarray(t["cmf_nm"], dtype=float), np.asarray(t["cmf"], dtype=float)
-
-
-#: (M,) nm and (M, 3) xbar, ybar, zbar of the CIE 1931 2-degree standard observer.
-CMF_WAVELENGTHS_NM, CMF_VALUES = _load_cmfs()
+#: (M,) nm and (M, 3) xbar, ybar, zbar of the CIE 1931 2-degree standard observer, from
+#: colour-science (360-830 nm, 1 nm) through the cached extract in relview.colour_data.
+CMF_WAVELENGTHS_NM, CMF_VALUES = colour_data.sampled("cmf")
 
 
 def cmf_at(wavelength_nm) -> np.ndarray:
@@ -89,14 +83,8 @@ def planck_spectral_radiance(wavelength_nm, temperature_k) -> np.ndarray:
 D65_CCT_K = 6504.0
 
 
-def _load_d65() -> tuple[np.ndarray, np.ndarray]:
-    from relview.colour_data import tables
-
-    t = tables()
-    return np.asarray(t["d65_nm"], dtype=float), np.asarray(t["d65"], dtype=float)
-
-
-D65_WAVELENGTHS_NM, D65_VALUES = _load_d65()
+#: CIE illuminant D65 relative spectral power from colour-science (cached extract).
+D65_WAVELENGTHS_NM, D65_VALUES = colour_data.sampled("d65")
 
 
 def cie_d65_relative_spd(wavelength_nm) -> np.ndarray:
