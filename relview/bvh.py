@@ -1,6 +1,6 @@
 """Bounding-volume hierarchy over triangles: binned-SAH build and first-hit traversal.
 
-The build follows the binned surface-area heuristic (Wald, "On fast Construction of
+The build follows the binned surface-area heuristic over all three axes (Wald, "On fast Construction of
 SAH-based Bounding Volume Hierarchies", IEEE Symp. Interactive Ray Tracing 2007);
 the traversal is the usual ordered stack walk with slab tests (Kay & Kajiya 1986)
 and the Moeller-Trumbore ray/triangle test (J. Graphics Tools 2(1), 1997).
@@ -24,6 +24,61 @@ MAX_LEAF = 4
 N_BINS = 16
 STACK_SIZE = 128
 MAX_DEPTH = 100  # keeps the traversal stack (STACK_SIZE) from overflowing
+
+
+@njit(cache=True)
+def _sah_split(order, start, count, axis, c_lo, scale, centroid, tri_lo, tri_hi, n_bins,
+               bin_lo, bin_hi, bin_n, right_area, right_n):
+    """Cheapest binned-SAH split of order[start:start+count] along ``axis``:
+    (cost = sum over both sides of triangles x surface area, last bin of the left side)."""
+    for b in range(n_bins):
+        bin_n[b] = 0
+        for a in range(3):
+            bin_lo[b, a] = np.inf
+            bin_hi[b, a] = -np.inf
+    for k in range(start, start + count):
+        i = order[k]
+        b = int((centroid[i, axis] - c_lo) * scale)
+        if b >= n_bins:
+            b = n_bins - 1
+        bin_n[b] += 1
+        for a in range(3):
+            bin_lo[b, a] = min(bin_lo[b, a], tri_lo[i, a])
+            bin_hi[b, a] = max(bin_hi[b, a], tri_hi[i, a])
+    # sweep from the right
+    rlo = np.full(3, np.inf)
+    rhi = np.full(3, -np.inf)
+    rn = 0
+    for b in range(n_bins - 1, 0, -1):
+        rn += bin_n[b]
+        for a in range(3):
+            rlo[a] = min(rlo[a], bin_lo[b, a])
+            rhi[a] = max(rhi[a], bin_hi[b, a])
+        right_n[b] = rn
+        if rn > 0:
+            d = rhi - rlo
+            right_area[b] = d[0] * d[1] + d[1] * d[2] + d[2] * d[0]
+        else:
+            right_area[b] = 0.0
+    llo = np.full(3, np.inf)
+    lhi = np.full(3, -np.inf)
+    ln = 0
+    best_cost = np.inf
+    best_b = -1
+    for b in range(0, n_bins - 1):
+        ln += bin_n[b]
+        for a in range(3):
+            llo[a] = min(llo[a], bin_lo[b, a])
+            lhi[a] = max(lhi[a], bin_hi[b, a])
+        if ln == 0 or right_n[b + 1] == 0:
+            continue
+        d = lhi - llo
+        la = d[0] * d[1] + d[1] * d[2] + d[2] * d[0]
+        cost = ln * la + right_n[b + 1] * right_area[b + 1]
+        if cost < best_cost:
+            best_cost = cost
+            best_b = b
+    return best_cost, best_b
 
 
 @njit(cache=True)
@@ -83,55 +138,20 @@ def _build(tri_lo, tri_hi, centroid, max_leaf, n_bins):
             # all centroids coincide: split in the middle of the list
             mid = start + count // 2
         else:
-            # binned SAH along the widest centroid axis
-            scale = n_bins / ext[axis]
-            for b in range(n_bins):
-                bin_n[b] = 0
-                for a in range(3):
-                    bin_lo[b, a] = np.inf
-                    bin_hi[b, a] = -np.inf
-            for k in range(start, start + count):
-                i = order[k]
-                b = int((centroid[i, axis] - clo[axis]) * scale)
-                if b >= n_bins:
-                    b = n_bins - 1
-                bin_n[b] += 1
-                for a in range(3):
-                    bin_lo[b, a] = min(bin_lo[b, a], tri_lo[i, a])
-                    bin_hi[b, a] = max(bin_hi[b, a], tri_hi[i, a])
-            # sweep from the right
-            rlo = np.full(3, np.inf)
-            rhi = np.full(3, -np.inf)
-            rn = 0
-            for b in range(n_bins - 1, 0, -1):
-                rn += bin_n[b]
-                for a in range(3):
-                    rlo[a] = min(rlo[a], bin_lo[b, a])
-                    rhi[a] = max(rhi[a], bin_hi[b, a])
-                right_n[b] = rn
-                if rn > 0:
-                    d = rhi - rlo
-                    right_area[b] = d[0] * d[1] + d[1] * d[2] + d[2] * d[0]
-                else:
-                    right_area[b] = 0.0
-            llo = np.full(3, np.inf)
-            lhi = np.full(3, -np.inf)
-            ln = 0
+            # binned SAH over every axis with spread-out centroids; keep the cheapest split
             best_cost = np.inf
             best_b = -1
-            for b in range(0, n_bins - 1):
-                ln += bin_n[b]
-                for a in range(3):
-                    llo[a] = min(llo[a], bin_lo[b, a])
-                    lhi[a] = max(lhi[a], bin_hi[b, a])
-                if ln == 0 or right_n[b + 1] == 0:
+            for ax in range(3):
+                if ext[ax] <= 0.0:
                     continue
-                d = lhi - llo
-                la = d[0] * d[1] + d[1] * d[2] + d[2] * d[0]
-                cost = ln * la + right_n[b + 1] * right_area[b + 1]
+                cost, b = _sah_split(order, start, count, ax, clo[ax], n_bins / ext[ax],
+                                     centroid, tri_lo, tri_hi, n_bins, bin_lo, bin_hi, bin_n,
+                                     right_area, right_n)
                 if cost < best_cost:
                     best_cost = cost
                     best_b = b
+                    axis = ax
+            scale = n_bins / ext[axis]
             d = hi - lo
             parent_area = d[0] * d[1] + d[1] * d[2] + d[2] * d[0]
             # leaf if splitting does not pay (traversal cost ~ 1 triangle test)
