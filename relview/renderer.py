@@ -23,8 +23,9 @@ from relview.lorentz import C
 from relview.scene import Effects, Scene, UniformMotion
 from relview.trace import Hits, Tracer, uniform_groups
 
-#: Rays traced per batch; bounds the working memory of one batch to ~150 MB.
-RAYS_PER_BATCH = 1 << 18
+#: Rays traced per batch (a 960x540 frame is one batch); bounds the working memory of one
+#: batch to about 150 MB.
+RAYS_PER_BATCH = 1 << 19
 #: Bytes per pixel held for the float layers and accumulators of one frame.
 BYTES_PER_PIXEL = 8 * (3 + 3 + 1 + 1 + 3 + 3 + 1 + 3)
 
@@ -265,16 +266,17 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
             hits.doppler[~valid] = np.nan
         dop = hits.doppler
         col = shade(scene, context, hits, dop, effects)
-        miss = (hits.body < 0) & valid
-        if np.any(miss):
-            col[miss] = sky.sky_xyz(scene.background, d_s[miss], beta_c, effects)
+        if sky.per_pixel(scene.background):
+            miss = (hits.body < 0) & valid
+            if np.any(miss):
+                col[miss] = sky.sky_xyz(scene.background, d_s[miss], beta_c, effects)
         if s == 0:
             xyz[a:b] = col
         else:
             xyz[a:b] += col
         if s == 0:
             layer_d[a:b] = dop
-            layer_t[a:b] = hits.emit_event[:, 0] / C
+            layer_t[a:b] = hits.emit_event[:, 0]
             layer_pos[a:b] = hits.emit_event[:, 1:]
             layer_rest[a:b] = hits.rest_position
             layer_body[a:b] = hits.body
@@ -284,6 +286,7 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
         bar.close()
     if n_samples > 1:
         xyz /= n_samples
+    layer_t /= C  # ct (m) -> s
     xyz_img = xyz.reshape(height, width, 3)
     stars = sky.star_splat(scene.background, cam, width, height, beta_cam, effects,
                            occluded=layer_body.reshape(height, width) >= 0)

@@ -67,6 +67,12 @@ def _line_temperature(bg: Background) -> float:
     return float(np.sqrt(t.min() * t.max()))
 
 
+def per_pixel(bg: Background) -> bool:
+    """Whether the sky is evaluated per pixel (graticule) rather than splatted (stars) or
+    absent (black)."""
+    return bg.kind == "graticule"
+
+
 def sky_xyz(bg: Background, d_scene: np.ndarray, beta_cam: np.ndarray,
             effects: Effects) -> np.ndarray:
     """(N, 3) observed XYZ of the per-pixel sky along S directions (towards the source)."""
