@@ -898,10 +898,11 @@ def build_report(info: dict) -> str:
     if "bvh_first" in su:
         add(f"Loading cached compiled code (numba cache warm, no compilation): the BVH build "
             f"takes {su['bvh_first'].s()} s on its first call in the command and "
-            f"{su['bvh_again'].s()} s when repeated in the same process; the first "
-            f"`Tracer.cast` batch {su['cast_first'].s()} s, the second "
-            f"{su['cast_second'].s()} s (the batches hold about the same number of rays; "
-            f"{su['batches']} batches). The differences are numba loading cached kernels.")
+            f"{su['bvh_again'].s()} s when repeated in the same process"
+            + (f"; the first `Tracer.cast` batch {su['cast_first'].s()} s, the second "
+               f"{su['cast_second'].s()} s (the batches hold about the same number of rays; "
+               f"{su['batches']} batches)" if "cast_first" in su else "")
+            + ". The differences are numba loading cached kernels.")
         add("")
     fb = su["stages"]["first_batch_start"]
     add(f"Time from process start to the first batch of rays: median {fb.median:.2f} s, best "
@@ -1023,8 +1024,10 @@ def print_summary(info: dict) -> None:
     for k, st in su["stages"].items():
         print(f"  {k:22s} {st.s()} s after spawn")
     if "bvh_first" in su:
-        print(f"  BVH build first call {su['bvh_first'].s()} s, again {su['bvh_again'].s()} s; "
-              f"cast first batch {su['cast_first'].s()} s, second {su['cast_second'].s()} s")
+        casts = (f"; cast first batch {su['cast_first'].s()} s, second "
+                 f"{su['cast_second'].s()} s" if "cast_first" in su else "")
+        print(f"  BVH build first call {su['bvh_first'].s()} s, again {su['bvh_again'].s()} s"
+              + casts)
     for key, m in info["memory"].items():
         print(f"memory {key}: process peak {m['process_peak'] / 1024:.0f} MiB; before the frame "
               f"{m['peak_before_frame'] / 1024:.0f} MiB; during the frame "
