@@ -330,11 +330,29 @@ def _show_warning(message, category, filename, lineno, file=None, line=None):
 _default_show_warning = warnings.showwarning
 
 
+def compile_notice() -> str | None:
+    """A notice when the compiled ray-casting kernels are not cached yet (first run after
+    an install or an upgrade), so a silent 20-40 s compile does not look like a hang."""
+    import os
+
+    cache = Path(__file__).resolve().parent / "__pycache__"
+    if os.environ.get("NUMBA_CACHE_DIR") or (cache.is_dir() and not os.access(cache, os.W_OK)):
+        return None  # numba caches elsewhere; nothing reliable to look at
+    if cache.is_dir() and any(cache.glob("trace._cast-*.nbi")):
+        return None
+    return ("relview: first run on this installation: compiling the ray-casting kernels "
+            "(once, about 20-40 s; later runs start in about a second)")
+
+
 def main(argv=None) -> int:
     try:
         with warnings.catch_warnings():
             warnings.showwarning = _show_warning
             args = build_parser().parse_args(argv)
+            if args.command in ("render", "probe", "animate", "compare"):
+                notice = compile_notice()
+                if notice:
+                    print(notice, file=sys.stderr)
             return int(args.func(args) or 0)
     except UserError as e:
         print(f"relview: error: {e}", file=sys.stderr)

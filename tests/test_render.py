@@ -210,3 +210,16 @@ def test_tone_setting_reaches_the_png(tmp_path):
     clipped = np.asarray(Image.open(frame.save(tmp_path / "c.png", tone="none")))
     assert (clipped[hit] == 255).any()
     assert toned[hit].max() < 255
+
+
+def test_first_run_compile_notice(tmp_path, monkeypatch):
+    # common practice: tell the user why the first run is slow (numba compiles once)
+    import relview.cli as cli
+
+    monkeypatch.delenv("NUMBA_CACHE_DIR", raising=False)
+    pkg = tmp_path / "relview"
+    (pkg / "__pycache__").mkdir(parents=True)
+    monkeypatch.setattr(cli, "__file__", str(pkg / "cli.py"))
+    assert "compiling" in cli.compile_notice()
+    (pkg / "__pycache__" / "trace._cast-96.py311.nbi").write_bytes(b"")
+    assert cli.compile_notice() is None
