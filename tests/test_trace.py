@@ -274,3 +274,32 @@ def test_occlusion_between_different_velocities_is_by_path_length():
         edge = np.abs(np.abs(x_hit - centre) - half) < 0.01
         assert np.array_equal(got_front[~edge], expect_front[~edge])
         assert h.hit.all()
+
+
+def test_co_moving_bodies_share_a_frame_and_keep_their_own_axes():
+    # Two rotated boxes with the same velocity share one hierarchy; every hit must come back
+    # as a point on the surface of the right box, in that box's own axes (a box's surface:
+    # the largest |coordinate| / half-size is 1).
+    from relview.scene import Body
+
+    half = np.array([[0.5, 0.3, 0.2], [0.25, 0.4, 0.3]])
+    bodies, meshes = [], []
+    for i, (rot, pos) in enumerate((((10, 20, 30), (-0.8, 0, 0)), ((-40, 5, 70), (0.9, 0.3, 0)))):
+        b = Body(name=f"b{i}", shape="box", size=2 * half[i], surface=None,
+                 rotation=np.array(rot, float),
+                 motion=UniformMotion(beta=np.array([0.7, 0.1, 0.0]), position=np.array(pos)))
+        m = trimesh.creation.box(2 * half[i])
+        bodies.append(b)
+        meshes.append((m.vertices @ b.rotation_matrix().T, m.faces))
+    groups = uniform_groups(bodies, meshes, Effects())
+    assert len(groups) == 1 and sorted(groups[0].bodies) == [0, 1]
+    tr = Tracer(groups)
+    rng = np.random.default_rng(4)
+    d = rng.normal(size=(40000, 3)) * [0.5, 0.0, 0.15] + [-0.55, 1.0, 0]  # retarded places
+    d /= np.linalg.norm(d, axis=1)[:, None]
+    h = tr.cast(np.array([0.0, 0.0, -4.0, 0.0]), d, Effects())
+    for i in (0, 1):
+        sel = h.body == i
+        assert sel.sum() > 200
+        ratio = np.abs(h.rest_position[sel]) / half[i]
+        assert ratio.max(axis=1) == pytest.approx(1.0, abs=1e-9)
