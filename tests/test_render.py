@@ -223,3 +223,17 @@ def test_first_run_compile_notice(tmp_path, monkeypatch):
     assert "compiling" in cli.compile_notice()
     (pkg / "__pycache__" / "trace._cast-96.py311.nbi").write_bytes(b"")
     assert cli.compile_notice() is None
+
+
+def test_jittered_samples_keep_the_centre_layers_and_smooth_edges():
+    # Sample 0 is the pixel centre, so the data layers do not depend on the sample count;
+    # extra jittered samples only average the colour (edge pixels take partial values).
+    scene = two_body_scene(res=(64, 36))
+    one = relview.render(scene)
+    four = relview.render(scene, samples=4)
+    for key in ("body", "doppler", "emit_time", "rest_position"):
+        assert np.array_equal(one.layers[key], four.layers[key], equal_nan=True)
+    y1, y4 = one.layers["xyz"][..., 1], four.layers["xyz"][..., 1]
+    inside = one.layers["body"] >= 0
+    partial = (y4 > 0) & (y4 < 0.9 * y1.max()) & ~inside
+    assert partial.any()  # antialiased silhouette pixels outside the centre-sampled shape
