@@ -674,6 +674,19 @@ class PathMotion(RigidKinematics):
                 f"times[{i + 1}] = {self.times[i + 1]:g} s"
             )
         self.knots = self.times * C
+        # A segment whose straight chord is far above c cannot be interpolated below c (the
+        # curve's top speed is at least the chord's mean speed); rejecting it here keeps
+        # absurd coordinates (overflowing squares) away from the spline arithmetic. Nearer
+        # c, the exact check on the spline below reports the peak speed.
+        with np.errstate(over="ignore", invalid="ignore"):
+            chord = np.linalg.norm(np.diff(self.positions, axis=0), axis=1) / np.diff(self.knots)
+        fast = np.nonzero(~(chord < 1e3))[0]
+        if fast.size:
+            i = int(fast[0])
+            raise ValueError(
+                f"path: segment {i} (t = {self.times[i]:g} s to {self.times[i + 1]:g} s) "
+                f"needs a mean speed |beta| = {chord[i]:.6g} between its points, far above c; "
+                "speeds must stay below c (spread the times or move the points)")
         self.spline = CubicSpline(self.knots, self.positions, bc_type="natural")
         self.d1 = self.spline.derivative(1)
         self.d2 = self.spline.derivative(2)

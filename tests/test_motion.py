@@ -533,3 +533,11 @@ def test_loader_builds_registered_kinds_and_names_bad_keys():
         scene_from_dict(scene({"kind": "orbit", "radius": 1.0, "period": -2.0}))
     with pytest.raises(SceneError, match=r"accelleration.*did you mean 'acceleration'"):
         scene_from_dict(scene({"kind": "hyperbolic", "accelleration": [1.0, 0.0, 0.0]}))
+
+
+def test_path_with_absurd_coordinates_is_a_clear_error():
+    # 1e300 m in 1e-8 s: hopelessly faster than light; the message names the segment
+    # instead of leaking an overflow from the spline arithmetic.
+    xs = np.array([0.0, 1.0, 1e300])
+    with pytest.raises(ValueError, match=r"segment 1 .* mean speed"):
+        PathMotion(times=np.array([0.0, 1e-8, 2e-8]), positions=np.stack([xs, 0 * xs, 0 * xs], 1))
