@@ -404,3 +404,106 @@ def first_hit(ox, oy, oz, dx, dy, dz, l_min, l_max, root, nodes, links, tris, st
             if node < 0:
                 break
     return best, best_tri, best_u, best_v
+
+
+#: rays traversed together by :func:`packet_first_hits` (coherent camera rays from one
+#: shared start event): one node fetch serves them all, and the per-ray loops below are
+#: simple enough for the compiler to vectorise. 16 was fastest on the benchmark view
+#: (8: 25 % faster than single rays, 16 and 32: 2.4x).
+PACKET = 16
+
+
+@njit(cache=True, inline="always")
+def packet_first_hits(ox, oy, oz, dx, dy, dz, l_min, best, best_tri, best_u, best_v, root,
+                      nodes, links, tris, stack):
+    """Nearest hits of PACKET rays sharing one origin (ox, oy, oz); directions dx, dy, dz
+    (PACKET,) each. ``best`` etc. (PACKET,) hold each ray's nearest hit so far and are
+    updated in place (so several hierarchies can be walked one after the other).
+
+    Classic packet traversal: a node is entered when any ray of the packet meets its box
+    before its own nearest hit; children are ordered by the first ray's direction.
+    """
+    ix = np.empty(PACKET)
+    iy = np.empty(PACKET)
+    iz = np.empty(PACKET)
+    for r in range(PACKET):
+        ix[r] = 1.0 / dx[r] if dx[r] != 0.0 else _BIG
+        iy[r] = 1.0 / dy[r] if dy[r] != 0.0 else _BIG
+        iz[r] = 1.0 / dz[r] if dz[r] != 0.0 else _BIG
+    sp = 1
+    stack[0] = root
+    while sp > 0:
+        sp -= 1
+        node = stack[sp]
+        lx = nodes[node, 0] - ox
+        ly = nodes[node, 1] - oy
+        lz = nodes[node, 2] - oz
+        hx = nodes[node, 3] - ox
+        hy = nodes[node, 4] - oy
+        hz = nodes[node, 5] - oz
+        any_hit = 0
+        for r in range(PACKET):
+            t0 = lx * ix[r]
+            t1 = hx * ix[r]
+            tn = min(t0, t1)
+            tf = max(t0, t1)
+            t0 = ly * iy[r]
+            t1 = hy * iy[r]
+            tn = max(tn, min(t0, t1))
+            tf = min(tf, max(t0, t1))
+            t0 = lz * iz[r]
+            t1 = hz * iz[r]
+            tn = max(tn, min(t0, t1))
+            tf = min(tf, max(t0, t1))
+            tn = max(tn, l_min)
+            tf = min(tf, best[r])
+            any_hit |= tn <= tf
+        if any_hit == 0:
+            continue
+        cnt = links[node, 3]
+        if cnt > 0:
+            s = links[node, 2]
+            for k in range(s, s + cnt):
+                # Moeller-Trumbore, the ray-independent half hoisted out of the ray loop
+                ax_ = tris[k, 3]
+                ay_ = tris[k, 4]
+                az_ = tris[k, 5]
+                bx_ = tris[k, 6]
+                by_ = tris[k, 7]
+                bz_ = tris[k, 8]
+                tx = ox - tris[k, 0]
+                ty = oy - tris[k, 1]
+                tz = oz - tris[k, 2]
+                qx = ty * az_ - tz * ay_
+                qy = tz * ax_ - tx * az_
+                qz = tx * ay_ - ty * ax_
+                tq = bx_ * qx + by_ * qy + bz_ * qz
+                for r in range(PACKET):
+                    px = dy[r] * bz_ - dz[r] * by_
+                    py = dz[r] * bx_ - dx[r] * bz_
+                    pz = dx[r] * by_ - dy[r] * bx_
+                    det = ax_ * px + ay_ * py + az_ * pz
+                    inv = 1.0 / det
+                    u = (tx * px + ty * py + tz * pz) * inv
+                    v = (dx[r] * qx + dy[r] * qy + dz[r] * qz) * inv
+                    t = tq * inv
+                    if ((det != 0.0) & (u >= 0.0) & (v >= 0.0) & (u + v <= 1.0) & (t > l_min)
+                            & (t < best[r])):
+                        best[r] = t
+                        best_tri[r] = k
+                        best_u[r] = u
+                        best_v[r] = v
+        else:
+            a = links[node, 0]
+            b = links[node, 1]
+            ca = ((nodes[a, 0] + nodes[a, 3]) * dx[0] + (nodes[a, 1] + nodes[a, 4]) * dy[0]
+                  + (nodes[a, 2] + nodes[a, 5]) * dz[0])
+            cb = ((nodes[b, 0] + nodes[b, 3]) * dx[0] + (nodes[b, 1] + nodes[b, 4]) * dy[0]
+                  + (nodes[b, 2] + nodes[b, 5]) * dz[0])
+            if ca <= cb:  # nearer child on top of the stack
+                stack[sp] = b
+                stack[sp + 1] = a
+            else:
+                stack[sp] = a
+                stack[sp + 1] = b
+            sp += 2

@@ -148,6 +148,53 @@ def _cast(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links, tris, l
     return out_l, out_tri, out_u, out_v
 
 
+@njit(parallel=True, cache=True, fastmath=_FAST)
+def _cast_packets(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links, tris, l_min):
+    """:func:`_cast` for rays from one shared start event ray_o (1, 4), traversed in packets
+    of bvh.PACKET neighbouring rays (camera rays are coherent): same results, faster."""
+    n = ray_d.shape[0]
+    n_groups = roots.shape[0]
+    P = bvh_mod.PACKET
+    out_l = np.full(n, np.inf)
+    out_tri = np.full(n, -1, np.int64)
+    out_u = np.zeros(n)
+    out_v = np.zeros(n)
+    n_packets = (n + P - 1) // P
+    for p in prange(n_packets):
+        stack = np.empty(bvh_mod.STACK_SIZE, np.int64)
+        dx = np.empty(P)
+        dy = np.empty(P)
+        dz = np.empty(P)
+        best = np.full(P, np.inf)
+        best_tri = np.full(P, -1, np.int64)
+        best_u = np.zeros(P)
+        best_v = np.zeros(P)
+        base = p * P
+        m_rays = min(P, n - base)
+        for g in range(n_groups):
+            m = g_matrix[g]
+            e0 = ray_o[0, 0] - g_origin[g, 0]
+            e1_ = ray_o[0, 1] - g_origin[g, 1]
+            e2_ = ray_o[0, 2] - g_origin[g, 2]
+            e3 = ray_o[0, 3] - g_origin[g, 3]
+            ox = m[1, 0] * e0 + m[1, 1] * e1_ + m[1, 2] * e2_ + m[1, 3] * e3
+            oy = m[2, 0] * e0 + m[2, 1] * e1_ + m[2, 2] * e2_ + m[2, 3] * e3
+            oz = m[3, 0] * e0 + m[3, 1] * e1_ + m[3, 2] * e2_ + m[3, 3] * e3
+            for r in range(P):
+                i = base + (r if r < m_rays else 0)  # a short last packet repeats its first ray
+                dx[r] = m[1, 0] * k_time + m[1, 1] * ray_d[i, 0] + m[1, 2] * ray_d[i, 1] + m[1, 3] * ray_d[i, 2]
+                dy[r] = m[2, 0] * k_time + m[2, 1] * ray_d[i, 0] + m[2, 2] * ray_d[i, 1] + m[2, 3] * ray_d[i, 2]
+                dz[r] = m[3, 0] * k_time + m[3, 1] * ray_d[i, 0] + m[3, 2] * ray_d[i, 1] + m[3, 3] * ray_d[i, 2]
+            bvh_mod.packet_first_hits(ox, oy, oz, dx, dy, dz, l_min, best, best_tri, best_u,
+                                      best_v, roots[g], nodes, links, tris, stack)
+        for r in range(m_rays):
+            out_l[base + r] = best[r]
+            out_tri[base + r] = best_tri[r]
+            out_u[base + r] = best_u[r]
+            out_v[base + r] = best_v[r]
+    return out_l, out_tri, out_u, out_v
+
+
 @njit(parallel=True, cache=True)
 def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_slot, g_origin,
              g_matrix, g_beta, slot_offset, slot_rotation, beta_cam, relativistic):
@@ -261,8 +308,9 @@ class Tracer:
         ray_o = np.ascontiguousarray(np.atleast_2d(ray_origin), dtype=np.float64)
         ray_d = np.ascontiguousarray(d_scene, dtype=np.float64)
         k_time = -1.0 if effects.delay else 0.0
-        l, tri, u, v = _cast(ray_o, ray_d, k_time, self.g_origin, self.g_matrix, p.root, p.nodes,
-                             p.links, p.tris, l_min)
+        kernel = _cast_packets if len(ray_o) == 1 else _cast
+        l, tri, u, v = kernel(ray_o, ray_d, k_time, self.g_origin, self.g_matrix, p.root,
+                              p.nodes, p.links, p.tris, l_min)
         bc = np.zeros(3) if beta_cam is None else np.asarray(beta_cam, np.float64).reshape(3)
         body, face, group, emit, rest, beta, doppler = _resolve(
             ray_o, ray_d, k_time, l, tri, p.tri_group, self.tri_body, self.tri_local,
