@@ -274,7 +274,10 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
             xyz[a:b] = col
         else:
             xyz[a:b] += col
-        if s == 0:
+        if s == 0 and a == 0 and b == n_pix:  # the whole frame in one batch: no copies
+            layer_d, layer_body, layer_rest = dop, hits.body, hits.rest_position
+            layer_t, layer_pos = hits.emit_event[:, 0].copy(), hits.emit_event[:, 1:]
+        elif s == 0:
             layer_d[a:b] = dop
             layer_t[a:b] = hits.emit_event[:, 0]
             layer_pos[a:b] = hits.emit_event[:, 1:]

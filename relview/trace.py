@@ -206,18 +206,29 @@ def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_s
     """
     n = ray_d.shape[0]
     o_step = 0 if ray_o.shape[0] == 1 else 1  # one shared start event, or one per ray
-    body = np.full(n, -1, np.int64)
-    face = np.full(n, -1, np.int64)
-    group = np.full(n, -1, np.int64)
-    emit = np.full((n, 4), np.nan)
-    rest = np.full((n, 3), np.nan)
-    beta = np.full((n, 3), np.nan)
-    doppler = np.full(n, np.nan)
+    # filled in the parallel loop below (misses included), not pre-filled: one pass over
+    # memory instead of two
+    body = np.empty(n, np.int64)
+    face = np.empty(n, np.int64)
+    group = np.empty(n, np.int64)
+    emit = np.empty((n, 4))
+    rest = np.empty((n, 3))
+    beta = np.empty((n, 3))
+    doppler = np.empty(n)
     bc2 = beta_cam[0] ** 2 + beta_cam[1] ** 2 + beta_cam[2] ** 2
     g_cam = 1.0 / np.sqrt(1.0 - bc2) if relativistic else 1.0
     for i in prange(n):
         t = tri[i]
         if t < 0:
+            body[i] = -1
+            face[i] = -1
+            group[i] = -1
+            doppler[i] = np.nan
+            for a in range(4):
+                emit[i, a] = np.nan
+            for a in range(3):
+                rest[i, a] = np.nan
+                beta[i, a] = np.nan
             continue
         g = tri_group[t]
         group[i] = g
@@ -240,6 +251,8 @@ def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_s
         doppler[i] = g_cam * num / den
         s = tri_slot[t]
         if s < 0:
+            for a in range(3):  # a light-cone snapshot: the caller interpolates
+                rest[i, a] = np.nan
             continue
         rel = np.empty(3)
         for a in range(3):
