@@ -244,19 +244,12 @@ def xyz_to_linear_srgb(xyz) -> np.ndarray:
     Absolute XYZ must first be divided by the luminance (cd/m^2) that should map to 1
     (the film module's exposure). Out-of-gamut colours give values outside [0, 1].
     """
-    return _apply_3x3(xyz, XYZ_TO_LINEAR_SRGB)
+    return np.asarray(xyz, dtype=float) @ XYZ_TO_LINEAR_SRGB.T
 
 
 def linear_srgb_to_xyz(rgb) -> np.ndarray:
     """(..., 3) linear sRGB -> (..., 3) XYZ (relative: (1, 1, 1) is D65 white with Y = 1)."""
-    return _apply_3x3(rgb, LINEAR_SRGB_TO_XYZ)
-
-
-def _apply_3x3(values, matrix: np.ndarray) -> np.ndarray:
-    """matrix @ each (..., 3) row, as one (N, 3) x (3, 3) product: a stacked matmul over
-    millions of 3-vectors is an order of magnitude slower than one flat one."""
-    v = np.asarray(values, dtype=float)
-    return (v.reshape(-1, 3) @ matrix.T).reshape(v.shape)
+    return np.asarray(rgb, dtype=float) @ LINEAR_SRGB_TO_XYZ.T
 
 
 def encode_srgb(linear) -> np.ndarray:
