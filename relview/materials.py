@@ -54,6 +54,11 @@ def _positive_number(value, what: str) -> float:
 class Surface:
     """Base class of all surfaces (see the module docstring for the interface)."""
 
+    #: whether observed_xyz reads the rest-frame hit points / texture coordinates; the
+    #: renderer skips gathering them for surfaces that do not (safe default: both)
+    uses_position = True
+    uses_uv = True
+
     def key(self) -> Hashable:  # pragma: no cover - abstract
         raise NotImplementedError
 
@@ -69,6 +74,9 @@ class Surface:
 
 class SpectralSurface(Surface):
     """A surface with one rest-frame spectral radiance, shaded by one Doppler table."""
+
+    uses_position = False
+    uses_uv = False
 
     def spectral_radiance(self, wavelength_nm) -> np.ndarray:
         """Rest-frame spectral radiance in W/(sr m^2 nm), at any wavelength > 0."""
@@ -375,6 +383,8 @@ class Reflective(Surface):
         self.lamp = lamp
         self.luminance = _positive_number(luminance, "luminance (cd/m2)")
         self.texture = None if texture is None else Path(texture)
+        self.uses_position = False
+        self.uses_uv = texture is not None
         self._texels = None if texture is None else load_texture(self.texture)
 
     def key(self):
@@ -515,6 +525,8 @@ class Pattern(Surface):
             )
         self.first = Reflective((0.8, 0.8, 0.8)) if first is None else first
         self.second = Reflective((0.05, 0.05, 0.05)) if second is None else second
+        self.uses_uv = bool(getattr(self.first, "uses_uv", True)
+                            or getattr(self.second, "uses_uv", True))
         for name, s in (("first", self.first), ("second", self.second)):
             if not hasattr(s, "observed_xyz") or not hasattr(s, "key"):
                 raise ValueError(f"pattern {name} must be a surface, got {s!r}")

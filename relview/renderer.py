@@ -318,14 +318,16 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
         sel = np.nonzero(hits.body == i)[0]
         if len(sel) == 0:
             continue
+        surface = body.surface
         uv = None
-        if context.uv[i] is not None:
+        if context.uv[i] is not None and getattr(surface, "uses_uv", True):
             faces = context.meshes[i][1][hits.face[sel]]
             w = hits.bary[sel]
             uvs = context.uv[i]
             uv = ((1 - w[:, 0] - w[:, 1])[:, None] * uvs[faces[:, 0]] + w[:, :1] * uvs[faces[:, 1]]
                   + w[:, 1:] * uvs[faces[:, 2]])
-        out[sel] = body.surface.observed_xyz(doppler[sel], hits.rest_position[sel], uv, effects)
+        rest = hits.rest_position[sel] if getattr(surface, "uses_position", True) else None
+        out[sel] = surface.observed_xyz(doppler[sel], rest, uv, effects)
     return out
 
 
