@@ -349,7 +349,9 @@ def main(argv=None) -> int:
         with warnings.catch_warnings():
             warnings.showwarning = _show_warning
             args = build_parser().parse_args(argv)
-            if args.command in ("render", "probe", "animate", "compare"):
+            # a person at a terminal is told why the first run waits; logs and pipes,
+            # whose stderr carries only errors and warnings, are not
+            if args.command in ("render", "probe", "animate", "compare") and sys.stderr.isatty():
                 notice = compile_notice()
                 if notice:
                     print(notice, file=sys.stderr)
