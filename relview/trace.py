@@ -89,6 +89,21 @@ def frame_matrix(beta: np.ndarray, effects: Effects) -> np.ndarray:
 #: IEEE-safe fast-math: fused multiply-add and reassociation, but NaN/inf kept exact
 _FAST = {"contract", "arcp", "nsz", "reassoc"}
 
+@njit(cache=True, inline="always")
+def _spatial(m, c0, c1, c2, c3):
+    """Spatial rows of the 4x4 frame map m applied to the 4-vector (c0, c1, c2, c3)."""
+    return (m[1, 0] * c0 + m[1, 1] * c1 + m[1, 2] * c2 + m[1, 3] * c3,
+            m[2, 0] * c0 + m[2, 1] * c1 + m[2, 2] * c2 + m[2, 3] * c3,
+            m[3, 0] * c0 + m[3, 1] * c1 + m[3, 2] * c2 + m[3, 3] * c3)
+
+
+@njit(cache=True, inline="always")
+def _frame_origin(m, origin, ray_o, io):
+    """o' = M (E - e0): a ray's start event ray_o[io] in a frame group's rest frame."""
+    return _spatial(m, ray_o[io, 0] - origin[0], ray_o[io, 1] - origin[1],
+                    ray_o[io, 2] - origin[2], ray_o[io, 3] - origin[3])
+
+
 #: rays handled together by one thread: neighbouring pixels share traversal paths
 RAY_CHUNK = 256
 
@@ -119,21 +134,8 @@ def _cast(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links, tris, l
             for g in range(n_groups):
                 # rest-frame ray: o' = M (E - e0), d' = M k (spatial rows only)
                 m = g_matrix[g]
-                io = i * o_step
-                e0 = ray_o[io, 0] - g_origin[g, 0]
-                e1_ = ray_o[io, 1] - g_origin[g, 1]
-                e2_ = ray_o[io, 2] - g_origin[g, 2]
-                e3 = ray_o[io, 3] - g_origin[g, 3]
-                ox = m[1, 0] * e0 + m[1, 1] * e1_ + m[1, 2] * e2_ + m[1, 3] * e3
-                oy = m[2, 0] * e0 + m[2, 1] * e1_ + m[2, 2] * e2_ + m[2, 3] * e3
-                oz = m[3, 0] * e0 + m[3, 1] * e1_ + m[3, 2] * e2_ + m[3, 3] * e3
-                k0 = k_time
-                k1 = ray_d[i, 0]
-                k2 = ray_d[i, 1]
-                k3 = ray_d[i, 2]
-                dx = m[1, 0] * k0 + m[1, 1] * k1 + m[1, 2] * k2 + m[1, 3] * k3
-                dy = m[2, 0] * k0 + m[2, 1] * k1 + m[2, 2] * k2 + m[2, 3] * k3
-                dz = m[3, 0] * k0 + m[3, 1] * k1 + m[3, 2] * k2 + m[3, 3] * k3
+                ox, oy, oz = _frame_origin(m, g_origin[g], ray_o, i * o_step)
+                dx, dy, dz = _spatial(m, k_time, ray_d[i, 0], ray_d[i, 1], ray_d[i, 2])
                 l, tri, u, v = bvh_mod.first_hit(ox, oy, oz, dx, dy, dz, l_min, best, roots[g],
                                                  nodes, links, tris, stack, stack_t)
                 if tri >= 0:
@@ -173,18 +175,10 @@ def _cast_packets(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links,
         m_rays = min(P, n - base)
         for g in range(n_groups):
             m = g_matrix[g]
-            e0 = ray_o[0, 0] - g_origin[g, 0]
-            e1_ = ray_o[0, 1] - g_origin[g, 1]
-            e2_ = ray_o[0, 2] - g_origin[g, 2]
-            e3 = ray_o[0, 3] - g_origin[g, 3]
-            ox = m[1, 0] * e0 + m[1, 1] * e1_ + m[1, 2] * e2_ + m[1, 3] * e3
-            oy = m[2, 0] * e0 + m[2, 1] * e1_ + m[2, 2] * e2_ + m[2, 3] * e3
-            oz = m[3, 0] * e0 + m[3, 1] * e1_ + m[3, 2] * e2_ + m[3, 3] * e3
+            ox, oy, oz = _frame_origin(m, g_origin[g], ray_o, 0)
             for r in range(P):
                 i = base + (r if r < m_rays else 0)  # a short last packet repeats its first ray
-                dx[r] = m[1, 0] * k_time + m[1, 1] * ray_d[i, 0] + m[1, 2] * ray_d[i, 1] + m[1, 3] * ray_d[i, 2]
-                dy[r] = m[2, 0] * k_time + m[2, 1] * ray_d[i, 0] + m[2, 2] * ray_d[i, 1] + m[2, 3] * ray_d[i, 2]
-                dz[r] = m[3, 0] * k_time + m[3, 1] * ray_d[i, 0] + m[3, 2] * ray_d[i, 1] + m[3, 3] * ray_d[i, 2]
+                dx[r], dy[r], dz[r] = _spatial(m, k_time, ray_d[i, 0], ray_d[i, 1], ray_d[i, 2])
             bvh_mod.packet_first_hits(ox, oy, oz, dx, dy, dz, l_min, best, best_tri, best_u,
                                       best_v, roots[g], nodes, links, tris, stack)
         for r in range(m_rays):
@@ -254,15 +248,15 @@ def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_s
             for a in range(3):  # a light-cone snapshot: the caller interpolates
                 rest[i, a] = np.nan
             continue
-        rel = np.empty(3)
-        for a in range(3):
-            x = 0.0
-            for b in range(4):
-                x += g_matrix[g, a + 1, b] * (emit[i, b] - g_origin[g, b])
-            rel[a] = x - slot_offset[s, a]
+        # hit point in the group frame (the emission event mapped like a start event),
+        # relative to the body's origin there
+        fx, fy, fz = _frame_origin(g_matrix[g], g_origin[g], emit, i)
+        rx = fx - slot_offset[s, 0]
+        ry = fy - slot_offset[s, 1]
+        rz = fz - slot_offset[s, 2]
         for a in range(3):  # R^T rel: frame axes -> body axes
-            rest[i, a] = (slot_rotation[s, 0, a] * rel[0] + slot_rotation[s, 1, a] * rel[1]
-                          + slot_rotation[s, 2, a] * rel[2])
+            rest[i, a] = (slot_rotation[s, 0, a] * rx + slot_rotation[s, 1, a] * ry
+                          + slot_rotation[s, 2, a] * rz)
     return body, face, group, emit, rest, beta, doppler
 
 
