@@ -44,7 +44,7 @@ def thread_comparison(scene, rounds: int = 2) -> None:
     """
     import numba
 
-    from relview.animate import FrameRenderer, frame_times
+    from relview.animation.batch import FrameRenderer, frame_times
 
     renderer = FrameRenderer(scene, 1.0e6)
     times = frame_times(scene.animation)[:: max(1, scene.animation.frames // 12)]
@@ -71,11 +71,11 @@ def main() -> None:
     ap0 = argparse.ArgumentParser(add_help=False)
     ap0.add_argument("--omp-active", action="store_true")
     if not ap0.parse_known_args()[0].omp_active:
-        # as `relview animate` does (relview.animate.OMP_WAIT_POLICY), before numba loads
+        # as `relview animate` does (relview.animation.batch.OMP_WAIT_POLICY), before numba loads
         os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
-    from relview.animate import FrameRenderer, animate
-    from relview.loader import load_scene
-    from relview.scene import Animation
+    from relview.animation.batch import FrameRenderer, animate
+    from relview.scene.model import load_scene
+    from relview.scene.parts import Animation
 
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--resolution", default="320x180")

@@ -76,7 +76,7 @@ def scene_toml(beta: float) -> str:
     t = -CAMERA_DISTANCE/c, so the light it sent then reaches the camera at the
     exposure (t = 0): the body is in frame, near the image centre.
     """
-    from relview.lorentz import C
+    from relview.kinematics.lorentz import C
 
     t_pass = -CAMERA_DISTANCE_M / C if beta else 0.0
     return f"""\
@@ -233,7 +233,7 @@ def camera_rays(scene):
     """The renderer's own rays for the whole frame: ((N, 4) events, (N, 3) S directions, valid)."""
     import numpy as np
 
-    from relview import camera as cam_mod
+    from relview.geometry import camera as cam_mod
     from relview.renderer import camera_state
 
     event, beta_cam = camera_state(scene, scene.camera.time)
@@ -241,7 +241,7 @@ def camera_rays(scene):
     if hasattr(cam_mod, "scene_directions"):  # fused directions + aberration
         d_s, valid = cam_mod.scene_directions(scene.camera, WIDTH, HEIGHT, px, beta_cam)
     else:
-        from relview.lorentz import aberrate_to_scene
+        from relview.kinematics.lorentz import aberrate_to_scene
 
         d_cam, valid = cam_mod.pixels_to_directions(scene.camera, WIDTH, HEIGHT, px)
         d_s = aberrate_to_scene(d_cam, beta_cam) if np.any(beta_cam) else d_cam
@@ -250,8 +250,8 @@ def camera_rays(scene):
 
 
 class KernelTimer:
-    """Times every call of the numba cast kernels (``relview.trace._cast`` for rays with
-    their own start events, ``relview.trace._cast_packets`` for rays from one shared
+    """Times every call of the numba cast kernels (``relview.geometry.trace._cast`` for rays with
+    their own start events, ``relview.geometry.trace._cast_packets`` for rays from one shared
     event, the camera's case) while installed.
 
     Tracer.cast looks the kernels up in its module at call time, so wrapping the module
@@ -266,7 +266,7 @@ class KernelTimer:
         self.calls = 0
 
     def __enter__(self):
-        from relview import trace
+        from relview.geometry import trace
 
         self._orig = {name: getattr(trace, name) for name in self.NAMES if hasattr(trace, name)}
 
@@ -285,7 +285,7 @@ class KernelTimer:
         return self
 
     def __exit__(self, *exc):
-        from relview import trace
+        from relview.geometry import trace
 
         for name, orig in self._orig.items():
             setattr(trace, name, orig)
@@ -535,9 +535,11 @@ def child_startup(scene_path: str, out_png: str) -> None:
     """Run `relview render` in-process with time stamps (time.time(), comparable across
     processes) at each stage; print them as one JSON line prefixed BENCH_STAMPS."""
     stamps = {"child_first_line": time.time()}
-    import relview.cli as cli
+    import relview.cli.app as cli
     import relview.renderer as renderer  # noqa: F401  (imports trace -> numba, as render does)
-    from relview import bvh, loader, trace
+    from relview.geometry import bvh
+    from relview.scene import reader as loader
+    from relview.geometry import trace
 
     stamps["imported"] = time.time()
     orig_load, orig_ctx_init, orig_cast = loader.load_scene, renderer.RenderContext.__init__, \
@@ -614,7 +616,7 @@ def child_memory(scene_path: str) -> None:
 
     out = {"start_rss": _status_kib("VmRSS")}
     from relview import renderer
-    from relview.loader import load_scene
+    from relview.scene.model import load_scene
 
     out["imported_rss"] = _status_kib("VmRSS")
     scene = load_scene(scene_path)
@@ -891,7 +893,7 @@ def build_report(info: dict) -> str:
     add("|---|---|")
     labels = {
         "child_first_line": "interpreter up (first line of the script)",
-        "imported": "relview.cli + relview.renderer imported (numpy, numba)",
+        "imported": "relview.cli.app + relview.renderer imported (numpy, numba)",
         "load_start": "scene load starts",
         "load_end": "scene loaded",
         "context_start": "RenderContext build starts",
@@ -1080,7 +1082,7 @@ def main(argv=None) -> int:
 
     import numba
 
-    from relview.loader import load_scene
+    from relview.scene.model import load_scene
 
     info = {"date": time.strftime("%Y-%m-%d %H:%M UTC", time.gmtime()), "cpu": cpu_model(),
             "nproc": os.cpu_count(), "repeats": args.repeats, "versions": versions(),

@@ -1,4 +1,4 @@
-"""Retarded-time solve and light-cone snapshot benchmark (relview.motion, relview.lightcone).
+"""Retarded-time solve and light-cone snapshot benchmark (relview.kinematics.motion, relview.geometry.lightcone).
 
 Run (not part of pytest):
 
@@ -24,9 +24,9 @@ import numpy as np
 import trimesh
 from scipy.optimize import brentq
 
-from relview.lightcone import snapshot
-from relview.lorentz import C
-from relview.motion import (
+from relview.geometry.lightcone import snapshot
+from relview.kinematics.lorentz import C
+from relview.kinematics.motion import (
     HyperbolicMotion,
     OrbitMotion,
     PathMotion,
@@ -35,7 +35,7 @@ from relview.motion import (
     SpinMotion,
     Uniform,
 )
-from relview.scene import Effects, UniformMotion
+from relview.scene.parts import Effects, UniformMotion
 
 
 def timed(fn, repeats):

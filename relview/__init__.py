@@ -17,12 +17,12 @@ try:
 except PackageNotFoundError:  # running from a source tree that is not installed
     __version__ = "0.0.0+source"
 
-from relview.scene import Scene  # noqa: E402
+from relview.scene.model import Scene  # noqa: E402
 
 
 def load_scene(path):
-    """Read and validate a TOML scene file -> Scene (relview.loader.load_scene)."""
-    from relview.loader import load_scene as _load
+    """Read and validate a TOML scene file -> Scene (relview.scene.reader.load_scene)."""
+    from relview.scene.model import load_scene as _load
 
     return _load(path)
 

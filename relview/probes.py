@@ -12,7 +12,7 @@ tau = c (t_c - t) and Y its position at the camera time; the retarded condition
     (1 - b^2) tau^2 - 2 (beta.w) tau - w.w = 0,   w = x_c - Y,
 
 whose positive root is tau = (beta.w + sqrt((beta.w)^2 + (1 - b^2) w.w)) / (1 - b^2).
-Other motions use :func:`relview.motion` retarded-time solvers.
+Other motions use :func:`relview.kinematics.motion` retarded-time solvers.
 """
 
 from __future__ import annotations
@@ -21,9 +21,10 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 
-from relview import camera as cam_mod
-from relview.lorentz import C, aberrate_to_camera, contract
-from relview.scene import Effects, Scene, UniformMotion
+from relview.geometry import camera as cam_mod
+from relview.kinematics.lorentz import C, aberrate_to_camera, contract
+from relview.scene.parts import Effects, UniformMotion
+from relview.scene.model import Scene
 
 
 @dataclass

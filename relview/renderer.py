@@ -18,10 +18,11 @@ from pathlib import Path
 
 import numpy as np
 
-from relview import camera as cam_mod
-from relview.lorentz import C
-from relview.scene import Effects, Scene, UniformMotion
-from relview.trace import Hits, Tracer, uniform_groups
+from relview.geometry import camera as cam_mod
+from relview.kinematics.lorentz import C
+from relview.scene.parts import Effects, UniformMotion
+from relview.scene.model import Scene
+from relview.geometry.trace import Hits, Tracer, uniform_groups
 
 #: Rays traced per batch (a 960x540 frame is one batch); bounds the working memory of one
 #: batch to about 150 MB.
@@ -48,7 +49,7 @@ class Frame:
         Returns the path written. ``tone``: "none" (clip) or "reinhard" (film.py);
         default: the scene's render.tone.
         """
-        from relview import film
+        from relview.imaging import film
 
         path = Path(path)
         ext = path.suffix.lower()
@@ -75,7 +76,7 @@ class RenderContext:
     """
 
     def __init__(self, scene: Scene, effects: Effects | None = None):
-        from relview import shapes
+        from relview.geometry import shapes
 
         self.scene = scene
         self.effects = effects or scene.render.effects
@@ -101,7 +102,7 @@ class RenderContext:
         """The tracer for one exposure event (light-cone snapshots join uniform groups)."""
         if not self.other:
             return self._uniform_tracer
-        from relview import lightcone
+        from relview.geometry import lightcone
 
         snap = lightcone.snapshot_groups(self.scene, self.meshes, self.other, camera_event,
                                          self.effects)
@@ -113,7 +114,7 @@ def camera_state(scene: Scene, time_s: float) -> tuple[np.ndarray, np.ndarray]:
     cam = scene.camera
     motion = getattr(cam, "motion", None)
     if motion is not None:
-        from relview import motion as motion_mod
+        from relview.kinematics import motion as motion_mod
 
         x, beta = motion_mod.camera_state(motion, C * time_s)
         return np.concatenate([[C * time_s], x]), np.asarray(beta, float)
@@ -132,7 +133,7 @@ def doppler_along(beta_emit: np.ndarray, d_scene: np.ndarray, beta_cam: np.ndarr
     kinematics, no time dilation) the gammas are dropped: the classical Doppler
     factor for light moving at c in S.
     """
-    from relview.lorentz import doppler_along as _kernel
+    from relview.kinematics.lorentz import doppler_along as _kernel
 
     return _kernel(beta_emit, d_scene, beta_cam, relativistic=effects.contraction)
 
@@ -147,7 +148,7 @@ def bodies_around_camera(scene: Scene, context: RenderContext,
     rigid body's world tube does not depend on the frame. Open meshes and planes have
     no inside and are skipped.
     """
-    from relview.trace import frame_matrix
+    from relview.geometry.trace import frame_matrix
 
     inside = []
     for i, body in enumerate(scene.bodies):
@@ -209,7 +210,8 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
            exposure=None, effects: Effects | None = None, context: RenderContext | None = None,
            progress: bool = False) -> Frame:
     """Render one exposure of ``scene`` at scene time ``time`` (default: camera.time)."""
-    from relview import film, sky
+    from relview.imaging import film
+    from relview.light import sky
 
     width, height = resolution or scene.render.resolution
     samples = samples or scene.render.samples

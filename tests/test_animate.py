@@ -1,4 +1,4 @@
-"""Tests for relview.animate: frame times and names, manifest, resume, interruption,
+"""Tests for relview.animation.batch: frame times and names, manifest, resume, interruption,
 exposure lock, flash check, video.
 
 Outside references: WCAG 2.x (W3C Recommendation), success criterion 2.3.1 "Three
@@ -24,10 +24,10 @@ import numpy as np
 import pytest
 from PIL import Image
 
-from relview import animate as anim
+from relview.animation import batch as anim
 from relview.errors import OutputError, UserError
-from relview.loader import load_scene
-from relview.scene import Animation
+from relview.scene.model import load_scene
+from relview.scene.parts import Animation
 
 # A brick 1 m long at 0.8c passes 2 m in front of a camera: blackbody 3000 K. Light from
 # the brick origin at x = 0 leaves at t = 0 and reaches the camera 6.67 ns later.
@@ -104,7 +104,7 @@ def stamps(out: Path) -> dict[str, tuple[int, str]]:
 
 
 def test_frame_times_are_evenly_spaced_from_start_to_end():
-    # t_k = start + k (end - start) / (N - 1): the definition in relview.animate
+    # t_k = start + k (end - start) / (N - 1): the definition in relview.animation.batch
     t = anim.frame_times(Animation(start=1.0e-8, end=3.0e-8, frames=5, fps=24))
     np.testing.assert_allclose(t, [1.0e-8, 1.5e-8, 2.0e-8, 2.5e-8, 3.0e-8], rtol=1e-15)
     assert anim.frame_times(Animation(start=2.0e-8, end=9.0e-8, frames=1)).tolist() == [2.0e-8]
@@ -345,13 +345,13 @@ def test_scene_without_animation_is_a_user_error_naming_the_file(tmp_path):
     path.write_text(text)
     with pytest.raises(UserError, match="still.toml.*no \\[animation\\]"):
         run(path, tmp_path / "out")
-    from relview.cli import main
+    from relview.cli.app import main
 
     assert main(["animate", str(path), "-o", str(tmp_path / "out"), "--quiet"]) == 2
 
 
 def test_command_line(scene_file, tmp_path, capsys):
-    from relview.cli import main
+    from relview.cli.app import main
 
     out = tmp_path / "cli-out"
     assert (
@@ -424,7 +424,7 @@ def test_killed_batch_resumes(tmp_path):
     before = stamps(out)
     assert 1 <= len(before) < 20, "the kill should land in the middle of the batch"
     json.loads((out / "manifest.json").read_text())  # a complete manifest, not a torn one
-    from relview.cli import main
+    from relview.cli.app import main
 
     assert main(cmd[3:]) == 0  # the same command again, in this process
     after = stamps(out)
@@ -531,7 +531,7 @@ def test_flash_warning_from_a_batch(scene_file, tmp_path, monkeypatch):
 
 
 def test_flash_warning_on_the_command_line(scene_file, tmp_path, monkeypatch, capsys):
-    from relview.cli import main
+    from relview.cli.app import main
 
     write_scene(scene_file, frames=12)
     levels = iter([0.05, 0.7] * 6)

@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from relview import colour_data
+from relview.light import colour_data
 
 
 def test_cache_equals_colour_science_tables():

@@ -8,10 +8,11 @@ import numpy as np
 import pytest
 from PIL import Image
 
-from relview import cli, compare
+from relview.cli import app as cli
+from relview.figures import sheets as compare
 from relview.errors import OutputError, UserError
-from relview.lorentz import C
-from relview.scene import Scene
+from relview.kinematics.lorentz import C
+from relview.scene.model import Scene
 
 BETA = 0.8
 GAMMA = 5.0 / 3.0  # exact for beta = 0.8 (physics.md check value)

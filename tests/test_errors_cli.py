@@ -6,7 +6,7 @@ no traceback; repairable problems (open meshes, degenerate faces, a camera insid
 body) give a warning and the render still succeeds. Earlier output is never
 destroyed, and nothing in a scene file is ever run as code.
 
-Most tests call ``relview.cli.main`` in-process and read stderr with capsys; a few
+Most tests call ``relview.cli.app`` in-process and read stderr with capsys; a few
 run ``python -m relview.cli`` in a real subprocess to show that what reaches the
 user's terminal is the message alone.
 """
@@ -23,12 +23,12 @@ import numpy as np
 import pytest
 import trimesh
 
-import relview.film
-import relview.loader
+import relview.imaging.film
+import relview.scene.reader
 import relview.renderer
-from relview.cli import main
-from relview.loader import load_scene
-from relview.lorentz import lorentz_factor
+from relview.cli.app import main
+from relview.scene.model import load_scene
+from relview.kinematics.lorentz import lorentz_factor
 
 REPO = Path(__file__).resolve().parents[1]
 
@@ -256,7 +256,7 @@ def test_unreadable_mesh_file(tmp_path, capsys, monkeypatch):
             raise PermissionError(errno.EACCES, "Permission denied", str(file))
         return real_open(file, *args, **kwargs)
 
-    monkeypatch.setattr(relview.loader, "open", refusing_open, raising=False)
+    monkeypatch.setattr(relview.scene.reader, "open", refusing_open, raising=False)
     path = write(tmp_path, mesh_scene("locked.obj"))
     code, _, err = run(capsys, "check", path)
     assert_user_error(code, err, f'{path}:16: [body] file (body "ball")', '"locked.obj"',
@@ -275,7 +275,7 @@ def test_unreadable_mesh_file(tmp_path, capsys, monkeypatch):
 )
 def test_repairable_mesh_warns_naming_the_file_and_renders(tmp_path, capsys, name, content,
                                                             words):
-    from relview import shapes
+    from relview.geometry import shapes
 
     shapes.clear_cache()  # the warning is given when the file is read
     (tmp_path / name).write_text(content)
@@ -498,7 +498,7 @@ def test_unwritable_directory_is_clear(tmp_path, capsys, monkeypatch):
             raise PermissionError(errno.EACCES, "Permission denied", str(file))
         return real_open(file, mode, *args, **kwargs)
 
-    monkeypatch.setattr(relview.film, "open", refusing_open, raising=False)
+    monkeypatch.setattr(relview.imaging.film, "open", refusing_open, raising=False)
     scene = write(tmp_path, SCENE)
     code, _, err = _render(capsys, scene, tmp_path / "o.png")
     assert_user_error(code, err, f"{tmp_path / 'o.png'}: cannot write the output file: "
@@ -575,7 +575,7 @@ def test_mesh_path_with_dotdot_resolves_from_the_scene_file_and_is_only_read(
     before = (mesh.read_bytes(), mesh.stat().st_mtime_ns)
     scene = load_scene(scene_path)
     assert scene.bodies[0].file.resolve() == mesh.resolve()
-    from relview.shapes import mesh_data
+    from relview.geometry.shapes import mesh_data
 
     extent = np.ptp(mesh_data(scene.bodies[0]).vertices, axis=0)
     np.testing.assert_allclose(extent, [2.0, 2.0, 2.0])  # the project's cube, not cwd's

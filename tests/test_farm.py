@@ -1,4 +1,4 @@
-"""Tests for relview.farm: frames rendered on a Dask cluster equal local frames byte for byte.
+"""Tests for relview.animation.farm: frames rendered on a Dask cluster equal local frames byte for byte.
 
 The cluster is dask.distributed's own LocalCluster: two worker processes on
 127.0.0.1, reached through their scheduler's tcp:// address as a remote cluster
@@ -14,10 +14,10 @@ from pathlib import Path
 import pytest
 from test_animate import stamps, write_scene
 
-from relview import animate as anim
-from relview import farm
+from relview.animation import batch as anim
+from relview.animation import farm
 from relview.errors import UserError
-from relview.loader import load_scene
+from relview.scene.model import load_scene
 
 FRAMES = 4
 

@@ -1,4 +1,4 @@
-"""Tests for relview.film: exposure, encoding, safe atomic writing, false colour.
+"""Tests for relview.imaging.film: exposure, encoding, safe atomic writing, false colour.
 
 Outside references used here: IEC 61966-2-1:1999 (sRGB transfer function and
 matrix), the PNG specification read back by independent decoders (pillow and
@@ -18,7 +18,7 @@ import numpy as np
 import pytest
 from PIL import Image
 
-from relview import film
+from relview.imaging import film
 from relview.errors import OutputError, UserError
 
 # ----------------------------------------------------------------------------- references
@@ -26,7 +26,7 @@ from relview.errors import OutputError, UserError
 
 def iec_61966_2_1_encode(linear: float) -> float:
     """sRGB encoding written out from IEC 61966-2-1:1999, section 5.2 (independent of
-    relview.spectrum): V = 12.92 L for L <= 0.0031308, else 1.055 L^(1/2.4) - 0.055."""
+    relview.light.spectrum): V = 12.92 L for L <= 0.0031308, else 1.055 L^(1/2.4) - 0.055."""
     if linear <= 0.0031308:
         return 12.92 * linear
     return 1.055 * linear ** (1.0 / 2.4) - 0.055
@@ -73,8 +73,8 @@ def test_8bit_encoding_known_values():
 
 
 def test_spectrum_encode_srgb_agrees_with_iec_formula():
-    # The encoder film imports from relview.spectrum, against IEC 61966-2-1 5.2.
-    from relview.spectrum import encode_srgb
+    # The encoder film imports from relview.light.spectrum, against IEC 61966-2-1 5.2.
+    from relview.light.spectrum import encode_srgb
 
     samples = np.concatenate([np.linspace(0, 0.01, 101), np.linspace(0.01, 1, 200)])
     want = np.array([iec_61966_2_1_encode(v) for v in samples])

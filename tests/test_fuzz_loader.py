@@ -37,8 +37,8 @@ from hypothesis import HealthCheck, event, given, settings
 from hypothesis import strategies as st
 
 from relview.errors import MeshWarning, UserError
-from relview.loader import load_scene, scene_from_dict
-from relview.scene import Scene
+from relview.scene.model import load_scene, scene_from_dict
+from relview.scene.model import Scene
 
 REPO = Path(__file__).resolve().parents[1]
 DEMO_SCENES = sorted((REPO / "scenes").glob("*.toml"))
@@ -64,7 +64,7 @@ KNOWN_KEYS = [
     "spacing", "width", "start", "end", "frames", "fps",
     "blackbody", "line", "lines", "spectrum", "color", "pattern", "lamp", "texture",
     "nm", "width_nm", "radiance", "period", "line_width", "axes", "first", "second",
-    # motion kinds registered by relview.motion
+    # motion kinds registered by relview.kinematics.motion
     "acceleration", "axis", "period", "phase", "times", "positions", "base",
     "angular_velocity", "center_offset", "shutter", "shutter_samples",
 ]

@@ -1,8 +1,8 @@
-"""Light-cone snapshots of bodies in any motion (relview.lightcone).
+"""Light-cone snapshots of bodies in any motion (relview.geometry.lightcone).
 
-The exact boosted ray caster for uniform motion (relview.trace; physics.md "Uniform
+The exact boosted ray caster for uniform motion (relview.geometry.trace; physics.md "Uniform
 motion, exact method") is the reference the snapshot must converge to; the retarded
-events of single points come from relview.motion, itself checked against closed forms
+events of single points come from relview.kinematics.motion, itself checked against closed forms
 and scipy in tests/test_motion.py.
 """
 
@@ -12,10 +12,10 @@ import numpy as np
 import pytest
 import trimesh
 
-from relview.lightcone import snapshot, snapshot_groups
-from relview.motion import RollingMotion, Uniform
-from relview.scene import Body, Effects, UniformMotion
-from relview.trace import Tracer, uniform_groups
+from relview.geometry.lightcone import snapshot, snapshot_groups
+from relview.kinematics.motion import RollingMotion, Uniform
+from relview.scene.parts import Body, Effects, UniformMotion
+from relview.geometry.trace import Tracer, uniform_groups
 
 
 def box_mesh():
@@ -66,7 +66,7 @@ def test_snapshot_converges_to_exact_uniform_method(effects):
         both = hits.hit & ref.hit
         assert both.sum() >= 0.99 * ref.hit.sum()
         # what the tolerance controls: the hit against the exact retarded position of the
-        # same body point, seen from the camera (relview.motion closed form for uniform motion)
+        # same body point, seen from the camera (relview.kinematics.motion closed form for uniform motion)
         p = hits.rest_position[both] @ rot.T
         exact, _ = Uniform(motion).retarded(p, cam, effects.delay, effects.contraction)
         pointwise = np.linalg.norm(exact[:, 1:] - hits.emit_event[both, 1:], axis=1) / hits.l[both]
@@ -124,7 +124,7 @@ def assert_watertight(snap):
 
 def test_rolling_wheel_contact_point_seen_at_rest():
     # A wheel (cylinder, axle along y) rolling along x: the hit at the contact point's
-    # retarded image has beta ~ 0 (rolling without slipping; relview.motion tests check
+    # retarded image has beta ~ 0 (rolling without slipping; relview.kinematics.motion tests check
     # the exact point), up to the snapshot's interpolation tolerance.
     wheel = trimesh.creation.cylinder(radius=0.5, height=0.2, sections=32)
     wheel.apply_transform(trimesh.transformations.rotation_matrix(np.pi / 2, [1, 0, 0]))
@@ -149,9 +149,9 @@ def test_rolling_wheel_contact_point_seen_at_rest():
 
 def test_body_too_large_for_its_motion_is_a_scene_error():
     # A 3 m box on an orbit of radius 1 m at beta = 0.9: its outer points would exceed c
-    # (relview.motion OrbitMotion.outward_limit, 0.144 m here).
+    # (relview.kinematics.motion OrbitMotion.outward_limit, 0.144 m here).
     from relview.errors import SceneError
-    from relview.motion import OrbitMotion
+    from relview.kinematics.motion import OrbitMotion
 
     verts, faces = box_mesh()
     body = Body(name="crate", shape="mesh", surface=None,
@@ -163,7 +163,7 @@ def test_body_too_large_for_its_motion_is_a_scene_error():
 def test_rolling_wheel_snapshot_error_within_tolerance():
     # Any motion: every hit lies within the tolerance (as seen from the camera) of the exact
     # retarded position of the body point it reports, and its velocity within the
-    # tolerance of that point's exact velocity (relview.motion, checked against scipy).
+    # tolerance of that point's exact velocity (relview.kinematics.motion, checked against scipy).
     wheel = trimesh.creation.cylinder(radius=0.5, height=0.2, sections=24)
     wheel.apply_transform(trimesh.transformations.rotation_matrix(np.pi / 2, [1, 0, 0]))
     verts, faces = np.asarray(wheel.vertices, float), np.asarray(wheel.faces, np.int64)
@@ -183,15 +183,15 @@ def test_rolling_wheel_snapshot_error_within_tolerance():
 
 def test_rendered_pixels_match_exact_probes_of_the_points_they_show():
     # End to end through the scene loader and renderer: for every pixel showing a rolling
-    # wheel, the exact probe (relview.motion retarded solve, aberration of a moving camera)
+    # wheel, the exact probe (relview.kinematics.motion retarded solve, aberration of a moving camera)
     # of the body point that pixel reports must land on that pixel's centre within the
     # snapshot tolerance (a quarter pixel), and its exact Doppler factor (physics.md) must
     # match the rendered one within the velocity tolerance times |d ln D / d beta_emit|
     # <= gamma^2 beta + 1/(1 - beta) <= gamma^2 (1 + 2 beta) ~ 24.6 for the fastest rim
     # point (2v/(1+v^2) = 0.94 at v = 0.7).
     import relview
-    from relview.lightcone import PIXEL_FRACTION, pixel_tolerance
-    from relview.loader import scene_from_dict
+    from relview.geometry.lightcone import PIXEL_FRACTION, pixel_tolerance
+    from relview.scene.model import scene_from_dict
     from relview.probes import probe_many
 
     scene = scene_from_dict({

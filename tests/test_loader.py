@@ -1,9 +1,9 @@
-"""Scene-file reading and validation (relview.loader).
+"""Scene-file reading and validation (relview.scene.reader).
 
 Every error case of the validation catalogue has a test that checks the message
 names the file, the key and the offending value (and the line where the loader
 can find it). Surfaces are built through a recording stand-in for
-relview.materials, so these tests pin the loader's side of the fixed constructor
+relview.light.materials, so these tests pin the loader's side of the fixed constructor
 signatures; one test at the end builds the real materials when that module exists.
 """
 
@@ -20,10 +20,12 @@ import pytest
 import trimesh
 
 import relview
-from relview import loader
+from relview.scene import reader as loader
 from relview.errors import MeshError, SceneError, UserError
-from relview.loader import MOTION_KINDS, load_scene, register_motion, scene_from_dict
-from relview.scene import Scene, UniformMotion
+from relview.scene.model import load_scene, scene_from_dict
+from relview.scene.reader import MOTION_KINDS, register_motion
+from relview.scene.parts import UniformMotion
+from relview.scene.model import Scene
 
 REPO = Path(__file__).resolve().parents[1]
 
@@ -41,8 +43,8 @@ class _Recorded:
 
 @pytest.fixture
 def fake_materials(monkeypatch):
-    """Replace relview.materials by classes that record their constructor arguments."""
-    mod = types.ModuleType("relview.materials")
+    """Replace relview.light.materials by classes that record their constructor arguments."""
+    mod = types.ModuleType("relview.light.materials")
     for name in ("Blackbody", "EmissionLines", "Reflective", "Pattern"):
         setattr(mod, name, type(name, (_Recorded,), {}))
 
@@ -52,8 +54,10 @@ def fake_materials(monkeypatch):
             return cls(path=Path(path))
 
     mod.TabulatedSpectrum = TabulatedSpectrum
-    monkeypatch.setitem(sys.modules, "relview.materials", mod)
-    monkeypatch.setattr(relview, "materials", mod, raising=False)
+    monkeypatch.setitem(sys.modules, "relview.light.materials", mod)
+    import relview.light
+
+    monkeypatch.setattr(relview.light, "materials", mod, raising=False)
     return mod
 
 
@@ -1097,7 +1101,7 @@ def test_unreadable_mesh_file(tmp_path, fake_materials):
 
 
 def test_documented_example_builds_real_materials(tmp_path):
-    materials = pytest.importorskip("relview.materials")
+    materials = pytest.importorskip("relview.light.materials")
     (tmp_path / "meshes").mkdir()
     trimesh.creation.box(extents=(2.0, 1.0, 0.5)).export(tmp_path / "meshes" / "hull.obj")
     (tmp_path / "hydrogen.csv").write_text("nm,radiance\n400,0.1\n700,0.2\n")
@@ -1108,7 +1112,7 @@ def test_documented_example_builds_real_materials(tmp_path):
 
 
 def test_malformed_spectrum_csv_names_scene_key_and_csv_line(tmp_path):
-    pytest.importorskip("relview.materials")
+    pytest.importorskip("relview.light.materials")
     (tmp_path / "glow.csv").write_text("nm,radiance\n400,0.1\n500,abc\n")
     text = replace(VALID, "blackbody = 5800.0", 'spectrum = "glow.csv"')
     err = error_of(tmp_path, text)
@@ -1119,7 +1123,7 @@ def test_malformed_spectrum_csv_names_scene_key_and_csv_line(tmp_path):
 
 
 def test_motion_kinds_from_relview_motion_are_registered(tmp_path, fake_materials):
-    pytest.importorskip("relview.motion")
+    pytest.importorskip("relview.kinematics.motion")
     text = replace(
         VALID,
         'kind = "uniform"\nbeta = [0.5, 0.0, 0.0]',
@@ -1134,7 +1138,7 @@ def test_motion_kinds_from_relview_motion_are_registered(tmp_path, fake_material
 
 
 def test_real_materials_are_built(tmp_path):
-    materials = pytest.importorskip("relview.materials")
+    materials = pytest.importorskip("relview.light.materials")
     text = replace(
         VALID,
         "blackbody = 5800.0",

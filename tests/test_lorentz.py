@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from relview.lorentz import (
+from relview.kinematics.lorentz import (
     C,
     aberrate_to_camera,
     aberrate_to_scene,
@@ -118,8 +118,8 @@ def test_superluminal_speed_rejected():
 def test_fused_camera_rays_match_projection_then_aberration(projection, fov):
     # The compiled ray generator must equal the reference path: projection, then the
     # aberration formula checked above (Einstein 1905).
-    from relview.camera import pixel_grid, pixels_to_directions, scene_directions
-    from relview.scene import Camera
+    from relview.geometry.camera import pixel_grid, pixels_to_directions, scene_directions
+    from relview.scene.parts import Camera
 
     cam = Camera(position=np.zeros(3), look_at=np.array([1.0, 2.0, 0.5]), fov=fov,
                  projection=projection)
@@ -133,7 +133,7 @@ def test_fused_camera_rays_match_projection_then_aberration(projection, fov):
 
 def test_compiled_doppler_matches_reference_formula():
     # The per-pixel kernel must agree with doppler_factor (Rybicki & Lightman eq. 4.11).
-    from relview.lorentz import doppler_along
+    from relview.kinematics.lorentz import doppler_along
 
     rng = np.random.default_rng(5)
     d = rng.normal(size=(200, 3))

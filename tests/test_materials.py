@@ -1,4 +1,4 @@
-"""Checks of relview.materials against published values, standards and colour-science."""
+"""Checks of relview.light.materials against published values, standards and colour-science."""
 
 from __future__ import annotations
 
@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 from PIL import Image
 
-from relview import spectrum
-from relview.materials import (
+from relview.light import spectrum
+from relview.light.materials import (
     Blackbody,
     EmissionLines,
     Pattern,
@@ -19,8 +19,8 @@ from relview.materials import (
     reflectance_basis,
     sample_texture,
 )
-from relview.scene import Effects
-from relview.spectrum import (
+from relview.scene.parts import Effects
+from relview.light.spectrum import (
     observed_xyz_direct,
     planck_spectral_radiance,
     xyz_to_linear_srgb,

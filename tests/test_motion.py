@@ -1,4 +1,4 @@
-"""Worldlines and the retarded-time solve (relview.motion) against outside references.
+"""Worldlines and the retarded-time solve (relview.kinematics.motion) against outside references.
 
 Sources: Rindler, Relativity: Special, General and Cosmological (2006): §3.6 velocity
 addition, §3.8 hyperbolic motion; the Doppler factor and its transverse value 1/gamma
@@ -16,8 +16,8 @@ from scipy.integrate import quad
 from scipy.interpolate import CubicSpline
 from scipy.optimize import brentq
 
-from relview.lorentz import C, boost_event, compose_velocities, doppler_factor, lorentz_factor
-from relview.motion import (
+from relview.kinematics.lorentz import C, boost_event, compose_velocities, doppler_factor, lorentz_factor
+from relview.kinematics.motion import (
     HyperbolicMotion,
     MotionTableError,
     OrbitMotion,
@@ -32,7 +32,7 @@ from relview.motion import (
     retarded,
     state,
 )
-from relview.scene import UniformMotion
+from relview.scene.parts import UniformMotion
 
 RNG = np.random.default_rng(20261202)
 
@@ -513,7 +513,8 @@ def test_motion_tables():
 
 def test_loader_builds_registered_kinds_and_names_bad_keys():
     from relview.errors import SceneError
-    from relview.loader import MOTION_KINDS, scene_from_dict
+    from relview.scene.model import scene_from_dict
+    from relview.scene.reader import MOTION_KINDS
 
     assert {"hyperbolic", "orbit", "path", "spin", "rolling"} <= set(MOTION_KINDS)
 

@@ -7,10 +7,11 @@ import numpy as np
 import pytest
 
 import relview
-from relview.cli import main
-from relview.lorentz import C
-from relview.materials import Blackbody
-from relview.scene import Body, Camera, Effects, RenderSettings, Scene, UniformMotion
+from relview.cli.app import main
+from relview.kinematics.lorentz import C
+from relview.light.materials import Blackbody
+from relview.scene.parts import Body, Camera, Effects, RenderSettings, UniformMotion
+from relview.scene.model import Scene
 
 ROOT = Path(__file__).resolve().parents[1]
 SCENES = sorted((ROOT / "scenes").glob("*.toml"))
@@ -181,7 +182,7 @@ def test_open_shutter_integrates_the_exposure_events():
 
 def test_check_rejects_a_body_whose_points_would_reach_c(tmp_path, capsys):
     # A rigid body of extent e on a circular orbit of radius r at speed beta has points at
-    # up to r + e from the centre; their speed reaches c first (message from relview.motion).
+    # up to r + e from the centre; their speed reaches c first (message from relview.kinematics.motion).
     bad = tmp_path / "orbit.toml"
     bad.write_text('[camera]\nposition = [0, -12, 0]\nlook_at = [0, 0, 0]\n'
                    '[[body]]\nname = "big"\nshape = "box"\nsize = [2, 2, 2]\n'
@@ -214,7 +215,7 @@ def test_tone_setting_reaches_the_png(tmp_path):
 
 def test_first_run_compile_notice(tmp_path, monkeypatch):
     # common practice: tell the user why the first run is slow (numba compiles once)
-    import relview.cli as cli
+    import relview.cli.app as cli
 
     monkeypatch.delenv("NUMBA_CACHE_DIR", raising=False)
     pkg = tmp_path / "relview"

@@ -1,4 +1,4 @@
-"""Rest-frame meshes (relview.shapes) against closed-form sizes and volumes.
+"""Rest-frame meshes (relview.geometry.shapes) against closed-form sizes and volumes.
 
 Volumes are measured by trimesh (divergence theorem over the triangles), a
 general-purpose reference library, and compared with elementary closed forms.
@@ -17,9 +17,9 @@ import numpy as np
 import pytest
 import trimesh
 
-from relview import shapes
+from relview.geometry import shapes
 from relview.errors import MeshError, MeshWarning
-from relview.scene import Body
+from relview.scene.parts import Body
 
 DATA = Path(__file__).parent / "data"
 
@@ -280,7 +280,7 @@ def test_unknown_shape_is_a_programming_error():
 def test_native_icosphere_matches_trimesh(detail):
     import trimesh
 
-    from relview.shapes import _sphere
+    from relview.geometry.shapes import _sphere
 
     ours = _sphere(1.5, detail).to_trimesh()
     ref = trimesh.creation.icosphere(subdivisions=detail, radius=1.5)
@@ -295,7 +295,7 @@ def test_native_icosphere_matches_trimesh(detail):
 def test_native_box_and_cylinder_are_closed_and_outward():
     import trimesh
 
-    from relview.shapes import _box, _cylinder
+    from relview.geometry.shapes import _box, _cylinder
 
     box = _box(1.0, 2.0, 3.0).to_trimesh()
     assert box.is_watertight and box.is_winding_consistent

@@ -1,4 +1,4 @@
-"""Checks of relview.spectrum against published values, standards and colour-science."""
+"""Checks of relview.light.spectrum against published values, standards and colour-science."""
 
 from __future__ import annotations
 
@@ -10,8 +10,8 @@ import pytest
 import scipy.constants as sc
 from scipy import integrate
 
-from relview import spectrum
-from relview.spectrum import (
+from relview.light import spectrum
+from relview.light.spectrum import (
     DopplerTable,
     apply_effects,
     cached_table,

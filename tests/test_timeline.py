@@ -7,10 +7,11 @@ import numpy as np
 import pytest
 from PIL import Image
 
-from relview import cli, timeline
+from relview.cli import app as cli
+from relview.figures import timeline
 from relview.errors import UserError
-from relview.lorentz import C
-from relview.scene import Scene
+from relview.kinematics.lorentz import C
+from relview.scene.model import Scene
 
 ROD = 2.0  # m, rest length
 

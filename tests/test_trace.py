@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 import trimesh
 
-from relview.lorentz import lorentz_factor
-from relview.scene import Body, Effects, UniformMotion
-from relview.trace import Tracer, uniform_groups
+from relview.kinematics.lorentz import lorentz_factor
+from relview.scene.parts import Body, Effects, UniformMotion
+from relview.geometry.trace import Tracer, uniform_groups
 
 
 def tracer_for(meshes, betas, positions=None, effects=Effects()):
@@ -280,7 +280,7 @@ def test_co_moving_bodies_share_a_frame_and_keep_their_own_axes():
     # Two rotated boxes with the same velocity share one hierarchy; every hit must come back
     # as a point on the surface of the right box, in that box's own axes (a box's surface:
     # the largest |coordinate| / half-size is 1).
-    from relview.scene import Body
+    from relview.scene.parts import Body
 
     half = np.array([[0.5, 0.3, 0.2], [0.25, 0.4, 0.3]])
     bodies, meshes = [], []
@@ -310,7 +310,7 @@ def test_packet_kernel_equals_single_ray_kernel():
     # per-ray events go through the single-ray traversal. Both must find the same first
     # hits (three frame groups at different velocities, incoherent directions, a short
     # last packet).
-    from relview import bvh
+    from relview.geometry import bvh
 
     meshes = [trimesh.creation.icosphere(subdivisions=2, radius=0.5),
               trimesh.creation.box([0.8, 0.3, 0.4]), trimesh.creation.box([3.0, 0.1, 3.0])]

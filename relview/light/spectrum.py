@@ -23,7 +23,7 @@ import numpy as np
 import scipy.constants as sc
 from numba import njit, prange
 
-from relview import colour_data
+from relview.light import colour_data
 
 # --------------------------------------------------------------------------------------
 # Constants
@@ -44,7 +44,7 @@ VISIBLE_MAX_NM = 830.0
 
 
 #: (M,) nm and (M, 3) xbar, ybar, zbar of the CIE 1931 2-degree standard observer, from
-#: colour-science (360-830 nm, 1 nm) through the cached extract in relview.colour_data.
+#: colour-science (360-830 nm, 1 nm) through the cached extract in relview.light.colour_data.
 CMF_WAVELENGTHS_NM, CMF_VALUES = colour_data.sampled("cmf")
 
 

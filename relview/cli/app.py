@@ -94,14 +94,14 @@ def scene_with_overrides(args):
     """Load SCENE and apply the frame options."""
     import dataclasses
 
-    from relview.loader import load_scene
+    from relview.scene.model import load_scene
 
     scene = load_scene(args.scene)
     settings = scene.render
     if getattr(args, "resolution", None):
         settings = dataclasses.replace(settings, resolution=args.resolution)
     if getattr(args, "samples", None) is not None:
-        from relview.loader import MAX_SAMPLES
+        from relview.scene.reader import MAX_SAMPLES
 
         if not 1 <= args.samples <= MAX_SAMPLES:
             raise UserError(f"--samples must be >= 1 and <= {MAX_SAMPLES}, got {args.samples}")
@@ -136,7 +136,7 @@ def check_output_path(path: Path, types=IMAGE_TYPES) -> None:
 
     The same reasons the writers in film.py give, found early so no work is lost.
     """
-    from relview import film
+    from relview.imaging import film
     from relview.errors import OutputError
 
     ext = path.suffix.lower()
@@ -214,10 +214,10 @@ def cmd_probe(args) -> int:
 
 
 def _probe_over_time(scene, args) -> int:
-    """relview probe --times / --csv / --plot: a probe table (relview.timeline)."""
+    """relview probe --times / --csv / --plot: a probe table (relview.figures.timeline)."""
     import numpy as np
 
-    from relview import timeline
+    from relview.figures import timeline
 
     if args.times is not None and args.time is not None:
         raise UserError("give either --time S (one exposure) or --times A:B:N, not both")
@@ -241,15 +241,16 @@ def _probe_over_time(scene, args) -> int:
 
 
 def cmd_check(args) -> int:
-    from relview.loader import load_scene
+    from relview.scene.model import load_scene
 
     scene = load_scene(args.scene)
     w, h = scene.render.resolution
     from relview.renderer import check_memory, estimate_bytes
 
     check_memory(w, h, source=f"{args.scene}: render.resolution")
-    from relview import lightcone, shapes
-    from relview.scene import UniformMotion
+    from relview.geometry import lightcone
+    from relview.geometry import shapes
+    from relview.scene.parts import UniformMotion
 
     for i, body in enumerate(scene.bodies):
         # every point of a body on a non-uniform worldline must stay below c
@@ -309,7 +310,7 @@ def build_parser() -> argparse.ArgumentParser:
 def _extra_commands():
     """Commands that live in their own modules (animation, comparison sheets)."""
     regs = []
-    for mod in ("relview.animate", "relview.compare"):
+    for mod in ("relview.animation.batch", "relview.figures.sheets"):
         try:
             m = __import__(mod, fromlist=["register_cli"])
         except ImportError:

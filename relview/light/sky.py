@@ -23,9 +23,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from relview import spectrum
-from relview.lorentz import aberrate_to_camera, lorentz_factor
-from relview.scene import Background, Camera, Effects
+from relview.light import spectrum
+from relview.kinematics.lorentz import aberrate_to_camera, lorentz_factor
+from relview.scene.parts import Background, Camera, Effects
 
 T_REF_K = 1000.0
 #: Rest-frame solid angle of each star's disc, steradians (about 1.1 mrad across).
@@ -113,7 +113,7 @@ def generate_stars(bg: Background):
 def star_splat(bg: Background, camera: Camera, width: int, height: int, beta_cam: np.ndarray,
                effects: Effects, occluded: np.ndarray | None = None) -> np.ndarray | None:
     """(H, W, 3) XYZ image of the star field, or None for other backgrounds."""
-    from relview import camera as cam_mod
+    from relview.geometry import camera as cam_mod
 
     if bg.kind != "stars":
         return None

@@ -2,7 +2,7 @@
 
 The client (``relview animate --cluster ...``) keeps every file operation: it
 decides which frames are needed, writes the frames atomically and keeps the
-manifest (relview.animate). Workers only render and return each frame as
+manifest (relview.animation.batch). Workers only render and return each frame as
 encoded PNG bytes, so they need no shared file system.
 
 What is shipped to the workers, as bytes (once per worker, with
@@ -10,7 +10,7 @@ What is shipped to the workers, as bytes (once per worker, with
 (pickled; spectra and textures are already read into it) and the bytes of every
 mesh file it names. A worker writes the mesh bytes to its own temporary
 directory (``<tmp>/relview-farm/<sha256>/<file name>``) and points the body at
-that copy. The worker renders with :class:`relview.animate.FrameRenderer`, the
+that copy. The worker renders with :class:`relview.animation.batch.FrameRenderer`, the
 same code as a local render, and keeps one RenderContext per scene and settings,
 so a worker builds the hierarchies once however many frames it renders.
 
@@ -181,7 +181,7 @@ _WORKER_RENDERERS: dict[tuple[str, str], object] = {}
 
 def render_on_worker(bundle: SceneBundle, white, metadata: dict, index: int, time_s: float):
     """Dask task: render frame ``index`` at ``time_s`` (s) -> RenderedFrame (PNG bytes)."""
-    from relview.animate import FrameRenderer
+    from relview.animation.batch import FrameRenderer
 
     key = (bundle.digest, metadata.get("animation_settings_sha256", "") + repr(white))
     renderer = _WORKER_RENDERERS.get(key)

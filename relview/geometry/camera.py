@@ -19,8 +19,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit, prange
 
-from relview.lorentz import boost_matrix
-from relview.scene import Camera
+from relview.kinematics.lorentz import boost_matrix
+from relview.scene.parts import Camera
 
 PROJECTIONS = ("pinhole", "panorama", "fisheye")
 
@@ -167,7 +167,7 @@ def scene_directions(camera: Camera, width: int, height: int, pixels: np.ndarray
     """(N, 2) pixel positions -> ((N, 3) unit S directions towards the source, (N,) valid).
 
     The same as :func:`pixels_to_directions` followed by
-    :func:`relview.lorentz.aberrate_to_scene` with ``beta_cam`` (None or zero: no
+    :func:`relview.kinematics.lorentz.aberrate_to_scene` with ``beta_cam`` (None or zero: no
     aberration), fused into one compiled loop.
     """
     beta = np.zeros(3) if beta_cam is None else np.asarray(beta_cam, float)

@@ -1,4 +1,4 @@
-"""Read and validate scene files (TOML) into :class:`relview.scene.Scene`.
+"""Read and validate scene files (TOML) into :class:`relview.scene.model.Scene`.
 
 Every key is described in docs/scene-format.md. The policy, in short:
 
@@ -13,15 +13,15 @@ Every key is described in docs/scene-format.md. The policy, in short:
 Motion kinds are a registry, :data:`MOTION_KINDS`, so other modules can add kinds
 without editing this one::
 
-    from relview.loader import register_motion
+    from relview.scene.reader import register_motion
 
-    def parse_spin(table):            # table: a relview.loader.Table
+    def parse_spin(table):            # table: a relview.scene.reader.Table
         table.check_keys({"kind", "axis", "rate", ...})
         return SpinMotion(axis=table.vector("axis", 3), ...)
 
     register_motion("spin", parse_spin)
 
-``relview.motion`` is imported (if it exists) before the first motion is parsed,
+``relview.kinematics.motion`` is imported (if it exists) before the first motion is parsed,
 so registrations made at its import time are always seen.
 """
 
@@ -44,14 +44,13 @@ from typing import Any
 import numpy as np
 
 from relview.errors import MeshError, SceneError, UserError
-from relview.scene import (
+from relview.scene.parts import (
     Animation,
     Background,
     Body,
     Camera,
     Effects,
     RenderSettings,
-    Scene,
     UniformMotion,
 )
 
@@ -65,7 +64,7 @@ SURFACE_KINDS = ("blackbody", "line", "lines", "spectrum", "color", "pattern")
 PATTERN_KINDS = ("checks", "grid")
 LAMPS = ("D65",)  # named lamps besides a blackbody temperature in K
 
-#: tessellation levels accepted for ``body.detail`` (see relview.shapes)
+#: tessellation levels accepted for ``body.detail`` (see relview.geometry.shapes)
 DETAIL_RANGE = (0, 7)
 
 # Upper limits of counts that size arrays or loops, so an extra digit is an error
@@ -613,8 +612,8 @@ def register_motion(kind: str, parser: MotionParser) -> None:
 def _load_motion_plugins() -> None:
     global _motion_plugins_loaded
     if not _motion_plugins_loaded:
-        if importlib.util.find_spec("relview.motion") is not None:
-            importlib.import_module("relview.motion")
+        if importlib.util.find_spec("relview.kinematics.motion") is not None:
+            importlib.import_module("relview.kinematics.motion")
         _motion_plugins_loaded = True
 
 
@@ -798,8 +797,8 @@ def _check_image(table: Table, path: Path) -> None:
 
 
 def build_surface(spec: tuple[str, dict]) -> Any:
-    """Construct the relview.materials object a surface spec describes."""
-    from relview import materials  # imported here: materials imports colour tables at load
+    """Construct the relview.light.materials object a surface spec describes."""
+    from relview.light import materials  # imported here: materials imports colour tables at load
 
     name, kwargs = spec
     if name == "TabulatedSpectrum.from_csv":
@@ -812,7 +811,7 @@ def build_surface(spec: tuple[str, dict]) -> Any:
 
 
 def _is_surface_object(value: Any) -> bool:
-    """A ready-made relview.materials surface (Scene.from_dict in scripts)."""
+    """A ready-made relview.light.materials surface (Scene.from_dict in scripts)."""
     return hasattr(value, "observed_xyz") and hasattr(value, "key")
 
 
@@ -907,8 +906,8 @@ def _parse_camera(root: Table) -> Camera:
         _load_motion_plugins()
         kind = m.string("kind", "uniform", choices=sorted(MOTION_KINDS))
         motion = MOTION_KINDS[kind](m)
-        from relview.lorentz import C as _C
-        from relview.motion import camera_state
+        from relview.kinematics.lorentz import C as _C
+        from relview.kinematics.motion import camera_state
 
         position, _beta = camera_state(motion, _C * time)
         position = np.asarray(position, float)
@@ -1030,7 +1029,7 @@ def _parse_body(t: Table, index: int, seen: dict[str, int]) -> Body:
         body.center = t.boolean("center", True)
         body.file = t.path_value("file", what="mesh file")
         _check_mesh(t, body)
-    from relview.shapes import MAX_COORDINATE
+    from relview.geometry.shapes import MAX_COORDINATE
 
     for key in ("size", "radius", "height"):
         value = getattr(body, key, None)
@@ -1049,7 +1048,7 @@ def _parse_body(t: Table, index: int, seen: dict[str, int]) -> Body:
 
 def _check_mesh(t: Table, body: Body) -> None:
     """Read the mesh now, so a bad file is reported by `relview check` too."""
-    from relview.shapes import load_mesh_file
+    from relview.geometry.shapes import load_mesh_file
 
     try:
         load_mesh_file(body.file, scale=body.scale, center=body.center)
@@ -1181,7 +1180,8 @@ def _hash(raw: bytes, referenced: list[Path]) -> str:
     return h.hexdigest()
 
 
-def _build(data: Any, doc: _Document, raw: bytes | None, source_path: Path | None) -> Scene:
+def _build(data: Any, doc: _Document, raw: bytes | None, source_path: Path | None) -> dict:
+    """The validated fields of a :class:`relview.scene.model.Scene`."""
     if not isinstance(data, Mapping):
         raise SceneError(f"a scene is a table of sections, got {_type_name(data)}", file=doc.source)
     root = Table(data, doc, (), "")
@@ -1194,7 +1194,7 @@ def _build(data: Any, doc: _Document, raw: bytes | None, source_path: Path | Non
     animation = _parse_animation(root)
     if raw is None:
         raw = json.dumps(data, sort_keys=True, default=show).encode()
-    return Scene(
+    return dict(
         camera=camera,
         bodies=bodies,
         render=render,
@@ -1207,8 +1207,8 @@ def _build(data: Any, doc: _Document, raw: bytes | None, source_path: Path | Non
     )
 
 
-def scene_from_dict(data: Mapping, base_dir: str | Path = ".", source: str = "<dict>") -> Scene:
-    """Validate the structure a scene file holds (nested dicts/lists) into a Scene.
+def fields_from_dict(data: Mapping, base_dir: str | Path = ".", source: str = "<dict>") -> dict:
+    """Validate the structure a scene file holds (nested dicts/lists) into Scene fields.
 
     ``base_dir``: directory that relative file paths are resolved against.
     ``source``: the name used in error messages.
@@ -1219,8 +1219,8 @@ def scene_from_dict(data: Mapping, base_dir: str | Path = ".", source: str = "<d
 _TOML_POS_RE = re.compile(r"\s*\(at line (\d+), column (\d+)\)\s*$")
 
 
-def load_scene(path: str | Path) -> Scene:
-    """Read, validate and return the scene in a TOML file."""
+def read_scene_file(path: str | Path) -> dict:
+    """Read and validate the scene in a TOML file -> the fields of its Scene."""
     path = Path(path)
     source = str(path)
     try:

@@ -28,7 +28,8 @@ from pathlib import Path
 import numpy as np
 
 from relview.errors import OutputError, UserError
-from relview.scene import Effects, Scene
+from relview.scene.parts import Effects
+from relview.scene.model import Scene
 
 #: Column name -> (unit, meaning). Order is the CSV column order.
 COLUMNS: dict[str, tuple[str, str]] = {
@@ -264,7 +265,7 @@ def _csv_text(rows: list[dict], columns: dict, metadata: dict, what: str) -> str
 
 
 def _write_text(path, text: str, overwrite: bool) -> Path:
-    from relview import film
+    from relview.imaging import film
 
     return film._atomic_write(path, lambda fh: fh.write(text.encode("utf-8")), overwrite)
 
@@ -467,7 +468,7 @@ def draw_table(table: ProbeTable):
 def write_plot(table: ProbeTable, path, overwrite: bool = False) -> tuple[Path, Path]:
     """Draw the table (format by extension: .png, .pdf, .svg) with provenance metadata and
     a JSON sidecar. Returns (plot path, sidecar path)."""
-    from relview.compare import save_figure
+    from relview.figures.sheets import save_figure
 
     path = Path(path)
     if path.suffix.lower() not in (".png", ".pdf", ".svg"):

@@ -2,11 +2,11 @@
 
 For one exposure event E = (ct_c, x_c), every point p of a body is seen where it was
 when the light reaching E left it: the retarded event of p
-(:meth:`relview.motion.RigidKinematics.retarded`). Replacing each vertex of the body's
+(:meth:`relview.kinematics.motion.RigidKinematics.retarded`). Replacing each vertex of the body's
 rest-frame mesh by its retarded position gives a static triangle mesh in the scene
 frame S, the *snapshot*. A backward null ray from E that meets the snapshot at path
 length l meets it at the event (ct_c - l, x_c + l d), which for a vertex is exactly its
-emission event; so the snapshot is ray-cast by :mod:`relview.trace` as a frame group
+emission event; so the snapshot is ray-cast by :mod:`relview.geometry.trace` as a frame group
 at rest (identity map), with per-vertex velocities for the Doppler factor and per-
 vertex body coordinates for the surface (physics.md, "Any other motion").
 
@@ -32,8 +32,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from relview.motion import as_kinematics
-from relview.trace import FrameGroup
+from relview.kinematics.motion import as_kinematics
+from relview.geometry.trace import FrameGroup
 
 #: Default interpolation tolerance (radians as seen from the camera, and beta) when no
 #: scene is at hand. A 960-pixel-wide 60 degree image has 1.1e-3 rad pixels.
@@ -243,7 +243,7 @@ def snapshot(motion, vertices, faces, camera_event, effects, tolerance: float = 
 
 def check_body_speed(scene, index: int, vertices) -> None:
     """Reject a body some point of which would move at or above c under its motion
-    (:meth:`relview.motion.RigidKinematics.validate` over the mesh's radius), as a
+    (:meth:`relview.kinematics.motion.RigidKinematics.validate` over the mesh's radius), as a
     SceneError naming the scene file and the body."""
     from relview.errors import SceneError
 
@@ -274,7 +274,7 @@ def pixel_tolerance(scene) -> float:
 def snapshot_groups(scene, meshes, indices, camera_event, effects, tolerance: float | None = None,
                     max_triangles: int = DEFAULT_MAX_TRIANGLES) -> list[FrameGroup]:
     """Frame groups (one per body in ``indices``) of light-cone snapshots, for
-    :class:`relview.trace.Tracer`. ``meshes[i]`` is body i's rest-frame mesh (vertices
+    :class:`relview.geometry.trace.Tracer`. ``meshes[i]`` is body i's rest-frame mesh (vertices
     along the rest-frame axes, rotation applied). ``tolerance`` (rad and beta) defaults to
     :func:`pixel_tolerance`. Each group has ``.snapshot`` attached (segments, measured
     error)."""

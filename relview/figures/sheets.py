@@ -32,8 +32,9 @@ from pathlib import Path
 import numpy as np
 
 from relview.errors import OutputError, UserError
-from relview.lorentz import C, lorentz_factor
-from relview.scene import Effects, Scene, UniformMotion
+from relview.kinematics.lorentz import C, lorentz_factor
+from relview.scene.parts import Effects, UniformMotion
+from relview.scene.model import Scene
 
 # --------------------------------------------------------------------------- panels
 
@@ -168,7 +169,7 @@ def rest_pose(scene: Scene, index: int, time_s: float) -> tuple[np.ndarray, np.n
     stands at scene time ``time_s``.
 
     Uniform motion: the origin's position at ``time_s`` and the body's own rotation.
-    Other motions (relview.motion, rigid-body worldlines): the rest-frame configuration
+    Other motions (relview.kinematics.motion, rigid-body worldlines): the rest-frame configuration
     tied to the reference event of the origin's worldline at ``time_s``: origin X(s)
     plus the attitude M(s) and offset of the motion (docs/motion.md, "events"), so a spin
     shows its angle phase + omega (tau(s) - tau(time)). Euler angles use the convention
@@ -489,7 +490,7 @@ def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
-    from relview import film
+    from relview.imaging import film
 
     n = len(sheet.panels)
     ncol = min(n, columns)
@@ -552,7 +553,7 @@ def save_figure(fig, path, metadata: dict, overwrite: bool = False) -> tuple[Pat
     Returns (figure path, sidecar path); numbered names are used instead of replacing
     existing files unless ``overwrite``.
     """
-    from relview import film
+    from relview.imaging import film
 
     path = Path(path)
     fmt = _figure_format(path)
@@ -679,7 +680,7 @@ def layer_map(
     ``panel``: render with that panel's effects (and rest scene for "rest"); default:
     the scene's own effects. Returns (figure path, sidecar path, (H, W) values).
     """
-    from relview import film
+    from relview.imaging import film
     from relview.renderer import camera_state, render
 
     if layer not in LAYERS:
@@ -737,7 +738,7 @@ def layer_map(
 
 
 def cmd_compare(args) -> int:
-    from relview.cli import FIGURE_TYPES, check_output_path, default_output, scene_with_overrides
+    from relview.cli.app import FIGURE_TYPES, check_output_path, default_output, scene_with_overrides
 
     scene = scene_with_overrides(args)
     if args.layer:
@@ -790,8 +791,8 @@ def cmd_compare(args) -> int:
 
 
 def register_cli(subparsers) -> None:
-    """Add the ``compare`` command (picked up by relview.cli)."""
-    from relview.cli import add_frame_options, finite_time
+    """Add the ``compare`` command (picked up by relview.cli.app)."""
+    from relview.cli.app import add_frame_options, finite_time
 
     p = subparsers.add_parser(
         "compare",

@@ -4,7 +4,7 @@ Importing colour-science costs about two seconds (it loads its plotting stack), 
 would dominate the start-up of every command. The few tables relview needs are therefore
 extracted once from colour-science into ``relview/data/colour_tables.npz``;
 ``tests/test_colour_data.py`` checks that the file still equals colour-science's own
-tables, and ``python -m relview.colour_data`` rebuilds it.
+tables, and ``python -m relview.light.colour_data`` rebuilds it.
 
 Tables (all from colour-science, which carries the published values):
 
@@ -20,7 +20,7 @@ from pathlib import Path
 
 import numpy as np
 
-CACHE_PATH = Path(__file__).with_name("data") / "colour_tables.npz"
+CACHE_PATH = Path(__file__).parents[1] / "data" / "colour_tables.npz"
 NAMES = ("cmf_nm", "cmf", "d65_nm", "d65", "basis_nm", "basis")
 
 

@@ -5,11 +5,11 @@ Every surface implements (DEVELOPERS.md, "Interfaces between stages"):
 * ``key()`` -> a hashable identity (equal keys mean an identical appearance), and
 * ``observed_xyz(doppler (N,), rest_position (N, 3) m, uv (N, 2) or None, effects)``
   -> (N, 3) absolute CIE 1931 XYZ, Y in cd/m^2, where ``effects`` has boolean attributes
-  ``doppler`` and ``beaming`` (relview.scene.Effects; ``None`` means both on).
+  ``doppler`` and ``beaming`` (relview.scene.parts.Effects; ``None`` means both on).
 
 Spectral surfaces define their rest-frame spectral radiance at every wavelength > 0 (a
 Doppler factor D brings emitted wavelengths D * (360-830 nm) into view), and are shaded
-through cached :class:`relview.spectrum.DopplerTable` lookups, so the per-pixel work is
+through cached :class:`relview.light.spectrum.DopplerTable` lookups, so the per-pixel work is
 vectorised table interpolation. The rules used outside tabulated data are documented in
 docs/colour.md ("Colour pipeline").
 """
@@ -24,8 +24,9 @@ from pathlib import Path
 
 import numpy as np
 
-from relview import colour_data, spectrum
-from relview.spectrum import apply_effects, cached_table, effect_factors
+from relview.light import colour_data
+from relview.light import spectrum
+from relview.light.spectrum import apply_effects, cached_table, effect_factors
 
 # FWHM -> standard deviation of a Gaussian: FWHM = 2 sqrt(2 ln 2) sigma.
 _FWHM_PER_SIGMA = 2.0 * math.sqrt(2.0 * math.log(2.0))
@@ -307,7 +308,7 @@ def _split_fields(line: str) -> list[str]:
 
 
 #: Mallett & Yuksel (2019) sRGB basis spectra from colour-science (380-780 nm, 5 nm),
-#: through the cached extract in relview.colour_data.
+#: through the cached extract in relview.light.colour_data.
 BASIS_WAVELENGTHS_NM, BASIS_VALUES = colour_data.sampled("basis")
 
 
@@ -352,7 +353,7 @@ class Reflective(Surface):
     ``rgb``: linear sRGB reflectance in [0, 1]; turned into a reflectance spectrum with the
     Mallett & Yuksel (2019) basis (see :func:`reflectance_basis`). ``lamp``: a blackbody
     temperature in K or "D65" (CIE illuminant D65, extended outside its table as in
-    :func:`relview.spectrum.cie_d65_relative_spd`). ``luminance``: cd/m^2 of a perfect white
+    :func:`relview.light.spectrum.cie_d65_relative_spd`). ``luminance``: cd/m^2 of a perfect white
     reflector at rest; the reflected spectral radiance is
     rho(lambda) * S(lambda) * luminance / (K_m * integral(S ybar dlambda)).
     ``texture``: an image file (read with pillow, sRGB-encoded pixels decoded to linear);

@@ -48,8 +48,8 @@ from typing import Any
 import numpy as np
 from scipy.interpolate import CubicSpline
 
-from relview.lorentz import C, contract, lorentz_factor
-from relview.scene import UniformMotion
+from relview.kinematics.lorentz import C, contract, lorentz_factor
+from relview.scene.parts import UniformMotion
 
 _EPS = np.finfo(float).eps
 #: Relative tolerance of the retarded-time and simultaneity solves (of the light-travel
@@ -1093,13 +1093,13 @@ MOTION_PARSERS = {kind: (lambda table, where, _k=kind: motion_from_table(_k, tab
 
 
 def _register_with_loader() -> None:
-    """Register every kind except 'uniform' (the loader's own) in relview.loader.MOTION_KINDS.
+    """Register every kind except 'uniform' (the loader's own) in relview.scene.reader.MOTION_KINDS.
 
-    The loader hands a ``relview.loader.Table``; its raw dict goes through
+    The loader hands a ``relview.scene.reader.Table``; its raw dict goes through
     :func:`motion_from_table` and errors come back as the loader's SceneError (file, line,
     key, value)."""
     try:
-        from relview.loader import register_motion
+        from relview.scene.reader import register_motion
     except ImportError:  # loader not present: the parsers above remain usable directly
         return
 
@@ -1113,7 +1113,7 @@ def _register_with_loader() -> None:
                     raise table.error(None, str(err)) from None
                 raise table.error(err.key, str(err), err.value) from None
 
-        parse.__doc__ = f"kind = '{kind}': keys {', '.join(MOTION_KEYS[kind])} (relview.motion)."
+        parse.__doc__ = f"kind = '{kind}': keys {', '.join(MOTION_KEYS[kind])} (relview.kinematics.motion)."
         return parse
 
     for kind in MOTION_KEYS:

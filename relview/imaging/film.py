@@ -4,9 +4,9 @@ Pipeline (docs: shared design contract, "Colour pipeline")::
 
     absolute CIE 1931 XYZ (Y in cd/m2)
       -- exposure: divide by the white luminance W (cd/m2)  -> relative XYZ, W -> Y = 1
-      -- XYZ -> linear sRGB (IEC 61966-2-1 matrix, relview.spectrum)   = Frame.image
+      -- XYZ -> linear sRGB (IEC 61966-2-1 matrix, relview.light.spectrum)   = Frame.image
       -- display: gamut rule, optional tone curve, clip to [0, 1]
-      -- sRGB encoding (IEC 61966-2-1 transfer function, relview.spectrum)
+      -- sRGB encoding (IEC 61966-2-1 transfer function, relview.light.spectrum)
       -- 8 or 16 bit integers -> PNG
 
 Exposure
@@ -193,8 +193,8 @@ def exposure_white(xyz_image: Any, mask: Any = None, setting: float | str = "aut
 
 
 def _colour_functions():
-    """``(xyz_to_linear_srgb, encode_srgb)`` from relview.spectrum (imported lazily)."""
-    from relview.spectrum import encode_srgb, xyz_to_linear_srgb
+    """``(xyz_to_linear_srgb, encode_srgb)`` from relview.light.spectrum (imported lazily)."""
+    from relview.light.spectrum import encode_srgb, xyz_to_linear_srgb
 
     return xyz_to_linear_srgb, encode_srgb
 

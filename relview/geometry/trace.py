@@ -22,7 +22,7 @@ Effect switches change only the map and the 4-direction:
 * ``contraction`` off: the Galilean map (ct, x) -> (ct, x - beta ct) replaces the boost.
 
 Bodies with equal velocity share a rest frame and one bounding-volume hierarchy.
-Bodies whose motion is not uniform are handed to :mod:`relview.lightcone`, which
+Bodies whose motion is not uniform are handed to :mod:`relview.geometry.lightcone`, which
 turns them into static meshes on the camera's past light cone; those join here as a
 frame with beta = 0.
 """
@@ -34,9 +34,9 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit, prange
 
-from relview import bvh as bvh_mod
-from relview.lorentz import C, boost_matrix, doppler_along, galilean_matrix
-from relview.scene import Effects
+from relview.geometry import bvh as bvh_mod
+from relview.kinematics.lorentz import C, boost_matrix, doppler_along, galilean_matrix
+from relview.scene.parts import Effects
 
 
 @dataclass
@@ -361,7 +361,7 @@ def uniform_groups(bodies, meshes, effects: Effects, indices=None) -> list[Frame
     along the rest-frame axes, i.e. with the body rotation already applied; faces (F,3)).
     ``indices`` restricts to those bodies. Hit points are reported in body axes.
     """
-    from relview.scene import UniformMotion
+    from relview.scene.parts import UniformMotion
 
     if indices is None:
         indices = [i for i, b in enumerate(bodies) if isinstance(b.motion, UniformMotion)]

@@ -1,14 +1,13 @@
-"""The Scene: plain dataclasses describing camera, bodies, motions, surfaces, sky.
+"""The parts of a scene: plain dataclasses for camera, bodies, render settings, sky.
 
 Everything here is in scene-file units (metres, seconds, beta = v/c) except where a
-name says otherwise. Reading and validating TOML lives in :mod:`relview.loader`;
-this module only holds the validated result, so scripts can also build a Scene
-in code (``Scene.from_dict``).
+name says otherwise. Reading and validating TOML lives in :mod:`relview.scene.reader`,
+the assembled :class:`relview.scene.model.Scene` in :mod:`relview.scene.model`; this
+module depends on numpy only, so every layer can use these types.
 """
 
 from __future__ import annotations
 
-import dataclasses
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -49,7 +48,7 @@ class Camera:
     time: float = 0.0  # s, scene-frame time of the exposure
     beta: np.ndarray = field(default_factory=lambda: np.zeros(3))  # velocity / c
     projection: str = "pinhole"  # pinhole | panorama | fisheye
-    # Optional worldline of the camera (any motion kind of relview.motion); when given,
+    # Optional worldline of the camera (any motion kind of relview.kinematics.motion); when given,
     # position and beta follow it and `position` holds its place at `time`.
     motion: Any = None
 
@@ -87,8 +86,8 @@ class UniformMotion:
 class Body:
     name: str
     shape: str  # box | sphere | cylinder | plane | mesh
-    motion: Any  # UniformMotion or a motion from relview.motion
-    surface: Any  # a surface from relview.materials
+    motion: Any  # UniformMotion or a motion from relview.kinematics.motion
+    surface: Any  # a surface from relview.light.materials
     size: np.ndarray | None = None  # (3,) m box, (2,) m plane
     radius: float | None = None  # m, sphere and cylinder
     height: float | None = None  # m, cylinder (along rest-frame z)
@@ -126,32 +125,3 @@ class Animation:
     end: float = 0.0  # s
     frames: int = 1
     fps: float = 24.0
-
-
-@dataclass
-class Scene:
-    camera: Camera
-    bodies: list[Body]
-    render: RenderSettings = field(default_factory=RenderSettings)
-    background: Background = field(default_factory=Background)
-    animation: Animation | None = None
-    title: str = ""
-    format: int = 1
-    source_path: Path | None = None  # the scene file, if loaded from one
-    source_hash: str = ""  # sha256 of the scene file (and meshes), for provenance
-
-    @classmethod
-    def from_dict(cls, data: dict, base_dir: str | Path = ".", source: str = "<dict>") -> Scene:
-        """Build and validate a Scene from the same structure a scene file holds."""
-        from relview.loader import scene_from_dict
-
-        return scene_from_dict(data, base_dir=Path(base_dir), source=source)
-
-    def body_index(self, name: str) -> int:
-        for i, b in enumerate(self.bodies):
-            if b.name == name:
-                return i
-        raise KeyError(name)
-
-    def replace(self, **changes) -> Scene:
-        return dataclasses.replace(self, **changes)

@@ -49,7 +49,7 @@ from typing import Any
 
 import numpy as np
 
-from relview import film
+from relview.imaging import film
 from relview.errors import OutputError, UserError
 
 __all__ = [
@@ -181,7 +181,7 @@ def _checked_range(r: range, n_frames: int, what: str) -> range:
 
 
 def _srgb_decode_table() -> np.ndarray:
-    from relview.spectrum import decode_srgb
+    from relview.light.spectrum import decode_srgb
 
     return np.asarray(decode_srgb(np.arange(256) / 255.0), dtype=np.float64)
 
@@ -877,7 +877,7 @@ def animate(
                 "--workers sets local worker processes; with --cluster give the workers to "
                 "the cluster (local:N, or start dask workers for a tcp:// scheduler)"
             )
-        from relview import farm
+        from relview.animation import farm
 
         if isinstance(cluster, str):
             farm.parse_cluster(cluster)  # a malformed address fails before any work
@@ -1010,7 +1010,7 @@ def animate(
 def _start_backend(renderer: FrameRenderer, todo, cluster, workers):
     """An iterator of RenderedFrame for the jobs, and a description of where they run."""
     if cluster is not None:
-        from relview import farm
+        from relview.animation import farm
 
         return farm.render_frames(renderer, todo, cluster), f"dask {cluster}"
     n = min(DEFAULT_WORKERS if workers is None else workers, len(todo))
@@ -1057,8 +1057,8 @@ def _flash_check(manifest: Manifest, current: dict[int, dict], fps: float) -> li
 
 
 def register_cli(subparsers) -> None:
-    """Add ``relview animate`` (found by relview.cli)."""
-    from relview.cli import add_frame_options
+    """Add ``relview animate`` (found by relview.cli.app)."""
+    from relview.cli.app import add_frame_options
 
     p = subparsers.add_parser(
         "animate",
@@ -1103,7 +1103,7 @@ def register_cli(subparsers) -> None:
 
 
 def cmd_animate(args) -> int:
-    from relview.cli import scene_with_overrides
+    from relview.cli.app import scene_with_overrides
 
     scene = scene_with_overrides(args)
     if scene.animation is None:
@@ -1114,7 +1114,7 @@ def cmd_animate(args) -> int:
         )
     frames = parse_frame_range(args.frames, scene.animation.frames) if args.frames else None
     out = Path(args.output) if args.output else Path("outputs") / Path(args.scene).stem
-    # A FlashWarning is printed as "relview: warning: ..." by relview.cli.main.
+    # A FlashWarning is printed as "relview: warning: ..." by relview.cli.app.
     summary = animate(
         scene,
         out,

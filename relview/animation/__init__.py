@@ -1,0 +1,1 @@
+"""Animations: frame times, resumable frame batches, worker pools, Dask farms, video."""

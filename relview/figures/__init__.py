@@ -1,0 +1,1 @@
+"""Figures built from renders and probes: comparison sheets, layer maps, probe tables."""

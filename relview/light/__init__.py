@@ -1,0 +1,1 @@
+"""Light and colour: spectra, CIE colorimetry, Doppler tables, surfaces and skies."""
