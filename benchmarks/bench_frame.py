@@ -401,8 +401,9 @@ def bench_embree(vertices, faces, origin_xyz, d_s, repeats: int, threads: int) -
         from embreex.mesh_construction import TriangleMesh
     except ImportError:
         return None
-    import numpy as np
     from concurrent.futures import ThreadPoolExecutor
+
+    import numpy as np
 
     tris = np.ascontiguousarray(vertices[faces], dtype=np.float32)
     o32 = np.ascontiguousarray(origin_xyz, dtype=np.float32)
@@ -537,9 +538,8 @@ def child_startup(scene_path: str, out_png: str) -> None:
     stamps = {"child_first_line": time.time()}
     import relview.cli.app as cli
     import relview.renderer as renderer  # noqa: F401  (imports trace -> numba, as render does)
-    from relview.geometry import bvh
+    from relview.geometry import bvh, trace
     from relview.scene import reader as loader
-    from relview.geometry import trace
 
     stamps["imported"] = time.time()
     orig_load, orig_ctx_init, orig_cast = loader.load_scene, renderer.RenderContext.__init__, \
@@ -825,7 +825,7 @@ def build_report(info: dict) -> str:
     row(f"relview kernel alone, {MOVING_BETA}c, 1 thread", moving["kernel_1thread"])
     row("relview RenderContext build (mesh + BVH), rest", rest["context"], rays=0)
     if emb:
-        row(f"Embree bare first-hit cast, 1 thread", emb["cast_1thread"])
+        row("Embree bare first-hit cast, 1 thread", emb["cast_1thread"])
         row(f"Embree bare first-hit cast, {emb['threads']} threads", emb["cast_nthreads"])
         row("Embree scene build (+ commit)", emb["build"], rays=0)
     add("")

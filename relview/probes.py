@@ -23,8 +23,8 @@ import numpy as np
 
 from relview.geometry import camera as cam_mod
 from relview.kinematics.lorentz import C, aberrate_to_camera, contract
-from relview.scene.parts import Effects, UniformMotion
 from relview.scene.model import Scene
+from relview.scene.parts import Effects, UniformMotion
 
 
 @dataclass

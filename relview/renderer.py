@@ -19,10 +19,10 @@ from pathlib import Path
 import numpy as np
 
 from relview.geometry import camera as cam_mod
-from relview.kinematics.lorentz import C
-from relview.scene.parts import Effects, UniformMotion
-from relview.scene.model import Scene
 from relview.geometry.trace import Hits, Tracer, uniform_groups
+from relview.kinematics.lorentz import C
+from relview.scene.model import Scene
+from relview.scene.parts import Effects, UniformMotion
 
 #: Rays traced per batch (a 960x540 frame is one batch); bounds the working memory of one
 #: batch to about 150 MB.

@@ -9,8 +9,8 @@ import pytest
 from PIL import Image
 
 from relview.cli import app as cli
-from relview.figures import sheets as compare
 from relview.errors import OutputError, UserError
+from relview.figures import sheets as compare
 from relview.kinematics.lorentz import C
 from relview.scene.model import Scene
 

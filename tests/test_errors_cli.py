@@ -24,11 +24,11 @@ import pytest
 import trimesh
 
 import relview.imaging.film
-import relview.scene.reader
 import relview.renderer
+import relview.scene.reader
 from relview.cli.app import main
-from relview.scene.model import load_scene
 from relview.kinematics.lorentz import lorentz_factor
+from relview.scene.model import load_scene
 
 REPO = Path(__file__).resolve().parents[1]
 

@@ -18,8 +18,8 @@ import numpy as np
 import pytest
 from PIL import Image
 
-from relview.imaging import film
 from relview.errors import OutputError, UserError
+from relview.imaging import film
 
 # ----------------------------------------------------------------------------- references
 

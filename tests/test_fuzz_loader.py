@@ -37,8 +37,7 @@ from hypothesis import HealthCheck, event, given, settings
 from hypothesis import strategies as st
 
 from relview.errors import MeshWarning, UserError
-from relview.scene.model import load_scene, scene_from_dict
-from relview.scene.model import Scene
+from relview.scene.model import Scene, load_scene, scene_from_dict
 
 REPO = Path(__file__).resolve().parents[1]
 DEMO_SCENES = sorted((REPO / "scenes").glob("*.toml"))

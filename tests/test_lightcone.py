@@ -13,9 +13,9 @@ import pytest
 import trimesh
 
 from relview.geometry.lightcone import snapshot, snapshot_groups
+from relview.geometry.trace import Tracer, uniform_groups
 from relview.kinematics.motion import RollingMotion, Uniform
 from relview.scene.parts import Body, Effects, UniformMotion
-from relview.geometry.trace import Tracer, uniform_groups
 
 
 def box_mesh():
@@ -191,8 +191,8 @@ def test_rendered_pixels_match_exact_probes_of_the_points_they_show():
     # point (2v/(1+v^2) = 0.94 at v = 0.7).
     import relview
     from relview.geometry.lightcone import PIXEL_FRACTION, pixel_tolerance
-    from relview.scene.model import scene_from_dict
     from relview.probes import probe_many
+    from relview.scene.model import scene_from_dict
 
     scene = scene_from_dict({
         "render": {"resolution": [160, 90]},

@@ -19,13 +19,11 @@ import numpy as np
 import pytest
 import trimesh
 
-import relview
-from relview.scene import reader as loader
 from relview.errors import MeshError, SceneError, UserError
-from relview.scene.model import load_scene, scene_from_dict
-from relview.scene.reader import MOTION_KINDS, register_motion
+from relview.scene import reader as loader
+from relview.scene.model import Scene, load_scene, scene_from_dict
 from relview.scene.parts import UniformMotion
-from relview.scene.model import Scene
+from relview.scene.reader import MOTION_KINDS, register_motion
 
 REPO = Path(__file__).resolve().parents[1]
 

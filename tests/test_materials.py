@@ -19,13 +19,13 @@ from relview.light.materials import (
     reflectance_basis,
     sample_texture,
 )
-from relview.scene.parts import Effects
 from relview.light.spectrum import (
     observed_xyz_direct,
     planck_spectral_radiance,
     xyz_to_linear_srgb,
     xyz_to_xy,
 )
+from relview.scene.parts import Effects
 
 CMFS = colour.MSDS_CMFS["CIE 1931 2 Degree Standard Observer"]
 ALL_ON = Effects()

@@ -16,7 +16,13 @@ from scipy.integrate import quad
 from scipy.interpolate import CubicSpline
 from scipy.optimize import brentq
 
-from relview.kinematics.lorentz import C, boost_event, compose_velocities, doppler_factor, lorentz_factor
+from relview.kinematics.lorentz import (
+    C,
+    boost_event,
+    compose_velocities,
+    doppler_factor,
+    lorentz_factor,
+)
 from relview.kinematics.motion import (
     HyperbolicMotion,
     MotionTableError,

@@ -10,8 +10,8 @@ import relview
 from relview.cli.app import main
 from relview.kinematics.lorentz import C
 from relview.light.materials import Blackbody
-from relview.scene.parts import Body, Camera, Effects, RenderSettings, UniformMotion
 from relview.scene.model import Scene
+from relview.scene.parts import Body, Camera, Effects, RenderSettings, UniformMotion
 
 ROOT = Path(__file__).resolve().parents[1]
 SCENES = sorted((ROOT / "scenes").glob("*.toml"))

@@ -17,8 +17,8 @@ import numpy as np
 import pytest
 import trimesh
 
-from relview.geometry import shapes
 from relview.errors import MeshError, MeshWarning
+from relview.geometry import shapes
 from relview.scene.parts import Body
 
 DATA = Path(__file__).parent / "data"

@@ -8,8 +8,8 @@ import pytest
 from PIL import Image
 
 from relview.cli import app as cli
-from relview.figures import timeline
 from relview.errors import UserError
+from relview.figures import timeline
 from relview.kinematics.lorentz import C
 from relview.scene.model import Scene
 

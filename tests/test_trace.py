@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 import trimesh
 
+from relview.geometry.trace import Tracer, uniform_groups
 from relview.kinematics.lorentz import lorentz_factor
 from relview.scene.parts import Body, Effects, UniformMotion
-from relview.geometry.trace import Tracer, uniform_groups
 
 
 def tracer_for(meshes, betas, positions=None, effects=Effects()):

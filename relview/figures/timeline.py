@@ -28,8 +28,8 @@ from pathlib import Path
 import numpy as np
 
 from relview.errors import OutputError, UserError
-from relview.scene.parts import Effects
 from relview.scene.model import Scene
+from relview.scene.parts import Effects
 
 #: Column name -> (unit, meaning). Order is the CSV column order.
 COLUMNS: dict[str, tuple[str, str]] = {

@@ -32,8 +32,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from relview.kinematics.motion import as_kinematics
 from relview.geometry.trace import FrameGroup
+from relview.kinematics.motion import as_kinematics
 
 #: Default interpolation tolerance (radians as seen from the camera, and beta) when no
 #: scene is at hand. A 960-pixel-wide 60 degree image has 1.1e-3 rad pixels.

@@ -24,8 +24,7 @@ from pathlib import Path
 
 import numpy as np
 
-from relview.light import colour_data
-from relview.light import spectrum
+from relview.light import colour_data, spectrum
 from relview.light.spectrum import apply_effects, cached_table, effect_factors
 
 # FWHM -> standard deviation of a Gaussian: FWHM = 2 sqrt(2 ln 2) sigma.

@@ -23,8 +23,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from relview.light import spectrum
 from relview.kinematics.lorentz import aberrate_to_camera, lorentz_factor
+from relview.light import spectrum
 from relview.scene.parts import Background, Camera, Effects
 
 T_REF_K = 1000.0
