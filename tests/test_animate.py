@@ -1,5 +1,5 @@
-"""Tests for relview.animation.batch: frame times and names, manifest, resume, interruption,
-exposure lock, flash check, video.
+"""Tests for relview.animation (batch, timing, manifest, workers, flashes, video): frame
+times and names, manifest, resume, interruption, exposure lock, flash check, video.
 
 Outside references: WCAG 2.x (W3C Recommendation), success criterion 2.3.1 "Three
 Flashes or Below Threshold" and the glossary entries "general flash and red flash
@@ -24,7 +24,7 @@ import numpy as np
 import pytest
 from PIL import Image
 
-from relview.animation import batch as anim
+from relview.animation import batch, flashes, timing, workers
 from relview.errors import OutputError, UserError
 from relview.scene.model import load_scene
 from relview.scene.parts import Animation
@@ -78,19 +78,19 @@ class RenderCounter:
 
     def __init__(self, monkeypatch):
         self.indices: list[int] = []
-        original = anim.FrameRenderer.render
+        original = workers.FrameRenderer.render
 
         def counting(renderer, index, time_s):
             self.indices.append(index)
             return original(renderer, index, time_s)
 
-        monkeypatch.setattr(anim.FrameRenderer, "render", counting)
+        monkeypatch.setattr(workers.FrameRenderer, "render", counting)
 
 
 def run(scene_path, out, **kw):
     kw.setdefault("progress", False)
     kw.setdefault("workers", 1)
-    return anim.animate(load_scene(scene_path), out, **kw)
+    return batch.animate(load_scene(scene_path), out, **kw)
 
 
 def stamps(out: Path) -> dict[str, tuple[int, str]]:
@@ -104,24 +104,24 @@ def stamps(out: Path) -> dict[str, tuple[int, str]]:
 
 
 def test_frame_times_are_evenly_spaced_from_start_to_end():
-    # t_k = start + k (end - start) / (N - 1): the definition in relview.animation.batch
-    t = anim.frame_times(Animation(start=1.0e-8, end=3.0e-8, frames=5, fps=24))
+    # t_k = start + k (end - start) / (N - 1): the definition in relview.animation.timing
+    t = timing.frame_times(Animation(start=1.0e-8, end=3.0e-8, frames=5, fps=24))
     np.testing.assert_allclose(t, [1.0e-8, 1.5e-8, 2.0e-8, 2.5e-8, 3.0e-8], rtol=1e-15)
-    assert anim.frame_times(Animation(start=2.0e-8, end=9.0e-8, frames=1)).tolist() == [2.0e-8]
+    assert timing.frame_times(Animation(start=2.0e-8, end=9.0e-8, frames=1)).tolist() == [2.0e-8]
 
 
 def test_frame_names_follow_the_pattern():
-    assert anim.frame_name(0) == "frame-00000.png"
-    assert anim.frame_name(123) == "frame-00123.png"
-    assert anim.FRAME_NAME_PATTERN.format(index=7) == "frame-00007.png"
+    assert timing.frame_name(0) == "frame-00000.png"
+    assert timing.frame_name(123) == "frame-00123.png"
+    assert timing.FRAME_NAME_PATTERN.format(index=7) == "frame-00007.png"
 
 
 def test_frame_ranges_are_half_open():
-    assert anim.parse_frame_range("2:4", 10) == range(2, 4)
-    assert anim.parse_frame_range("7:", 10) == range(7, 10)
-    assert anim.parse_frame_range(":3", 10) == range(3)
-    assert anim.resolve_frames(slice(1, 3), 10) == range(1, 3)
-    assert anim.resolve_frames(None, 4) == range(4)
+    assert timing.parse_frame_range("2:4", 10) == range(2, 4)
+    assert timing.parse_frame_range("7:", 10) == range(7, 10)
+    assert timing.parse_frame_range(":3", 10) == range(3)
+    assert timing.resolve_frames(slice(1, 3), 10) == range(1, 3)
+    assert timing.resolve_frames(None, 4) == range(4)
 
 
 @pytest.mark.parametrize(
@@ -137,7 +137,7 @@ def test_frame_ranges_are_half_open():
 )
 def test_bad_frame_ranges_are_user_errors(text, words):
     with pytest.raises(UserError, match=words):
-        anim.parse_frame_range(text, 10)
+        timing.parse_frame_range(text, 10)
 
 
 # ----------------------------------------------------------------------------- manifest, files
@@ -147,7 +147,7 @@ def test_frames_and_manifest(scene_file, tmp_path):
     out = tmp_path / "out"
     summary = run(scene_file, out)
     scene = load_scene(scene_file)
-    times = anim.frame_times(scene.animation)
+    times = timing.frame_times(scene.animation)
     names = sorted(p.name for p in out.glob("frame-*.png"))
     assert names == [f"frame-{k:05d}.png" for k in range(5)]
     assert summary.rendered == [0, 1, 2, 3, 4] and summary.skipped == []
@@ -196,7 +196,7 @@ def test_unlocked_exposure_is_automatic_per_frame(scene_file, tmp_path):
     m = json.loads((tmp_path / "out" / "manifest.json").read_text())
     assert m["settings"]["exposure_lock"]["mode"] == "per-frame"
     scene = load_scene(scene_file)
-    for k, t in enumerate(anim.frame_times(scene.animation)):
+    for k, t in enumerate(timing.frame_times(scene.animation)):
         # each frame's own automatic white, as a single render at that time gives it
         assert m["frames"][f"{k:05d}"]["white_cd_m2"] == render(scene, time=t).white
 
@@ -206,7 +206,7 @@ def test_fixed_exposure_is_kept(scene_file, tmp_path):
     scene = scene.replace(
         render=scene.render.__class__(resolution=scene.render.resolution, exposure=2.5e6)
     )
-    summary = anim.animate(scene, tmp_path / "out", progress=False, workers=1)
+    summary = batch.animate(scene, tmp_path / "out", progress=False, workers=1)
     assert summary.exposure["mode"] == "fixed" and summary.exposure["white_cd_m2"] == 2.5e6
 
 
@@ -251,7 +251,7 @@ def test_changed_scene_or_settings_redo_every_frame(scene_file, tmp_path, monkey
     counter.indices.clear()
     scene = load_scene(scene_file)
     scene = scene.replace(render=scene.render.__class__(resolution=(40, 24)))
-    anim.animate(scene, out, progress=False, workers=1, overwrite=True)  # a setting changed
+    batch.animate(scene, out, progress=False, workers=1, overwrite=True)  # a setting changed
     assert sorted(counter.indices) == [0, 1, 2, 3, 4]
     with Image.open(out / "frame-00000.png") as im:
         assert im.size == (40, 24)
@@ -273,7 +273,7 @@ def test_frame_subset_and_video_only_from_a_complete_set(scene_file, tmp_path, m
 
 def test_interrupted_batch_keeps_finished_frames(scene_file, tmp_path, monkeypatch):
     out = tmp_path / "out"
-    original = anim.FrameRenderer.render
+    original = workers.FrameRenderer.render
     calls = []
 
     def interrupted(renderer, index, time_s):
@@ -282,7 +282,7 @@ def test_interrupted_batch_keeps_finished_frames(scene_file, tmp_path, monkeypat
             raise KeyboardInterrupt  # Ctrl-C while the third frame renders
         return original(renderer, index, time_s)
 
-    monkeypatch.setattr(anim.FrameRenderer, "render", interrupted)
+    monkeypatch.setattr(workers.FrameRenderer, "render", interrupted)
     with pytest.raises(KeyboardInterrupt):
         run(scene_file, out)
     m = json.loads((out / "manifest.json").read_text())
@@ -293,7 +293,7 @@ def test_interrupted_batch_keeps_finished_frames(scene_file, tmp_path, monkeypat
         "manifest.json",
     ]
     before = stamps(out)
-    monkeypatch.setattr(anim.FrameRenderer, "render", original)
+    monkeypatch.setattr(workers.FrameRenderer, "render", original)
     counter = RenderCounter(monkeypatch)
     run(scene_file, out)
     assert sorted(counter.indices) == [2, 3, 4]
@@ -384,7 +384,7 @@ def test_worker_processes_give_the_same_bytes(scene_file, tmp_path):
     two = run(scene_file, tmp_path / "two", workers=2)
     assert two.backend == "2 processes, 1 numba thread each"
     for k in range(5):
-        name = anim.frame_name(k)
+        name = timing.frame_name(k)
         assert (tmp_path / "one" / name).read_bytes() == (tmp_path / "two" / name).read_bytes()
 
 
@@ -396,7 +396,7 @@ def test_killed_batch_resumes(tmp_path):
     scene_file = write_scene(tmp_path / "brick.toml", frames=20)
     out = tmp_path / "out"
     # Warm numba's on-disk cache in this process so the child does not compile.
-    anim.FrameRenderer(load_scene(scene_file), None).render(0, 0.0)
+    workers.FrameRenderer(load_scene(scene_file), None).render(0, 0.0)
     cmd = [
         sys.executable,
         "-m",
@@ -428,7 +428,7 @@ def test_killed_batch_resumes(tmp_path):
 
     assert main(cmd[3:]) == 0  # the same command again, in this process
     after = stamps(out)
-    assert sorted(after) == [anim.frame_name(k) for k in range(20)]
+    assert sorted(after) == [timing.frame_name(k) for k in range(20)]
     for name, stamp in before.items():
         assert after[name] == stamp, f"{name} was redone"
 
@@ -464,11 +464,11 @@ def relative_luminance_reference(rgb8: np.ndarray) -> float:
 def test_mean_relative_luminance_matches_wcag_definition():
     rng = np.random.default_rng(3)
     img = rng.integers(0, 256, size=(9, 11, 3), dtype=np.uint8)
-    assert anim.mean_relative_luminance(img) == pytest.approx(
+    assert flashes.mean_relative_luminance(img) == pytest.approx(
         relative_luminance_reference(img), rel=1e-12
     )
-    assert anim.mean_relative_luminance(np.full((2, 2, 3), 255, np.uint8)) == pytest.approx(1.0)
-    assert anim.mean_relative_luminance(np.zeros((2, 2, 3), np.uint8)) == 0.0
+    assert flashes.mean_relative_luminance(np.full((2, 2, 3), 255, np.uint8)) == pytest.approx(1.0)
+    assert flashes.mean_relative_luminance(np.zeros((2, 2, 3), np.uint8)) == 0.0
 
 
 def square_wave(hz: float, fps: float, seconds: float, low: float, high: float) -> np.ndarray:
@@ -483,7 +483,7 @@ def test_five_hertz_flashing_is_flagged():
     # flash and red flash thresholds"; quoted from memory of the W3C text). 5 Hz
     # dark/bright: five flashes a second.
     lum = square_wave(5.0, 30.0, 2.0, 0.05, 0.60)
-    episodes = anim.find_flashes(lum, 30.0)
+    episodes = flashes.find_flashes(lum, 30.0)
     assert episodes, "5 flashes per second must be flagged"
     assert episodes[0].flashes >= 4
     assert episodes[0].first_frame <= 3 and episodes[-1].last_frame >= 50
@@ -491,40 +491,40 @@ def test_five_hertz_flashing_is_flagged():
 
 def test_slow_ramp_and_slow_blinks_are_not_flagged():
     ramp = np.linspace(0.0, 1.0, 60)  # one change over 2 s at 30 fps
-    assert anim.find_flashes(ramp, 30.0) == []
+    assert flashes.find_flashes(ramp, 30.0) == []
     # 2 Hz: two flashes per second, below the WCAG limit of three
-    assert anim.find_flashes(square_wave(2.0, 30.0, 3.0, 0.05, 0.60), 30.0) == []
+    assert flashes.find_flashes(square_wave(2.0, 30.0, 3.0, 0.05, 0.60), 30.0) == []
 
 
 def test_flash_thresholds_of_wcag():
     # changes below 10 % of the maximum relative luminance do not count (WCAG glossary)
-    assert anim.find_flashes(square_wave(5.0, 30.0, 2.0, 0.30, 0.38), 30.0) == []
+    assert flashes.find_flashes(square_wave(5.0, 30.0, 2.0, 0.30, 0.38), 30.0) == []
     # the darker image at or above 0.80: not a general flash (WCAG glossary)
-    assert anim.find_flashes(square_wave(5.0, 30.0, 2.0, 0.82, 1.00), 30.0) == []
+    assert flashes.find_flashes(square_wave(5.0, 30.0, 2.0, 0.82, 1.00), 30.0) == []
     # just over the step: 0.10 apart with the darker below 0.80 counts
-    assert anim.find_flashes(square_wave(5.0, 30.0, 2.0, 0.50, 0.61), 30.0) != []
+    assert flashes.find_flashes(square_wave(5.0, 30.0, 2.0, 0.50, 0.61), 30.0) != []
 
 
 def test_flashes_are_counted_in_playback_seconds():
     lum = square_wave(5.0, 30.0, 2.0, 0.05, 0.60)
     # the same frames played at 10 fps last 6 s: 5/3 flashes a second, not flagged
-    assert anim.find_flashes(lum, 10.0) == []
+    assert flashes.find_flashes(lum, 10.0) == []
 
 
 def test_flash_warning_from_a_batch(scene_file, tmp_path, monkeypatch):
     """Beaming made to blink: the batch warns and names the frames."""
     write_scene(scene_file, frames=12)
-    original = anim.mean_relative_luminance
+    original = workers.mean_relative_luminance
 
     def blinking(rgb8):  # alternate dark/bright frames: 8 fps -> 4 flashes a second
         blinking.n += 1
         return 0.05 if blinking.n % 2 else 0.7
 
     blinking.n = 0
-    monkeypatch.setattr(anim, "mean_relative_luminance", blinking)
-    with pytest.warns(anim.FlashWarning, match="frames 0-11"):
+    monkeypatch.setattr(workers, "mean_relative_luminance", blinking)
+    with pytest.warns(flashes.FlashWarning, match="frames 0-11"):
         summary = run(scene_file, tmp_path / "out")
-    monkeypatch.setattr(anim, "mean_relative_luminance", original)
+    monkeypatch.setattr(workers, "mean_relative_luminance", original)
     assert summary.flashes and summary.flashes[0].flashes == 4
     m = json.loads((tmp_path / "out" / "manifest.json").read_text())
     assert m["flash_check"]["episodes"][0]["first_frame"] == 0
@@ -535,7 +535,7 @@ def test_flash_warning_on_the_command_line(scene_file, tmp_path, monkeypatch, ca
 
     write_scene(scene_file, frames=12)
     levels = iter([0.05, 0.7] * 6)
-    monkeypatch.setattr(anim, "mean_relative_luminance", lambda rgb8: next(levels))
+    monkeypatch.setattr(workers, "mean_relative_luminance", lambda rgb8: next(levels))
     assert main(["animate", str(scene_file), "-o", str(tmp_path / "o"), "--quiet"]) == 0
     err = capsys.readouterr().err
     assert "relview: warning:" in err and "flashing: frames 0-11" in err

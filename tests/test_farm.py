@@ -1,4 +1,5 @@
-"""Tests for relview.animation.farm: frames rendered on a Dask cluster equal local frames byte for byte.
+"""Tests for relview.animation.farm: frames rendered on a Dask cluster equal local frames
+byte for byte.
 
 The cluster is dask.distributed's own LocalCluster: two worker processes on
 127.0.0.1, reached through their scheduler's tcp:// address as a remote cluster
@@ -14,8 +15,7 @@ from pathlib import Path
 import pytest
 from test_animate import stamps, write_scene
 
-from relview.animation import batch as anim
-from relview.animation import farm
+from relview.animation import batch, farm, timing
 from relview.errors import UserError
 from relview.scene.model import load_scene
 
@@ -28,7 +28,7 @@ def local_frames(tmp_path_factory) -> tuple[Path, Path]:
     so the worker processes load the compiled kernels instead of compiling them)."""
     base = tmp_path_factory.mktemp("farm")
     scene_file = write_scene(base / "brick.toml", frames=FRAMES)
-    anim.animate(load_scene(scene_file), base / "local", progress=False, workers=1)
+    batch.animate(load_scene(scene_file), base / "local", progress=False, workers=1)
     return scene_file, base / "local"
 
 
@@ -60,42 +60,42 @@ def test_parse_cluster():
 def test_cluster_frames_are_byte_identical_to_local(local_frames, scheduler, tmp_path):
     scene_file, local = local_frames
     assert scheduler.startswith("tcp://127.0.0.1:")
-    summary = anim.animate(
+    summary = batch.animate(
         load_scene(scene_file), tmp_path / "dask", cluster=scheduler, progress=False
     )
     assert summary.rendered == list(range(FRAMES)) and summary.backend.startswith("dask")
     for k in range(FRAMES):
-        name = anim.frame_name(k)
+        name = timing.frame_name(k)
         assert (tmp_path / "dask" / name).read_bytes() == (local / name).read_bytes(), name
 
 
 def test_cluster_run_resumes(local_frames, scheduler, tmp_path, monkeypatch):
     scene_file, local = local_frames
     out = tmp_path / "dask"
-    anim.animate(load_scene(scene_file), out, cluster=scheduler, progress=False)
+    batch.animate(load_scene(scene_file), out, cluster=scheduler, progress=False)
     before = stamps(out)
     (out / "frame-00001.png").unlink()
     with open(out / "frame-00003.png", "ab") as fh:
         fh.write(b"edited")
     # the edited frame is replaced only when asked (the missing one needs no permission)
-    summary = anim.animate(load_scene(scene_file), out, cluster=scheduler, progress=False,
+    summary = batch.animate(load_scene(scene_file), out, cluster=scheduler, progress=False,
                            overwrite=True)
     assert summary.rendered == [1, 3] and summary.skipped == [0, 2]
     after = stamps(out)
     assert after["frame-00000.png"] == before["frame-00000.png"]
     assert after["frame-00002.png"] == before["frame-00002.png"]
     for k in (1, 3):
-        name = anim.frame_name(k)
+        name = timing.frame_name(k)
         assert (out / name).read_bytes() == (local / name).read_bytes()
     # nothing left to do: no task reaches the cluster
-    again = anim.animate(load_scene(scene_file), out, cluster=scheduler, progress=False)
+    again = batch.animate(load_scene(scene_file), out, cluster=scheduler, progress=False)
     assert again.rendered == [] and again.backend == ""
 
 
 def test_cluster_and_workers_together_are_refused(local_frames, tmp_path):
     scene_file, _ = local_frames
     with pytest.raises(UserError, match="--workers"):
-        anim.animate(
+        batch.animate(
             load_scene(scene_file), tmp_path / "x", cluster="local:2", workers=2, progress=False
         )
 
@@ -104,7 +104,7 @@ def test_unreachable_scheduler_is_a_user_error(local_frames, tmp_path, monkeypat
     scene_file, _ = local_frames
     monkeypatch.setattr(farm, "CONNECT_TIMEOUT_S", 1)
     with pytest.raises(UserError, match="cannot reach"):
-        anim.animate(
+        batch.animate(
             load_scene(scene_file), tmp_path / "x", cluster="tcp://127.0.0.1:9", progress=False
         )
 

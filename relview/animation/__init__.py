@@ -1,1 +1,1 @@
-"""Animations: frame times, resumable frame batches, worker pools, Dask farms, video."""
+"""Animations: frame timing, resumable batches, manifests, worker pools, Dask farms, flash check, video."""

@@ -2,16 +2,16 @@
 
 The client (``relview animate --cluster ...``) keeps every file operation: it
 decides which frames are needed, writes the frames atomically and keeps the
-manifest (relview.animation.batch). Workers only render and return each frame as
-encoded PNG bytes, so they need no shared file system.
+manifest (relview.animation.batch, relview.animation.manifest). Workers only render
+and return each frame as encoded PNG bytes, so they need no shared file system.
 
 What is shipped to the workers, as bytes (once per worker, with
 ``Client.scatter(broadcast=True)``): the loaded and validated :class:`Scene`
 (pickled; spectra and textures are already read into it) and the bytes of every
 mesh file it names. A worker writes the mesh bytes to its own temporary
 directory (``<tmp>/relview-farm/<sha256>/<file name>``) and points the body at
-that copy. The worker renders with :class:`relview.animation.batch.FrameRenderer`, the
-same code as a local render, and keeps one RenderContext per scene and settings,
+that copy. The worker renders with :class:`relview.animation.workers.FrameRenderer`,
+the same code as a local render, and keeps one RenderContext per scene and settings,
 so a worker builds the hierarchies once however many frames it renders.
 
 Workers need relview installed at the same version as the client (checked when
@@ -31,6 +31,8 @@ from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
 
+from relview import __version__
+from relview.animation.workers import FrameRenderer
 from relview.errors import UserError
 
 __all__ = [
@@ -80,7 +82,7 @@ def connect(cluster) -> Iterator:
     NUMBA_NUM_THREADS=1 (N processes share the cores); it is shut down on exit.
     A Client given by the caller is used as it is and left open.
     """
-    from distributed import Client, LocalCluster
+    from distributed import Client, LocalCluster  # dask is heavy: imported only to connect
 
     if isinstance(cluster, Client):
         yield cluster
@@ -112,15 +114,12 @@ def connect(cluster) -> Iterator:
 
 
 def _worker_version() -> str:
-    from relview import __version__
-
+    """Run on each worker by :func:`_check_workers`: the relview version installed there."""
     return __version__
 
 
 def _check_workers(client, cluster) -> None:
     """Every worker must import relview at the client's version (frames must match)."""
-    from relview import __version__
-
     try:
         versions = client.run(_worker_version)
     except Exception as exc:  # noqa: BLE001 - whatever stops relview running there
@@ -176,13 +175,11 @@ def _unpack_on_worker(bundle: SceneBundle):
 
 
 #: Per worker process: FrameRenderer (with its RenderContext) per scene and settings.
-_WORKER_RENDERERS: dict[tuple[str, str], object] = {}
+_WORKER_RENDERERS: dict[tuple[str, str], FrameRenderer] = {}
 
 
 def render_on_worker(bundle: SceneBundle, white, metadata: dict, index: int, time_s: float):
     """Dask task: render frame ``index`` at ``time_s`` (s) -> RenderedFrame (PNG bytes)."""
-    from relview.animation.batch import FrameRenderer
-
     key = (bundle.digest, metadata.get("animation_settings_sha256", "") + repr(white))
     renderer = _WORKER_RENDERERS.get(key)
     if renderer is None:
@@ -198,7 +195,7 @@ def render_frames(renderer, jobs, cluster) -> Iterator:
     Closing the iterator (or an exception such as Ctrl-C in the caller) cancels the
     frames not yet finished; a ``local:N`` cluster is shut down.
     """
-    from distributed import as_completed
+    from distributed import as_completed  # dask is heavy: imported only to farm out frames
 
     with connect(cluster) as client:
         [bundle] = client.scatter([bundle_scene(renderer.scene)], broadcast=True)

@@ -4,7 +4,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from relview.animation.batch import DEFAULT_WORKERS, animate, parse_frame_range
+from relview.animation.batch import DEFAULT_WORKERS, animate
+from relview.animation.timing import parse_frame_range
 from relview.cli.options import add_frame_options, scene_with_overrides
 from relview.errors import UserError
 
