@@ -44,7 +44,8 @@ def thread_comparison(scene, rounds: int = 2) -> None:
     """
     import numba
 
-    from relview.animation.batch import FrameRenderer, frame_times
+    from relview.animation.timing import frame_times
+    from relview.animation.workers import FrameRenderer
 
     renderer = FrameRenderer(scene, 1.0e6)
     times = frame_times(scene.animation)[:: max(1, scene.animation.frames // 12)]
@@ -71,9 +72,10 @@ def main() -> None:
     ap0 = argparse.ArgumentParser(add_help=False)
     ap0.add_argument("--omp-active", action="store_true")
     if not ap0.parse_known_args()[0].omp_active:
-        # as `relview animate` does (relview.animation.batch.OMP_WAIT_POLICY), before numba loads
+        # as `import relview` does (relview/__init__.py), before numba loads
         os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
-    from relview.animation.batch import FrameRenderer, animate
+    from relview.animation.batch import animate
+    from relview.animation.workers import FrameRenderer
     from relview.scene.model import load_scene
     from relview.scene.parts import Animation
 
