@@ -542,7 +542,7 @@ def child_startup(scene_path: str, out_png: str) -> None:
     from relview.scene import reader as loader
 
     stamps["imported"] = time.time()
-    orig_load, orig_ctx_init, orig_cast = loader.load_scene, renderer.RenderContext.__init__, \
+    orig_load, orig_ctx_init, orig_cast = loader.read_scene_file, renderer.RenderContext.__init__, \
         trace.Tracer.cast
     orig_build = bvh.build_bvh
     durations = {"bvh_build_calls": [], "cast_calls": []}  # seconds of each call
@@ -574,7 +574,7 @@ def child_startup(scene_path: str, out_png: str) -> None:
         stamps.setdefault("first_batch_end", time.time())
         return out
 
-    loader.load_scene = load_scene
+    loader.read_scene_file = load_scene  # relview.scene.model.load_scene reads through it
     renderer.RenderContext.__init__ = ctx_init
     trace.Tracer.cast = cast
     bvh.build_bvh = build_bvh

@@ -1,4 +1,4 @@
-"""Retarded-time solve and light-cone snapshot benchmark (relview.kinematics.motion, relview.geometry.lightcone).
+"""Retarded-time solve and light-cone snapshot benchmark (relview.kinematics, relview.geometry.lightcone).
 
 Run (not part of pytest):
 
@@ -26,16 +26,13 @@ from scipy.optimize import brentq
 
 from relview.geometry.lightcone import snapshot
 from relview.kinematics.lorentz import C
-from relview.kinematics.motion import (
-    HyperbolicMotion,
-    OrbitMotion,
-    PathMotion,
-    RigidKinematics,
-    RollingMotion,
-    SpinMotion,
-    Uniform,
-)
-from relview.scene.parts import Effects, UniformMotion
+from relview.kinematics.hyperbolic import HyperbolicMotion
+from relview.kinematics.orbit import OrbitMotion
+from relview.kinematics.path import PathMotion
+from relview.kinematics.spin import RollingMotion, SpinMotion
+from relview.kinematics.uniform import UniformMotion
+from relview.kinematics.worldline import RigidKinematics
+from relview.scene.parts import Effects
 
 
 def timed(fn, repeats):
@@ -72,7 +69,7 @@ def main():
     rng = np.random.default_rng(1)
     pts = rng.uniform(-1, 1, size=(args.points, 3))
     cam = np.array([5.0, 3.0, -8.0, 2.0])
-    uniform = Uniform(UniformMotion(beta=np.array([0.9, 0.2, 0.0])))
+    uniform = UniformMotion(beta=np.array([0.9, 0.2, 0.0]))
     orbit = OrbitMotion(center=np.zeros(3), radius=10.0, beta=0.6)
     kinds = {
         "uniform (closed form)": (uniform, uniform.retarded),

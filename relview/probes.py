@@ -5,14 +5,8 @@ event whose light reaches the camera at its exposure event, the direction the ca
 sees it in (camera rest frame), its pixel, whether another surface hides it, and its
 Doppler factor.
 
-Uniform motion has a closed form. The point's worldline is x(t) = Y - beta tau with
-tau = c (t_c - t) and Y its position at the camera time; the retarded condition
-|x_c - x| = tau gives the quadratic
-
-    (1 - b^2) tau^2 - 2 (beta.w) tau - w.w = 0,   w = x_c - Y,
-
-whose positive root is tau = (beta.w + sqrt((beta.w)^2 + (1 - b^2) w.w)) / (1 - b^2).
-Other motions use :func:`relview.kinematics.motion` retarded-time solvers.
+The emission events come from the body's motion (``retarded``, one interface for every
+kind; a closed form for inertial motion, relview.kinematics.solvers.inertial_light_delay).
 """
 
 from __future__ import annotations
@@ -22,9 +16,9 @@ from dataclasses import asdict, dataclass
 import numpy as np
 
 from relview.geometry import camera as cam_mod
-from relview.kinematics.lorentz import C, aberrate_to_camera, contract
+from relview.kinematics.lorentz import C, aberrate_to_camera
 from relview.scene.model import Scene
-from relview.scene.parts import Effects, UniformMotion
+from relview.scene.parts import Effects
 
 
 @dataclass
@@ -48,33 +42,10 @@ class ProbeResult:
         return asdict(self)
 
 
-def uniform_retarded(points_rest: np.ndarray, motion: UniformMotion, rotation: np.ndarray,
-                     camera_event: np.ndarray, effects: Effects):
-    """Emission events (N, 4) and velocities (N, 3) of rest-frame points, uniform motion."""
-    beta = np.asarray(motion.beta, float)
-    p = np.atleast_2d(points_rest) @ rotation.T  # body axes -> rest-frame axes
-    offset = contract(p, beta) if effects.contraction else p
-    ct_c = camera_event[0]
-    y = np.asarray(motion.position, float) + offset + beta * (ct_c - C * motion.time)
-    w = camera_event[1:] - y
-    if effects.delay:
-        bw = w @ beta
-        b2 = float(beta @ beta)
-        ww = np.sum(w * w, axis=-1)
-        tau = (bw + np.sqrt(bw * bw + (1.0 - b2) * ww)) / (1.0 - b2)
-    else:
-        tau = np.zeros(len(w))
-    x = y - np.outer(tau, beta)
-    ev = np.concatenate([(ct_c - tau)[:, None], x], axis=-1)
-    return ev, np.broadcast_to(beta, x.shape).copy()
-
-
 def retarded_events(scene: Scene, body_index: int, points_rest: np.ndarray,
                     camera_event: np.ndarray, effects: Effects):
+    """Emission events (N, 4) and velocities (N, 3) of body points given in body axes."""
     body = scene.bodies[body_index]
-    if isinstance(body.motion, UniformMotion):
-        return uniform_retarded(points_rest, body.motion, body.rotation_matrix(), camera_event,
-                                effects)
     p = np.atleast_2d(points_rest) @ body.rotation_matrix().T
     return body.motion.retarded(p, camera_event, delay=effects.delay,
                                 contraction=effects.contraction)

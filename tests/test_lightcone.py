@@ -14,8 +14,9 @@ import trimesh
 
 from relview.geometry.lightcone import snapshot, snapshot_groups
 from relview.geometry.trace import Tracer, uniform_groups
-from relview.kinematics.motion import RollingMotion, Uniform
-from relview.scene.parts import Body, Effects, UniformMotion
+from relview.kinematics.spin import RollingMotion
+from relview.kinematics.uniform import UniformMotion
+from relview.scene.parts import Body, Effects
 
 
 def box_mesh():
@@ -53,7 +54,7 @@ def test_snapshot_converges_to_exact_uniform_method(effects):
     meshes = [(verts @ rot.T, faces)]
     cam = np.array([0.0, 0.5, -2.5, 0.2])
     exact_groups = uniform_groups([body], meshes, effects)
-    corners = Uniform(motion).retarded(meshes[0][0], cam, effects.delay, effects.contraction)[0][:, 1:]
+    corners = motion.retarded(meshes[0][0], cam, effects.delay, effects.contraction)[0][:, 1:]
     d = rays_covering(cam, corners)
     ref = cast(exact_groups, cam, d, effects)
     assert ref.hit.sum() > 300
@@ -68,7 +69,7 @@ def test_snapshot_converges_to_exact_uniform_method(effects):
         # what the tolerance controls: the hit against the exact retarded position of the
         # same body point, seen from the camera (relview.kinematics.motion closed form for uniform motion)
         p = hits.rest_position[both] @ rot.T
-        exact, _ = Uniform(motion).retarded(p, cam, effects.delay, effects.contraction)
+        exact, _ = motion.retarded(p, cam, effects.delay, effects.contraction)
         pointwise = np.linalg.norm(exact[:, 1:] - hits.emit_event[both, 1:], axis=1) / hits.l[both]
         assert pointwise.max() <= tol
         # against the exact caster: depth errors grow as 1/cos(incidence) near grazing rays,
@@ -151,7 +152,7 @@ def test_body_too_large_for_its_motion_is_a_scene_error():
     # A 3 m box on an orbit of radius 1 m at beta = 0.9: its outer points would exceed c
     # (relview.kinematics.motion OrbitMotion.outward_limit, 0.144 m here).
     from relview.errors import SceneError
-    from relview.kinematics.motion import OrbitMotion
+    from relview.kinematics.orbit import OrbitMotion
 
     verts, faces = box_mesh()
     body = Body(name="crate", shape="mesh", surface=None,

@@ -20,10 +20,10 @@ import pytest
 import trimesh
 
 from relview.errors import MeshError, SceneError, UserError
-from relview.scene import reader as loader
+from relview.kinematics.kinds import MOTION_KINDS, register_motion
+from relview.kinematics.uniform import UniformMotion
 from relview.scene.model import Scene, load_scene, scene_from_dict
-from relview.scene.parts import UniformMotion
-from relview.scene.reader import MOTION_KINDS, register_motion
+from relview.scene.table import index_lines
 
 REPO = Path(__file__).resolve().parents[1]
 
@@ -450,7 +450,7 @@ def test_index_lines_follows_tables_and_arrays_of_tables():
         '[camera]\nposition = [0, 0, 0]\n[[body]]\nname = "a"\n[body.surface]\nblackbody = 1\n'
         '[[body]]\n"name" = "b"\nsurface = { line = { nm = 500 } }\nnote = """\nfov = 1\n"""\nshape = "box"\n'
     )
-    lines = loader.index_lines(text)
+    lines = index_lines(text)
     assert lines[("camera", "position")] == 2
     assert lines[("body", 0)] == 3 and lines[("body", 0, "surface", "blackbody")] == 6
     assert lines[("body", 1)] == 7 and lines[("body", 1, "name")] == 8
@@ -1121,7 +1121,7 @@ def test_malformed_spectrum_csv_names_scene_key_and_csv_line(tmp_path):
 
 
 def test_motion_kinds_from_relview_motion_are_registered(tmp_path, fake_materials):
-    pytest.importorskip("relview.kinematics.motion")
+    pytest.importorskip("relview.kinematics.kinds")
     text = replace(
         VALID,
         'kind = "uniform"\nbeta = [0.5, 0.0, 0.0]',

@@ -7,9 +7,10 @@ from scipy.optimize import brentq
 
 import relview
 from relview.kinematics.lorentz import C, lorentz_factor
+from relview.kinematics.uniform import UniformMotion
 from relview.light.materials import Blackbody
 from relview.scene.model import Scene
-from relview.scene.parts import Body, Camera, Effects, RenderSettings, UniformMotion
+from relview.scene.parts import Body, Camera, Effects, RenderSettings
 
 
 def make_scene(bodies, cam_pos=(0.0, -3.0, 0.0), look=(0.0, 0.0, 0.0), cam_beta=(0, 0, 0),

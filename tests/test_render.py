@@ -9,9 +9,10 @@ import pytest
 import relview
 from relview.cli.app import main
 from relview.kinematics.lorentz import C
+from relview.kinematics.uniform import UniformMotion
 from relview.light.materials import Blackbody
 from relview.scene.model import Scene
-from relview.scene.parts import Body, Camera, Effects, RenderSettings, UniformMotion
+from relview.scene.parts import Body, Camera, Effects, RenderSettings
 
 ROOT = Path(__file__).resolve().parents[1]
 SCENES = sorted((ROOT / "scenes").glob("*.toml"))

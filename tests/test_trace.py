@@ -6,7 +6,8 @@ import trimesh
 
 from relview.geometry.trace import Tracer, uniform_groups
 from relview.kinematics.lorentz import lorentz_factor
-from relview.scene.parts import Body, Effects, UniformMotion
+from relview.kinematics.uniform import UniformMotion
+from relview.scene.parts import Body, Effects
 
 
 def tracer_for(meshes, betas, positions=None, effects=Effects()):

@@ -127,11 +127,9 @@ def cmd_check(args) -> int:
 
     check_memory(w, h, source=f"{args.scene}: render.resolution")
     from relview.geometry import lightcone, shapes
-    from relview.scene.parts import UniformMotion
-
     for i, body in enumerate(scene.bodies):
         # every point of a body on a non-uniform worldline must stay below c
-        if not isinstance(body.motion, UniformMotion):
+        if not body.motion.is_inertial:
             lightcone.check_body_speed(scene, i, shapes.mesh_data(body).vertices)
     print(f"{args.scene}: ok  ({len(scene.bodies)} bodies, {w}x{h}, "
           f"about {estimate_bytes(w, h) / 2**20:.0f} MiB per frame)")

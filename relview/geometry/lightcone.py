@@ -2,7 +2,7 @@
 
 For one exposure event E = (ct_c, x_c), every point p of a body is seen where it was
 when the light reaching E left it: the retarded event of p
-(:meth:`relview.kinematics.motion.RigidKinematics.retarded`). Replacing each vertex of the body's
+(:meth:`relview.kinematics.worldline.RigidKinematics.retarded`). Replacing each vertex of the body's
 rest-frame mesh by its retarded position gives a static triangle mesh in the scene
 frame S, the *snapshot*. A backward null ray from E that meets the snapshot at path
 length l meets it at the event (ct_c - l, x_c + l d), which for a vertex is exactly its
@@ -33,7 +33,6 @@ from dataclasses import dataclass
 import numpy as np
 
 from relview.geometry.trace import FrameGroup
-from relview.kinematics.motion import as_kinematics
 
 #: Default interpolation tolerance (radians as seen from the camera, and beta) when no
 #: scene is at hand. A 960-pixel-wide 60 degree image has 1.1e-3 rad pixels.
@@ -223,7 +222,7 @@ def snapshot(motion, vertices, faces, camera_event, effects, tolerance: float = 
     result (``segments`` is 0 for the adaptive mesh). Faces with a vertex that no light
     from reaches the camera (NaN) are dropped.
     """
-    kin = as_kinematics(motion)
+    kin = motion
     vertices = np.asarray(vertices, float)
     faces = np.asarray(faces, np.int64)
     cam = np.asarray(camera_event, float).reshape(4)
@@ -243,13 +242,13 @@ def snapshot(motion, vertices, faces, camera_event, effects, tolerance: float = 
 
 def check_body_speed(scene, index: int, vertices) -> None:
     """Reject a body some point of which would move at or above c under its motion
-    (:meth:`relview.kinematics.motion.RigidKinematics.validate` over the mesh's radius), as a
+    (:meth:`relview.kinematics.worldline.RigidKinematics.validate` over the mesh's radius), as a
     SceneError naming the scene file and the body."""
     from relview.errors import SceneError
 
     body = scene.bodies[index]
     extent = float(np.sqrt((np.asarray(vertices, float) ** 2).sum(axis=1).max())) if len(vertices) else 0.0
-    kin = as_kinematics(body.motion)
+    kin = body.motion
     if getattr(kin, "_validated_extent", -1.0) >= extent:  # done for an earlier frame
         return
     try:

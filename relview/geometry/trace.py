@@ -35,7 +35,7 @@ import numpy as np
 from numba import njit, prange
 
 from relview.geometry import bvh as bvh_mod
-from relview.kinematics.lorentz import C, boost_matrix, doppler_along, galilean_matrix
+from relview.kinematics.lorentz import boost_matrix, doppler_along, galilean_matrix
 from relview.scene.parts import Effects
 
 
@@ -359,27 +359,25 @@ def uniform_groups(bodies, meshes, effects: Effects, indices=None) -> list[Frame
 
     ``meshes[i]`` is body i's rest-frame mesh (vertices (V,3) relative to the body origin,
     along the rest-frame axes, i.e. with the body rotation already applied; faces (F,3)).
-    ``indices`` restricts to those bodies. Hit points are reported in body axes.
+    ``indices`` restricts to those bodies (default: every body whose motion is inertial).
+    Hit points are reported in body axes.
     """
-    from relview.scene.parts import UniformMotion
-
     if indices is None:
-        indices = [i for i, b in enumerate(bodies) if isinstance(b.motion, UniformMotion)]
+        indices = [i for i, b in enumerate(bodies) if b.motion.is_inertial]
+    frames = {i: bodies[i].motion.inertial_frame() for i in indices}  # (beta, origin event)
     by_beta: dict[tuple, list[int]] = {}
     for i in indices:
-        key = tuple(float(x) for x in np.asarray(bodies[i].motion.beta, float))
+        key = tuple(float(x) for x in np.asarray(frames[i][0], float))
         by_beta.setdefault(key, []).append(i)
     groups = []
     for key, members in by_beta.items():
         beta = np.array(key)
         m = frame_matrix(beta, effects)
-        first = bodies[members[0]].motion
-        e0 = np.concatenate([[C * first.time], np.asarray(first.position, float)])
+        e0 = np.asarray(frames[members[0]][1], float)
         verts, faces, fbody, flocal, offs, rots = [], [], [], [], [], []
         nv = 0
         for i in members:
-            mot = bodies[i].motion
-            eb = np.concatenate([[C * mot.time], np.asarray(mot.position, float)])
+            eb = np.asarray(frames[i][1], float)
             off = (m @ (eb - e0))[1:]  # body origin, static in the frame
             rot = bodies[i].rotation_matrix()
             v, f = meshes[i]

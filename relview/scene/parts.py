@@ -48,7 +48,7 @@ class Camera:
     time: float = 0.0  # s, scene-frame time of the exposure
     beta: np.ndarray = field(default_factory=lambda: np.zeros(3))  # velocity / c
     projection: str = "pinhole"  # pinhole | panorama | fisheye
-    # Optional worldline of the camera (any motion kind of relview.kinematics.motion); when given,
+    # Optional worldline of the camera (any motion kind, relview.kinematics.kinds); when given,
     # position and beta follow it and `position` holds its place at `time`.
     motion: Any = None
 
@@ -73,20 +73,10 @@ class Camera:
 
 
 @dataclass
-class UniformMotion:
-    """Inertial worldline: the body origin is at ``position`` at scene time ``time``."""
-
-    beta: np.ndarray = field(default_factory=lambda: np.zeros(3))
-    position: np.ndarray = field(default_factory=lambda: np.zeros(3))  # m
-    time: float = 0.0  # s
-    kind: str = "uniform"
-
-
-@dataclass
 class Body:
     name: str
     shape: str  # box | sphere | cylinder | plane | mesh
-    motion: Any  # UniformMotion or a motion from relview.kinematics.motion
+    motion: Any  # any motion kind (relview.kinematics.kinds)
     surface: Any  # a surface from relview.light.materials
     size: np.ndarray | None = None  # (3,) m box, (2,) m plane
     radius: float | None = None  # m, sphere and cylinder
