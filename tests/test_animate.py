@@ -378,6 +378,7 @@ def test_command_line(scene_file, tmp_path, capsys):
     assert "reversed" in capsys.readouterr().err
 
 
+@pytest.mark.slow  # starts a pool of worker processes
 def test_worker_processes_give_the_same_bytes(scene_file, tmp_path):
     one = run(scene_file, tmp_path / "one", workers=None)  # the default: this process
     assert one.backend == "1 process"
@@ -391,6 +392,7 @@ def test_worker_processes_give_the_same_bytes(scene_file, tmp_path):
 # ----------------------------------------------------------------------------- killed batch
 
 
+@pytest.mark.slow  # starts and kills a relview process
 def test_killed_batch_resumes(tmp_path):
     """SIGKILL after the first frame lands; the rerun finishes and keeps what was there."""
     scene_file = write_scene(tmp_path / "brick.toml", frames=20)
@@ -433,6 +435,7 @@ def test_killed_batch_resumes(tmp_path):
         assert after[name] == stamp, f"{name} was redone"
 
 
+@pytest.mark.slow  # starts two relview processes
 def test_pieces_of_a_job_array_share_one_directory(tmp_path):
     """Two pieces run at the same time into one directory keep each other's records."""
     scene_file = write_scene(tmp_path / "brick.toml", frames=8)

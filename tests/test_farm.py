@@ -57,6 +57,7 @@ def test_parse_cluster():
             farm.parse_cluster(bad)
 
 
+@pytest.mark.slow  # starts a Dask cluster
 def test_cluster_frames_are_byte_identical_to_local(local_frames, scheduler, tmp_path):
     scene_file, local = local_frames
     assert scheduler.startswith("tcp://127.0.0.1:")
@@ -69,6 +70,7 @@ def test_cluster_frames_are_byte_identical_to_local(local_frames, scheduler, tmp
         assert (tmp_path / "dask" / name).read_bytes() == (local / name).read_bytes(), name
 
 
+@pytest.mark.slow  # starts a Dask cluster
 def test_cluster_run_resumes(local_frames, scheduler, tmp_path, monkeypatch):
     scene_file, local = local_frames
     out = tmp_path / "dask"
