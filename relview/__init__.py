@@ -1,6 +1,9 @@
 """relview: ray-traced apparent images of relativistically moving bodies.
 
 Public names (docs/scene-format.md): ``load_scene``, ``Scene``, ``render``, ``probe``.
+``render`` and ``probe`` are the real functions of :mod:`relview.renderer` and
+:mod:`relview.probes` (their signatures and docstrings show in ``help``), loaded on first
+use so that ``import relview`` stays light (the compiled kernels load with them).
 """
 
 import os
@@ -17,28 +20,28 @@ try:
 except PackageNotFoundError:  # running from a source tree that is not installed
     __version__ = "0.0.0+source"
 
-from relview.scene.model import Scene  # noqa: E402
+from relview.scene.model import Scene, load_scene  # noqa: E402
+
+#: public name -> (module, attribute), imported on first access (PEP 562)
+_LAZY = {
+    "render": ("relview.renderer", "render"),
+    "probe": ("relview.probes", "probe"),
+}
 
 
-def load_scene(path):
-    """Read and validate a TOML scene file -> Scene (relview.scene.reader.load_scene)."""
-    from relview.scene.model import load_scene as _load
+def __getattr__(name):
+    if name in _LAZY:
+        import importlib
 
-    return _load(path)
-
-
-def render(scene, *args, **kwargs):
-    """Render one exposure -> Frame with .image, .layers, .save() (relview.renderer.render)."""
-    from relview.renderer import render as _render
-
-    return _render(scene, *args, **kwargs)
+        module, attribute = _LAZY[name]
+        value = getattr(importlib.import_module(module), attribute)
+        globals()[name] = value  # later lookups skip this function
+        return value
+    raise AttributeError(f"module 'relview' has no attribute {name!r}")
 
 
-def probe(scene, body, point, *args, **kwargs):
-    """Apparent time, place, direction, pixel, visibility and D of one body point."""
-    from relview.probes import probe as _probe
-
-    return _probe(scene, body, point, *args, **kwargs)
+def __dir__():
+    return sorted(list(globals()) + list(_LAZY))
 
 
 __all__ = ["Scene", "load_scene", "render", "probe", "__version__"]

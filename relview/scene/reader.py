@@ -27,6 +27,7 @@ from typing import Any
 import numpy as np
 
 from relview.errors import MeshError, SceneError, UserError
+from relview.geometry.shapes import MAX_COORDINATE, MAX_DETAIL, SHAPES, load_mesh_file
 from relview.kinematics.lorentz import C
 from relview.kinematics.uniform import UniformMotion
 from relview.scene.parts import (
@@ -42,7 +43,6 @@ from relview.scene.table import Table, _Document, _type_name, show
 #: newest scene-file ``format`` this version reads
 SUPPORTED_FORMAT = 1
 
-SHAPES = ("box", "sphere", "cylinder", "plane", "mesh")
 PROJECTIONS = ("pinhole", "panorama", "fisheye")
 BACKGROUND_KINDS = ("black", "stars", "graticule")
 SURFACE_KINDS = ("blackbody", "line", "lines", "spectrum", "color", "pattern")
@@ -50,7 +50,7 @@ PATTERN_KINDS = ("checks", "grid")
 LAMPS = ("D65",)  # named lamps besides a blackbody temperature in K
 
 #: tessellation levels accepted for ``body.detail`` (see relview.geometry.shapes)
-DETAIL_RANGE = (0, 7)
+DETAIL_RANGE = (0, MAX_DETAIL)
 
 # Upper limits of counts that size arrays or loops, so an extra digit is an error
 # message instead of running out of memory (all stars are held at once, about 200
@@ -476,8 +476,6 @@ def _parse_body(t: Table, index: int, seen: dict[str, int]) -> Body:
         body.center = t.boolean("center", True)
         body.file = t.path_value("file", what="mesh file")
         _check_mesh(t, body)
-    from relview.geometry.shapes import MAX_COORDINATE
-
     for key in ("size", "radius", "height"):
         value = getattr(body, key, None)
         if value is not None and np.max(value) > MAX_COORDINATE:
@@ -495,8 +493,6 @@ def _parse_body(t: Table, index: int, seen: dict[str, int]) -> Body:
 
 def _check_mesh(t: Table, body: Body) -> None:
     """Read the mesh now, so a bad file is reported by `relview check` too."""
-    from relview.geometry.shapes import load_mesh_file
-
     try:
         load_mesh_file(body.file, scale=body.scale, center=body.center)
     except MeshError as exc:
