@@ -7,7 +7,7 @@ Pipeline for one exposure event (docs/physics.md):
 3. backward null rays from the exposure event, first hit per ray (trace.py);
 4. Doppler factor of each hit from the emitter's and the camera's velocities;
 5. observed CIE XYZ from the body's surface (materials.py) or from the sky (sky.py);
-6. exposure to linear sRGB (film.py).
+6. exposure to linear sRGB (relview.imaging.exposure).
 """
 
 from __future__ import annotations
@@ -20,6 +20,8 @@ import numpy as np
 
 from relview.geometry import camera as cam_mod
 from relview.geometry.trace import Hits, Tracer, uniform_groups
+from relview.imaging.exposure import expose, exposure_white
+from relview.imaging.formats import frame_format
 from relview.kinematics.lorentz import C
 from relview.scene.model import Scene
 from relview.scene.parts import Effects, UniformMotion
@@ -46,27 +48,13 @@ class Frame:
         """Write by extension: .png (8 or 16 bit sRGB), .npz (float layers), .exr if available.
 
         An existing file is never replaced unless ``overwrite``: a numbered name is used.
-        Returns the path written. ``tone``: "none" (clip) or "reinhard" (film.py);
-        default: the scene's render.tone.
+        Returns the path written. ``tone``: "none" (clip) or "reinhard"
+        (relview.imaging.display); default: the scene's render.tone. The writers are
+        registered by extension in relview.imaging.formats.
         """
-        from relview.imaging import film
-
         path = Path(path)
-        ext = path.suffix.lower()
-        if ext == ".png":
-            return film.write_png(path, self.image, bits=bits, metadata=self.metadata,
-                                  tone=tone or self.tone, overwrite=overwrite)
-        if ext == ".npz":
-            layers = dict(self.layers)
-            layers["image"] = self.image
-            return film.write_layers_npz(path, layers, metadata=self.metadata,
-                                         overwrite=overwrite)
-        if ext == ".exr":
-            return film.write_exr(path, self.image, self.layers, metadata=self.metadata,
-                                  overwrite=overwrite)
-        from relview.errors import OutputError
-
-        raise OutputError(f"{path}: unknown image type {ext!r}; use .png, .npz or .exr")
+        return frame_format(path).write(self, path, bits=bits, tone=tone or self.tone,
+                                        overwrite=overwrite)
 
 
 class RenderContext:
@@ -210,7 +198,6 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
            exposure=None, effects: Effects | None = None, context: RenderContext | None = None,
            progress: bool = False) -> Frame:
     """Render one exposure of ``scene`` at scene time ``time`` (default: camera.time)."""
-    from relview.imaging import film
     from relview.light import sky
 
     width, height = resolution or scene.render.resolution
@@ -298,8 +285,8 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
     if stars is not None:
         xyz_img = xyz_img + stars
     lit = np.any(xyz_img > 0, axis=-1)
-    white = film.exposure_white(xyz_img, lit, exposure)
-    image = film.expose(xyz_img, white)
+    white = exposure_white(xyz_img, lit, exposure)
+    image = expose(xyz_img, white)
     layers = {
         "xyz": xyz_img,
         "doppler": layer_d.reshape(height, width),

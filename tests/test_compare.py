@@ -10,6 +10,7 @@ from PIL import Image
 
 from relview.cli import app as cli
 from relview.errors import OutputError, UserError
+from relview.figures import layer_maps
 from relview.figures import sheets as compare
 from relview.kinematics.lorentz import C
 from relview.scene.model import Scene
@@ -202,16 +203,16 @@ def test_doppler_map_shows_the_transverse_shift(tmp_path):
     # Seen at right angles at emission (n perpendicular to beta in S) D = 1 / gamma,
     # the transverse Doppler shift (physics.md check; Rybicki & Lightman eq. 4.11).
     scene = box_scene()
-    out, side, values = compare.layer_map(scene, "doppler", tmp_path / "d.png", DIST / C)
+    out, side, values = layer_maps.layer_map(scene, "doppler", tmp_path / "d.png", DIST / C)
     centre = values[HEIGHT_PX // 2, WIDTH_PX // 2]
     assert centre == pytest.approx(1.0 / GAMMA, rel=1e-4)
     assert Image.open(out).text["layer"] == "doppler"
     assert json.loads(side.read_text())["scene_sha256"] == scene.source_hash
     # light delay in ns: the near face is d - depth/2 away, delay = distance / c
-    _, _, delay = compare.layer_map(scene, "delay", tmp_path / "t.svg", DIST / C)
+    _, _, delay = layer_maps.layer_map(scene, "delay", tmp_path / "t.svg", DIST / C)
     assert np.nanmin(delay) == pytest.approx((DIST - DEPTH / 2) / C * 1e9, rel=1e-6)
     with pytest.raises(UserError, match="unknown layer"):
-        compare.layer_map(scene, "speed", tmp_path / "x.png")
+        layer_maps.layer_map(scene, "speed", tmp_path / "x.png")
 
 
 def test_compare_command(tmp_path, capsys):

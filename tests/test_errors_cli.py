@@ -23,7 +23,7 @@ import numpy as np
 import pytest
 import trimesh
 
-import relview.imaging.film
+import relview.imaging.files
 import relview.renderer
 import relview.scene.reader
 from relview.cli.app import main
@@ -498,7 +498,7 @@ def test_unwritable_directory_is_clear(tmp_path, capsys, monkeypatch):
             raise PermissionError(errno.EACCES, "Permission denied", str(file))
         return real_open(file, mode, *args, **kwargs)
 
-    monkeypatch.setattr(relview.imaging.film, "open", refusing_open, raising=False)
+    monkeypatch.setattr(relview.imaging.files, "open", refusing_open, raising=False)
     scene = write(tmp_path, SCENE)
     code, _, err = _render(capsys, scene, tmp_path / "o.png")
     assert_user_error(code, err, f"{tmp_path / 'o.png'}: cannot write the output file: "

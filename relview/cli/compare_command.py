@@ -6,7 +6,6 @@ import math
 from pathlib import Path
 
 from relview.cli.options import (
-    FIGURE_TYPES,
     add_frame_options,
     check_output_path,
     default_output,
@@ -14,14 +13,16 @@ from relview.cli.options import (
     scene_with_overrides,
 )
 from relview.errors import UserError
-from relview.figures.sheets import DEFAULT_PANELS, LAYERS, PANELS, compare_sheet, layer_map
+from relview.figures.layer_maps import LAYERS, layer_map
+from relview.figures.sheets import DEFAULT_PANELS, PANELS, compare_sheet
+from relview.imaging.formats import FIGURE_FORMATS, figure_type_hint
 
 
 def cmd_compare(args) -> int:
     scene = scene_with_overrides(args)
     if args.layer:
         out = Path(args.output) if args.output else default_output(args.scene, f"-{args.layer}.png")
-        check_output_path(out, FIGURE_TYPES)
+        check_output_path(out, FIGURE_FORMATS)
         written, side, _ = layer_map(
             scene,
             args.layer,
@@ -46,7 +47,7 @@ def cmd_compare(args) -> int:
             "(docs/figures.md); choose panels with --panels, e.g. --panels measured,delay-only"
         )
     out = Path(args.output) if args.output else default_output(args.scene, "-compare.png")
-    check_output_path(out, FIGURE_TYPES)
+    check_output_path(out, FIGURE_FORMATS)
     sheet = compare_sheet(
         scene,
         args.time,
@@ -80,8 +81,7 @@ def register(subparsers) -> None:
         "-o",
         "--output",
         metavar="FILE",
-        help="figure: .png (slides), .pdf or .svg (papers); a FILE.json sidecar "
-        "is written beside it",
+        help=f"figure: {figure_type_hint()}; a FILE.json sidecar is written beside it",
     )
     p.add_argument("--time", type=finite_time, metavar="S", help="exposure time (s), scene frame")
     p.add_argument(

@@ -1,7 +1,8 @@
 """Options and helpers shared by the commands (render, probe, animate, compare).
 
 Argument types for argparse, the frame options every rendering command takes, the scene
-loaded with those overrides, and the checks on output paths made before any work.
+loaded with those overrides, and the check on output paths made before any work
+(relview.imaging.formats).
 """
 
 from __future__ import annotations
@@ -11,8 +12,8 @@ import dataclasses
 import math
 from pathlib import Path
 
-from relview.errors import OutputError, UserError
-from relview.imaging import film
+from relview.errors import UserError
+from relview.imaging import formats
 from relview.renderer import check_memory
 from relview.scene.model import load_scene
 from relview.scene.reader import MAX_SAMPLES
@@ -113,25 +114,7 @@ def default_output(scene_path: str, suffix: str) -> Path:
     return Path("outputs") / (Path(scene_path).stem + suffix)
 
 
-IMAGE_TYPES = (".png", ".npz", ".exr")
-FIGURE_TYPES = (".png", ".pdf", ".svg")
-
-
-def check_output_path(path: Path, types=IMAGE_TYPES) -> None:
-    """Refuse, before any rendering, an output path that could never be written.
-
-    The same reasons the writers in film.py give, found early so no work is lost.
-    """
-    ext = path.suffix.lower()
-    if ext not in types:
-        raise OutputError(f"unknown file type {ext!r}; use {', '.join(types)}", file=path)
-    if ext == ".exr" and not film.exr_available():
-        raise OutputError("cannot write .exr: no OpenEXR writer is installed; use .png or "
-                          ".npz", file=path)
-    film.safe_output_path(path)  # raises when the path is a directory
-    for parent in path.absolute().parents:
-        if parent.exists():
-            if not parent.is_dir():
-                raise OutputError(f"cannot create the directory: {parent} is a file, not a "
-                                  "directory", file=path)
-            break
+#: The check every command makes on its output path before any work. The output types
+#: and the check live with the writers (relview.imaging.formats: FRAME_FORMATS, the
+#: default, and FIGURE_FORMATS); the commands take it from here with their other helpers.
+check_output_path = formats.check_output_path

@@ -1,4 +1,4 @@
-"""Comparison sheets and false-colour layer maps: the figures that go into papers.
+"""Comparison sheets: one exposure event rendered with different effects, side by side.
 
 A *sheet* shows one exposure event of a scene as several labelled panels side by
 side, each a render of the same camera at the same scene time with a different set
@@ -15,11 +15,10 @@ of effects (docs/figures.md defines every panel precisely):
 * ``delay-only``, ``aberration-only``, ``doppler-only``, ``beaming-only``: the
   ``measured`` panel with exactly that one effect switched on.
 
-A *layer map* shows one data layer of a render (Doppler factor, light delay, body
-index, ...) in false colour with a labelled colour bar (film.save_layer_figure).
-
 Every file carries provenance: scene hash, relview version and settings, in the PNG
-text chunks or PDF/SVG metadata, and in a JSON sidecar next to the figure.
+text chunks or PDF/SVG metadata, and in a JSON sidecar next to the figure
+(relview.imaging.figure_files). False-colour maps of one data layer are in
+relview.figures.layer_maps.
 """
 
 from __future__ import annotations
@@ -31,7 +30,10 @@ from pathlib import Path
 
 import numpy as np
 
-from relview.errors import OutputError, UserError
+from relview.errors import UserError
+from relview.imaging.display import to_8bit
+from relview.imaging.figure_files import save_figure
+from relview.imaging.formats import figure_format
 from relview.kinematics.lorentz import C, lorentz_factor
 from relview.scene.model import Scene
 from relview.scene.parts import Effects, UniformMotion
@@ -307,7 +309,8 @@ class Sheet:
         raise KeyError(name)
 
 
-def _panel_scene(scene: Scene, kind: PanelKind, time_s: float) -> Scene:
+def panel_scene(scene: Scene, kind: PanelKind, time_s: float) -> Scene:
+    """The scene a panel of this kind renders: the rest scene for "rest", else ``scene``."""
     return rest_scene(scene, time_s) if kind.at_rest else scene
 
 
@@ -362,7 +365,7 @@ def render_panels(
         white = float(scene.render.exposure)
     elif exposure == "held" and all(k.effects.doppler or k.effects.beaming for k in kinds):
         white = render(
-            _panel_scene(scene, PANELS["rest"], t),
+            panel_scene(scene, PANELS["rest"], t),
             t,
             resolution=res,
             effects=PANELS["rest"].effects,
@@ -375,7 +378,7 @@ def render_panels(
         bar = tqdm(total=len(kinds), desc="panels", unit="panel", leave=False)
     for i in order:
         kind = kinds[i]
-        s = _panel_scene(scene, kind, t)
+        s = panel_scene(scene, kind, t)
         context = RenderContext(s, kind.effects)
         setting = scene.render.exposure if (exposure == "each" or white is None) else white
         frame = render(
@@ -436,17 +439,6 @@ def sheet_provenance(sheet: Sheet) -> dict:
 # --------------------------------------------------------------------------- drawing
 
 
-def _figure_format(path: Path) -> str:
-    fmt = path.suffix.lstrip(".").lower()
-    if fmt not in ("png", "pdf", "svg"):
-        raise OutputError(
-            f"unknown figure type {path.suffix or '(none)'!r}; "
-            "use .png (slides), .pdf or .svg (papers)",
-            file=path,
-        )
-    return fmt
-
-
 def _draw_scale_bar(ax, mpp: float, width: int, height: int) -> None:
     """A bar of a round length in the lower left, about a quarter of the panel wide."""
     length = nice_length(0.3 * width * mpp)
@@ -468,13 +460,14 @@ def _draw_scale_bar(ax, mpp: float, width: int, height: int) -> None:
     )
 
 
-def _time_text(t: float) -> str:
+def time_text(t: float) -> str:
+    """The exposure time as printed on figures: seconds and nanoseconds."""
     return f"t = {t:.6g} s ({t * 1e9:.4g} ns)" if t else "t = 0 s"
 
 
 def _speed_text(sheet: Sheet, panel: Panel) -> str:
     """Per-panel line: time, and the main body's speed (or that it is shown at rest)."""
-    text = _time_text(sheet.time)
+    text = time_text(sheet.time)
     if sheet.main_body:
         b = float(np.linalg.norm(sheet.beta))
         speed = f"beta = {b:.4g}, gamma = {sheet.gamma:.4g}"
@@ -489,8 +482,6 @@ def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
     """A matplotlib Figure of the sheet: panels side by side (wrapping after ``columns``)."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
-
-    from relview.imaging import film
 
     n = len(sheet.panels)
     ncol = min(n, columns)
@@ -507,7 +498,7 @@ def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
     for ax in axes.ravel()[n:]:
         ax.set_axis_off()
     for ax, p in zip(axes.ravel(), sheet.panels):
-        ax.imshow(film.to_8bit(p.frame.image, tone), interpolation="nearest")
+        ax.imshow(to_8bit(p.frame.image, tone), interpolation="nearest")
         ax.set_xticks([])
         ax.set_yticks([])
         expo = (
@@ -528,7 +519,7 @@ def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
         if math.isfinite(p.metres_per_pixel):
             _draw_scale_bar(ax, p.metres_per_pixel, w, h)
     b = np.linalg.norm(sheet.beta)
-    head = f"{sheet.scene.title + ': ' if sheet.scene.title else ''}{_time_text(sheet.time)}"
+    head = f"{sheet.scene.title + ': ' if sheet.scene.title else ''}{time_text(sheet.time)}"
     if sheet.main_body:
         head += (
             f";  {sheet.main_body}: beta = {b:.4g}, gamma = {sheet.gamma:.4g};  "
@@ -541,28 +532,6 @@ def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
     )
     fig.supxlabel(foot, x=0.995, ha="right", fontsize=6, color="0.4")
     return fig
-
-
-def _sidecar_path(path: Path) -> Path:
-    return path.with_name(path.name + ".json")
-
-
-def save_figure(fig, path, metadata: dict, overwrite: bool = False) -> tuple[Path, Path]:
-    """Write a matplotlib figure (format by extension) and its JSON sidecar, atomically.
-
-    Returns (figure path, sidecar path); numbered names are used instead of replacing
-    existing files unless ``overwrite``.
-    """
-    from relview.imaging import film
-
-    path = Path(path)
-    fmt = _figure_format(path)
-    meta = film.figure_metadata(fmt, metadata)
-    written = film._atomic_write(
-        path, lambda fh: fig.savefig(fh, format=fmt, metadata=meta), overwrite
-    )
-    side = film.write_json_sidecar(_sidecar_path(written), metadata, overwrite=overwrite)
-    return written, side
 
 
 def compare_sheet(
@@ -584,7 +553,7 @@ def compare_sheet(
     ``<out>.json`` holds the provenance. Returns the :class:`Sheet`.
     """
     if out is not None:
-        _figure_format(Path(out))  # refuse a bad extension before rendering
+        figure_format(Path(out))  # refuse a bad extension before rendering
     sheet = render_panels(
         scene, time, panels, resolution=resolution, exposure=exposure, body=body, progress=progress
     )
@@ -594,148 +563,8 @@ def compare_sheet(
     return sheet
 
 
-# --------------------------------------------------------------------------- layer maps
-
-
-@dataclass(frozen=True)
-class LayerView:
-    """How one data layer is shown: label, unit, scale and colour map."""
-
-    label: str
-    unit: str
-    log: bool
-    cmap: str
-    note: str
-
-
-LAYERS: dict[str, LayerView] = {
-    "doppler": LayerView(
-        "Doppler factor D = nu_obs / nu_emit",
-        "",
-        True,
-        "RdBu",
-        "blue: approaching (D > 1), red: receding (D < 1)",
-    ),
-    "delay": LayerView(
-        "light delay t_exposure - t_emit",
-        "ns",
-        False,
-        "viridis",
-        "time light took from the surface to the camera",
-    ),
-    "emit_time": LayerView(
-        "emission time t_emit - t_exposure",
-        "ns",
-        False,
-        "viridis",
-        "scene-frame time the light left the surface",
-    ),
-    "distance": LayerView(
-        "distance to the emission point",
-        "m",
-        False,
-        "viridis",
-        "scene frame, from the camera at the exposure event",
-    ),
-    "body": LayerView("body index", "", False, "tab10", "which body each pixel sees"),
-    "luminance": LayerView("luminance Y", "cd/m2", True, "magma", "CIE 1931 Y, observed"),
-}
-
-
-def layer_values(frame, layer: str, camera_position: np.ndarray) -> np.ndarray:
-    """(H, W) float values of the named map layer from a Frame (NaN where nothing)."""
-    L = frame.layers
-    if layer == "doppler":
-        return np.asarray(L["doppler"], float)
-    if layer == "delay":
-        return (frame.time - np.asarray(L["emit_time"], float)) * 1e9
-    if layer == "emit_time":
-        return (np.asarray(L["emit_time"], float) - frame.time) * 1e9
-    if layer == "distance":
-        return np.linalg.norm(np.asarray(L["emit_position"], float) - camera_position, axis=-1)
-    if layer == "body":
-        b = np.asarray(L["body"], float)
-        return np.where(b >= 0, b, np.nan)
-    if layer == "luminance":
-        y = np.asarray(L["xyz"], float)[..., 1]
-        return np.where(y > 0, y, np.nan)
-    raise UserError(f"--layer {layer!r}: unknown layer; choose from: {', '.join(LAYERS)}")
-
-
-def layer_map(
-    scene: Scene,
-    layer: str,
-    out,
-    time: float | None = None,
-    *,
-    panel: str | None = None,
-    resolution=None,
-    overwrite: bool = False,
-    vmin: float | None = None,
-    vmax: float | None = None,
-    progress: bool = False,
-) -> tuple[Path, Path, np.ndarray]:
-    """Render once and write a false-colour map of ``layer`` with a labelled colour bar.
-
-    ``panel``: render with that panel's effects (and rest scene for "rest"); default:
-    the scene's own effects. Returns (figure path, sidecar path, (H, W) values).
-    """
-    from relview.imaging import film
-    from relview.renderer import camera_state, render
-
-    if layer not in LAYERS:
-        raise UserError(f"--layer {layer!r}: unknown layer; choose from: {', '.join(LAYERS)}")
-    view = LAYERS[layer]
-    out = Path(out)
-    _figure_format(out)  # refuse a bad extension before rendering
-    t = scene.camera.time if time is None else float(time)
-    if panel is not None:
-        kind = panel_kind(panel)
-        s, effects = _panel_scene(scene, kind, t), kind.effects
-    else:
-        s, effects = scene, scene.render.effects
-    frame = render(s, t, resolution=resolution, effects=effects, progress=progress)
-    values = layer_values(frame, layer, camera_state(s, t)[0][1:])
-    if layer == "doppler" and vmin is None and vmax is None:
-        finite = values[np.isfinite(values) & (values > 0)]
-        # symmetric on the log axis about D = 1, so white means no shift
-        m = float(np.max(np.abs(np.log(finite)))) if finite.size else 0.0
-        m = max(m, math.log(1.01))
-        vmin, vmax = math.exp(-m), math.exp(m)
-    if layer == "body" and vmin is None and vmax is None:
-        vmin, vmax = -0.5, 9.5  # tab10 has ten colours: one per body index 0..9
-    title = f"{scene.title + ': ' if scene.title else ''}{layer}, {_time_text(t)}"
-    if panel is not None:
-        title += f" ({panel_kind(panel).name})"
-    meta = dict(frame.metadata)
-    meta.update(
-        {
-            "title": f"relview layer map: {layer}",
-            "layer": layer,
-            "layer_unit": view.unit,
-            "layer_note": view.note,
-            "panel": panel_kind(panel).name if panel else "",
-        }
-    )
-    written = film.save_layer_figure(
-        out,
-        values,
-        view.label,
-        view.unit,
-        view.log,
-        vmin=vmin,
-        vmax=vmax,
-        cmap=view.cmap,
-        title=title,
-        overwrite=overwrite,
-        metadata=meta,
-    )
-    side = film.write_json_sidecar(_sidecar_path(written), meta, overwrite=overwrite)
-    return written, side, values
-
 __all__ = [
     "DEFAULT_PANELS",
-    "LAYERS",
     "PANELS",
     "Panel",
     "PanelKind",
@@ -743,17 +572,16 @@ __all__ = [
     "body_state",
     "compare_sheet",
     "draw_sheet",
-    "layer_map",
-    "layer_values",
     "main_body_index",
     "metres_per_pixel",
     "nice_length",
     "panel_kind",
+    "panel_scene",
     "parse_panels",
     "render_panels",
     "rest_pose",
     "rest_scene",
-    "save_figure",
     "scale_distance",
     "sheet_provenance",
+    "time_text",
 ]

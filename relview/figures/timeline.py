@@ -28,6 +28,9 @@ from pathlib import Path
 import numpy as np
 
 from relview.errors import OutputError, UserError
+from relview.imaging.figure_files import save_figure
+from relview.imaging.files import atomic_write
+from relview.imaging.formats import FIGURE_FORMATS, figure_type_hint
 from relview.scene.model import Scene
 from relview.scene.parts import Effects
 
@@ -265,9 +268,7 @@ def _csv_text(rows: list[dict], columns: dict, metadata: dict, what: str) -> str
 
 
 def _write_text(path, text: str, overwrite: bool) -> Path:
-    from relview.imaging import film
-
-    return film._atomic_write(path, lambda fh: fh.write(text.encode("utf-8")), overwrite)
+    return atomic_write(path, lambda fh: fh.write(text.encode("utf-8")), overwrite)
 
 
 def length_csv_path(path) -> Path:
@@ -468,12 +469,11 @@ def draw_table(table: ProbeTable):
 def write_plot(table: ProbeTable, path, overwrite: bool = False) -> tuple[Path, Path]:
     """Draw the table (format by extension: .png, .pdf, .svg) with provenance metadata and
     a JSON sidecar. Returns (plot path, sidecar path)."""
-    from relview.figures.sheets import save_figure
-
     path = Path(path)
-    if path.suffix.lower() not in (".png", ".pdf", ".svg"):
+    if path.suffix.lower() not in FIGURE_FORMATS:
         raise OutputError(
-            f"unknown plot type {path.suffix or '(none)'!r}; use .png, .pdf or .svg", file=path
+            f"unknown plot type {path.suffix or '(none)'!r}; use {figure_type_hint(purposes=False)}",
+            file=path,
         )
     return save_figure(draw_table(table), path, table.metadata, overwrite)
 
