@@ -378,6 +378,14 @@ def test_command_line(scene_file, tmp_path, capsys):
     assert "reversed" in capsys.readouterr().err
 
 
+def test_worker_module_loads_no_numba():
+    """A spawned worker imports relview.animation.workers to find its initialiser, which
+    sets NUMBA_NUM_THREADS=1; numba must not be loaded before that (a fresh interpreter)."""
+    code = "import sys, relview.animation.workers; print(sorted(m for m in sys.modules if m.startswith('numba')))"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "[]"
+
+
 @pytest.mark.slow  # starts a pool of worker processes
 def test_worker_processes_give_the_same_bytes(scene_file, tmp_path):
     one = run(scene_file, tmp_path / "one", workers=None)  # the default: this process
