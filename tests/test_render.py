@@ -219,9 +219,13 @@ def test_first_run_compile_notice(tmp_path, monkeypatch):
     import relview.cli.app as cli
 
     monkeypatch.delenv("NUMBA_CACHE_DIR", raising=False)
+    # the real cache sits beside the tracer's module (numba cache=True)
+    import relview.geometry.trace as trace
+
+    assert cli.kernel_cache_dir() == Path(trace.__file__).resolve().parent / "__pycache__"
     pkg = tmp_path / "relview"
     (pkg / "__pycache__").mkdir(parents=True)
-    monkeypatch.setattr(cli, "__file__", str(pkg / "cli.py"))
+    monkeypatch.setattr(cli, "kernel_cache_dir", lambda: pkg / "__pycache__")
     assert "compiling" in cli.compile_notice()
     (pkg / "__pycache__" / "trace._cast-96.py311.nbi").write_bytes(b"")
     assert cli.compile_notice() is None

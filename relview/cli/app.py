@@ -7,6 +7,7 @@ Exit codes: 0 success, 2 a user error (message, no traceback), 1 an internal err
 from __future__ import annotations
 
 import argparse
+import importlib.util
 import json
 import sys
 import traceback
@@ -193,12 +194,19 @@ def _show_warning(message, category, filename, lineno, file=None, line=None):
 _default_show_warning = warnings.showwarning
 
 
+def kernel_cache_dir() -> Path:
+    """Where numba caches the ray-casting kernels: beside relview/geometry/trace.py (found
+    without importing it, which would load numba)."""
+    origin = importlib.util.find_spec("relview.geometry.trace").origin
+    return Path(origin).resolve().parent / "__pycache__"
+
+
 def compile_notice() -> str | None:
     """A notice when the compiled ray-casting kernels are not cached yet (first run after
     an install or an upgrade), so a silent 20-40 s compile does not look like a hang."""
     import os
 
-    cache = Path(__file__).resolve().parent / "__pycache__"
+    cache = kernel_cache_dir()
     if os.environ.get("NUMBA_CACHE_DIR") or (cache.is_dir() and not os.access(cache, os.W_OK)):
         return None  # numba caches elsewhere; nothing reliable to look at
     if cache.is_dir() and any(cache.glob("trace._cast-*.nbi")):
