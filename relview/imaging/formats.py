@@ -109,6 +109,7 @@ def _write_png_frame(frame: SavedFrame, path: Path, *, bits: int, tone: str,
                      overwrite=overwrite)
 
 
+# The layer files keep the linear floats as they are, so bits and tone do not apply.
 def _write_npz_frame(frame: SavedFrame, path: Path, *, bits: int, tone: str,
                      overwrite: bool) -> Path:
     layers = dict(frame.layers)
