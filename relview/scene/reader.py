@@ -27,6 +27,7 @@ from typing import Any
 import numpy as np
 
 from relview.errors import MeshError, SceneError, UserError
+from relview.geometry.camera import PROJECTIONS as projection_registry
 from relview.geometry.shapes import MAX_COORDINATE, MAX_DETAIL, SHAPES, load_mesh_file
 from relview.kinematics.lorentz import C
 from relview.kinematics.uniform import UniformMotion
@@ -43,7 +44,7 @@ from relview.scene.table import Table, _Document, _type_name, show
 #: newest scene-file ``format`` this version reads
 SUPPORTED_FORMAT = 1
 
-PROJECTIONS = ("pinhole", "panorama", "fisheye")
+PROJECTIONS = tuple(projection_registry)  # names of the registered camera projections
 BACKGROUND_KINDS = ("black", "stars", "graticule")
 SURFACE_KINDS = ("blackbody", "line", "lines", "spectrum", "color", "pattern")
 PATTERN_KINDS = ("checks", "grid")
