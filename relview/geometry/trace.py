@@ -35,7 +35,13 @@ import numpy as np
 from numba import njit, prange
 
 from relview.geometry import bvh as bvh_mod
-from relview.kinematics.lorentz import boost_matrix, doppler_along, galilean_matrix
+from relview.kinematics.lorentz import (
+    boost_matrix,
+    camera_gamma,
+    doppler_along,
+    doppler_at,
+    galilean_matrix,
+)
 from relview.scene.parts import Effects
 
 
@@ -209,8 +215,7 @@ def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_s
     rest = np.empty((n, 3))
     beta = np.empty((n, 3))
     doppler = np.empty(n)
-    bc2 = beta_cam[0] ** 2 + beta_cam[1] ** 2 + beta_cam[2] ** 2
-    g_cam = 1.0 / np.sqrt(1.0 - bc2) if relativistic else 1.0
+    g_cam = camera_gamma(beta_cam, relativistic)
     for i in prange(n):
         t = tri[i]
         if t < 0:
@@ -234,15 +239,7 @@ def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_s
             emit[i, a + 1] = ray_o[io, a + 1] + l[i] * ray_d[i, a]
         for a in range(3):
             beta[i, a] = g_beta[g, a]
-        # D = gamma_cam (1 - beta_cam.n) / (gamma_emit (1 - beta_emit.n)), n = -d
-        # (lorentz.doppler_factor; gammas dropped for Galilean kinematics)
-        num = 1.0 + (beta_cam[0] * ray_d[i, 0] + beta_cam[1] * ray_d[i, 1]
-                     + beta_cam[2] * ray_d[i, 2])
-        den = 1.0 + (g_beta[g, 0] * ray_d[i, 0] + g_beta[g, 1] * ray_d[i, 1]
-                     + g_beta[g, 2] * ray_d[i, 2])
-        if relativistic:
-            den /= np.sqrt(1.0 - (g_beta[g, 0] ** 2 + g_beta[g, 1] ** 2 + g_beta[g, 2] ** 2))
-        doppler[i] = g_cam * num / den
+        doppler[i] = doppler_at(g_cam, beta_cam, g_beta, g, ray_d, i, relativistic)
         s = tri_slot[t]
         if s < 0:
             for a in range(3):  # a light-cone snapshot: the caller interpolates

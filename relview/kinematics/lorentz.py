@@ -108,15 +108,16 @@ def doppler_factor(beta_emit, beta_cam, n) -> np.ndarray:
 
     D = gamma_cam (1 - beta_cam.n) / (gamma_emit (1 - beta_emit.n))
     (ratio of k.u for the two 4-velocities; Rybicki & Lightman 1979, eq. 4.11).
+    Broadcasts over leading axes; computed by :func:`doppler_at`, the one compiled source.
     """
-    beta_emit = np.asarray(beta_emit, dtype=float)
-    beta_cam = np.asarray(beta_cam, dtype=float)
-    n = np.asarray(n, dtype=float)
-    g_cam = lorentz_factor(beta_cam)
-    g_emit = lorentz_factor(beta_emit)
-    num = g_cam * (1.0 - np.sum(beta_cam * n, axis=-1))
-    den = g_emit * (1.0 - np.sum(beta_emit * n, axis=-1))
-    return num / den
+    beta_emit, beta_cam, n = np.broadcast_arrays(np.asarray(beta_emit, dtype=float),
+                                                 np.asarray(beta_cam, dtype=float),
+                                                 np.asarray(n, dtype=float))
+    lorentz_factor(beta_cam)  # ValueError at or above c, as for the emitter below
+    lorentz_factor(beta_emit)
+    shape = n.shape[:-1]
+    flat = [np.ascontiguousarray(a.reshape(-1, 3)) for a in (beta_emit, -n, beta_cam)]
+    return _doppler_along(*flat, True).reshape(shape)
 
 
 def contract(x_rest, beta) -> np.ndarray:
@@ -135,22 +136,49 @@ def contract(x_rest, beta) -> np.ndarray:
     return x_rest - np.multiply.outer(along, beta) * (1.0 - 1.0 / g)
 
 
+@njit(cache=True, inline="always")
+def camera_gamma(beta_cam, relativistic):
+    """gamma of the (3,) camera velocity, or 1 for Galilean kinematics (no time dilation)."""
+    if not relativistic:
+        return 1.0
+    return 1.0 / np.sqrt(1.0 - (beta_cam[0] ** 2 + beta_cam[1] ** 2 + beta_cam[2] ** 2))
+
+
+@njit(cache=True, inline="always")
+def doppler_at(g_cam, beta_cam, beta_emit, e, d_scene, i, relativistic):
+    """D of the light arriving along direction ``d_scene[i]`` (towards the source) from an
+    emitter moving with ``beta_emit[e]``, seen by a camera moving with (3,) ``beta_cam``
+    whose gamma is ``g_cam`` (:func:`camera_gamma`).
+
+    The one source of D = gamma_cam (1 - beta_cam.n) / (gamma_emit (1 - beta_emit.n)) with
+    n = -d (Rybicki & Lightman 1979, eq. 4.11); ``relativistic=False`` drops the gammas
+    (Galilean kinematics: the classical Doppler factor of light moving at c in S).
+    """
+    num = 1.0 + (beta_cam[0] * d_scene[i, 0] + beta_cam[1] * d_scene[i, 1]
+                 + beta_cam[2] * d_scene[i, 2])
+    den = 1.0 + (beta_emit[e, 0] * d_scene[i, 0] + beta_emit[e, 1] * d_scene[i, 1]
+                 + beta_emit[e, 2] * d_scene[i, 2])
+    if relativistic:
+        den = den / np.sqrt(1.0 - (beta_emit[e, 0] ** 2 + beta_emit[e, 1] ** 2
+                                   + beta_emit[e, 2] ** 2))
+    return g_cam * num / den
+
+
 @njit(parallel=True, cache=True)
 def _doppler_along(beta_emit, d_scene, beta_cam, relativistic):
+    # beta_cam: (1, 3) for one camera (the renderer's case), or (N, 3) one per ray
     n = d_scene.shape[0]
     out = np.empty(n)
-    bc2 = beta_cam[0] ** 2 + beta_cam[1] ** 2 + beta_cam[2] ** 2
-    g_cam = 1.0 / np.sqrt(1.0 - bc2) if relativistic else 1.0
-    for i in prange(n):
-        # n = -d: propagation direction, emitter -> camera
-        num = 1.0 + (beta_cam[0] * d_scene[i, 0] + beta_cam[1] * d_scene[i, 1]
-                     + beta_cam[2] * d_scene[i, 2])
-        den = 1.0 + (beta_emit[i, 0] * d_scene[i, 0] + beta_emit[i, 1] * d_scene[i, 1]
-                     + beta_emit[i, 2] * d_scene[i, 2])
-        if relativistic:
-            be2 = beta_emit[i, 0] ** 2 + beta_emit[i, 1] ** 2 + beta_emit[i, 2] ** 2
-            den = den / np.sqrt(1.0 - be2)
-        out[i] = g_cam * num / den
+    if beta_cam.shape[0] == 1:
+        bc = beta_cam[0]
+        g_cam = camera_gamma(bc, relativistic)
+        for i in prange(n):
+            out[i] = doppler_at(g_cam, bc, beta_emit, i, d_scene, i, relativistic)
+    else:
+        for i in prange(n):
+            bc = beta_cam[i]
+            out[i] = doppler_at(camera_gamma(bc, relativistic), bc, beta_emit, i, d_scene, i,
+                                relativistic)
     return out
 
 
@@ -162,4 +190,5 @@ def doppler_along(beta_emit, d_scene, beta_cam, relativistic: bool = True) -> np
     """
     be = np.ascontiguousarray(np.broadcast_to(beta_emit, np.shape(d_scene)), dtype=np.float64)
     return _doppler_along(be, np.ascontiguousarray(d_scene, dtype=np.float64),
-                          np.asarray(beta_cam, dtype=np.float64).reshape(3), bool(relativistic))
+                          np.asarray(beta_cam, dtype=np.float64).reshape(1, 3),
+                          bool(relativistic))

@@ -23,7 +23,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from relview.kinematics.lorentz import aberrate_to_camera, lorentz_factor
+from relview.kinematics.lorentz import aberrate_to_camera, doppler_along
 from relview.light import spectrum
 from relview.scene.parts import Background, Camera, Effects
 
@@ -55,11 +55,7 @@ def _observed(temperature_k, scale, doppler, effects: Effects) -> np.ndarray:
 
 def _camera_doppler(d_scene: np.ndarray, beta_cam: np.ndarray, effects: Effects) -> np.ndarray:
     """D of light from a source at rest in S, seen along d (towards the source)."""
-    n = -d_scene
-    num = 1.0 - n @ beta_cam
-    if effects.contraction:
-        num = num * lorentz_factor(beta_cam)
-    return num
+    return doppler_along(np.zeros(3), d_scene, beta_cam, relativistic=effects.contraction)
 
 
 def _line_temperature(bg: Background) -> float:
