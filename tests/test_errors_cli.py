@@ -25,7 +25,7 @@ import trimesh
 
 import relview.imaging.files
 import relview.renderer
-import relview.scene.reader
+import relview.scene.table
 from relview.cli.app import main
 from relview.kinematics.lorentz import lorentz_factor
 from relview.scene.model import load_scene
@@ -256,7 +256,7 @@ def test_unreadable_mesh_file(tmp_path, capsys, monkeypatch):
             raise PermissionError(errno.EACCES, "Permission denied", str(file))
         return real_open(file, *args, **kwargs)
 
-    monkeypatch.setattr(relview.scene.reader, "open", refusing_open, raising=False)
+    monkeypatch.setattr(relview.scene.table, "open", refusing_open, raising=False)
     path = write(tmp_path, mesh_scene("locked.obj"))
     code, _, err = run(capsys, "check", path)
     assert_user_error(code, err, f'{path}:16: [body] file (body "ball")', '"locked.obj"',
