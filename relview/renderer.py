@@ -24,7 +24,7 @@ from relview.imaging.exposure import expose, exposure_white
 from relview.imaging.formats import frame_format
 from relview.kinematics.lorentz import C
 from relview.scene.model import Scene
-from relview.scene.parts import Effects, UniformMotion
+from relview.scene.parts import Effects
 
 #: Rays traced per batch (a 960x540 frame is one batch); bounds the working memory of one
 #: batch to about 150 MB.
@@ -74,7 +74,9 @@ class RenderContext:
             md = shapes.mesh_data(body)
             self.meshes.append((md.vertices, md.faces))
             self.uv.append(md.uv)
-        uniform = [i for i, b in enumerate(scene.bodies) if isinstance(b.motion, UniformMotion)]
+        # inertial bodies are traced exactly in their rest frames; the others through
+        # light-cone snapshots rebuilt per exposure
+        uniform = [i for i, b in enumerate(scene.bodies) if b.motion.is_inertial]
         self.other = [i for i in range(len(scene.bodies)) if i not in uniform]
         self.uniform_groups = uniform_groups(scene.bodies, self.meshes, self.effects, uniform)
         self._uniform_tracer = Tracer(self.uniform_groups) if not self.other else None
@@ -102,10 +104,8 @@ def camera_state(scene: Scene, time_s: float) -> tuple[np.ndarray, np.ndarray]:
     cam = scene.camera
     motion = getattr(cam, "motion", None)
     if motion is not None:
-        from relview.kinematics import motion as motion_mod
-
-        x, beta = motion_mod.camera_state(motion, C * time_s)
-        return np.concatenate([[C * time_s], x]), np.asarray(beta, float)
+        x, beta = motion.state(np.zeros((1, 3)), C * time_s)
+        return np.concatenate([[C * time_s], x[0]]), np.asarray(beta[0], float)
     beta = np.asarray(cam.beta, float)
     x = np.asarray(cam.position, float) + beta * C * (time_s - cam.time)
     return np.concatenate([[C * time_s], x]), beta
@@ -140,11 +140,10 @@ def bodies_around_camera(scene: Scene, context: RenderContext,
 
     inside = []
     for i, body in enumerate(scene.bodies):
-        motion = body.motion
-        if not isinstance(motion, UniformMotion) or body.shape == "plane":
+        if not body.motion.is_inertial or body.shape == "plane":
             continue
-        origin = np.concatenate([[C * motion.time], np.asarray(motion.position, float)])
-        m = frame_matrix(np.asarray(motion.beta, float), context.effects)
+        beta, origin = body.motion.inertial_frame()
+        m = frame_matrix(np.asarray(beta, float), context.effects)
         x = (m @ (np.asarray(camera_event, float) - origin))[1:]
         vertices, faces = context.meshes[i]
         if np.any(x < vertices.min(axis=0)) or np.any(x > vertices.max(axis=0)):

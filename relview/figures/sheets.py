@@ -35,8 +35,9 @@ from relview.imaging.display import to_8bit
 from relview.imaging.figure_files import save_figure
 from relview.imaging.formats import figure_format
 from relview.kinematics.lorentz import C, lorentz_factor
+from relview.kinematics.uniform import UniformMotion
 from relview.scene.model import Scene
-from relview.scene.parts import Effects, UniformMotion
+from relview.scene.parts import Effects
 
 # --------------------------------------------------------------------------- panels
 
@@ -140,10 +141,6 @@ def parse_panels(text: str) -> list[PanelKind]:
 def body_state(scene: Scene, index: int, time_s: float) -> tuple[np.ndarray, np.ndarray]:
     """(position of the body origin (3,) m, its beta (3,)) at scene time ``time_s``."""
     motion = scene.bodies[index].motion
-    if isinstance(motion, UniformMotion):
-        beta = np.asarray(motion.beta, float)
-        pos = np.asarray(motion.position, float) + beta * C * (time_s - motion.time)
-        return pos, beta
     x, beta = motion.state(np.zeros((1, 3)), C * time_s)
     return np.asarray(x[0], float), np.asarray(beta[0], float)
 
@@ -170,8 +167,8 @@ def rest_pose(scene: Scene, index: int, time_s: float) -> tuple[np.ndarray, np.n
     """(origin position (3,) m, rotation (x, y, z turns, degrees)) of a body at rest as it
     stands at scene time ``time_s``.
 
-    Uniform motion: the origin's position at ``time_s`` and the body's own rotation.
-    Other motions (relview.kinematics.motion, rigid-body worldlines): the rest-frame configuration
+    Inertial motion: the origin's position at ``time_s`` and the body's own rotation.
+    Other motions (relview.kinematics.worldline, rigid-body worldlines): the rest-frame configuration
     tied to the reference event of the origin's worldline at ``time_s``: origin X(s)
     plus the attitude M(s) and offset of the motion (docs/motion.md, "events"), so a spin
     shows its angle phase + omega (tau(s) - tau(time)). Euler angles use the convention
@@ -179,7 +176,7 @@ def rest_pose(scene: Scene, index: int, time_s: float) -> tuple[np.ndarray, np.n
     """
     body = scene.bodies[index]
     motion = body.motion
-    if isinstance(motion, UniformMotion):
+    if motion.is_inertial:  # the body axes never turn
         return body_state(scene, index, time_s)[0], np.asarray(body.rotation, float)
     from scipy.spatial.transform import Rotation
 
