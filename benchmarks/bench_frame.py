@@ -747,8 +747,8 @@ def profile_frame(scene, ctx, frames: int) -> dict:
         cum("trace.py", "cast") - kernel + cum("renderer.py", "doppler_of_hits"),
         "shading (renderer.shade -> observed_xyz)": cum("renderer.py", "shade"),
         "sky (sky_xyz, star_splat)": cum("sky.py", "sky_xyz") + cum("sky.py", "star_splat"),
-        "exposure (film.exposure_white + film.expose)": cum("film.py", "exposure_white")
-        + cum("film.py", "expose"),
+        "exposure (exposure_white + expose)": cum("exposure.py", "exposure_white")
+        + cum("exposure.py", "expose"),
         "per-exposure set-up (memory check, camera-inside-body check, tracer, provenance)":
         cum("renderer.py", "check_memory") + cum("renderer.py", "bodies_around_camera")
         + cum("renderer.py", "tracer") + cum("renderer.py", "provenance"),

@@ -57,7 +57,7 @@ from relview.animation.timing import FRAME_NAME_PATTERN, frame_name, frame_times
 from relview.animation.video import VIDEO_TYPES, assemble_video
 from relview.animation.workers import FrameRenderer, render_in_processes, render_serial
 from relview.errors import OutputError, UserError
-from relview.imaging import film
+from relview.imaging.exposure import ExposureLock
 from relview.renderer import RenderContext, check_memory, render
 
 __all__ = [
@@ -99,12 +99,12 @@ def decide_exposure(scene, times: np.ndarray, unlock: bool, context=None) -> dic
 
     ``mode``: "fixed" (the scene or --exposure gives a white in cd/m2), "locked"
     (automatic exposure pooled over :data:`PROBE_FRAMES` low-resolution probe
-    frames at frame times spread evenly over the whole animation, film.ExposureLock)
+    frames at frame times spread evenly over the whole animation, ExposureLock)
     or "per-frame" (automatic exposure of each frame on its own; ``unlock``).
     """
     mode = _exposure_mode(scene, unlock)
     if mode == "fixed":
-        lock = film.ExposureLock(scene.render.exposure)
+        lock = ExposureLock(scene.render.exposure)
         return {"mode": "fixed", **lock.to_dict()}
     if mode == "per-frame":
         return {
@@ -125,7 +125,7 @@ def decide_exposure(scene, times: np.ndarray, unlock: bool, context=None) -> dic
         xyz = frame.layers["xyz"]
         images.append(xyz)
         masks.append(np.any(xyz > 0, axis=-1))  # as the renderer's own automatic exposure
-    lock = film.ExposureLock("auto")
+    lock = ExposureLock("auto")
     lock.lock_from(images, masks)
     return {
         "mode": "locked",

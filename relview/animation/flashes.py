@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from relview.imaging import film
+from relview.imaging.display import LUMINANCE_WEIGHTS
 
 __all__ = [
     "FLASH_DARKER_BELOW",
@@ -57,7 +57,7 @@ def mean_relative_luminance(rgb8: np.ndarray) -> float:
     if _DECODE_8BIT is None:
         _DECODE_8BIT = _srgb_decode_table()
     linear = _DECODE_8BIT[rgb8]
-    return float((linear @ film.LUMINANCE_WEIGHTS).mean())
+    return float((linear @ LUMINANCE_WEIGHTS).mean())
 
 
 # WCAG 2.x, definition of "general flash and red flash thresholds" (W3C Recommendation,

@@ -2,7 +2,7 @@
 
 What makes a batch safe to stop and restart (docs/animation.md):
 
-* every frame file is written atomically (film.py) and then recorded in
+* every frame file is written atomically (relview.imaging.files) and then recorded in
   ``<out_dir>/manifest.json`` (also written atomically, after every frame) with
   its time, file name and sha256, under a digest of every setting that affects
   pixels (scene sha256, resolution, samples, effects, exposure and the locked
@@ -36,7 +36,7 @@ import numpy as np
 from relview.animation.flashes import mean_relative_luminance
 from relview.animation.timing import frame_name
 from relview.errors import OutputError
-from relview.imaging import film
+from relview.imaging.files import atomic_write, json_default, write_json_sidecar
 
 __all__ = [
     "LOCK_NAME",
@@ -67,7 +67,7 @@ LOCK_NAME = ".manifest.lock"
 
 def settings_digest(data: Any) -> str:
     """sha256 of ``data`` as canonical JSON (sorted keys, no spaces): names a settings set."""
-    text = json.dumps(data, sort_keys=True, separators=(",", ":"), default=film._json_default)
+    text = json.dumps(data, sort_keys=True, separators=(",", ":"), default=json_default)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
@@ -142,7 +142,7 @@ class Manifest:
                 frames = dict(on_disk.get("frames", {}))
                 frames.update(self._updates)
                 self.data["frames"] = dict(sorted(frames.items()))
-            film.write_json_sidecar(self.path, self.data, overwrite=True)
+            write_json_sidecar(self.path, self.data, overwrite=True)
 
 
 def frame_key(index: int) -> str:
@@ -268,7 +268,7 @@ def adopt_unrecorded_frame(path: Path, index: int, digest: str, time_s: float) -
 def write_frame_file(out_dir: Path, index: int, png: bytes) -> Path:
     """Atomic write of a frame (replacing a stale frame of this animation of the same name)."""
     path = out_dir / frame_name(index)
-    return film._atomic_write(path, lambda fh: fh.write(png), overwrite=True)
+    return atomic_write(path, lambda fh: fh.write(png), overwrite=True)
 
 
 def current_frames(out_dir: Path, manifest: Manifest, digest: str, times) -> dict[int, dict]:

@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 
 from relview.errors import OutputError
-from relview.imaging import film
+from relview.imaging.files import atomic_write
 
 __all__ = ["VIDEO_TYPES", "assemble_video"]
 
@@ -82,4 +82,4 @@ def assemble_video(
         finally:
             scratch.unlink(missing_ok=True)
 
-    return film._atomic_write(path, write, overwrite)
+    return atomic_write(path, write, overwrite)

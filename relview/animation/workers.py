@@ -21,7 +21,8 @@ from collections.abc import Iterator
 from dataclasses import dataclass
 
 from relview.animation.flashes import mean_relative_luminance
-from relview.imaging import film
+from relview.imaging.display import to_8bit
+from relview.imaging.png import encode_png
 
 __all__ = ["FrameRenderer", "RenderedFrame", "render_in_processes", "render_serial"]
 
@@ -70,12 +71,12 @@ class FrameRenderer:
 
         exposure = self.white if self.white is not None else self.scene.render.exposure
         frame = render(self.scene, time=float(time_s), exposure=exposure, context=self.context)
-        rgb8 = film.to_8bit(frame.image, getattr(self.scene.render, "tone", "none"))
+        rgb8 = to_8bit(frame.image, getattr(self.scene.render, "tone", "none"))
         meta = dict(frame.metadata)
         meta.update(self.metadata)
         meta["frame_index"] = str(int(index))
         meta["frame_time_s"] = repr(float(time_s))
-        png = film.encode_png(rgb8, meta)
+        png = encode_png(rgb8, meta)
         return RenderedFrame(
             int(index), float(time_s), png, mean_relative_luminance(rgb8), float(frame.white)
         )

@@ -5,7 +5,7 @@ The colour pipeline (docs/colour.md, "Colour pipeline"):
     rest-frame spectral radiance L_lambda (W/(sr m^2 nm))
       -> Doppler shift  L_obs(lambda) = D^5 L_emit(D lambda)
       -> absolute CIE 1931 2-degree XYZ, Y in cd/m^2
-      -> linear sRGB (IEC 61966-2-1), after the film divides by an exposure luminance
+      -> linear sRGB (IEC 61966-2-1), after exposure divides by a white luminance
       -> encoded sRGB.
 
 The observed XYZ of one material depends on the Doppler factor D alone, so it is
@@ -242,7 +242,7 @@ def xyz_to_linear_srgb(xyz) -> np.ndarray:
     """(..., 3) XYZ -> (..., 3) linear sRGB. The D65 white with Y = 1 gives (1, 1, 1).
 
     Absolute XYZ must first be divided by the luminance (cd/m^2) that should map to 1
-    (the film module's exposure). Out-of-gamut colours give values outside [0, 1].
+    (relview.imaging.exposure). Out-of-gamut colours give values outside [0, 1].
     """
     return np.asarray(xyz, dtype=float) @ XYZ_TO_LINEAR_SRGB.T
 
