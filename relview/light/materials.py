@@ -12,23 +12,46 @@ Doppler factor D brings emitted wavelengths D * (360-830 nm) into view), and are
 through cached :class:`relview.light.spectrum.DopplerTable` lookups, so the per-pixel work is
 vectorised table interpolation. The rules used outside tabulated data are documented in
 docs/colour.md ("Colour pipeline").
+
+Each surface kind also carries its scene-file schema: a ``from_table`` classmethod reading
+its keys through the table it is handed (the scene reader's validated table, duck-typed:
+this module sits below relview.scene and does not import it), and a line in
+:data:`SURFACE_KINDS`. A new surface kind is one class plus one :func:`register_surface`.
 """
 
 from __future__ import annotations
 
+import contextvars
 import csv
 import math
 import os
-from collections.abc import Hashable
+from collections.abc import Callable, Hashable, Mapping
 from pathlib import Path
+from typing import Any, NamedTuple
 
 import numpy as np
 
+from relview.errors import SceneError, UserError
 from relview.light import colour_data, spectrum
 from relview.light.spectrum import apply_effects, cached_table, effect_factors
 
 # FWHM -> standard deviation of a Gaussian: FWHM = 2 sqrt(2 ln 2) sigma.
 _FWHM_PER_SIGMA = 2.0 * math.sqrt(2.0 * math.log(2.0))
+
+# Temperatures whose Planck spectrum is representable in float64 over the visible
+# band: Planck's law overflows there above ~1e280 K, and a lamp below ~30 K has no
+# visible light at all (its white normalisation divides by zero). The limits are kept
+# well inside those measured edges.
+#: hottest blackbody, star or line temperature a scene file may give, K
+MAX_TEMPERATURE = 1e12
+#: coolest lamp lighting a reflective surface in a scene file, K
+MIN_LAMP_TEMPERATURE = 100.0
+#: lamps a scene file may name, besides a blackbody temperature in K
+NAMED_LAMPS = ("D65",)
+#: lamp of a ``color`` surface that names none, K (a sunlike blackbody)
+DEFAULT_LAMP_K = 5800.0
+#: deepest nesting of ``pattern`` surfaces in a scene file
+MAX_PATTERN_DEPTH = 4
 
 
 def _effect_switches(effects) -> tuple[bool, bool]:
@@ -114,6 +137,14 @@ class Blackbody(SpectralSurface):
             raise ValueError(f"blackbody scale must be finite and >= 0, got {scale!r}")
         self.scale = scale
 
+    @classmethod
+    def from_table(cls, table) -> Blackbody:
+        """``blackbody = T`` (K), with an optional ``scale``."""
+        return cls(
+            temperature_k=table.number("blackbody", positive=True, high=MAX_TEMPERATURE, unit="K"),
+            scale=table.number("scale", 1.0, positive=True),
+        )
+
     def key(self):
         return ("blackbody", self.temperature_k, self.scale)
 
@@ -169,6 +200,32 @@ class EmissionLines(SpectralSurface):
         self._sigma = arr[:, 1] / _FWHM_PER_SIGMA
         self._radiance = arr[:, 2]
 
+    @classmethod
+    def from_table(cls, table) -> EmissionLines:
+        """``line = { nm, width_nm, radiance }`` or ``lines = [ {...}, ... ]``."""
+        if table.has("line"):
+            return cls(lines=[_line_from_table(table.table("line"))])
+        value = table.data["lines"]
+        if not isinstance(value, (list, tuple)) or not value:
+            raise table.error(
+                "lines",
+                f"expected a non-empty list of tables {{ nm, width_nm, radiance }}, got {table.show(value)}",
+                value,
+            )
+        lines = []
+        for i, item in enumerate(value):
+            if not isinstance(item, Mapping):
+                raise table.error(
+                    "lines",
+                    f"entry {i + 1} is {table.type_name(item)}, not a table: {table.show(item)}",
+                    value,
+                )
+            # the entry as a table of its own, named lines[i] in messages (1-based)
+            entry = type(table)(item, table.doc, table.path + ("lines", i), table.section,
+                                f"{table.prefix}lines[{i + 1}].", table.context)
+            lines.append(_line_from_table(entry))
+        return cls(lines=lines)
+
     def key(self):
         return ("lines", self.lines)
 
@@ -185,6 +242,16 @@ class EmissionLines(SpectralSurface):
 
     def __repr__(self):
         return f"EmissionLines({list(self.lines)!r})"
+
+
+def _line_from_table(table) -> tuple[float, float, float]:
+    """One emission line: centre ``nm``, ``width_nm`` (FWHM), ``radiance`` W/(sr m^2)."""
+    table.check_keys(("nm", "width_nm", "radiance"))
+    return (
+        table.number("nm", positive=True, unit="nm"),
+        table.number("width_nm", positive=True, unit="nm"),
+        table.number("radiance", nonnegative=True, unit="W/(sr m2)"),
+    )
 
 
 class TabulatedSpectrum(SpectralSurface):
@@ -272,6 +339,11 @@ class TabulatedSpectrum(SpectralSurface):
         if len(waves) < 2:
             raise ValueError(f"{path}: needs at least 2 data rows (nm, W/(sr m2 nm)), found {len(waves)}")
         return cls([w for w, _ in waves], values, name=str(path))
+
+    @classmethod
+    def from_table(cls, table) -> TabulatedSpectrum:
+        """``spectrum = "file.csv"``, relative to the scene file (see :meth:`from_csv`)."""
+        return cls.from_csv(table.path_value("spectrum", what="spectrum file"))
 
     def key(self):
         return self._key
@@ -387,6 +459,35 @@ class Reflective(Surface):
         self.uses_uv = texture is not None
         self._texels = None if texture is None else load_texture(self.texture)
 
+    @classmethod
+    def from_table(cls, table) -> Reflective:
+        """``color = [r, g, b]`` (linear sRGB reflectance), optional ``lamp`` (K or a named
+        lamp, default a 5800 K blackbody), ``luminance`` (cd/m^2) and ``texture`` (image)."""
+        rgb = table.vector("color", 3)
+        if np.any(rgb < 0) or np.any(rgb > 1):
+            raise table.error(
+                "color",
+                f"reflectances must lie in 0..1, got color = {table.show(table.data['color'])}",
+                table.data["color"],
+            )
+        lamp: float | str = DEFAULT_LAMP_K
+        if table.has("lamp"):
+            if isinstance(table.data["lamp"], str):
+                lamp = table.string("lamp", choices=NAMED_LAMPS)
+            else:
+                lamp = table.number("lamp", low=MIN_LAMP_TEMPERATURE, high=MAX_TEMPERATURE,
+                                    unit="K")
+        texture = None
+        if table.has("texture"):
+            texture = table.path_value("texture", what="texture image")
+            _check_image(table, texture)
+        return cls(
+            rgb=tuple(float(c) for c in rgb),
+            lamp=lamp,
+            luminance=table.number("luminance", 100.0, positive=True, unit="cd/m2"),
+            texture=texture,
+        )
+
     def key(self):
         tex = None
         if self.texture is not None:
@@ -457,6 +558,22 @@ def load_texture(path: Path) -> np.ndarray:
     except (UnidentifiedImageError, OSError) as exc:
         raise ValueError(f"{path}: cannot read texture image ({exc})") from None
     return spectrum.decode_srgb(pixels)
+
+
+def _check_image(table, path: Path) -> None:
+    """A scene file's ``texture`` must be an image pillow can read (checked while the
+    scene is read, so the message names the scene key)."""
+    from PIL import Image, UnidentifiedImageError  # imported here: pillow is slow to load
+
+    try:
+        with Image.open(path) as im:
+            im.verify()
+    except (UnidentifiedImageError, OSError, SyntaxError, ValueError) as exc:
+        raise table.error(
+            "texture",
+            f"texture = {table.show(table.data['texture'])} is not a readable image ({exc})",
+            table.data["texture"],
+        ) from exc
 
 
 def sample_texture(texels: np.ndarray, uv: np.ndarray) -> np.ndarray:
@@ -538,6 +655,49 @@ class Pattern(Surface):
             raise ValueError(f"pattern axes must be distinct values from 0, 1, 2, got {axes!r}")
         self.axes = axes_t
 
+    @classmethod
+    def from_table(cls, table) -> Pattern:
+        """``pattern = { kind, period, line_width, axes, first, second }``; ``first`` and
+        ``second`` are surface tables read through :data:`SURFACE_KINDS`, patterns
+        included, nested at most :data:`MAX_PATTERN_DEPTH` deep."""
+        pat = table.table("pattern")
+        pat.check_keys(("kind", "period", "line_width", "axes", "first", "second"))
+        depth = _PATTERN_DEPTH.get()
+        if depth >= MAX_PATTERN_DEPTH:
+            raise pat.error(None, f"patterns nest at most {MAX_PATTERN_DEPTH} deep")
+        kind = pat.string("kind", choices=cls.KINDS)
+        period = pat.number("period", 0.1, positive=True, unit="m")
+        line_width = pat.number("line_width", period / 10.0, positive=True, unit="m")
+        if line_width >= period:
+            raise pat.error(
+                "line_width",
+                f"line_width = {pat.show(line_width)} must be smaller than period = {pat.show(period)}",
+                line_width,
+            )
+        axes = (0, 1, 2)
+        if pat.has("axes"):
+            raw = pat.data["axes"]
+            if not isinstance(raw, (list, tuple)) or not 1 <= len(raw) <= 3:
+                raise pat.error(
+                    "axes",
+                    f"expected a list of 1 to 3 axis numbers (0 = x, 1 = y, 2 = z), got axes = "
+                    f"{pat.show(raw)}",
+                    raw,
+                )
+            axes = pat.int_vector("axes", len(raw), low=0)
+            if max(axes) > 2 or len(set(axes)) != len(axes):
+                raise pat.error(
+                    "axes", f"axes = {pat.show(raw)} must be distinct values from 0, 1, 2", raw
+                )
+        token = _PATTERN_DEPTH.set(depth + 1)
+        try:
+            first = _read_kind(pat.table("first"))
+            second = _read_kind(pat.table("second"))
+        finally:
+            _PATTERN_DEPTH.reset(token)
+        return cls(kind=kind, period=period, line_width=line_width, first=first, second=second,
+                   axes=axes)
+
     def key(self):
         return ("pattern", self.kind, self.period, self.line_width, self.first.key(),
                 self.second.key(), self.axes)
@@ -574,3 +734,98 @@ class Pattern(Surface):
             f"Pattern(kind={self.kind!r}, period={self.period!r}, line_width={self.line_width!r}, "
             f"first={self.first!r}, second={self.second!r}, axes={self.axes!r})"
         )
+
+
+#: patterns enclosing the surface table being read (a context variable, so the limit
+#: holds whichever reader nests: readers keep the one-argument signature)
+_PATTERN_DEPTH: contextvars.ContextVar[int] = contextvars.ContextVar("pattern_depth", default=0)
+
+
+# --------------------------------------------------------------------------------------
+# Scene-file surface kinds
+# --------------------------------------------------------------------------------------
+
+#: reader(table) -> surface; ``table`` is a relview.scene.table.Table (duck-typed)
+SurfaceReader = Callable[[Any], Surface]
+
+
+class SurfaceKind(NamedTuple):
+    """How a scene file's surface table of one kind is read."""
+
+    #: builds the surface from the table (reads the kind key and its extras)
+    reader: SurfaceReader
+    #: keys allowed beside the kind key (all other kinds' extras are refused by name)
+    extras: tuple[str, ...] = ()
+
+
+#: kind key of a ``[body.surface]`` table (exactly one is given) -> its reader and extras
+SURFACE_KINDS: dict[str, SurfaceKind] = {
+    "blackbody": SurfaceKind(Blackbody.from_table, ("scale",)),
+    "line": SurfaceKind(EmissionLines.from_table),
+    "lines": SurfaceKind(EmissionLines.from_table),
+    "spectrum": SurfaceKind(TabulatedSpectrum.from_table),
+    "color": SurfaceKind(Reflective.from_table, ("lamp", "luminance", "texture")),
+    "pattern": SurfaceKind(Pattern.from_table),
+}
+
+
+def register_surface(kind: str, reader: SurfaceReader, extras: tuple[str, ...] = ()) -> None:
+    """Make ``[body.surface] <kind> = ...`` build its surface with ``reader(table)``;
+    ``extras``: the other keys that may accompany ``kind``."""
+    SURFACE_KINDS[kind] = SurfaceKind(reader, tuple(extras))
+
+
+def _kind_of(table) -> str:
+    """The one kind key of a surface table, after checking its keys."""
+    kinds_named = list(SURFACE_KINDS)
+    extras: dict[str, str] = {}  # extra key -> the first kind that allows it
+    for name, entry in SURFACE_KINDS.items():
+        for key in entry.extras:
+            extras.setdefault(key, name)
+    table.check_keys(kinds_named + sorted(extras))
+    kinds = [k for k in kinds_named if table.has(k)]
+    if not kinds:
+        raise table.error(
+            None, f"no surface kind given; give exactly one of: {', '.join(kinds_named)}"
+        )
+    if len(kinds) > 1:
+        raise table.error(
+            kinds[1],
+            f"gives {' and '.join(kinds)} "
+            f"({', '.join(f'{k} = {table.show(table.data[k])}' for k in kinds)}); "
+            f"a surface has exactly one kind: {', '.join(kinds_named)}",
+            {k: table.data[k] for k in kinds},
+        )
+    kind = kinds[0]
+    for key in table.given_keys():
+        if key not in SURFACE_KINDS and key not in SURFACE_KINDS[kind].extras:
+            raise table.error(
+                key,
+                f"{key} = {table.show(table.data[key])} applies only to {extras[key]} surfaces, "
+                f"not {kind}",
+                table.data[key],
+            )
+    return kind
+
+
+def _read_kind(table) -> Surface:
+    return SURFACE_KINDS[_kind_of(table)].reader(table)
+
+
+def read_surface(table) -> Surface:
+    """The surface a scene file's surface table describes.
+
+    The table's own errors (SceneError) name the key they concern; a constructor's
+    ValueError / OSError, or another UserError, from anywhere in the surface (a nested
+    pattern's spectrum file too) is reported at this table's kind key.
+    """
+    kind = _kind_of(table)
+    value = table.data[kind]
+    try:
+        return SURFACE_KINDS[kind].reader(table)
+    except SceneError:
+        raise
+    except UserError as exc:  # keep its message (it names e.g. its own file and line)
+        raise table.error(kind, f"{exc}", value, cls=type(exc)) from exc
+    except (ValueError, OSError) as exc:
+        raise table.error(kind, f"{kind} = {table.show(value)}: {exc}", value) from exc

@@ -226,6 +226,9 @@ class Table:
 
     # ---------------------------------------------------------------- messages
 
+    # for kind readers in lower layers, which cannot import this module
+    show, type_name = staticmethod(show), staticmethod(_type_name)
+
     def key_label(self, key: str | None = None) -> str:
         name = self.prefix + (key or "")
         name = name.rstrip(".")
