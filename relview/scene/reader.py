@@ -26,11 +26,12 @@ from typing import Any
 
 import numpy as np
 
-from relview.errors import MeshError, SceneError, UserError
+from relview.errors import MeshError, SceneError
 from relview.geometry.camera import PROJECTIONS as projection_registry
 from relview.geometry.shapes import MAX_COORDINATE, MAX_DETAIL, SHAPES, load_mesh_file
 from relview.kinematics.lorentz import C
 from relview.kinematics.uniform import UniformMotion
+from relview.light.materials import MAX_TEMPERATURE, read_surface
 from relview.scene.parts import (
     Animation,
     Background,
@@ -46,9 +47,6 @@ SUPPORTED_FORMAT = 1
 
 PROJECTIONS = tuple(projection_registry)  # names of the registered camera projections
 BACKGROUND_KINDS = ("black", "stars", "graticule")
-SURFACE_KINDS = ("blackbody", "line", "lines", "spectrum", "color", "pattern")
-PATTERN_KINDS = ("checks", "grid")
-LAMPS = ("D65",)  # named lamps besides a blackbody temperature in K
 
 #: tessellation levels accepted for ``body.detail`` (see relview.geometry.shapes)
 DETAIL_RANGE = (0, MAX_DETAIL)
@@ -62,14 +60,6 @@ MAX_SAMPLES = 65536
 MAX_STARS = 1_000_000
 #: most frames in ``animation.frames`` (11.6 hours at 24 frames/s)
 MAX_FRAMES = 1_000_000
-# Temperatures whose Planck spectrum is representable in float64 over the visible
-# band: Planck's law overflows there above ~1e280 K, and a lamp below ~30 K has no
-# visible light at all (its white normalisation divides by zero). The limits are kept
-# well inside those measured edges.
-#: hottest blackbody, star or line temperature, K
-MAX_TEMPERATURE = 1e12
-#: coolest lamp lighting a reflective surface, K
-MIN_LAMP_TEMPERATURE = 100.0
 
 
 
@@ -86,185 +76,6 @@ def _parse_motion(body: Table) -> Any:
 
 # ============================================================================ surfaces
 
-# surface kind -> the keys that may accompany it
-_SURFACE_EXTRAS = {
-    "blackbody": ("scale",),
-    "line": (),
-    "lines": (),
-    "spectrum": (),
-    "color": ("lamp", "luminance", "texture"),
-    "pattern": (),
-}
-_MAX_PATTERN_DEPTH = 4
-
-
-def _parse_line(table: Table) -> tuple[float, float, float]:
-    table.check_keys(("nm", "width_nm", "radiance"))
-    return (
-        table.number("nm", positive=True, unit="nm"),
-        table.number("width_nm", positive=True, unit="nm"),
-        table.number("radiance", nonnegative=True, unit="W/(sr m2)"),
-    )
-
-
-def surface_spec(table: Table, depth: int = 0) -> tuple[str, dict]:
-    """Validate a surface table into (material class name, keyword arguments).
-
-    Pattern arguments ``first`` and ``second`` are themselves specs.
-    """
-    allowed = list(SURFACE_KINDS) + sorted({k for v in _SURFACE_EXTRAS.values() for k in v})
-    table.check_keys(allowed)
-    kinds = [k for k in SURFACE_KINDS if table.has(k)]
-    if not kinds:
-        raise table.error(
-            None, f"no surface kind given; give exactly one of: {', '.join(SURFACE_KINDS)}"
-        )
-    if len(kinds) > 1:
-        raise table.error(
-            kinds[1],
-            f"gives {' and '.join(kinds)} ({', '.join(f'{k} = {show(table.data[k])}' for k in kinds)}); "
-            f"a surface has exactly one kind: {', '.join(SURFACE_KINDS)}",
-            {k: table.data[k] for k in kinds},
-        )
-    kind = kinds[0]
-    for key in table.given_keys():
-        if key not in SURFACE_KINDS and key not in _SURFACE_EXTRAS[kind]:
-            owner = next(k for k, v in _SURFACE_EXTRAS.items() if key in v)
-            raise table.error(
-                key,
-                f"{key} = {show(table.data[key])} applies only to {owner} surfaces, not {kind}",
-                table.data[key],
-            )
-
-    if kind == "blackbody":
-        return "Blackbody", {
-            "temperature_k": table.number("blackbody", positive=True, high=MAX_TEMPERATURE,
-                                          unit="K"),
-            "scale": table.number("scale", 1.0, positive=True),
-        }
-    if kind == "line":
-        return "EmissionLines", {"lines": [_parse_line(table.table("line"))]}
-    if kind == "lines":
-        value = table.data["lines"]
-        if not isinstance(value, (list, tuple)) or not value:
-            raise table.error(
-                "lines",
-                f"expected a non-empty list of tables {{ nm, width_nm, radiance }}, got {show(value)}",
-                value,
-            )
-        lines = []
-        for i, item in enumerate(value):
-            if not isinstance(item, Mapping):
-                raise table.error(
-                    "lines",
-                    f"entry {i + 1} is {_type_name(item)}, not a table: {show(item)}",
-                    value,
-                )
-            sub = Table(
-                item,
-                table.doc,
-                table.path + ("lines", i),
-                table.section,
-                f"{table.prefix}lines[{i + 1}].",
-                table.context,
-            )
-            lines.append(_parse_line(sub))
-        return "EmissionLines", {"lines": lines}
-    if kind == "spectrum":
-        return "TabulatedSpectrum.from_csv", {
-            "path": table.path_value("spectrum", what="spectrum file")
-        }
-    if kind == "color":
-        rgb = table.vector("color", 3)
-        if np.any(rgb < 0) or np.any(rgb > 1):
-            raise table.error(
-                "color",
-                f"reflectances must lie in 0..1, got color = {show(table.data['color'])}",
-                table.data["color"],
-            )
-        lamp: float | str = 5800.0
-        if table.has("lamp"):
-            raw = table.data["lamp"]
-            if isinstance(raw, str):
-                lamp = table.string("lamp", choices=LAMPS)
-            else:
-                lamp = table.number("lamp", low=MIN_LAMP_TEMPERATURE, high=MAX_TEMPERATURE,
-                                    unit="K")
-        texture = None
-        if table.has("texture"):
-            texture = table.path_value("texture", what="texture image")
-            _check_image(table, texture)
-        return "Reflective", {
-            "rgb": tuple(float(c) for c in rgb),
-            "lamp": lamp,
-            "luminance": table.number("luminance", 100.0, positive=True, unit="cd/m2"),
-            "texture": texture,
-        }
-    # pattern
-    pat = table.table("pattern")
-    pat.check_keys(("kind", "period", "line_width", "axes", "first", "second"))
-    if depth >= _MAX_PATTERN_DEPTH:
-        raise pat.error(None, f"patterns nest at most {_MAX_PATTERN_DEPTH} deep")
-    pkind = pat.string("kind", choices=PATTERN_KINDS)
-    period = pat.number("period", 0.1, positive=True, unit="m")
-    line_width = pat.number("line_width", period / 10.0, positive=True, unit="m")
-    if line_width >= period:
-        raise pat.error(
-            "line_width",
-            f"line_width = {show(line_width)} must be smaller than period = {show(period)}",
-            line_width,
-        )
-    axes = (0, 1, 2)
-    if pat.has("axes"):
-        raw = pat.data["axes"]
-        if not isinstance(raw, (list, tuple)) or not 1 <= len(raw) <= 3:
-            raise pat.error(
-                "axes",
-                f"expected a list of 1 to 3 axis numbers (0 = x, 1 = y, 2 = z), got axes = "
-                f"{show(raw)}",
-                raw,
-            )
-        axes = pat.int_vector("axes", len(raw), low=0)
-        if max(axes) > 2 or len(set(axes)) != len(axes):
-            raise pat.error("axes", f"axes = {show(raw)} must be distinct values from 0, 1, 2", raw)
-    return "Pattern", {
-        "kind": pkind,
-        "period": period,
-        "line_width": line_width,
-        "axes": axes,
-        "first": surface_spec(pat.table("first"), depth + 1),
-        "second": surface_spec(pat.table("second"), depth + 1),
-    }
-
-
-def _check_image(table: Table, path: Path) -> None:
-    from PIL import Image, UnidentifiedImageError
-
-    try:
-        with Image.open(path) as im:
-            im.verify()
-    except (UnidentifiedImageError, OSError, SyntaxError, ValueError) as exc:
-        raise table.error(
-            "texture",
-            f"texture = {show(table.data['texture'])} is not a readable image ({exc})",
-            table.data["texture"],
-        ) from exc
-
-
-def build_surface(spec: tuple[str, dict]) -> Any:
-    """Construct the relview.light.materials object a surface spec describes."""
-    from relview.light import materials  # imported here: materials imports colour tables at load
-
-    name, kwargs = spec
-    if name == "TabulatedSpectrum.from_csv":
-        return materials.TabulatedSpectrum.from_csv(kwargs["path"])
-    if name == "Pattern":
-        kwargs = dict(
-            kwargs, first=build_surface(kwargs["first"]), second=build_surface(kwargs["second"])
-        )
-    return getattr(materials, name)(**kwargs)
-
-
 def _is_surface_object(value: Any) -> bool:
     """A ready-made relview.light.materials surface (Scene.from_dict in scripts)."""
     return hasattr(value, "observed_xyz") and hasattr(value, "key")
@@ -273,17 +84,8 @@ def _is_surface_object(value: Any) -> bool:
 def _parse_surface(body: Table) -> Any:
     if _is_surface_object(body.data.get("surface")):
         return body.data["surface"]
-    table = body.table("surface", section="body.surface")
-    spec = surface_spec(table)
-    kind = next(k for k in SURFACE_KINDS if table.has(k))
-    try:
-        return build_surface(spec)
-    except UserError as exc:  # keep the materials' message (it names e.g. the CSV file and line)
-        raise table.error(kind, f"{exc}", table.data[kind], cls=type(exc)) from exc
-    except (ValueError, OSError) as exc:
-        raise table.error(
-            kind, f"{kind} = {show(table.data[kind])}: {exc}", table.data[kind]
-        ) from exc
+    # each surface kind reads its own keys (relview.light.materials.SURFACE_KINDS)
+    return read_surface(body.table("surface", section="body.surface"))
 
 
 # ============================================================================ sections
