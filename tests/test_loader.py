@@ -2,17 +2,15 @@
 
 Every error case of the validation catalogue has a test that checks the message
 names the file, the key and the offending value (and the line where the loader
-can find it). Surfaces are built through a recording stand-in for
-relview.light.materials, so these tests pin the loader's side of the fixed constructor
-signatures; one test at the end builds the real materials when that module exists.
+can find it). Surfaces are the real relview.light.materials objects (each surface kind
+reads its own keys there); the tests check the values they were built with on their
+attributes, so spectrum and texture files they name are small valid files.
 """
 
 from __future__ import annotations
 
 import hashlib
 import re
-import sys
-import types
 from pathlib import Path
 
 import numpy as np
@@ -22,6 +20,15 @@ import trimesh
 from relview.errors import MeshError, SceneError, UserError
 from relview.kinematics.kinds import MOTION_KINDS, register_motion
 from relview.kinematics.uniform import UniformMotion
+from relview.light.materials import (
+    SURFACE_KINDS,
+    Blackbody,
+    EmissionLines,
+    Pattern,
+    Reflective,
+    TabulatedSpectrum,
+    register_surface,
+)
 from relview.scene.model import Scene, load_scene, scene_from_dict
 from relview.scene.table import index_lines
 
@@ -29,34 +36,6 @@ REPO = Path(__file__).resolve().parents[1]
 
 
 # --------------------------------------------------------------------------- helpers
-
-
-class _Recorded:
-    """Stands in for a material class: keeps the arguments it was built with."""
-
-    def __init__(self, *args, **kwargs):
-        self.args = args
-        self.kwargs = kwargs
-
-
-@pytest.fixture
-def fake_materials(monkeypatch):
-    """Replace relview.light.materials by classes that record their constructor arguments."""
-    mod = types.ModuleType("relview.light.materials")
-    for name in ("Blackbody", "EmissionLines", "Reflective", "Pattern"):
-        setattr(mod, name, type(name, (_Recorded,), {}))
-
-    class TabulatedSpectrum(_Recorded):
-        @classmethod
-        def from_csv(cls, path):
-            return cls(path=Path(path))
-
-    mod.TabulatedSpectrum = TabulatedSpectrum
-    monkeypatch.setitem(sys.modules, "relview.light.materials", mod)
-    import relview.light
-
-    monkeypatch.setattr(relview.light, "materials", mod, raising=False)
-    return mod
 
 
 CAMERA = """\
@@ -132,7 +111,7 @@ def scene_format_example() -> str:
     return match.group(1)
 
 
-def test_documented_example_loads(tmp_path, fake_materials):
+def test_documented_example_loads(tmp_path):
     text = scene_format_example()
     # The example references a mesh and a spectrum next to the scene file.
     (tmp_path / "meshes").mkdir()
@@ -144,7 +123,7 @@ def test_documented_example_loads(tmp_path, fake_materials):
     assert {b.shape for b in scene.bodies} >= {"box", "sphere", "mesh"}
 
 
-def test_minimal_scene_defaults(tmp_path, fake_materials):
+def test_minimal_scene_defaults(tmp_path):
     scene = load_text(tmp_path, VALID)
     assert scene.format == 1 and scene.title == ""
     assert scene.render.resolution == (960, 540)
@@ -164,14 +143,14 @@ def test_minimal_scene_defaults(tmp_path, fake_materials):
     np.testing.assert_array_equal(body.motion.beta, [0.5, 0.0, 0.0])
     np.testing.assert_array_equal(body.motion.position, [0.0, 0.0, 0.0])
     assert body.motion.time == 0.0
-    assert type(body.surface).__name__ == "Blackbody"
-    assert body.surface.kwargs == {"temperature_k": 5800.0, "scale": 1.0}
+    assert type(body.surface) is Blackbody
+    assert (body.surface.temperature_k, body.surface.scale) == (5800.0, 1.0)
     assert scene.background.kind == "black"
     assert scene.animation is None
     assert scene.source_path == tmp_path / "scene.toml"
 
 
-def test_body_without_motion_is_at_rest_and_gets_a_name(tmp_path, fake_materials):
+def test_body_without_motion_is_at_rest_and_gets_a_name(tmp_path):
     text = CAMERA + '[[body]]\nshape = "sphere"\nradius = 1.0\n[body.surface]\nblackbody = 3000\n'
     body = load_text(tmp_path, text).bodies[0]
     assert body.name == "body1"
@@ -179,7 +158,7 @@ def test_body_without_motion_is_at_rest_and_gets_a_name(tmp_path, fake_materials
     assert body.radius == 1.0 and body.detail is None
 
 
-def test_all_sections_and_keys(tmp_path, fake_materials):
+def test_all_sections_and_keys(tmp_path):
     text = """\
 [scene]
 title = "Two lamps and a ring"
@@ -255,15 +234,12 @@ fps = 30
     np.testing.assert_array_equal(lamp.rotation, [0.0, 90.0, 0.0])
     assert lamp.motion.time == 2.0e-9
     np.testing.assert_array_equal(lamp.motion.position, [0.0, 4.0, 0.0])
-    assert lamp.surface.kwargs == {"lines": [(656.28, 1.0, 2.0), (486.13, 0.5, 1.0)]}
+    assert type(lamp.surface) is EmissionLines
+    assert lamp.surface.lines == ((656.28, 1.0, 2.0), (486.13, 0.5, 1.0))
     np.testing.assert_array_equal(sign.size, [2.0, 1.0])
-    assert type(sign.surface).__name__ == "Reflective"
-    assert sign.surface.kwargs == {
-        "rgb": (0.9, 0.5, 0.1),
-        "lamp": "D65",
-        "luminance": 80.0,
-        "texture": None,
-    }
+    assert type(sign.surface) is Reflective
+    s = sign.surface
+    assert (s.rgb, s.lamp, s.luminance, s.texture) == ((0.9, 0.5, 0.1), "D65", 80.0, None)
     bg = scene.background
     assert (bg.kind, bg.count, bg.seed, bg.temperature, bg.luminance) == (
         "stars",
@@ -276,7 +252,7 @@ fps = 30
     assert (a.start, a.end, a.frames, a.fps) == (0.0, 1.0e-8, 10, 30.0)
 
 
-def test_graticule_background_and_panorama(tmp_path, fake_materials):
+def test_graticule_background_and_panorama(tmp_path):
     text = replace(
         VALID, "look_at = [0.0, 0.0, 0.0]\n", 'look_at = [0.0, 0.0, 0.0]\nprojection = "panorama"\n'
     )
@@ -293,7 +269,7 @@ def test_graticule_background_and_panorama(tmp_path, fake_materials):
     )
 
 
-def test_pattern_surface_nests(tmp_path, fake_materials):
+def test_pattern_surface_nests(tmp_path):
     text = replace(
         VALID,
         "blackbody = 5800.0",
@@ -301,38 +277,31 @@ def test_pattern_surface_nests(tmp_path, fake_materials):
         "first = { blackbody = 6500 }, second = { color = [0.1, 0.1, 0.1] } }",
     )
     surface = load_text(tmp_path, text).bodies[0].surface
-    assert type(surface).__name__ == "Pattern"
-    kw = surface.kwargs
-    assert (kw["kind"], kw["period"], kw["line_width"], kw["axes"]) == (
+    assert type(surface) is Pattern
+    assert (surface.kind, surface.period, surface.line_width, surface.axes) == (
         "checks",
         0.25,
         0.02,
         (0, 1, 2),
     )
-    assert (
-        type(kw["first"]).__name__ == "Blackbody" and kw["first"].kwargs["temperature_k"] == 6500.0
-    )
-    assert type(kw["second"]).__name__ == "Reflective" and kw["second"].kwargs["rgb"] == (
-        0.1,
-        0.1,
-        0.1,
-    )
-    assert kw["second"].kwargs["lamp"] == 5800.0 and kw["second"].kwargs["luminance"] == 100.0
+    first, second = surface.first, surface.second
+    assert type(first) is Blackbody and first.temperature_k == 6500.0
+    assert type(second) is Reflective and second.rgb == (0.1, 0.1, 0.1)
+    assert second.lamp == 5800.0 and second.luminance == 100.0
 
 
-def test_single_line_surface_and_blackbody_scale(tmp_path, fake_materials):
+def test_single_line_surface_and_blackbody_scale(tmp_path):
     text = replace(
         VALID, "blackbody = 5800.0", "line = { nm = 656.28, width_nm = 1.0, radiance = 1.0 }"
     )
-    assert load_text(tmp_path, text).bodies[0].surface.kwargs == {"lines": [(656.28, 1.0, 1.0)]}
+    surface = load_text(tmp_path, text).bodies[0].surface
+    assert type(surface) is EmissionLines and surface.lines == ((656.28, 1.0, 1.0),)
     text = replace(VALID, "blackbody = 5800.0", "blackbody = 3000\nscale = 0.5")
-    assert load_text(tmp_path, text).bodies[0].surface.kwargs == {
-        "temperature_k": 3000.0,
-        "scale": 0.5,
-    }
+    surface = load_text(tmp_path, text).bodies[0].surface
+    assert type(surface) is Blackbody and (surface.temperature_k, surface.scale) == (3000.0, 0.5)
 
 
-def test_paths_resolve_relative_to_scene_file(tmp_path, fake_materials, monkeypatch):
+def test_paths_resolve_relative_to_scene_file(tmp_path, monkeypatch):
     scene_dir = tmp_path / "project" / "scenes"
     (scene_dir / "meshes").mkdir(parents=True)
     trimesh.creation.box(extents=(1.0, 2.0, 3.0)).export(scene_dir / "meshes" / "crate.stl")
@@ -364,8 +333,9 @@ texture = "paint.png"
     scene = load_scene(Path("project/scenes/scene.toml"))
     crate, panel = scene.bodies
     assert crate.file == scene_dir / "meshes" / "crate.stl"
-    assert crate.surface.kwargs["path"] == scene_dir / "glow.csv"
-    assert panel.surface.kwargs["texture"] == scene_dir / "paint.png"
+    assert type(crate.surface) is TabulatedSpectrum
+    assert crate.surface.name == str(scene_dir / "glow.csv")  # the path from_csv was given
+    assert type(panel.surface) is Reflective and panel.surface.texture == scene_dir / "paint.png"
     # source_hash: sha256 over the scene bytes and each referenced file (name + bytes).
     h = hashlib.sha256(path.read_bytes())
     for f in (scene_dir / "meshes" / "crate.stl", scene_dir / "glow.csv", scene_dir / "paint.png"):
@@ -374,7 +344,7 @@ texture = "paint.png"
     assert scene.source_hash == h.hexdigest()
 
 
-def test_source_hash_follows_referenced_files(tmp_path, fake_materials):
+def test_source_hash_follows_referenced_files(tmp_path):
     trimesh.creation.box(extents=(1.0, 1.0, 1.0)).export(tmp_path / "m.ply")
     text = CAMERA + '[[body]]\nshape = "mesh"\nfile = "m.ply"\n[body.surface]\nblackbody = 4000\n'
     first = load_text(tmp_path, text).source_hash
@@ -387,7 +357,7 @@ def test_source_hash_follows_referenced_files(tmp_path, fake_materials):
     )
 
 
-def test_from_dict_builds_the_same_scene(tmp_path, fake_materials):
+def test_from_dict_builds_the_same_scene(tmp_path):
     data = {
         "camera": {"position": [0.0, -5.0, 0.0], "look_at": [0.0, 0.0, 0.0]},
         "body": [
@@ -411,10 +381,9 @@ def test_from_dict_builds_the_same_scene(tmp_path, fake_materials):
     assert str(info.value).startswith("my-script: [camera] fov: ")
 
 
-def test_from_dict_accepts_paths_and_ready_made_objects(tmp_path, fake_materials):
+def test_from_dict_accepts_paths_and_ready_made_objects(tmp_path):
     trimesh.creation.box(extents=(1.0, 1.0, 1.0)).export(tmp_path / "cube.stl")
-    surface = fake_materials.Blackbody(4000.0)
-    surface.observed_xyz = surface.key = lambda *a: None  # the surface interface
+    surface = Blackbody(4000.0)
     motion = UniformMotion(beta=np.array([0.1, 0.0, 0.0]))
     data = {
         "camera": {"position": [0.0, -5.0, 0.0], "direction": [0.0, 1.0, 0.0]},
@@ -426,7 +395,7 @@ def test_from_dict_accepts_paths_and_ready_made_objects(tmp_path, fake_materials
     assert b.file == tmp_path / "cube.stl" and b.surface is surface and b.motion is motion
 
 
-def test_line_numbers_in_later_bodies_and_dotted_keys(tmp_path, fake_materials):
+def test_line_numbers_in_later_bodies_and_dotted_keys(tmp_path):
     second = replace(BODY, 'name = "rod"', 'name = "beam"').replace(
         "beta = [0.5, 0.0, 0.0]", "beta = [0.0, 0.0, 1.5]"
     )
@@ -459,7 +428,7 @@ def test_index_lines_follows_tables_and_arrays_of_tables():
     assert lines[("body", 1, "shape")] == 13
 
 
-def test_registered_motion_kind_is_used(tmp_path, fake_materials):
+def test_registered_motion_kind_is_used(tmp_path):
     class Spin:
         def __init__(self, rate):
             self.rate = rate
@@ -478,6 +447,43 @@ def test_registered_motion_kind_is_used(tmp_path, fake_materials):
         assert_names(err, '[body.motion] rate (body "rod")', "-3.0", line_of(text, "rate ="))
     finally:
         MOTION_KINDS.pop("test-spin")
+
+
+def test_registered_surface_kind_is_used(tmp_path):
+    # a new surface kind: one class with its schema, plus its registration
+    class Glow(Blackbody):
+        @classmethod
+        def from_table(cls, table):
+            return cls(table.number("test-glow", positive=True, unit="K"),
+                       scale=table.number("gain", 1.0))
+
+    register_surface("test-glow", Glow.from_table, extras=("gain",))
+    try:
+        text = replace(VALID, "blackbody = 5800.0", "test-glow = 4000.0\ngain = 0.25")
+        surface = load_text(tmp_path, text).bodies[0].surface
+        assert type(surface) is Glow and (surface.temperature_k, surface.scale) == (4000.0, 0.25)
+        # the table's own checks name the key and line
+        err = error_of(tmp_path, replace(text, "test-glow = 4000.0", "test-glow = -4000.0"))
+        assert_names(err, '[body.surface] test-glow (body "rod")', "-4000.0",
+                     line_of(text, "test-glow"))
+        # a constructor's ValueError is reported at the kind key, with its value
+        err = error_of(tmp_path, replace(text, "gain = 0.25", "gain = -1.0"))
+        assert_names(err, '[body.surface] test-glow (body "rod")', "test-glow = 4000.0",
+                     line_of(text, "test-glow"))
+        assert "blackbody scale must be finite and >= 0" in str(err)
+        # its extra key belongs to it alone
+        text = replace(VALID, "blackbody = 5800.0", "blackbody = 5800.0\ngain = 2")
+        err = error_of(tmp_path, text)
+        assert_names(err, '[body.surface] gain (body "rod")', "gain = 2", line_of(text, "gain"))
+        assert "applies only to test-glow surfaces, not blackbody" in str(err)
+        # and it can fill a pattern
+        text = replace(VALID, "blackbody = 5800.0", 'pattern = { kind = "checks", '
+                       'first = { test-glow = 3000 }, second = { blackbody = 2000 } }')
+        assert type(load_text(tmp_path, text).bodies[0].surface.first) is Glow
+    finally:
+        SURFACE_KINDS.pop("test-glow")
+    err = error_of(tmp_path, replace(VALID, "blackbody = 5800.0", "test-glow = 4000.0"))
+    assert 'unknown key "test-glow"' in str(err)
 
 
 # --------------------------------------------------------------------------- error catalogue
@@ -536,7 +542,7 @@ def test_scene_file_not_utf8(tmp_path):
         ),
     ],
 )
-def test_unknown_keys_suggest_nearest(tmp_path, fake_materials, old, new, key, suggestion):
+def test_unknown_keys_suggest_nearest(tmp_path, old, new, key, suggestion):
     text = replace(VALID, old, new)
     err = error_of(tmp_path, text)
     bad = key.split("]")[-1].split("(")[0].strip() if "]" in key else key
@@ -544,7 +550,7 @@ def test_unknown_keys_suggest_nearest(tmp_path, fake_materials, old, new, key, s
     assert f"did you mean {suggestion}?" in str(err)
 
 
-def test_unknown_keys_in_other_sections(tmp_path, fake_materials):
+def test_unknown_keys_in_other_sections(tmp_path):
     cases = [
         ("[render]\nsampels = 2\n", "[render] sampels", '"samples"'),
         (
@@ -683,7 +689,7 @@ BAD_VALUES = [
 
 
 @pytest.mark.parametrize("old, new, key, value, says", BAD_VALUES)
-def test_bad_values(tmp_path, fake_materials, old, new, key, value, says):
+def test_bad_values(tmp_path, old, new, key, value, says):
     text = replace(VALID, old, new)
     err = error_of(tmp_path, text)
     assert_names(err, key, value, line_of(text, new.splitlines()[-1]))
@@ -731,13 +737,13 @@ def test_bad_render_values(tmp_path, section, key, value, says):
         ('projection = "panorama"\nfov = 90.0', "[camera] fov", "90.0"),
     ],
 )
-def test_fov_out_of_range(tmp_path, fake_materials, extra, key, value):
+def test_fov_out_of_range(tmp_path, extra, key, value):
     text = replace(VALID, "look_at = [0.0, 0.0, 0.0]", "look_at = [0.0, 0.0, 0.0]\n" + extra)
     err = error_of(tmp_path, text)
     assert_names(err, key, value, line_of(text, "fov ="))
 
 
-def test_fisheye_accepts_full_circle(tmp_path, fake_materials):
+def test_fisheye_accepts_full_circle(tmp_path):
     text = replace(
         VALID,
         "look_at = [0.0, 0.0, 0.0]",
@@ -750,14 +756,14 @@ def test_fisheye_accepts_full_circle(tmp_path, fake_materials):
     "beta, speed",
     [("[0.8, 0.8, 0.0]", "1.13137"), ("[1.0, 0.0, 0.0]", "1"), ("[0.0, 0.0, -3.0]", "3")],
 )
-def test_body_speed_at_or_above_c(tmp_path, fake_materials, beta, speed):
+def test_body_speed_at_or_above_c(tmp_path, beta, speed):
     text = replace(VALID, "beta = [0.5, 0.0, 0.0]", f"beta = {beta}")
     err = error_of(tmp_path, text)
     assert_names(err, '[body.motion] beta (body "rod")', beta, line_of(text, "beta ="))
     assert f"speed |beta| = {speed} is at or above c" in str(err)
 
 
-def test_camera_speed_at_or_above_c(tmp_path, fake_materials):
+def test_camera_speed_at_or_above_c(tmp_path):
     text = replace(
         VALID, "look_at = [0.0, 0.0, 0.0]", "look_at = [0.0, 0.0, 0.0]\nbeta = [0.0, 0.99999, 0.01]"
     )
@@ -768,7 +774,7 @@ def test_camera_speed_at_or_above_c(tmp_path, fake_materials):
     assert "at or above c" in str(err)
 
 
-def test_look_at_equal_to_position(tmp_path, fake_materials):
+def test_look_at_equal_to_position(tmp_path):
     text = replace(VALID, "look_at = [0.0, 0.0, 0.0]", "look_at = [0.0, -5.0, 0.0]")
     err = error_of(tmp_path, text)
     assert_names(err, "[camera] look_at", "[0.0, -5.0, 0.0]", line_of(text, "look_at"))
@@ -776,14 +782,14 @@ def test_look_at_equal_to_position(tmp_path, fake_materials):
 
 
 @pytest.mark.parametrize("up", ["[0.0, 1.0, 0.0]", "[0.0, -2.0, 0.0]"])
-def test_up_parallel_to_view(tmp_path, fake_materials, up):
+def test_up_parallel_to_view(tmp_path, up):
     text = replace(VALID, "look_at = [0.0, 0.0, 0.0]", f"look_at = [0.0, 0.0, 0.0]\nup = {up}")
     err = error_of(tmp_path, text)
     assert_names(err, "[camera] up", up, line_of(text, "up ="))
     assert "parallel to the view direction" in str(err)
 
 
-def test_zero_direction_and_zero_up(tmp_path, fake_materials):
+def test_zero_direction_and_zero_up(tmp_path):
     text = replace(VALID, "look_at = [0.0, 0.0, 0.0]", "direction = [0, 0, 0]")
     assert_names(
         error_of(tmp_path, text), "[camera] direction", "[0, 0, 0]", line_of(text, "direction")
@@ -792,7 +798,7 @@ def test_zero_direction_and_zero_up(tmp_path, fake_materials):
     assert_names(error_of(tmp_path, text), "[camera] up", "[0, 0, 0]", line_of(text, "up ="))
 
 
-def test_exactly_one_of_look_at_and_direction(tmp_path, fake_materials):
+def test_exactly_one_of_look_at_and_direction(tmp_path):
     text = replace(
         VALID, "look_at = [0.0, 0.0, 0.0]", "look_at = [0.0, 0.0, 0.0]\ndirection = [0.0, 1.0, 0.0]"
     )
@@ -806,7 +812,7 @@ def test_exactly_one_of_look_at_and_direction(tmp_path, fake_materials):
     assert "[camera]" in str(err) and "neither" in str(err) and err.line == 1
 
 
-def test_missing_required_keys(tmp_path, fake_materials):
+def test_missing_required_keys(tmp_path):
     text = replace(VALID, "position = [0.0, -5.0, 0.0]\n", "")
     assert_names(
         error_of(tmp_path, text), "[camera] position", 'missing required key "position"', 1
@@ -829,7 +835,7 @@ def test_missing_required_keys(tmp_path, fake_materials):
     )
 
 
-def test_key_for_another_shape(tmp_path, fake_materials):
+def test_key_for_another_shape(tmp_path):
     text = replace(VALID, "size = [1.0, 0.1, 0.1]", "size = [1.0, 0.1, 0.1]\nradius = 0.5")
     err = error_of(tmp_path, text)
     assert_names(err, '[body] radius (body "rod")', "radius = 0.5", line_of(text, "radius"))
@@ -873,7 +879,7 @@ def test_key_for_another_shape(tmp_path, fake_materials):
         ),
     ],
 )
-def test_unknown_values_suggest(tmp_path, fake_materials, old, new, key, value, suggestion):
+def test_unknown_values_suggest(tmp_path, old, new, key, value, suggestion):
     text = replace(VALID, old, new)
     err = error_of(tmp_path, text)
     assert_names(err, key, value, line_of(text, new.splitlines()[-1]))
@@ -903,7 +909,7 @@ def test_background_key_for_other_kind_and_ranges(tmp_path):
     assert_names(error_of(tmp_path, text), "[background] width", "6.0", len(text.splitlines()))
 
 
-def test_duplicate_body_names(tmp_path, fake_materials):
+def test_duplicate_body_names(tmp_path):
     text = VALID + "\n" + BODY
     err = error_of(tmp_path, text)
     second_name_line = [i for i, line in enumerate(text.splitlines(), 1) if line == 'name = "rod"'][
@@ -919,7 +925,7 @@ def test_body_must_be_array_of_tables(tmp_path):
     assert "[[body]]" in str(err) and err.line == line_of(text, "[body]")
 
 
-def test_format_newer_than_supported(tmp_path, fake_materials):
+def test_format_newer_than_supported(tmp_path):
     text = "[scene]\nformat = 2\nnew_key_of_format_2 = 1\n\n" + VALID
     err = error_of(tmp_path, text)
     assert_names(err, "[scene] format", "format = 2", 2)
@@ -928,7 +934,7 @@ def test_format_newer_than_supported(tmp_path, fake_materials):
     assert_names(error_of(tmp_path, text), "[scene] format", "format = 0", 2)
 
 
-def test_animation_end_before_start_and_frames(tmp_path, fake_materials):
+def test_animation_end_before_start_and_frames(tmp_path):
     text = VALID + "\n[animation]\nstart = 1.0e-8\nend = 0.5e-8\nframes = 10\n"
     err = error_of(tmp_path, text)
     assert_names(err, "[animation] end", "5e-09", line_of(text, "end ="))
@@ -941,7 +947,7 @@ def test_animation_end_before_start_and_frames(tmp_path, fake_materials):
     assert_names(error_of(tmp_path, text), "[animation] fps", "fps = 0", line_of(text, "fps ="))
 
 
-def test_surface_needs_exactly_one_kind(tmp_path, fake_materials):
+def test_surface_needs_exactly_one_kind(tmp_path):
     text = replace(VALID, "blackbody = 5800.0", "blackbody = 5800.0\ncolor = [0.5, 0.5, 0.5]")
     err = error_of(tmp_path, text)
     assert_names(
@@ -961,7 +967,7 @@ def test_surface_needs_exactly_one_kind(tmp_path, fake_materials):
     assert "applies only to color surfaces" in str(err)
 
 
-def test_surface_value_checks(tmp_path, fake_materials):
+def test_surface_value_checks(tmp_path):
     cases = [
         ("color = [1.2, 0.5, 0.5]", '[body.surface] color (body "rod")', "[1.2, 0.5, 0.5]", "0..1"),
         (
@@ -1012,7 +1018,7 @@ def test_surface_value_checks(tmp_path, fake_materials):
         assert hint in str(err)
 
 
-def test_spectrum_and_texture_files(tmp_path, fake_materials):
+def test_spectrum_and_texture_files(tmp_path):
     text = replace(VALID, "blackbody = 5800.0", 'spectrum = "missing.csv"')
     err = error_of(tmp_path, text)
     assert_names(
@@ -1043,7 +1049,7 @@ blackbody = 5800.0
 )
 
 
-def test_mesh_body_loads_and_scales(tmp_path, fake_materials):
+def test_mesh_body_loads_and_scales(tmp_path):
     trimesh.creation.box(extents=(1.0, 2.0, 3.0)).export(tmp_path / "crate.obj")
     text = MESH_BODY.format(file="crate.obj").replace(
         'shape = "mesh"', 'shape = "mesh"\nscale = 0.5'
@@ -1067,7 +1073,7 @@ def test_mesh_body_loads_and_scales(tmp_path, fake_materials):
         (lambda p: p.mkdir(), "not a file"),
     ],
 )
-def test_bad_mesh_files(tmp_path, fake_materials, make, problem):
+def test_bad_mesh_files(tmp_path, make, problem):
     mesh = tmp_path / "hull.ply"
     if make is not None:
         make(mesh)
@@ -1083,7 +1089,7 @@ def test_bad_mesh_files(tmp_path, fake_materials, make, problem):
     not hasattr(__import__("os"), "geteuid") or __import__("os").geteuid() == 0,
     reason="root reads files regardless of permissions",
 )
-def test_unreadable_mesh_file(tmp_path, fake_materials):
+def test_unreadable_mesh_file(tmp_path):
     mesh = tmp_path / "hull.obj"
     trimesh.creation.box().export(mesh)
     mesh.chmod(0)
@@ -1120,7 +1126,7 @@ def test_malformed_spectrum_csv_names_scene_key_and_csv_line(tmp_path):
     assert "glow.csv, line 3" in str(err)
 
 
-def test_motion_kinds_from_relview_motion_are_registered(tmp_path, fake_materials):
+def test_motion_kinds_from_relview_motion_are_registered(tmp_path):
     pytest.importorskip("relview.kinematics.kinds")
     text = replace(
         VALID,
