@@ -22,6 +22,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import trimesh
+from conftest import write_text
 
 import relview.imaging.files
 import relview.renderer
@@ -71,13 +72,6 @@ def edit(old: str, new: str, text: str = SCENE) -> str:
 
 def mesh_scene(file: str) -> str:
     return edit(SPHERE, f'shape = "mesh"\nfile = "{file}"')
-
-
-def write(directory: Path, text: str, name: str = "scene.toml") -> Path:
-    path = directory / name
-    path.parent.mkdir(parents=True, exist_ok=True)
-    path.write_text(text, encoding="utf-8")
-    return path
 
 
 def line_of(text: str, fragment: str) -> int:
@@ -154,7 +148,7 @@ SCENE_MISTAKES = [
 def test_scene_mistake_names_file_line_key_and_value(tmp_path, capsys, case):
     _, old, new, key, value, words = case
     text = edit(old, new)
-    path = write(tmp_path, text)
+    path = write_text(tmp_path, text)
     code, _, err = run(capsys, "check", path)
     line = line_of(text, new.splitlines()[-1])
     assert_user_error(code, err, f"{path}:{line}: {key}", value, words)
@@ -162,13 +156,13 @@ def test_scene_mistake_names_file_line_key_and_value(tmp_path, capsys, case):
 
 def test_toml_syntax_error_gives_line_column_and_the_line(tmp_path, capsys):
     text = edit("radius = 1.0", "radius = 1.0.0")
-    path = write(tmp_path, text)
+    path = write_text(tmp_path, text)
     code, _, err = run(capsys, "check", path)
     assert_user_error(code, err, f"{path}:16:13: TOML syntax error", "'radius = 1.0.0'")
 
 
 def test_unclosed_string_is_a_syntax_error_on_its_line(tmp_path, capsys):
-    path = write(tmp_path, edit('title = "error catalogue"', 'title = "error catalogue'))
+    path = write_text(tmp_path, edit('title = "error catalogue"', 'title = "error catalogue'))
     code, _, err = run(capsys, "render", path)
     assert_user_error(code, err, f"{path}:2:", "TOML syntax error", "title = \"error catalogue'")
 
@@ -196,7 +190,7 @@ def test_wrong_value_in_second_body_names_that_body_and_its_line(tmp_path, capsy
     second = '\n[[body]]\nname = "rod"\nshape = "box"\nsize = [4.0, 0.1, 0.1]\n' \
              '[body.motion]\nbeta = [0.0, 0.0, 1.5]\n[body.surface]\nblackbody = 3000.0\n'
     text = SCENE + second
-    path = write(tmp_path, text)
+    path = write_text(tmp_path, text)
     code, _, err = run(capsys, "check", path)
     line = line_of(text, "beta = [0.0, 0.0, 1.5]")
     assert_user_error(code, err, f'{path}:{line}: [body.motion] beta (body "rod")',
@@ -236,7 +230,7 @@ def test_bad_mesh_file_names_scene_key_value_and_mesh(tmp_path, capsys, name, ma
     if make is not None:
         make(tmp_path / name)
     text = mesh_scene(name)
-    path = write(tmp_path, text)
+    path = write_text(tmp_path, text)
     code, _, err = run(capsys, "check", path)
     line = line_of(text, f'file = "{name}"')
     assert_user_error(code, err, f'{path}:{line}: [body] file (body "ball")', f'"{name}"',
@@ -257,7 +251,7 @@ def test_unreadable_mesh_file(tmp_path, capsys, monkeypatch):
         return real_open(file, *args, **kwargs)
 
     monkeypatch.setattr(relview.scene.table, "open", refusing_open, raising=False)
-    path = write(tmp_path, mesh_scene("locked.obj"))
+    path = write_text(tmp_path, mesh_scene("locked.obj"))
     code, _, err = run(capsys, "check", path)
     assert_user_error(code, err, f'{path}:16: [body] file (body "ball")', '"locked.obj"',
                       "Permission denied")
@@ -279,7 +273,7 @@ def test_repairable_mesh_warns_naming_the_file_and_renders(tmp_path, capsys, nam
 
     shapes.clear_cache()  # the warning is given when the file is read
     (tmp_path / name).write_text(content)
-    path = write(tmp_path, mesh_scene(name).replace("[0.0, -6.0, 0.0]", "[0.3, -3.0, 0.2]"))
+    path = write_text(tmp_path, mesh_scene(name).replace("[0.0, -6.0, 0.0]", "[0.3, -3.0, 0.2]"))
     out_png = tmp_path / "out.png"
     code, out, err = run(capsys, "render", path, "-o", out_png, "--quiet")
     assert code == 0, err
@@ -303,7 +297,7 @@ def test_camera_inside_a_body_warns_naming_the_body(tmp_path, capsys):
     # (length contraction, e.g. Rindler, Relativity (2006) sec. 2.8). x = 0.2 m at t = 0
     # is x' = gamma * 0.2 = 0.46 m from the centre in the ball's rest frame: inside.
     assert lorentz_factor(np.array([0.9, 0, 0])) * 0.2 < 0.9  # margin for the facets
-    path = write(tmp_path, _inside_scene(0.2))
+    path = write_text(tmp_path, _inside_scene(0.2))
     code, _, err = run(capsys, "render", path, "-o", tmp_path / "in.png", "--quiet")
     assert code == 0, err
     assert f"relview: warning: {path}: the camera is inside body 'ball' at t = 0 s" in err
@@ -314,7 +308,7 @@ def test_camera_beside_a_contracted_body_does_not_warn(tmp_path, capsys):
     # x = 0.6 m is inside the uncontracted ball but outside the contracted one:
     # x' = gamma * 0.6 = 1.38 m > 1 m in the rest frame.
     assert lorentz_factor(np.array([0.9, 0, 0])) * 0.6 > 1.0
-    path = write(tmp_path, _inside_scene(0.6))
+    path = write_text(tmp_path, _inside_scene(0.6))
     code, _, err = run(capsys, "render", path, "-o", tmp_path / "out.png", "--quiet")
     assert code == 0, err
     assert "inside body" not in err
@@ -326,7 +320,7 @@ def test_camera_beside_a_contracted_body_does_not_warn(tmp_path, capsys):
 
 def test_camera_inside_depends_on_the_exposure_time(tmp_path, capsys):
     # 10 ns later the ball centre is 0.9 * c * 1e-8 = 2.7 m further along x.
-    path = write(tmp_path, _inside_scene(0.2))
+    path = write_text(tmp_path, _inside_scene(0.2))
     code, _, err = run(capsys, "render", path, "--time", "1e-8", "-o", tmp_path / "o.png",
                        "--quiet")
     assert code == 0 and "inside body" not in err
@@ -341,7 +335,7 @@ def test_huge_resolution_option_refused_before_any_work(tmp_path, capsys, monkey
 
     monkeypatch.setattr(relview.renderer, "RenderContext", no_work)
     monkeypatch.chdir(tmp_path)
-    path = write(tmp_path, SCENE)
+    path = write_text(tmp_path, SCENE)
     code, _, err = run(capsys, "render", path, "--resolution", "100000x100000")
     assert_user_error(code, err, "--resolution = [100000, 100000]: a frame needs about",
                       "GiB but only", "lower the resolution")
@@ -352,7 +346,7 @@ def test_huge_resolution_option_refused_before_any_work(tmp_path, capsys, monkey
 def test_huge_resolution_in_scene_file_refused(tmp_path, capsys, monkeypatch, command):
     monkeypatch.setattr(relview.renderer, "RenderContext", None)  # any use would fail
     monkeypatch.chdir(tmp_path)
-    path = write(tmp_path, edit("resolution = [16, 9]", "resolution = [100000, 100000]"))
+    path = write_text(tmp_path, edit("resolution = [16, 9]", "resolution = [100000, 100000]"))
     code, _, err = run(capsys, command, path)
     # 100000**2 pixels * 144 bytes: 1341.2 GiB (estimate_bytes, renderer.BYTES_PER_PIXEL)
     need = relview.renderer.estimate_bytes(100000, 100000) / 2**30
@@ -394,7 +388,7 @@ def test_huge_resolution_in_scene_file_refused(tmp_path, capsys, monkeypatch, co
 )
 def test_bad_command_line(tmp_path, capsys, monkeypatch, argv, words):
     monkeypatch.chdir(tmp_path)
-    scene = write(tmp_path, SCENE)
+    scene = write_text(tmp_path, SCENE)
     code, _, err = run(capsys, *[a.format(scene=scene) for a in argv])
     assert_user_error(code, err, words)
     assert not (tmp_path / "outputs").exists()
@@ -410,7 +404,7 @@ def test_interrupt_exits_130_and_keeps_finished_files(tmp_path, capsys, monkeypa
         raise KeyboardInterrupt
 
     monkeypatch.setattr(relview.renderer, "render", interrupted)
-    code, _, err = run(capsys, "render", write(tmp_path, SCENE))
+    code, _, err = run(capsys, "render", write_text(tmp_path, SCENE))
     assert code == 130 and "interrupted; finished files are kept" in err
 
 
@@ -419,7 +413,7 @@ def test_internal_error_exits_1_and_asks_for_a_report(tmp_path, capsys, monkeypa
         return 1 / 0
 
     monkeypatch.setattr(relview.renderer, "render", broken)
-    code, _, err = run(capsys, "render", write(tmp_path, SCENE))
+    code, _, err = run(capsys, "render", write_text(tmp_path, SCENE))
     assert code == 1
     assert "ZeroDivisionError" in err and "internal error" in err and "please report" in err
 
@@ -432,7 +426,7 @@ def _render(capsys, scene, out, *extra):
 
 
 def test_second_render_gets_a_numbered_name_and_first_is_untouched(tmp_path, capsys):
-    scene = write(tmp_path, SCENE)
+    scene = write_text(tmp_path, SCENE)
     first = tmp_path / "out.png"
     assert _render(capsys, scene, first)[0] == 0
     before, mtime = first.read_bytes(), first.stat().st_mtime_ns
@@ -446,7 +440,7 @@ def test_second_render_gets_a_numbered_name_and_first_is_untouched(tmp_path, cap
 def test_overwrite_replaces(tmp_path, capsys):
     from PIL import Image
 
-    scene = write(tmp_path, SCENE)
+    scene = write_text(tmp_path, SCENE)
     out_png = tmp_path / "out.png"
     assert _render(capsys, scene, out_png)[0] == 0
     code, out, _ = _render(capsys, scene, out_png, "--resolution", "8x4", "--overwrite")
@@ -469,7 +463,7 @@ def test_overwrite_replaces(tmp_path, capsys):
 )
 def test_failed_write_is_clear_and_leaves_no_partial_file(tmp_path, capsys, monkeypatch,
                                                           patched, exc, words, overwrite):
-    scene = write(tmp_path, SCENE)
+    scene = write_text(tmp_path, SCENE)
     out_dir = tmp_path / "out"
     out_dir.mkdir()
     target = out_dir / "image.png"
@@ -499,7 +493,7 @@ def test_unwritable_directory_is_clear(tmp_path, capsys, monkeypatch):
         return real_open(file, mode, *args, **kwargs)
 
     monkeypatch.setattr(relview.imaging.files, "open", refusing_open, raising=False)
-    scene = write(tmp_path, SCENE)
+    scene = write_text(tmp_path, SCENE)
     code, _, err = _render(capsys, scene, tmp_path / "o.png")
     assert_user_error(code, err, f"{tmp_path / 'o.png'}: cannot write the output file: "
                                  "permission denied [EACCES]")
@@ -513,7 +507,7 @@ def no_rendering(monkeypatch):
 
 
 def test_output_parent_is_a_file(tmp_path, capsys, no_rendering):
-    scene = write(tmp_path, SCENE)
+    scene = write_text(tmp_path, SCENE)
     before = scene.read_bytes()
     code, _, err = _render(capsys, scene, scene / "image.png")
     assert_user_error(code, err, f"{scene / 'image.png'}: cannot create the directory: "
@@ -522,7 +516,7 @@ def test_output_parent_is_a_file(tmp_path, capsys, no_rendering):
 
 
 def test_output_is_a_directory_or_unknown_type(tmp_path, capsys, no_rendering):
-    scene = write(tmp_path, SCENE)
+    scene = write_text(tmp_path, SCENE)
     code, _, err = _render(capsys, scene, tmp_path)
     assert_user_error(code, err, f"{tmp_path}: unknown", "type ''", ".png")
     (tmp_path / "dir.png").mkdir()
@@ -541,13 +535,13 @@ def test_code_in_strings_stays_data(tmp_path, capsys, monkeypatch):
     payload = "__import__('os').system('touch pwned')"
     text = edit('title = "error catalogue"', f'title = "{payload}"')
     text = edit("name = \"ball\"", 'name = "$(touch pwned2)"', text)
-    path = write(tmp_path, text)
+    path = write_text(tmp_path, text)
     scene = load_scene(path)
     assert scene.title == payload and scene.bodies[0].name == "$(touch pwned2)"
     assert _render(capsys, path, tmp_path / "o.png")[0] == 0
     assert run(capsys, "probe", path, "--body", "$(touch pwned2)", "--point", "0,0,0")[0] == 0
     # In a place that wants a number, code is a type error, never evaluated.
-    bad = write(tmp_path, edit("radius = 1.0", f'radius = "{payload}"'), "bad.toml")
+    bad = write_text(tmp_path, edit("radius = 1.0", f'radius = "{payload}"'), "bad.toml")
     code, _, err = run(capsys, "check", bad)
     assert_user_error(code, err, "expected a number, got a string")
     assert not list(tmp_path.glob("pwned*"))
@@ -556,7 +550,7 @@ def test_code_in_strings_stays_data(tmp_path, capsys, monkeypatch):
 def test_python_file_as_mesh_is_refused_not_run(tmp_path, capsys):
     marker = tmp_path / "ran"
     (tmp_path / "evil.py").write_text(f"open({str(marker)!r}, 'w').write('x')\n")
-    path = write(tmp_path, mesh_scene("evil.py"))
+    path = write_text(tmp_path, mesh_scene("evil.py"))
     code, _, err = run(capsys, "check", path)
     assert_user_error(code, err, '"evil.py"', "unsupported mesh format '.py'")
     assert not marker.exists()
@@ -569,7 +563,7 @@ def test_mesh_path_with_dotdot_resolves_from_the_scene_file_and_is_only_read(
     mesh = write_cube(tmp_path / "project" / "meshes" / "cube.obj", extents=(2.0, 2.0, 2.0))
     write_cube(tmp_path / "elsewhere" / "meshes" / "cube.obj", extents=(1.0, 1.0, 1.0))
     (tmp_path / "elsewhere" / "scenes").mkdir()
-    scene_path = write(tmp_path / "project" / "scenes",
+    scene_path = write_text(tmp_path / "project" / "scenes",
                        mesh_scene("../meshes/cube.obj").replace("-6.0", "-8.0"))
     monkeypatch.chdir(tmp_path / "elsewhere" / "scenes")
     before = (mesh.read_bytes(), mesh.stat().st_mtime_ns)
@@ -600,14 +594,14 @@ def test_path_values_that_crashed_the_loader(tmp_path, capsys, value, words):
     # OSError(ENAMETOOLONG) from Path.exists escaped as internal errors.
     for text in (mesh_scene(value),
                  edit("blackbody = 5000.0", f'spectrum = "{value}"')):
-        path = write(tmp_path, text)
+        path = write_text(tmp_path, text)
         code, _, err = run(capsys, "check", path)
         assert_user_error(code, err, str(path), f'"{value}"', words)
 
 
 def test_huge_camera_coordinates_are_not_taken_for_look_at_equals_position(tmp_path, capsys):
     # |position|^2 overflowed to inf and the camera check called the two points equal.
-    path = write(tmp_path, edit("position = [0.0, -6.0, 0.0]", "position = [0.0, -1e300, 0.0]"))
+    path = write_text(tmp_path, edit("position = [0.0, -6.0, 0.0]", "position = [0.0, -1e300, 0.0]"))
     code, out, err = run(capsys, "check", path)
     assert code == 0 and f"{path}: ok" in out, err
 
@@ -626,14 +620,14 @@ def test_counts_that_would_exhaust_memory_are_refused(tmp_path, capsys, extra, k
     # background.count = 1e11 ran out of memory drawing the star field (MemoryError,
     # exit 1); counts are now bounded in the loader.
     text = SCENE + extra
-    path = write(tmp_path, text)
+    path = write_text(tmp_path, text)
     code, _, err = run(capsys, "render", path, "-o", tmp_path / "o.png")
     line = line_of(text, key.split()[-1] + " =")
     assert_user_error(code, err, f"{path}:{line}: {key}", words)
 
 
 def test_samples_in_scene_file_bounded(tmp_path, capsys):
-    path = write(tmp_path, edit("resolution = [16, 9]",
+    path = write_text(tmp_path, edit("resolution = [16, 9]",
                                 "resolution = [16, 9]\nsamples = 1000000000"))
     code, _, err = run(capsys, "check", path)
     assert_user_error(code, err, f"{path}:6: [render] samples",
@@ -655,7 +649,7 @@ def test_temperatures_outside_float64_planck_range(tmp_path, capsys, surface, ke
     # visible light and its white normalisation divided by zero (ZeroDivisionError,
     # exit 1); Planck's law overflows above ~1e280 K and a 1e300 K body rendered black.
     text = edit("blackbody = 5000.0", surface)
-    path = write(tmp_path, text)
+    path = write_text(tmp_path, text)
     code, _, err = run(capsys, "render", path, "-o", tmp_path / "o.png")
     line = line_of(text, surface.splitlines()[-1])
     assert_user_error(code, err, f'{path}:{line}: {key} (body "ball")', words)
@@ -663,7 +657,7 @@ def test_temperatures_outside_float64_planck_range(tmp_path, capsys, surface, ke
 
 def test_huge_mesh_scale_is_refused(tmp_path, capsys):
     write_cube(tmp_path / "cube.obj")
-    path = write(tmp_path, mesh_scene("cube.obj").replace('file = "cube.obj"',
+    path = write_text(tmp_path, mesh_scene("cube.obj").replace('file = "cube.obj"',
                                                           'file = "cube.obj"\nscale = 1e300'))
     code, _, err = run(capsys, "check", path)
     assert_user_error(code, err, '[body] file (body "ball")', "scale = 1e+300 gives vertex "
@@ -686,7 +680,7 @@ def test_huge_mesh_scale_is_refused(tmp_path, capsys):
     ids=["unknown-key", "syntax", "memory", "parent-is-file", "unknown-command", "no-mesh"],
 )
 def test_subprocess_shows_only_the_message_and_exits_2(tmp_path, argv, text, words):
-    scene = write(tmp_path, text)
+    scene = write_text(tmp_path, text)
     proc = subprocess.run(
         [sys.executable, "-m", "relview.cli", *[a.format(scene=scene) for a in argv]],
         capture_output=True, text=True, cwd=tmp_path, timeout=120, check=False,
@@ -701,7 +695,7 @@ def test_subprocess_shows_only_the_message_and_exits_2(tmp_path, argv, text, wor
 def test_subprocess_warning_is_one_line_and_render_succeeds(tmp_path):
     (tmp_path / "open.obj").write_text(
         "v 0 0 0\nv 1 0 0\nv 0 1 0\nv 0 0 1\nf 1 3 2\nf 1 2 4\nf 1 4 3\n")
-    scene = write(tmp_path, mesh_scene("open.obj").replace("[0.0, -6.0, 0.0]", "[0.3, -3, 0.2]"))
+    scene = write_text(tmp_path, mesh_scene("open.obj").replace("[0.0, -6.0, 0.0]", "[0.3, -3, 0.2]"))
     proc = subprocess.run(
         [sys.executable, "-m", "relview.cli", "render", str(scene), "-o", "o.png", "--quiet"],
         capture_output=True, text=True, cwd=tmp_path, timeout=120, check=False,
@@ -732,7 +726,7 @@ ANIMATED = SCENE + "\n[animation]\nstart = 0.0\nend = 1.0e-8\nframes = 4\nfps = 
     ],
 )
 def test_animate_bad_frame_ranges(tmp_path, capsys, frames, words):
-    scene = write(tmp_path, ANIMATED)
+    scene = write_text(tmp_path, ANIMATED)
     out_dir = tmp_path / "frames"
     code, _, err = run(capsys, "animate", scene, f"--frames={frames}", "-o", out_dir,
                        "--quiet", "--workers", "1")
@@ -741,13 +735,13 @@ def test_animate_bad_frame_ranges(tmp_path, capsys, frames, words):
 
 
 def test_animate_without_animation_section(tmp_path, capsys):
-    scene = write(tmp_path, SCENE)
+    scene = write_text(tmp_path, SCENE)
     code, _, err = run(capsys, "animate", scene, "-o", tmp_path / "f", "--quiet")
     assert_user_error(code, err, f"{scene}: has no [animation] section")
 
 
 def test_animate_rerun_keeps_finished_frames(tmp_path, capsys):
-    scene = write(tmp_path, ANIMATED)
+    scene = write_text(tmp_path, ANIMATED)
     out_dir = tmp_path / "frames"
     common = ("-o", out_dir, "--quiet", "--workers", "1", "--resolution", "8x8")
     code, _, err = run(capsys, "animate", scene, "--frames", "0:2", *common)
@@ -761,7 +755,7 @@ def test_animate_rerun_keeps_finished_frames(tmp_path, capsys):
 
 
 def test_animate_never_replaces_finished_frames_without_overwrite(tmp_path, capsys):
-    scene = write(tmp_path, ANIMATED)
+    scene = write_text(tmp_path, ANIMATED)
     out_dir = tmp_path / "frames"
     common = ("-o", out_dir, "--quiet", "--workers", "1")
     assert run(capsys, "animate", scene, "--resolution", "8x8", *common)[0] == 0
@@ -777,21 +771,21 @@ def test_animate_never_replaces_finished_frames_without_overwrite(tmp_path, caps
 
 
 def test_probe_times_count_that_cannot_fit(tmp_path, capsys):
-    scene = write(tmp_path, SCENE)
+    scene = write_text(tmp_path, SCENE)
     code, _, err = run(capsys, "probe", scene, "--body", "ball", "--point", "0,0,0",
                        "--times", "0:1e-8:100000000000")
     assert_user_error(code, err, "--times")
 
 
 def test_compare_time_nan(tmp_path, capsys):
-    scene = write(tmp_path, SCENE)
+    scene = write_text(tmp_path, SCENE)
     code, _, err = run(capsys, "compare", scene, "--time", "nan", "-o", tmp_path / "c.png",
                        "--quiet")
     assert_user_error(code, err, "--time")
 
 
 def test_compare_refuses_unwritable_output_before_rendering(tmp_path, capsys, no_rendering):
-    scene = write(tmp_path, SCENE)
+    scene = write_text(tmp_path, SCENE)
     code, _, err = run(capsys, "compare", scene, "-o", scene / "c.png", "--quiet")
     assert_user_error(code, err, "is a file, not a directory")
 
@@ -802,7 +796,7 @@ def test_accelerating_body_seen_from_far_away_renders(tmp_path, capsys):
     text = edit('kind = "uniform"\nbeta = [0.5, 0.0, 0.0]',
                 'kind = "hyperbolic"\nacceleration = [1.0e16, 0.0, 0.0]')
     text = edit("position = [0.0, -6.0, 0.0]", "position = [0.0, -1.0e5, 0.0]", text)
-    path = write(tmp_path, text)
+    path = write_text(tmp_path, text)
     code, _, err = run(capsys, "render", path, "-o", tmp_path / "far.png", "--quiet")
     assert code == 0, err
 
@@ -811,6 +805,6 @@ def test_orbit_with_vanishing_speed(tmp_path, capsys):
     # Found by the slow render fuzz (tests/test_fuzz_loader.py).
     text = edit('kind = "uniform"\nbeta = [0.5, 0.0, 0.0]\nposition = [0.0, 0.0, 0.0]',
                 'kind = "orbit"\nradius = 3.0\nbeta = 6e-301')
-    path = write(tmp_path, text)
+    path = write_text(tmp_path, text)
     code, _, err = run(capsys, "render", path, "-o", tmp_path / "o.png", "--quiet")
     assert code in (0, 2) and "Traceback" not in err, err

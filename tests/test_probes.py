@@ -3,27 +3,16 @@
 
 import numpy as np
 import pytest
+from conftest import camera_scene, moving_body
 from scipy.optimize import brentq
 
 import relview
 from relview.kinematics.lorentz import C, lorentz_factor
-from relview.kinematics.uniform import UniformMotion
-from relview.light.materials import Blackbody
-from relview.scene.model import Scene
-from relview.scene.parts import Body, Camera, Effects, RenderSettings
-
-
-def make_scene(bodies, cam_pos=(0.0, -3.0, 0.0), look=(0.0, 0.0, 0.0), cam_beta=(0, 0, 0),
-               res=(96, 54), fov=70.0, time=0.0):
-    cam = Camera(position=np.array(cam_pos, float), look_at=np.array(look, float), fov=fov,
-                 beta=np.array(cam_beta, float), time=time)
-    return Scene(camera=cam, bodies=bodies, render=RenderSettings(resolution=res))
+from relview.scene.parts import Effects
 
 
 def box(name, size, beta, pos, t=0.0, rotation=(0, 0, 0)):
-    return Body(name=name, shape="box", size=np.array(size, float), surface=Blackbody(5000.0),
-                motion=UniformMotion(beta=np.array(beta, float), position=np.array(pos, float),
-                                     time=t), rotation=np.array(rotation, float))
+    return moving_body(name, "box", beta, pos, size=size, time=t, rotation=rotation)
 
 
 def test_emission_time_matches_scipy_root_of_the_retarded_condition():
@@ -31,7 +20,7 @@ def test_emission_time_matches_scipy_root_of_the_retarded_condition():
     # brentq (general-purpose root finder) for a corner of a moving, rotated box.
     beta = np.array([0.7, -0.2, 0.1])
     body = box("b", [1.0, 0.5, 0.3], beta, [0.5, 0.4, -0.2], t=2e-9, rotation=(10, 20, 30))
-    scene = make_scene([body], time=3e-9)
+    scene = camera_scene([body], time=3e-9)
     corner = np.array([0.5, 0.25, 0.15])
     r = relview.probe(scene, "b", corner)
     # independent worldline: contracted rest-frame offset at equal S times, then drift
@@ -52,7 +41,7 @@ def test_emission_time_matches_scipy_root_of_the_retarded_condition():
 def test_head_on_approach_gives_doppler_three():
     # physics.md check value: an emitter approaching head-on at beta = 0.8 has D = 3.
     body = box("b", [0.2, 0.2, 0.2], [0.0, -0.8, 0.0], [0.0, 5.0, 0.0])
-    scene = make_scene([body], cam_pos=(0, -3, 0), look=(0, 0, 0))
+    scene = camera_scene([body], (0, -3, 0), (0, 0, 0))
     r = relview.probe(scene, "b", [0.0, -0.1, 0.0])
     assert r.doppler == pytest.approx(3.0, rel=1e-12)
     assert r.visible
@@ -62,7 +51,7 @@ def test_aberration_seen_by_a_moving_camera():
     # Einstein 1905 aberration: a source at 90 deg in S appears at 36.87 deg from the direction
     # of motion to a camera moving at 0.8c (physics.md check value).
     body = box("b", [0.2, 0.2, 0.2], [0, 0, 0], [0.0, 10.0, 0.0])
-    scene = make_scene([body], cam_pos=(0, 0, 0), look=(1, 1, 0), cam_beta=(0.8, 0, 0))
+    scene = camera_scene([body], (0, 0, 0), (1, 1, 0), beta=(0.8, 0, 0))
     r = relview.probe(scene, "b", [0.0, -0.1, 0.0])
     assert np.degrees(np.arccos(r.direction[0])) == pytest.approx(36.8698976458, abs=1e-8)
     # D for a source at rest seen by a moving camera, light arriving at 90 deg in S:
@@ -72,7 +61,7 @@ def test_aberration_seen_by_a_moving_camera():
 
 def test_hidden_far_side_and_pixel_agree_with_the_rendered_layers():
     body = box("b", [1.0, 1.0, 1.0], [0.6, 0, 0], [0.6, 0, 0])
-    scene = make_scene([body], res=(160, 90))
+    scene = camera_scene([body], resolution=(160, 90))
     frame = relview.render(scene)
     near = relview.probe(scene, "b", [0.1, -0.5, 0.1])  # on the face towards the camera
     far = relview.probe(scene, "b", [0.1, 0.5, 0.1])  # on the far face
@@ -88,7 +77,7 @@ def test_hidden_far_side_and_pixel_agree_with_the_rendered_layers():
 
 def test_effect_switches_change_the_probe_as_documented():
     body = box("b", [0.2, 0.2, 0.2], [0.9, 0, 0], [0.0, 0.0, 0.0])
-    scene = make_scene([body], time=0.0)
+    scene = camera_scene([body], time=0.0)
     no_delay = relview.probe(scene, "b", [0, 0, 0], effects=Effects(delay=False))
     assert no_delay.emit_time == 0.0  # light instantaneous: emission at the camera time
     assert np.array(no_delay.emit_position) == pytest.approx([0, 0, 0])

@@ -5,14 +5,13 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import camera_scene, dict_scene, moving_body
 
 import relview
 from relview.cli.app import main
 from relview.kinematics.lorentz import C
 from relview.kinematics.uniform import UniformMotion
-from relview.light.materials import Blackbody
-from relview.scene.model import Scene
-from relview.scene.parts import Body, Camera, Effects, RenderSettings
+from relview.scene.parts import Effects, RenderSettings
 
 ROOT = Path(__file__).resolve().parents[1]
 SCENES = sorted((ROOT / "scenes").glob("*.toml"))
@@ -20,16 +19,13 @@ SCENES = sorted((ROOT / "scenes").glob("*.toml"))
 
 def two_body_scene(effects=Effects(), cam_beta=(0.3, 0.0, 0.0), res=(80, 45)):
     bodies = [
-        Body(name="a", shape="box", size=np.array([1.0, 0.6, 0.6]), surface=Blackbody(6000.0),
-             motion=UniformMotion(beta=np.array([0.8, 0, 0]), position=np.array([0.5, 0, 0]))),
-        Body(name="b", shape="sphere", radius=0.4, surface=Blackbody(3000.0),
-             motion=UniformMotion(beta=np.array([-0.5, 0, 0.1]),
-                                  position=np.array([-1.0, 1.0, 0.3]))),
+        moving_body("a", "box", [0.8, 0, 0], [0.5, 0, 0], size=[1.0, 0.6, 0.6],
+                    temperature=6000.0),
+        moving_body("b", "sphere", [-0.5, 0, 0.1], [-1.0, 1.0, 0.3], radius=0.4,
+                    temperature=3000.0),
     ]
-    cam = Camera(position=np.array([0.0, -4.0, 0.5]), look_at=np.zeros(3), fov=80.0,
-                 beta=np.array(cam_beta, float), time=1e-9)
-    return Scene(camera=cam, bodies=bodies,
-                 render=RenderSettings(resolution=res, effects=effects))
+    return camera_scene(bodies, (0.0, -4.0, 0.5), (0.0, 0.0, 0.0), fov=80.0, beta=cam_beta,
+                        time=1e-9, resolution=res, effects=effects)
 
 
 def test_layers_are_consistent_with_null_rays_and_doppler_formula():
@@ -118,21 +114,12 @@ def test_cli_user_errors_exit_2(tmp_path, capsys):
     assert main(["render", str(bad), "--bogus"]) == 2
 
 
-def _dict_scene(camera, bodies=None, render=None):
-    body = {"name": "star", "shape": "sphere", "radius": 0.5, "detail": 3,
-            "motion": {"position": [0.0, 40.0, 0.0]}, "surface": {"blackbody": 5000.0}}
-    data = {"camera": camera, "body": bodies or [body]}
-    if render:
-        data["render"] = render
-    return relview.Scene.from_dict(data)
-
-
 def test_camera_riding_uniform_motion_equals_camera_beta():
-    a = _dict_scene({"position": [0, 0, 0], "direction": [1, 1, 0], "beta": [0.6, 0, 0],
-                     "time": 2e-8, "fov": 90.0})
-    b = _dict_scene({"direction": [1, 1, 0], "time": 2e-8, "fov": 90.0,
-                     "motion": {"kind": "uniform", "beta": [0.6, 0, 0],
-                                "position": [0, 0, 0], "time": 2e-8}})
+    a = dict_scene({"position": [0, 0, 0], "direction": [1, 1, 0], "beta": [0.6, 0, 0],
+                    "time": 2e-8, "fov": 90.0})
+    b = dict_scene({"direction": [1, 1, 0], "time": 2e-8, "fov": 90.0,
+                    "motion": {"kind": "uniform", "beta": [0.6, 0, 0],
+                               "position": [0, 0, 0], "time": 2e-8}})
     fa = relview.render(a, resolution=(48, 27))
     fb = relview.render(b, resolution=(48, 27))
     assert np.array_equal(fa.layers["body"], fb.layers["body"])
@@ -146,9 +133,9 @@ def test_accelerating_camera_aberrates_with_its_velocity_at_the_exposure():
     a = 9.81e8  # m/s2
     t = 0.5  # s
     beta = a * t / np.sqrt(C**2 + (a * t) ** 2)
-    sc = _dict_scene({"direction": [1, 0, 0], "time": t, "fov": 120.0,
-                      "motion": {"kind": "hyperbolic", "acceleration": [a, 0, 0],
-                                 "position": [0, 0, 0], "time": 0.0}})
+    sc = dict_scene({"direction": [1, 0, 0], "time": t, "fov": 120.0,
+                     "motion": {"kind": "hyperbolic", "acceleration": [a, 0, 0],
+                                "position": [0, 0, 0], "time": 0.0}})
     x_cam = C**2 / a * (np.sqrt(1 + (a * t / C) ** 2) - 1)
     # a point-like source abeam of the camera's position at the exposure (90 deg in S)
     sc.bodies[0].motion.position = np.array([x_cam, 40.0, 0.0])
@@ -167,12 +154,12 @@ def test_open_shutter_integrates_the_exposure_events():
             "motion": {"beta": [0.9, 0, 0], "position": [4.0, 0, 0]},
             "surface": {"blackbody": 6000.0}}
     sh = 4e-9
-    blur = _dict_scene(cam, [body], {"shutter": sh, "shutter_samples": 4, "exposure": 1e6})
+    blur = dict_scene(cam, [body], {"shutter": sh, "shutter_samples": 4, "exposure": 1e6})
     times = exposure_times(0.0, sh, 1, 4)
     assert times[0] == 0.0 and len(times) == 4
     assert times[1:].min() >= -sh / 2 and times[1:].max() <= sh / 2
     f = relview.render(blur, resolution=(64, 36))
-    inst = _dict_scene(cam, [body], {"exposure": 1e6})
+    inst = dict_scene(cam, [body], {"exposure": 1e6})
     mean = sum(relview.render(inst, ti, resolution=(64, 36)).layers["xyz"] for ti in times) / 4
     assert (mean[..., 1] > 0).any()
     assert f.layers["xyz"] == pytest.approx(mean, rel=1e-9, abs=1e-6)
@@ -200,8 +187,8 @@ def test_tone_setting_reaches_the_png(tmp_path):
     # 2 (1 + 2/16)/3 = 0.75 of full scale by "reinhard".
     from PIL import Image
 
-    scene = _dict_scene({"position": [0, -3, 0], "look_at": [0, 40, 0], "fov": 20.0},
-                        render={"tone": "reinhard"})
+    scene = dict_scene({"position": [0, -3, 0], "look_at": [0, 40, 0], "fov": 20.0},
+                       render={"tone": "reinhard"})
     probe_frame = relview.render(scene, resolution=(16, 9))
     hit = probe_frame.layers["body"] >= 0
     assert hit.any()

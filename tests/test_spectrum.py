@@ -8,6 +8,7 @@ import colour
 import numpy as np
 import pytest
 import scipy.constants as sc
+from conftest import xyz_colour_science_blackbody
 from scipy import integrate
 
 from relview.light import spectrum
@@ -34,19 +35,6 @@ C2 = sc.h * sc.c / sc.k  # second radiation constant, m K
 
 def planck(t):
     return lambda w: planck_spectral_radiance(w, t)
-
-
-def xyz_colour_science_blackbody(t):
-    """Absolute XYZ of a blackbody at t K computed by colour-science alone.
-
-    colour.sd_blackbody gives W/(sr m^2 nm) (here with the exact SI radiation constants
-    c1 = 2 pi h c^2, c2 = h c / k instead of its CIE 15 rounded defaults); sd_to_XYZ with
-    method 'Integration', an illuminant of ones and k = 683 lm/W gives
-    K_m * sum(L ybar) dlambda, the CIE 15 definition of absolute XYZ.
-    """
-    sd = colour.sd_blackbody(t, SHAPE, c1=C1, c2=C2)
-    # sd_to_XYZ returns its "Range100" scale: the plain k * sum(...) divided by 100.
-    return 100.0 * colour.sd_to_XYZ(sd, CMFS, colour.sd_ones(SHAPE), k=683.0, method="Integration")
 
 
 # ---------------------------------------------------------------------------------------
