@@ -120,29 +120,28 @@ def test_graticule_luminance_ratio_follows_the_shifted_planck_spectrum():
     assert got == pytest.approx(moving / rest, rel=2e-3)
 
 
-@pytest.mark.parametrize("doppler,beaming,colour_factor,brightness_power", [
-    (True, True, 1, 0),  # the observed spectrum: blackbody at D T
-    (True, False, 1, -4),  # colour shift without the D^4 bolometric brightening
-    (False, True, 0, 4),  # rest-frame colour brightened by D^4
-    (False, False, 0, 0),  # the rest-frame sky
-])
-def test_graticule_doppler_and_beaming_switches_behave_as_documented(
-        doppler, beaming, colour_factor, brightness_power):
+@pytest.mark.parametrize("doppler,beaming", [(True, True), (True, False), (False, True),
+                                             (False, False)])
+def test_graticule_doppler_and_beaming_switches_behave_as_documented(doppler, beaming):
     # scene-format.md (effect switches) and spectrum.apply_effects: doppler shifts the
     # colour, beaming multiplies by the bolometric D^4 (Rybicki & Lightman eq. 4.97)
     bg = graticule(luminance=1.0, temperature=4000.0)
     d = np.array([[0.0, 1.0, 0.0]])
-    beta = np.array([0.0, 0.6, 0.0])  # flying towards the line at (0, 1, 0): D = 2
+    beta = np.array([0.0, 0.6, 0.0])  # flying towards the line at (0, 1, 0)
     dop = source_at_rest_doppler(d[0], beta)
     assert dop == pytest.approx(2.0)  # physics.md check: beta = 0.6 head-on gives D = 2
-    got = sky.sky_xyz(bg, d, beta, Effects(doppler=doppler, beaming=beaming))[0]
     rest = sky.sky_xyz(bg, d, np.zeros(3), Effects())[0]
-    shifted = sky.sky_xyz(bg, d, beta, Effects())[0]  # blackbody at D T
-    want_colour = shifted / dop**4 if colour_factor else rest  # colour at unit bolometric gain
-    assert got == pytest.approx(want_colour * dop ** (4 + brightness_power) if colour_factor
-                                else rest * dop**brightness_power, rel=1e-9)
-    assert chromaticity(got) == pytest.approx(chromaticity(shifted if doppler else rest),
-                                              abs=1e-12)
+    shifted = sky.sky_xyz(bg, d, beta, Effects())[0]  # the observed sky: blackbody at D T
+    want = {
+        (True, True): shifted,
+        (True, False): shifted / dop**4,  # the colour shift without the D^4 brightening
+        (False, True): rest * dop**4,  # the rest-frame colour brightened by D^4
+        (False, False): rest,  # the sky as at rest
+    }[doppler, beaming]
+    got = sky.sky_xyz(bg, d, beta, Effects(doppler=doppler, beaming=beaming))[0]
+    assert got == pytest.approx(want, rel=1e-9)
+    # the colour shift is real: the shifted line is bluer than the line at rest
+    assert chromaticity(shifted)[0] < chromaticity(rest)[0] - 0.05
 
 
 def test_graticule_without_contraction_uses_the_classical_doppler_factor():
