@@ -10,6 +10,9 @@ import numpy as np
 from relview.kinematics.lorentz import C
 from relview.kinematics.worldline import RigidKinematics, _vec3
 
+#: Largest horizon distance c^2/a (m) the worldline arithmetic can square without overflow.
+MAX_HORIZON_M = 1e150
+
 # ----------------------------------------------------------------------------- hyperbolic
 
 
@@ -30,9 +33,16 @@ class HyperbolicMotion(RigidKinematics):
     def __post_init__(self):
         self.acceleration = _vec3(self.acceleration, "acceleration")
         self.position = _vec3(self.position, "position")
-        a = float(np.linalg.norm(self.acceleration))
-        if a == 0.0:
+        big = float(np.abs(self.acceleration).max())
+        if big == 0.0:
             raise ValueError("hyperbolic motion: acceleration must not be zero (use uniform motion)")
+        a = big * float(np.linalg.norm(self.acceleration / big))  # no underflow of squares
+        # L = c^2/a is squared in the worldline (sqrt(L^2 + c^2 t^2)): beyond 1e150 m that
+        # overflows float64, and the motion is uniform to far better than float precision
+        if C * C / a > MAX_HORIZON_M:
+            raise ValueError(
+                f"hyperbolic motion: acceleration |a| = {a:.6g} m/s^2 is too small to compute "
+                f"with (c^2/a = {C * C / a:.3g} m exceeds {MAX_HORIZON_M:.0e} m); use uniform motion")
         self.direction = self.acceleration / a
         self.length = C * C / a  # L = c^2/a, m: distance from the origin to its horizon
         self.s0 = float(self.time) * C
@@ -42,11 +52,12 @@ class HyperbolicMotion(RigidKinematics):
         """``kind = "hyperbolic"``: acceleration (m/s2, proper), position (m) and time (s)
         of the moment the origin is at rest."""
         table.check_keys(("kind", "acceleration", "position", "time"))
-        return cls(
-            acceleration=table.vector("acceleration", 3, nonzero=True, unit="m/s2"),
-            position=table.vector("position", 3, (0.0, 0.0, 0.0), unit="m"),
-            time=table.number("time", 0.0, unit="s"),
-        )
+        acceleration = table.vector("acceleration", 3, nonzero=True, unit="m/s2")
+        position = table.vector("position", 3, (0.0, 0.0, 0.0), unit="m")
+        time = table.number("time", 0.0, unit="s")
+        # the constructor refuses an acceleration whose magnitude underflows to zero
+        with table.errors_at("acceleration"):
+            return cls(acceleration=acceleration, position=position, time=time)
 
     def _origin(self, s):
         d = s - self.s0
