@@ -201,21 +201,19 @@ def _parse_camera(root: Table) -> Camera:
             t.data.get("up"),
         )
     projection = t.string("projection", "pinhole", choices=PROJECTIONS)
-    if projection == "panorama":
+    rule = projection_registry[projection]  # each projection's own field-of-view rule
+    if rule.fov_fixed is not None:
         if t.has("fov"):
             raise t.error(
                 "fov",
-                f"fov = {show(t.data['fov'])} does not apply to the panorama projection "
-                "(it always shows the full sphere); remove it",
+                f"fov = {show(t.data['fov'])} does not apply to the {projection} projection "
+                f"(it always shows {'the full sphere' if rule.fov_fixed >= 360 else f'{rule.fov_fixed:g} degrees'}); remove it",
                 t.data["fov"],
             )
-        fov = 360.0
-    elif projection == "fisheye":
-        fov = t.number("fov", 180.0, low=0.0, high=360.0, low_open=True, unit="degrees")
+        fov = rule.fov_fixed
     else:
-        fov = t.number(
-            "fov", 60.0, low=0.0, high=180.0, low_open=True, high_open=True, unit="degrees"
-        )
+        fov = t.number("fov", rule.fov_default, low=0.0, high=rule.fov_max, low_open=True,
+                       high_open=not rule.fov_max_inclusive, unit="degrees")
     return Camera(
         position=position,
         look_at=look_at,
