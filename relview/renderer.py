@@ -226,6 +226,8 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
     layer_pos = np.empty((n_pix, 3))
     layer_rest = np.empty((n_pix, 3))
     layer_body = np.empty(n_pix, np.int64)
+    # the microwave sky's recorded blackbody temperature (K), NaN where a body is seen
+    layer_temp = np.full(n_pix, np.nan) if scene.background.kind == "cmb" else None
     centres = context.pixel_centres(width, height)
     times = exposure_times(t, scene.render.shutter, samples, scene.render.shutter_samples)
     n_samples = len(times)
@@ -258,6 +260,9 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
             miss = (hits.body < 0) & valid
             if np.any(miss):
                 col[miss] = sky.sky_xyz(scene.background, d_s[miss], beta_c, effects)
+                if s == 0 and layer_temp is not None:
+                    layer_temp[a:b][miss] = sky.microwave_temperature(
+                        scene.background, d_s[miss], beta_c, effects)
         if s == 0:
             xyz[a:b] = col
         else:
@@ -294,6 +299,8 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
         "rest_position": layer_rest.reshape(height, width, 3),
         "body": layer_body.reshape(height, width),
     }
+    if layer_temp is not None:
+        layers["temperature"] = layer_temp.reshape(height, width)
     meta = provenance(scene, t, width, height, samples, effects, white)
     return Frame(image, layers, white, t, meta, tone=scene.render.tone)
 

@@ -67,6 +67,14 @@ LAYERS: dict[str, LayerView] = {
     ),
     "body": LayerView("body index", "", False, "tab10", "which body each pixel sees"),
     "luminance": LayerView("luminance Y", "cd/m2", True, "magma", "CIE 1931 Y, observed"),
+    "temperature": LayerView(
+        "recorded sky temperature T",
+        "K",
+        False,
+        "coolwarm",
+        "blackbody temperature of the microwave sky ([background] kind = \"cmb\") the camera "
+        "records; hotter (red) towards its motion through the sky's frame",
+    ),
 }
 
 
@@ -87,6 +95,11 @@ def layer_values(frame, layer: str, camera_position: np.ndarray) -> np.ndarray:
     if layer == "luminance":
         y = np.asarray(L["xyz"], float)[..., 1]
         return np.where(y > 0, y, np.nan)
+    if layer == "temperature":
+        if "temperature" not in L:
+            raise UserError('--layer temperature: only a scene whose [background] kind = "cmb" '
+                            "has a temperature layer")
+        return np.asarray(L["temperature"], float)
     raise UserError(f"--layer {layer!r}: unknown layer; choose from: {', '.join(LAYERS)}")
 
 

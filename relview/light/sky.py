@@ -5,6 +5,13 @@ moving through S sees them aberrated, Doppler-shifted and beamed like any body:
 
 * ``graticule``: lines of constant latitude and longitude (scene z is the pole)
   drawn on the sky sphere, glowing as a blackbody; evaluated per pixel.
+* ``cmb``: the cosmic microwave background, a blackbody at ``temperature`` (2.7255 K by
+  default; Fixsen 2009, ApJ 707, 916) at rest in a frame F moving with ``frame_beta``
+  in S (or fixed by the camera's velocity relative to F). Evaluated per pixel from the
+  photon's frequency in F and in the camera frame (:func:`microwave_temperature`); the
+  ``temperature`` layer holds the blackbody temperature the camera records. At 2.7 K
+  it emits no visible light, so its image is black: the layer (and its false-colour
+  map) is the picture.
 * ``stars``: point-like blackbody stars of our own generation (seeded, uniform over
   the sphere, log-uniform temperatures, brightness spread over five astronomical
   magnitudes). Each star is a small disc of rest-frame solid angle STAR_SOLID_ANGLE
@@ -23,11 +30,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from relview.kinematics.lorentz import aberrate_to_camera, doppler_along
+from relview.kinematics.lorentz import aberrate_to_camera, compose_velocities, doppler_along
 from relview.light import spectrum
 from relview.scene.parts import Background, Camera, Effects
 
 T_REF_K = 1000.0
+#: Temperature of the cosmic microwave background today, K (Fixsen 2009, ApJ 707, 916).
+CMB_TEMPERATURE_K = 2.7255
 #: Rest-frame solid angle of each star's disc, steradians (about 1.1 mrad across).
 STAR_SOLID_ANGLE = 1.0e-6
 #: Brightness spread of the generated stars, in astronomical magnitudes (Pogson's ratio).
@@ -64,16 +73,58 @@ def _line_temperature(bg: Background) -> float:
 
 
 def per_pixel(bg: Background) -> bool:
-    """Whether the sky is evaluated per pixel (graticule) rather than splatted (stars) or
-    absent (black)."""
-    return bg.kind == "graticule"
+    """Whether the sky is evaluated per pixel (graticule, cmb) rather than splatted (stars)
+    or absent (black)."""
+    return bg.kind in ("graticule", "cmb")
+
+
+def microwave_frame_beta(bg: Background, beta_cam: np.ndarray) -> np.ndarray:
+    """Velocity / c in S of the frame the microwave sky is at rest in, at an exposure where
+    the camera moves with ``beta_cam``: ``frame_beta``, or, when the scene gives the
+    camera's velocity u relative to that frame, the velocity of a frame moving at -u
+    relative to the camera (relativistic composition; u taken along the camera frame's
+    axes, which are the scene axes boosted)."""
+    if bg.camera_velocity is None:
+        return np.asarray(bg.frame_beta, float)
+    return compose_velocities(np.asarray(beta_cam, float), -np.asarray(bg.camera_velocity, float))
+
+
+def microwave_temperature(bg: Background, d_scene: np.ndarray, beta_cam: np.ndarray,
+                          effects: Effects) -> np.ndarray:
+    """(N,) blackbody temperature (K) the camera records along S directions d (towards the
+    source) of a sky at rest in frame F.
+
+    A photon arriving along d has, per unit frequency in S, the frequency
+    gamma_c (1 + beta_c.d) in the camera frame and gamma_f (1 + beta_f.d) in F (the
+    Doppler factor of physics.md, n = -d), so the camera sees the blackbody at
+    T = T0 D_cam / D_F: for a camera at rest in S and F moving at -u,
+    T = T0 / (gamma (1 - u.d)), the dipole T0 / (gamma (1 - beta cos theta)) (e.g. Peebles
+    & Wilkinson 1968, Phys. Rev. 174, 2168). ``doppler`` off: T0 everywhere; ``contraction``
+    off: the classical factors (no gammas), as for bodies.
+    """
+    t0 = float(np.asarray(bg.temperature, float).max())
+    n = len(d_scene)
+    if not effects.doppler:
+        return np.full(n, t0)
+    d_cam = doppler_along(np.zeros(3), d_scene, beta_cam, relativistic=effects.contraction)
+    d_frame = doppler_along(np.zeros(3), d_scene, microwave_frame_beta(bg, beta_cam),
+                            relativistic=effects.contraction)
+    return t0 * d_cam / d_frame
 
 
 def sky_xyz(bg: Background, d_scene: np.ndarray, beta_cam: np.ndarray,
             effects: Effects) -> np.ndarray:
     """(N, 3) observed XYZ of the per-pixel sky along S directions (towards the source)."""
     out = np.zeros((len(d_scene), 3))
-    if bg.kind != "graticule" or len(d_scene) == 0:
+    if len(d_scene) == 0:
+        return out
+    if bg.kind == "cmb":
+        # a blackbody at T0 seen at T is exactly a blackbody at T (I_nu / nu^3 invariant,
+        # Rybicki & Lightman eq. 4.97); beaming off keeps the rest-frame brightness
+        t = microwave_temperature(bg, d_scene, beta_cam, effects)
+        t0 = float(np.asarray(bg.temperature, float).max())
+        return _observed(np.full(len(t), t0), np.ones(len(t)), t / t0, effects)
+    if bg.kind != "graticule":
         return out
     lat = np.degrees(np.arcsin(np.clip(d_scene[:, 2], -1.0, 1.0)))
     lon = np.degrees(np.arctan2(d_scene[:, 1], d_scene[:, 0]))

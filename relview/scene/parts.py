@@ -100,13 +100,19 @@ class Body:
 
 @dataclass
 class Background:
-    kind: str = "black"  # black | stars | graticule
+    kind: str = "black"  # black | stars | graticule | cmb
     count: int = 3000  # stars: how many
     seed: int = 1  # stars: generator seed
     temperature: tuple[float, float] = (3000.0, 12000.0)  # K, star temperature range
     luminance: float = 1.0  # cd/m2 of the sky pattern at rest (graticule), or star scale
     spacing: float = 15.0  # degrees between graticule lines
     width: float = 0.4  # degrees, graticule line width
+    # cmb: velocity / c, in the scene frame, of the frame the sky is at rest in (the
+    # microwave background's rest frame; zero: at rest in the scene frame)
+    frame_beta: np.ndarray = field(default_factory=lambda: np.zeros(3))
+    # cmb, instead of frame_beta: the camera's velocity / c relative to that frame (scene
+    # axes); the frame then follows the camera's own velocity at each exposure
+    camera_velocity: np.ndarray | None = None
 
 
 @dataclass

@@ -32,6 +32,7 @@ from relview.geometry.shapes import MAX_COORDINATE, MAX_DETAIL, SHAPES, load_mes
 from relview.kinematics.lorentz import C
 from relview.kinematics.uniform import UniformMotion
 from relview.light.materials import MAX_TEMPERATURE, read_surface
+from relview.light.sky import CMB_TEMPERATURE_K
 from relview.scene.parts import (
     Animation,
     Background,
@@ -46,7 +47,7 @@ from relview.scene.table import Table, _Document, _type_name, show
 SUPPORTED_FORMAT = 1
 
 PROJECTIONS = tuple(projection_registry)  # names of the registered camera projections
-BACKGROUND_KINDS = ("black", "stars", "graticule")
+BACKGROUND_KINDS = ("black", "stars", "graticule", "cmb")
 
 #: tessellation levels accepted for ``body.detail`` (see relview.geometry.shapes)
 DETAIL_RANGE = (0, MAX_DETAIL)
@@ -340,6 +341,7 @@ def _parse_background(root: Table) -> Background:
         "black": ("kind",),
         "stars": ("kind", "count", "seed", "temperature", "luminance"),
         "graticule": ("kind", "spacing", "width", "temperature", "luminance"),
+        "cmb": ("kind", "temperature", "frame_beta", "camera_speed", "camera_direction"),
     }
     all_keys = sorted({k for v in keys_for.values() for k in v})
     t.check_keys(all_keys)
@@ -354,6 +356,8 @@ def _parse_background(root: Table) -> Background:
     )
     if kind == "black":
         return Background(kind="black")
+    if kind == "cmb":
+        return _parse_microwave_sky(t)
     if kind == "stars":
         temperature = t.vector("temperature", 2, defaults.temperature, positive=True, unit="K")
         if temperature[1] > MAX_TEMPERATURE:
@@ -392,6 +396,30 @@ def _parse_background(root: Table) -> Background:
         temperature=(line_t, line_t),  # one colour: min = max
         luminance=t.number("luminance", defaults.luminance, positive=True, unit="cd/m2"),
     )
+
+
+def _parse_microwave_sky(t: Table) -> Background:
+    """``kind = "cmb"``: a blackbody sky at ``temperature`` (K; default the measured
+    2.7255 K, Fixsen 2009, ApJ 707, 916) at rest in a frame that moves with ``frame_beta``
+    in the scene frame, or in which the camera moves at ``camera_speed`` (km/s) along
+    ``camera_direction`` (scene axes) at the exposure."""
+    temperature = t.number("temperature", CMB_TEMPERATURE_K, positive=True,
+                           high=MAX_TEMPERATURE, unit="K")
+    if t.has("frame_beta") and (t.has("camera_speed") or t.has("camera_direction")):
+        raise t.error("frame_beta", "give the sky's frame either as frame_beta (its velocity / c "
+                      "in the scene frame) or as camera_speed and camera_direction, not both",
+                      t.data["frame_beta"])
+    frame_beta = t.beta("frame_beta")
+    camera_velocity = None
+    if t.has("camera_speed") or t.has("camera_direction"):
+        speed = t.number("camera_speed", unit="km/s", nonnegative=True)
+        if speed * 1e3 >= C:
+            raise t.error("camera_speed", f"camera_speed = {show(speed)} km/s is at or above c "
+                          f"({C / 1e3:.9g} km/s)", speed)
+        direction = t.vector("camera_direction", 3, nonzero=True)
+        camera_velocity = speed * 1e3 / C * direction / np.linalg.norm(direction)
+    return Background(kind="cmb", temperature=(temperature, temperature), frame_beta=frame_beta,
+                      camera_velocity=camera_velocity)
 
 
 def _parse_animation(root: Table) -> Animation | None:
