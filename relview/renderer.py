@@ -20,7 +20,7 @@ import numpy as np
 
 from relview.geometry import camera as cam_mod
 from relview.geometry.trace import Hits, Tracer, uniform_groups
-from relview.imaging.exposure import expose, exposure_white
+from relview.imaging.exposure import clipped_fraction, expose, exposure_white, metered_pixels
 from relview.imaging.formats import frame_format
 from relview.kinematics.lorentz import C
 from relview.scene.model import Scene
@@ -288,8 +288,9 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
                            occluded=layer_body.reshape(height, width) >= 0)
     if stars is not None:
         xyz_img = xyz_img + stars
-    lit = np.any(xyz_img > 0, axis=-1)
-    white = exposure_white(xyz_img, lit, exposure)
+    region, lamps = metering_masks(scene, xyz_img, layer_body.reshape(height, width),
+                                  layer_rest.reshape(height, width, 3))
+    white = exposure_white(xyz_img, region, exposure, lamps)
     image = expose(xyz_img, white)
     layers = {
         "xyz": xyz_img,
@@ -301,7 +302,8 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
     }
     if layer_temp is not None:
         layers["temperature"] = layer_temp.reshape(height, width)
-    meta = provenance(scene, t, width, height, samples, effects, white)
+    meta = provenance(scene, t, width, height, samples, effects, white,
+                      metering=metering_report(scene, exposure, image, region, lamps))
     return Frame(image, layers, white, t, meta, tone=scene.render.tone)
 
 
@@ -326,9 +328,71 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
     return out
 
 
+def _lamp_surface_pixels(surface, rest: np.ndarray) -> np.ndarray:
+    """(N,) bool: which of the hits at rest-frame points ``rest`` (N, 3) show a
+    self-luminous part of ``surface`` (blackbody, lines, tabulated spectrum; a pattern
+    per cell). A surface may say so itself with a ``self_luminous`` attribute."""
+    from relview.light.materials import SpectralSurface
+
+    if hasattr(surface, "second_mask"):  # a pattern of two surfaces
+        second = surface.second_mask(rest)
+        return np.where(second, _lamp_surface_pixels(surface.second, rest),
+                        _lamp_surface_pixels(surface.first, rest))
+    own = getattr(surface, "self_luminous", isinstance(surface, SpectralSurface))
+    return np.full(len(rest), bool(own))
+
+
+def lamp_pixels(scene: Scene, body_layer: np.ndarray, rest_layer: np.ndarray) -> np.ndarray:
+    """(H, W) bool: pixels that see a lamp, i.e. a self-luminous surface (automatic
+    exposure leaves them out; docs/colour.md). ``body_layer`` (H, W) body indices (-1:
+    background), ``rest_layer`` (H, W, 3) rest-frame hit points."""
+    lamps = np.zeros(body_layer.shape, bool)
+    for i, body in enumerate(scene.bodies):
+        sel = body_layer == i
+        if np.any(sel):
+            lamps[sel] = _lamp_surface_pixels(body.surface, rest_layer[sel])
+    return lamps
+
+
+def metering_masks(scene: Scene, xyz_img: np.ndarray, body_layer: np.ndarray,
+                   rest_layer: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(region, lamps): the lit pixels of the scene's metering region (render.metering:
+    "frame" every lit pixel, sky included; "bodies" those that see a body; "body" those
+    of render.metering_body) and the lamp pixels that automatic exposure leaves out."""
+    lit = np.any(xyz_img > 0, axis=-1)
+    settings = scene.render
+    mode = getattr(settings, "metering", "frame")
+    if mode == "bodies":
+        lit &= body_layer >= 0
+    elif mode == "body":
+        lit &= body_layer == scene.body_index(settings.metering_body)
+    return lit, lamp_pixels(scene, body_layer, rest_layer)
+
+
+def metering_report(scene: Scene, exposure, image: np.ndarray, region: np.ndarray,
+                    lamps: np.ndarray) -> dict[str, str]:
+    """Provenance entries of the exposure: how it was metered and what clipped."""
+    lit = np.any(image > 0, axis=-1)
+    if isinstance(exposure, str):  # "auto": what was metered
+        settings = scene.render
+        mode = getattr(settings, "metering", "frame")
+        where = f"body {settings.metering_body}" if mode == "body" else mode
+        metering = f"{where}: {metered_pixels(region, lamps)[1]} pixels metered"
+    else:
+        metering = "none (fixed white)"
+    return {
+        "metering": metering,
+        # lit pixels of the whole frame with a channel above white, lamps apart
+        "clipped_fraction": repr(clipped_fraction(image, lit & ~lamps)),
+        "clipped_fraction_lamps": repr(clipped_fraction(image, lit & lamps)),
+    }
+
+
 def provenance(scene: Scene, t: float, width: int, height: int, samples: int,
-               effects: Effects, white: float) -> dict[str, str]:
-    """Text that lets a figure be regenerated exactly (stored in PNG chunks / sidecars)."""
+               effects: Effects, white: float,
+               metering: dict[str, str] | None = None) -> dict[str, str]:
+    """Text that lets a figure be regenerated exactly (stored in PNG chunks / sidecars);
+    ``metering``: the entries of :func:`metering_report`."""
     import json
 
     from relview import __version__
@@ -345,4 +409,5 @@ def provenance(scene: Scene, t: float, width: int, height: int, samples: int,
         "projection": scene.camera.projection,
         "tone": scene.render.tone,
         "shutter_s": repr(float(scene.render.shutter)),
+        **(metering or {}),
     }

@@ -124,37 +124,41 @@ def test_expose_spans_twenty_orders_of_magnitude():
 def test_auto_white_ignores_few_beamed_pixels_zeros_and_unlit():
     # Constructed case: 1000 lit pixels with light, 5 of them (0.5 %) beamed to 1e20 cd/m2,
     # 995 at 100 cd/m2; 500 lit pixels with Y = 0; unlit pixels at 1e25 cd/m2.
-    # The 99th percentile of the 1000 positive values sits at sorted position
-    # 0.99 * 999 = 989.01, between positions 989 and 990, both among the 995 -> exactly 100.
+    # Metering (Reinhard et al. 2002, eqs. 1-2, key 0.18): the log-average of the 1000
+    # positive values is 100 * (1e18)**(5/1000) = 10**2.09 cd/m2, so W = 10**2.09 / 0.18.
+    # The highlight guard (the 99th-percentile order statistic, sorted position
+    # ceil(0.99 * 999) = 990, among the 995) is 100, below that.
     y = np.concatenate([np.full(995, 100.0), np.full(5, 1e20), np.zeros(500), np.full(100, 1e25)])
     mask = np.concatenate([np.ones(1500, bool), np.zeros(100, bool)])
     perm = np.random.default_rng(2).permutation(y.size)
     xyz = (D65_XYZ[None, :] * y[perm, None]).reshape(40, 40, 3)
     white = exposure.exposure_white(xyz, mask[perm].reshape(40, 40), "auto")
-    assert white == pytest.approx(100.0, rel=1e-12)
+    assert white == pytest.approx(10**2.09 / 0.18, rel=1e-9)
     # The maximum would have been 1e20: check that the statistic is not the maximum.
     assert white < 1e-10 * y[mask].max()
 
 
-def test_auto_white_interpolates_on_log_scale():
-    # 990 pixels at 1 cd/m2, 10 at 1e20. The 99th percentile by linear interpolation of
-    # order statistics (Hyndman & Fan 1996, definition 7, numpy's default) sits at
-    # position 0.99 * 999 = 989.01, 1 % of the way from 1 to 1e20. On the log10 scale
-    # that is 10**(0.01 * 20) = 10**0.2 cd/m2; on a linear scale it would be ~1e18.
-    y = np.concatenate([np.ones(990), np.full(10, 1e20)])
-    assert exposure.auto_white(y) == pytest.approx(10**0.2, rel=1e-9)
+def test_auto_white_guard_is_an_order_statistic():
+    # 991 pixels at 1 cd/m2, 9 at 1e20. The guard takes the order statistic at sorted
+    # position ceil(0.99 * 999) = 990 (numpy's "higher" method): 1 cd/m2, so the 9
+    # pixels (0.9 %) clip; the key gives 10**(9 * 20 / 1000) / 0.18 = 10**0.18 / 0.18.
+    y = np.concatenate([np.ones(991), np.full(9, 1e20)])
+    assert exposure.auto_white(y) == pytest.approx(10**0.18 / 0.18, rel=1e-9)
+    # 11 at 1e20 (1.1 %): the guard moves up to 1e20, so none of them clips.
+    y = np.concatenate([np.ones(989), np.full(11, 1e20)])
+    assert exposure.auto_white(y) == pytest.approx(1e20, rel=1e-12)
 
 
 def test_auto_white_is_scale_invariant_over_twenty_decades():
-    # Property of a percentile: scaling all luminances by k scales the white by k.
+    # Property of the log-average and of a percentile: scaling all luminances by k
+    # scales the white by k.
     rng = np.random.default_rng(3)
     y = 10.0 ** rng.uniform(-10, 10, 5000)
     base = exposure.auto_white(y)
     for k in (1e-20, 1e15):
         assert exposure.auto_white(y * k) == pytest.approx(base * k, rel=1e-9)
-    # ... and it lies between the 98th and the 100th order statistics.
-    s = np.sort(y)
-    assert s[int(0.98 * s.size)] <= base <= s[-1]
+    # ... and with this wide spread the guard decides: at most 1 % of the pixels above W.
+    assert np.mean(y > base) <= 0.01
 
 
 def test_auto_white_fallbacks():
@@ -162,7 +166,8 @@ def test_auto_white_fallbacks():
     assert exposure.exposure_white(zeros, np.ones((4, 4), bool), "auto") == exposure.FALLBACK_WHITE_CD_M2
     bright = np.full((4, 4, 3), 5.0)
     assert exposure.exposure_white(bright, np.zeros((4, 4), bool), "auto") == exposure.FALLBACK_WHITE_CD_M2
-    assert exposure.exposure_white(bright, None, "AUTO") == pytest.approx(5.0)
+    # uniform Y = 5: the log-average 5 sits at the key 0.18 (Reinhard et al. 2002)
+    assert exposure.exposure_white(bright, None, "AUTO") == pytest.approx(5.0 / 0.18)
 
 
 @pytest.mark.parametrize("bad", [0, -1.0, float("nan"), float("inf"), "bright", True, None])
@@ -176,11 +181,12 @@ def test_exposure_lock_round_trip_and_hold():
     frame2 = frame1 * 1000.0
     lock = exposure.ExposureLock("auto")
     assert not lock.locked
-    assert lock.white_for(frame1) == pytest.approx(40.0)
-    assert lock.white_for(frame2) == pytest.approx(40.0)  # held, not re-computed
+    # a uniform D65 grey of 40 cd/m2 is metered to the key 0.18 (Reinhard et al. 2002)
+    assert lock.white_for(frame1) == pytest.approx(40.0 / 0.18)
+    assert lock.white_for(frame2) == pytest.approx(40.0 / 0.18)  # held, not re-computed
     data = json.loads(json.dumps(lock.to_dict()))
     again = exposure.ExposureLock.from_dict(data)
-    assert again == lock and again.white_for(frame2) == pytest.approx(40.0)
+    assert again == lock and again.white_for(frame2) == pytest.approx(40.0 / 0.18)
 
     pooled = exposure.ExposureLock().lock_from([frame1, frame2])
     # pooled over both frames: all 9 + 9 pixels, half at 40, half at 40000 cd/m2

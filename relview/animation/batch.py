@@ -58,7 +58,7 @@ from relview.animation.video import VIDEO_TYPES, assemble_video
 from relview.animation.workers import FrameRenderer, render_in_processes, render_serial
 from relview.errors import OutputError, UserError
 from relview.imaging.exposure import ExposureLock
-from relview.renderer import RenderContext, check_memory, render
+from relview.renderer import RenderContext, check_memory, metering_masks, render
 
 __all__ = [
     "DEFAULT_WORKERS",
@@ -117,16 +117,20 @@ def decide_exposure(scene, times: np.ndarray, unlock: bool, context=None) -> dic
     n = min(PROBE_FRAMES, len(times))
     picks = sorted({round(float(k)) for k in np.linspace(0, len(times) - 1, n)})
     probe_res = _probe_resolution(scene.render.resolution)
-    images, masks = [], []
+    images, masks, lamps = [], [], []
     for k in picks:
         frame = render(
             scene, time=float(times[k]), resolution=probe_res, exposure="auto", context=context
         )
         xyz = frame.layers["xyz"]
         images.append(xyz)
-        masks.append(np.any(xyz > 0, axis=-1))  # as the renderer's own automatic exposure
+        # the renderer's own metering: the scene's region, lamps left out
+        region, lamp = metering_masks(scene, xyz, frame.layers["body"],
+                                      frame.layers["rest_position"])
+        masks.append(region)
+        lamps.append(lamp)
     lock = ExposureLock("auto")
-    lock.lock_from(images, masks)
+    lock.lock_from(images, masks, lamps)
     return {
         "mode": "locked",
         **lock.to_dict(),

@@ -36,6 +36,11 @@ class RenderSettings:
     shutter: float = 0.0  # s, exposure duration (0: an ideal instant shutter)
     shutter_samples: int = 8  # exposure events per pixel sample across an open shutter
     tone: str = "none"  # display curve for 8/16-bit images: "none" (clip) or "reinhard"
+    # automatic exposure meters the lit non-lamp pixels of: "frame" (all, sky included),
+    # "bodies" (those that see a body) or "body" (those of metering_body); see
+    # relview.imaging.exposure and docs/colour.md
+    metering: str = "frame"
+    metering_body: str = ""  # the body metered when metering = "body"
 
 
 @dataclass

@@ -114,7 +114,7 @@ def _parse_render(root: Table) -> RenderSettings:
     if t is None:
         return RenderSettings()
     t.check_keys(("resolution", "samples", "exposure", "seed", "effects", "shutter",
-                  "shutter_samples", "tone"))
+                  "shutter_samples", "tone", "metering", "metering_body"))
     defaults = RenderSettings()
     exposure: float | str = "auto"
     if t.has("exposure"):
@@ -138,7 +138,36 @@ def _parse_render(root: Table) -> RenderSettings:
         shutter_samples=t.integer("shutter_samples", defaults.shutter_samples, low=1,
                                   high=4096),
         tone=t.string("tone", "none", choices=("none", "reinhard")),
+        **_parse_metering(t, root),
     )
+
+
+#: what automatic exposure meters (render.metering; relview.imaging.exposure)
+METERING_CHOICES = ("frame", "bodies", "body")
+
+
+def _parse_metering(t: Table, root: Table) -> dict[str, str]:
+    """render.metering and render.metering_body (the name of a [[body]] of this file)."""
+    metering = t.string("metering", "frame", choices=METERING_CHOICES)
+    if metering != "body":
+        if t.has("metering_body"):
+            value = t.data["metering_body"]
+            raise t.error("metering_body", f"metering_body = {show(value)} goes with metering = "
+                          f'"body", not metering = {show(metering)}', value)
+        return {"metering": metering, "metering_body": ""}
+    if not t.has("metering_body"):
+        raise t.error("metering", 'metering = "body" needs metering_body = "NAME", the name '
+                      "of the [[body]] to meter", metering)
+    # the names as the [[body]] tables give them (validated again with the bodies)
+    raw = root.data.get("body")
+    raw = raw if isinstance(raw, list) else []
+    names = [b.get("name", f"body{i + 1}") for i, b in enumerate(raw) if isinstance(b, Mapping)]
+    if not names:
+        value = t.data["metering_body"]
+        raise t.error("metering_body", f"metering_body = {show(value)}: the scene has no "
+                      "[[body]] to meter", value)
+    return {"metering": metering,
+            "metering_body": t.string("metering_body", choices=[str(n) for n in names])}
 
 
 def _unit(v: np.ndarray) -> np.ndarray:
