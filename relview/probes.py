@@ -15,6 +15,7 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 
+from relview import framing
 from relview.geometry import camera as cam_mod
 from relview.kinematics.lorentz import C, aberrate_to_camera
 from relview.scene.model import Scene
@@ -67,7 +68,8 @@ def probe_many(scene: Scene, body, points, time: float | None = None,
     d_s = sep / np.maximum(dist, 1e-300)[:, None]
     d_cam = aberrate_to_camera(d_s, beta_cam) if effects.aberration and np.any(beta_cam) else d_s
     w, h = scene.render.resolution
-    px, in_view = cam_mod.directions_to_pixels(scene.camera, w, h, d_cam)
+    px, in_view = cam_mod.directions_to_pixels(
+        framing.resolve_camera(scene, event, beta_cam, effects), w, h, d_cam)  # as rendered
     # visibility: cast the same backward ray and compare the first hit with the point
     if context is None or context.effects != effects:
         context = RenderContext(scene, effects)

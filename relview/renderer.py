@@ -18,6 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
+from relview import framing
 from relview.geometry import camera as cam_mod
 from relview.geometry.trace import Hits, Tracer, uniform_groups
 from relview.imaging.exposure import clipped_fraction, expose, exposure_white, metered_pixels
@@ -216,7 +217,7 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
         warnings.warn(f"{scene.source_path or 'scene'}: the camera is inside body {name!r} "
                       f"at t = {t:.6g} s (tested in the body's rest frame); every ray starts "
                       "inside it, so the image shows its inner faces", SceneWarning, stacklevel=2)
-    cam = scene.camera
+    cam = framing.resolve_camera(scene, event, beta_cam, effects, context.meshes, (width, height))
     rng = np.random.default_rng(scene.render.seed)
     n_pix = width * height
     # sample 0 covers every pixel, so every array below is filled before it is read

@@ -134,7 +134,31 @@ def cmd_check(args) -> int:
             lightcone.check_body_speed(scene, i, shapes.mesh_data(body).vertices)
     print(f"{args.scene}: ok  ({len(scene.bodies)} bodies, {w}x{h}, "
           f"about {estimate_bytes(w, h) / 2**20:.0f} MiB per frame)")
+    _report_sightings(args.scene, scene)
     return 0
+
+
+def _report_sightings(source, scene) -> None:
+    """Where each body is seen at the exposure (one render at the scene's resolution),
+    with a warning for each body outside the frame, hidden or only a few pixels big."""
+    from relview import framing
+    from relview.errors import SceneWarning
+    from relview.renderer import camera_state, render
+
+    if not scene.bodies:
+        return
+    try:
+        frame = render(scene, samples=1)
+        event, beta_cam = camera_state(scene, frame.time)
+        found = framing.sightings(scene, event, beta_cam, scene.render.effects, frame=frame)
+    except UserError as exc:  # e.g. a scene too far out to trace: the file itself is valid
+        print(f"  where the bodies are seen: not computed ({exc})")
+        return
+    print(f"  seen at t = {frame.time:.6g} s:")
+    for sighting in found:
+        print(f"    {sighting.describe()}")
+    for message in framing.sighting_warnings(found):
+        warnings.warn(f"{source}: {message}", SceneWarning, stacklevel=2)
 
 
 def build_parser() -> argparse.ArgumentParser:

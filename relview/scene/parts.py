@@ -56,6 +56,12 @@ class Camera:
     # Optional worldline of the camera (any motion kind, relview.kinematics.kinds); when given,
     # position and beta follow it and `position` holds its place at `time`.
     motion: Any = None
+    # Framing on what is seen (relview.framing, applied per exposure): the view turns
+    # towards the apparent centre of the bodies named in aim_at, and the field of view
+    # fits those named in fit with a margin (fraction of the half-frame left free).
+    aim_at: tuple[str, ...] = ()
+    fit: tuple[str, ...] = ()
+    margin: float = 0.15
 
     def forward(self) -> np.ndarray:
         if self.direction is not None:

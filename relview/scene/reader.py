@@ -179,7 +179,7 @@ def _unit(v: np.ndarray) -> np.ndarray:
 def _parse_camera(root: Table) -> Camera:
     t = root.table("camera", section="camera")
     t.check_keys(("position", "look_at", "direction", "up", "fov", "time", "beta", "projection",
-                  "motion"))
+                  "motion", "aim_at", "fit", "margin"))
     time = t.number("time", 0.0, unit="s")
     motion = None
     if t.has("motion"):
@@ -193,11 +193,12 @@ def _parse_camera(root: Table) -> Camera:
         position = np.asarray(motion.state(np.zeros((1, 3)), C * time)[0][0], float)
     else:
         position = t.vector("position", 3, unit="m")
-    if t.has("look_at") == t.has("direction"):
+    aim_at, fit, margin = _framing_keys(t)
+    if t.has("look_at") == t.has("direction") and not (aim_at and not t.has("look_at")):
         both = t.has("look_at")
         raise t.error(
             "direction" if both else None,
-            "give exactly one of look_at and direction"
+            "give exactly one of look_at, direction and aim_at"
             + (
                 f", not both (look_at = {show(t.data['look_at'])}, direction = {show(t.data['direction'])})"
                 if both
@@ -205,7 +206,18 @@ def _parse_camera(root: Table) -> Camera:
             ),
         )
     look_at = direction = None
-    if t.has("look_at"):
+    if aim_at:
+        # a provisional view direction; relview.framing turns it onto the bodies' apparent
+        # centre at each exposure, once the bodies are read (_aim_provisionally)
+        for clash in ("look_at", "direction"):
+            if t.has(clash):
+                raise t.error(clash, f"give exactly one of look_at, direction and aim_at, "
+                              f"not both {clash} = {show(t.data[clash])} and aim_at = "
+                              f"{show(t.data['aim_at'])}", t.data[clash])
+        up_given = _unit(t.vector("up", 3, (0.0, 0.0, 1.0), nonzero=True))
+        direction = forward = _unit(np.cross(up_given, [0.0, 1.0, 0.0] if abs(up_given[1]) < 0.9
+                                             else [1.0, 0.0, 0.0]))
+    elif t.has("look_at"):
         look_at = t.vector("look_at", 3, unit="m")
         # Compare in units of the larger coordinate, so huge values cannot overflow.
         size = max(1.0, float(np.abs(position).max()), float(np.abs(look_at).max()))
@@ -254,7 +266,59 @@ def _parse_camera(root: Table) -> Camera:
         beta=np.zeros(3) if motion is not None else t.beta("beta"),
         projection=projection,
         motion=motion,
+        aim_at=aim_at,
+        fit=fit,
+        margin=margin,
     )
+
+
+def _body_names(t: Table, key: str) -> tuple[str, ...]:
+    """A body name or a non-empty list of them (``[camera] aim_at``, ``fit``)."""
+    if not t.has(key):
+        return ()
+    value = t.data[key]
+    names = [value] if isinstance(value, str) else value
+    if (not isinstance(names, list) or not names
+            or not all(isinstance(n, str) and n for n in names)):
+        raise t.error(key, f"{key} = {show(value)} must be a body name or a non-empty list of "
+                      "body names", value)
+    return tuple(names)
+
+
+def _framing_keys(t: Table) -> tuple[tuple[str, ...], tuple[str, ...], float]:
+    """``aim_at``, ``fit`` and ``margin`` of ``[camera]`` (applied by relview.framing)."""
+    aim_at, fit = _body_names(t, "aim_at"), _body_names(t, "fit")
+    if fit and t.has("fov"):
+        raise t.error("fov", f"fov = {show(t.data['fov'])} cannot be given with fit = "
+                      f"{show(t.data['fit'])}, which chooses the field of view; remove one",
+                      t.data["fov"])
+    if fit and t.data.get("projection") == "panorama":
+        raise t.error("fit", f"fit = {show(t.data['fit'])} does not apply to the panorama "
+                      "projection (it always shows the full sphere); remove it", t.data["fit"])
+    if t.has("margin") and not fit:
+        raise t.error("margin", f"margin = {show(t.data['margin'])} applies only with fit; "
+                      "give fit = [body names] or remove it", t.data["margin"])
+    margin = t.number("margin", 0.15, nonnegative=True, high=10.0)
+    return aim_at, fit, margin
+
+
+def _check_framing_names(root: Table, camera: Camera, bodies: list) -> None:
+    """Every body named by ``[camera] aim_at`` and ``fit`` exists; an aimed camera starts
+    looking at the first named body's origin at the exposure time."""
+    names = [b.name for b in bodies]
+    t = root.table("camera", section="camera")
+    for key in ("aim_at", "fit"):
+        for name in getattr(camera, key):
+            if name not in names:
+                raise t.error(key, f'{key} names body "{name}", which the scene does not have'
+                              f"; bodies: {', '.join(names) or '(none)'}", t.data[key])
+    if camera.aim_at:
+        body = bodies[names.index(camera.aim_at[0])]
+        origin = np.asarray(body.motion.state(np.zeros((1, 3)), C * camera.time)[0][0], float)
+        towards = origin - np.asarray(camera.position, float)
+        if np.all(np.isfinite(towards)) and np.linalg.norm(towards) > 1e-9 * max(
+                1.0, float(np.abs(origin).max())):
+            camera.direction = _unit(towards)
 
 
 _SHAPE_KEYS = {
@@ -491,6 +555,7 @@ def _build(data: Any, doc: _Document, raw: bytes | None, source_path: Path | Non
     render = _parse_render(root)
     camera = _parse_camera(root)
     bodies = _parse_bodies(root)
+    _check_framing_names(root, camera, bodies)
     background = _parse_background(root)
     animation = _parse_animation(root)
     if raw is None:
