@@ -13,7 +13,10 @@ Inputs:
 * the demo scenes in scenes/ with values replaced, keys deleted or added at random
   places of the parsed structure;
 * the demo scene texts with random character edits, read through ``load_scene``
-  (TOML syntax errors, broken strings, truncated files).
+  (TOML syntax errors, broken strings, truncated files);
+* the demo scene texts with a deeply nested value (arrays or inline tables, up to 1000
+  levels) or a huge string (up to 9 MB, beyond the scene-file size cap) inserted, and
+  dicts nested deeper than Python's recursion limit.
 
 The CI profile is short (``RELVIEW_FUZZ_EXAMPLES`` examples per test, default 200).
 For a long run outside CI::
@@ -390,3 +393,52 @@ def test_scaled_demo_scenes_render_or_raise_user_error(case):
         except UserError:
             return
     assert frame.image.shape == (3, 4, 3)
+
+
+# ------------------------------------------------------------------ deep nesting, huge strings
+
+
+def _nested(kind: str, depth: int) -> str:
+    if kind == "array":
+        return "[" * depth + "]" * depth
+    if kind == "table":
+        return "{a = " * depth + "1" + "}" * depth
+    return "[{a = " * depth + "1" + "}]" * depth
+
+
+@st.composite
+def extreme_texts(draw):
+    """A demo scene with one extreme value added to its first table or set as its title."""
+    text = draw(st.sampled_from([p.read_text() for p in DEMO_SCENES]))
+    if draw(st.booleans()):
+        kind = draw(st.sampled_from(["array", "table", "mixed"]))
+        value = _nested(kind, draw(st.integers(1, 1000)))
+    else:
+        size = draw(st.sampled_from([10, 10**4, 10**6, 3 * 10**6, 9 * 10**6]))
+        char = draw(st.sampled_from(["a", "\\\\", "\u00e9", "[", "{"]))
+        value = '"' + char * (size // len(char)) + '"'
+    key = draw(st.sampled_from(["title", "fov", "x"]))
+    lines = text.splitlines()
+    header = next((i for i, line in enumerate(lines) if line.startswith("[")), 0)
+    lines.insert(header + 1, f"{key} = {value}")
+    return "\n".join(lines) + "\n"
+
+
+@pytest.mark.skipif(not DEMO_SCENES, reason="no demo scenes in scenes/")
+@settings(FUZZ_SETTINGS, max_examples=min(EXAMPLES, 60))  # megabyte strings: fewer examples
+@given(text=extreme_texts())
+def test_deep_nesting_and_huge_strings_load_or_raise_user_error(tmp_path_factory, text):
+    path = tmp_path_factory.mktemp("extreme") / "scene.toml"
+    path.write_text(text, encoding="utf-8")
+    _accepts_or_user_error(lambda: load_scene(path))
+
+
+@FUZZ_SETTINGS
+@given(depth=st.integers(1, 5000), key=KEYS)
+def test_deeply_nested_dicts_load_or_raise_user_error(base_dir, depth, key):
+    data: dict = {}
+    inner = data
+    for _ in range(depth):
+        inner[key] = {}
+        inner = inner[key]
+    _accepts_or_user_error(lambda: scene_from_dict(data, base_dir=base_dir, source="fuzz.toml"))

@@ -16,8 +16,10 @@ keys through it (:mod:`relview.kinematics.kinds`), as do surface kinds.
 
 from __future__ import annotations
 
+import errno
 import hashlib
 import json
+import os
 import re
 import tomllib
 from collections.abc import Mapping
@@ -579,26 +581,108 @@ def fields_from_dict(data: Mapping, base_dir: str | Path = ".", source: str = "<
     ``base_dir``: directory that relative file paths are resolved against.
     ``source``: the name used in error messages.
     """
+    if _nesting_depth(data) > MAX_NESTING:
+        raise _nesting_error(source)
     return _build(data, _Document(source, Path(base_dir), None), None, None)
 
 
 _TOML_POS_RE = re.compile(r"\s*\(at line (\d+), column (\d+)\)\s*$")
+
+#: Largest scene file read (bytes). A hand-written scene is a few kB (the largest demo
+#: in scenes/ is 4 kB); 8 MiB still holds a generated ``path`` motion of about 100,000
+#: keyframes, and reading a file that size costs tens of MB (tomllib and the line index),
+#: not the GBs an unbounded file could (docs/errors.md, "Limits").
+MAX_SCENE_BYTES = 8 * 2**20
+#: Deepest nesting of arrays and inline tables in a scene file. The schema's deepest
+#: value is a list of 3-vectors inside a body's motion (5 levels); tomllib parses
+#: nesting recursively and fails with RecursionError at a few hundred levels.
+MAX_NESTING = 32
+
+
+def _read_limited(path: Path, source: str) -> bytes:
+    """The bytes of the scene file, refusing one above MAX_SCENE_BYTES before reading it."""
+    try:
+        with open(path, "rb") as fh:
+            raw = fh.read(MAX_SCENE_BYTES + 1)  # also bounds a device or a growing file
+    except FileNotFoundError:
+        if path.is_symlink():
+            raise SceneError(
+                f"scene file is a symbolic link to a missing file ({os.readlink(path)})",
+                file=source, value=source,
+            ) from None
+        raise SceneError("scene file does not exist", file=source, value=source) from None
+    except IsADirectoryError:
+        raise SceneError("is a directory, not a scene file", file=source, value=source) from None
+    except OSError as exc:
+        if exc.errno == errno.ELOOP:
+            raise SceneError(
+                "scene file path is a loop of symbolic links", file=source, value=source
+            ) from None
+        raise SceneError(
+            f"cannot read scene file: {exc.strerror}", file=source, value=source
+        ) from None
+    if len(raw) > MAX_SCENE_BYTES:
+        raise SceneError(
+            f"the scene file is larger than {MAX_SCENE_BYTES // 2**20} MiB, the most a scene "
+            "file may hold; keep large data (meshes, spectra) in files that the scene names",
+            file=source,
+            value=source,
+        )
+    return raw
+
+
+def _too_deep_line(text: str) -> int | None:
+    """The line where arrays and inline tables first nest deeper than MAX_NESTING."""
+    depth, line, quote = 0, 1, None
+    for ch in re.finditer(r"""\\.|["'\[\]{}\n#]""", text):
+        c = ch.group()
+        if c == "\n":
+            line += 1
+            if quote == "#":
+                quote = None
+        elif quote:
+            if c == quote:
+                quote = None
+        elif c in "\"'#":
+            quote = c
+        elif c in "[{":
+            depth += 1
+            if depth > MAX_NESTING:
+                return line
+        elif c in "]}":
+            depth -= 1
+    return None
+
+
+def _nesting_depth(data: Any) -> int:
+    """Deepest nesting of lists and tables in ``data`` (iterative: no recursion limit)."""
+    deepest, stack = 0, [(data, 0)]
+    while stack:
+        value, depth = stack.pop()
+        deepest = max(deepest, depth)
+        if depth > MAX_NESTING:
+            break
+        if isinstance(value, Mapping):
+            stack.extend((v, depth + 1) for v in value.values())
+        elif isinstance(value, (list, tuple)):
+            stack.extend((v, depth + 1) for v in value)
+    return deepest
+
+
+def _nesting_error(source: str, line: int | None = None) -> SceneError:
+    return SceneError(
+        f"arrays or inline tables are nested more than {MAX_NESTING} levels deep; "
+        "no scene key needs that many",
+        file=source,
+        line=line,
+    )
 
 
 def read_scene_file(path: str | Path) -> dict:
     """Read and validate the scene in a TOML file -> the fields of its Scene."""
     path = Path(path)
     source = str(path)
-    try:
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise SceneError("scene file does not exist", file=source, value=source) from None
-    except IsADirectoryError:
-        raise SceneError("is a directory, not a scene file", file=source, value=source) from None
-    except OSError as exc:
-        raise SceneError(
-            f"cannot read scene file: {exc.strerror}", file=source, value=source
-        ) from None
+    raw = _read_limited(path, source)
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError as exc:
@@ -611,6 +695,8 @@ def read_scene_file(path: str | Path) -> dict:
     text = text.removeprefix("\ufeff")
     try:
         data = tomllib.loads(text)
+    except RecursionError:  # tomllib parses nested values recursively
+        raise _nesting_error(source, _too_deep_line(text)) from None
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         m = _TOML_POS_RE.search(msg)
@@ -627,6 +713,8 @@ def read_scene_file(path: str | Path) -> dict:
         raise SceneError(
             f"TOML syntax error: {msg}{snippet}", file=source, line=line, column=column
         ) from None
+    if _nesting_depth(data) > MAX_NESTING:
+        raise _nesting_error(source, _too_deep_line(text))
     if not data:
         what = "is empty" if not text.strip() else "holds only comments"
         raise SceneError(

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import contextlib
 import difflib
+import errno
 import json
 import math
 import numbers
@@ -56,7 +57,9 @@ _KEY_PART = r"""(?:[A-Za-z0-9_-]+|"[^"\n]*"|'[^'\n]*')"""
 _KEY_RE = re.compile(rf"^\s*({_KEY_PART}(?:\s*\.\s*{_KEY_PART})*)\s*=(.*)$")
 _ARRAY_HEADER_RE = re.compile(rf"^\s*\[\[\s*({_KEY_PART}(?:\s*\.\s*{_KEY_PART})*)\s*\]\]")
 _TABLE_HEADER_RE = re.compile(rf"^\s*\[\s*({_KEY_PART}(?:\s*\.\s*{_KEY_PART})*)\s*\]")
-_STRING_RE = re.compile(r'"(?:\\.|[^"\\])*"|\'[^\']*\'')
+# Possessive quantifiers (*+, ++): the plain form "(?:\\.|[^"\\])*" kept a backtracking
+# entry per character, about 120 bytes each (2.4 GB for a 20 MB string); these keep none.
+_STRING_RE = re.compile(r'"(?:[^"\\]++|\\.)*+"|\'[^\']*+\'')
 
 
 def index_lines(text: str) -> dict[tuple, int]:
@@ -121,6 +124,19 @@ def index_lines(text: str) -> dict[tuple, int]:
         body = _STRING_RE.sub('""', rest).split("#", 1)[0]
         depth = max(0, body.count("[") + body.count("{") - body.count("]") - body.count("}"))
     return lines
+
+
+def _why_missing(path: Path) -> tuple[str, str]:
+    """Why ``path`` names no file, and the detail: absent, a symbolic link to nothing, or
+    a loop of links (Path.exists() is False for all three)."""
+    try:
+        os.stat(path)
+    except OSError as exc:
+        if exc.errno == errno.ELOOP:
+            return "path is a loop of symbolic links", str(path)
+        if os.path.islink(path):
+            return "is a symbolic link to a missing file", f"{path} -> {os.readlink(path)}"
+    return "not found", f"looked for {path}"
 
 
 # ============================================================================ documents
@@ -510,9 +526,8 @@ class Table:
             reason = getattr(exc, "strerror", None) or str(exc)
             raise self.error(key, f"unusable path {key} = {show(value)}: {reason}", value) from None
         if not exists:
-            raise self.error(
-                key, f"{what} not found: {key} = {show(value)} (looked for {path})", value
-            )
+            reason, detail = _why_missing(path)
+            raise self.error(key, f"{what} {reason}: {key} = {show(value)} ({detail})", value)
         if not is_file:
             raise self.error(key, f"{what} is not a file: {key} = {show(value)} ({path})", value)
         try:
