@@ -12,7 +12,6 @@ Pipeline for one exposure event (docs/physics.md):
 
 from __future__ import annotations
 
-import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -20,6 +19,7 @@ import numpy as np
 
 from relview import framing
 from relview.geometry import camera as cam_mod
+from relview.geometry.shapes import free_memory, mesh_bytes
 from relview.geometry.trace import Hits, Tracer, uniform_groups
 from relview.imaging.exposure import clipped_fraction, expose, exposure_white, metered_pixels
 from relview.imaging.formats import frame_format
@@ -158,24 +158,27 @@ def bodies_around_camera(scene: Scene, context: RenderContext,
     return inside
 
 
-def estimate_bytes(width: int, height: int) -> int:
-    """Working memory of one frame: layers plus one ray batch."""
-    return width * height * BYTES_PER_PIXEL + RAYS_PER_BATCH * 400
+def estimate_bytes(width: int, height: int, faces: int = 0) -> int:
+    """Working memory of one frame: layers plus one ray batch, plus ``faces`` mesh
+    triangles at relview.geometry.shapes.BYTES_PER_FACE each (measured)."""
+    return width * height * BYTES_PER_PIXEL + RAYS_PER_BATCH * 400 + mesh_bytes(faces)
 
 
-def check_memory(width: int, height: int, source: str = "render.resolution") -> None:
-    """Refuse before any work when a frame would not fit in this machine's memory."""
-    need = estimate_bytes(width, height)
-    try:
-        avail = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_AVPHYS_PAGES")
-    except (ValueError, OSError, AttributeError):
+def check_memory(width: int, height: int, source: str = "render.resolution",
+                 faces: int = 0) -> None:
+    """Refuse before any work when a frame (and ``faces`` mesh triangles) would not fit in
+    this machine's memory."""
+    need = estimate_bytes(width, height, faces)
+    avail = free_memory()
+    if avail is None:
         return
     if need > 0.8 * avail:
         from relview.errors import UserError
 
-        raise UserError(f"{source} = [{width}, {height}]: a frame needs about "
+        meshes = f" with {faces:,} mesh triangles" if faces else ""
+        raise UserError(f"{source} = [{width}, {height}]: a frame{meshes} needs about "
                         f"{need / 2**30:.1f} GiB but only {avail / 2**30:.1f} GiB is free; "
-                        "lower the resolution")
+                        "lower the resolution" + (" or simplify the meshes" if faces else ""))
 
 
 def exposure_times(t: float, shutter: float, samples: int, shutter_samples: int) -> np.ndarray:

@@ -88,6 +88,11 @@ class Surface:
     def observed_xyz(self, doppler, rest_position, uv, effects) -> np.ndarray:  # pragma: no cover
         raise NotImplementedError
 
+    def lit_xyz(self, doppler, rest_position, uv, effects, incident) -> np.ndarray:
+        """XYZ when the scene has lamps: ``incident`` is a relview.light.lamps.Incident.
+        Emitters and co-moving-lamp surfaces ignore it."""
+        return self.observed_xyz(doppler, rest_position, uv, effects)
+
     def __eq__(self, other) -> bool:
         return isinstance(other, Surface) and self.key() == other.key()
 
@@ -463,6 +468,9 @@ class Reflective(Surface):
     def from_table(cls, table) -> Reflective:
         """``color = [r, g, b]`` (linear sRGB reflectance), optional ``lamp`` (K or a named
         lamp, default a 5800 K blackbody), ``luminance`` (cd/m^2) and ``texture`` (image)."""
+        #: lit by the scene's lamps (when it has any) instead of the co-moving lamp: set
+        #: by from_table for a ``color`` that names neither ``lamp`` nor ``luminance``
+        self.scene_lit = False
         rgb = table.vector("color", 3)
         if np.any(rgb < 0) or np.any(rgb > 1):
             raise table.error(
@@ -492,7 +500,10 @@ class Reflective(Surface):
         tex = None
         if self.texture is not None:
             tex = (str(self.texture), hash(self._texels.tobytes()))
-        return ("reflective", self.rgb, self.lamp_key, self.luminance, tex)
+        surface.scene_lit = not (table.has("lamp") or table.has("luminance"))
+        return surface
+        lit = ("scene-lit",) if self.scene_lit else ()  # lit by the scene's lamps instead
+        return ("reflective", self.rgb, self.lamp_key, self.luminance, tex) + lit
 
     def basis_tables(self) -> list[spectrum.DopplerTable]:
         """Doppler tables of the three basis reflectances under this lamp, normalised to a
@@ -541,6 +552,14 @@ class Reflective(Surface):
             f"Reflective(rgb={self.rgb!r}, lamp={self.lamp!r}, luminance={self.luminance!r}, "
             f"texture={None if self.texture is None else str(self.texture)!r})"
         )
+    def lit_xyz(self, doppler, rest_position, uv, effects, incident) -> np.ndarray:
+        """Lambert reflection of the scene's lamps (relview.light.lamps): linear in rgb
+        over the basis colours, like the co-moving lamp."""
+        if not self.scene_lit:
+            return self.observed_xyz(doppler, rest_position, uv, effects)
+        d = _as_doppler(doppler)
+        return np.einsum("nc,nck->nk", self.colour_at(uv, d.size), incident.basis_xyz(d, effects))
+
 
 
 _LAMP_NORMS: dict[Hashable, float] = {}
@@ -720,13 +739,18 @@ class Pattern(Surface):
         if mask.shape[0] != d.size:
             raise ValueError(f"pattern: {d.size} Doppler factors but {mask.shape[0]} positions")
         pos = np.asarray(rest_position, dtype=float).reshape(-1, 3)
+        return self.lit_xyz(doppler, rest_position, uv, effects, None)
+
+    def lit_xyz(self, doppler, rest_position, uv, effects, incident) -> np.ndarray:
+        """Each cell's surface, lit by ``incident`` (relview.light.lamps.Incident) or,
+        when it is None, by its own light only."""
         uv_arr = None if uv is None else np.asarray(uv, dtype=float).reshape(-1, 2)
         out = np.zeros((d.size, 3))
         for surface, sel in ((self.first, ~mask), (self.second, mask)):
             if np.any(sel):
-                out[sel] = surface.observed_xyz(
-                    d[sel], pos[sel], None if uv_arr is None else uv_arr[sel], effects
-                )
+                args = (d[sel], pos[sel], None if uv_arr is None else uv_arr[sel], effects)
+                out[sel] = (surface.observed_xyz(*args) if incident is None
+                            else surface.lit_xyz(*args, incident.subset(sel)))
         return out
 
     def __repr__(self):

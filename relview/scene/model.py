@@ -11,7 +11,7 @@ import dataclasses
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from relview.scene.parts import Animation, Background, Body, Camera, RenderSettings
+from relview.scene.parts import Animation, Background, Body, Camera, Lamp, RenderSettings
 
 
 @dataclass
@@ -25,6 +25,7 @@ class Scene:
     format: int = 1
     source_path: Path | None = None  # the scene file, if loaded from one
     source_hash: str = ""  # sha256 of the scene file (and meshes), for provenance
+    lamps: list[Lamp] = field(default_factory=list)  # [[lamp]]: light for reflective surfaces
 
     @classmethod
     def from_dict(cls, data: dict, base_dir: str | Path = ".", source: str = "<dict>") -> Scene:

@@ -132,3 +132,29 @@ class Animation:
     end: float = 0.0  # s
     frames: int = 1
     fps: float = 24.0
+
+
+@dataclass
+class Lamp:
+    """A light source of the scene (docs/scene-format.md, ``[[lamp]]``).
+
+    Either a point or sphere lamp on a worldline (``power`` in W, isotropic in its rest
+    frame; ``motion`` any motion kind) or, when ``direction`` is given, a distant lamp: a
+    plane wave of ``irradiance`` W/m2 arriving from ``direction`` as seen in the inertial
+    frame moving with ``frame_beta``.
+    """
+
+    name: str
+    spectrum: Any  # a relview.light.lamps.LampSpectrum
+    power: float = 0.0  # W, radiant power (point and sphere lamps)
+    radius: float = 0.0  # m; 0: a point lamp; > 0: a glowing sphere (soft shadows)
+    motion: Any = None  # the lamp's worldline (any motion kind), point and sphere lamps
+    direction: np.ndarray | None = None  # (3,) unit, towards a distant lamp, in its frame
+    irradiance: float = 0.0  # W/m2 on a plate facing a distant lamp, in its frame
+    frame_beta: np.ndarray = field(default_factory=lambda: np.zeros(3))  # distant lamp frame
+    shadow_samples: int = 16  # shadow rays per shaded point towards a sphere lamp
+    seed: int = 0  # seed of those rays' points on the sphere
+
+    @property
+    def distant(self) -> bool:
+        return self.direction is not None

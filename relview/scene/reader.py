@@ -34,6 +34,8 @@ from relview.geometry.shapes import MAX_COORDINATE, MAX_DETAIL, SHAPES, load_mes
 from relview.kinematics.lorentz import C
 from relview.kinematics.uniform import UniformMotion
 from relview.light.materials import MAX_TEMPERATURE, read_surface
+from relview.light.lamps import SPECTRUM_KEYS as LAMP_SPECTRUM_KEYS
+from relview.light.lamps import LampSpectrum
 from relview.light.sky import CMB_TEMPERATURE_K
 from relview.scene.parts import (
     Animation,
@@ -42,6 +44,7 @@ from relview.scene.parts import (
     Camera,
     Effects,
     RenderSettings,
+    Lamp,
 )
 from relview.scene.table import Table, _Document, _type_name, show
 
@@ -519,6 +522,66 @@ def _parse_microwave_sky(t: Table) -> Background:
 
 def _parse_animation(root: Table) -> Animation | None:
     t = root.table("animation", None, section="animation")
+#: most shadow rays per shaded point towards one sphere lamp
+MAX_SHADOW_SAMPLES = 4096
+
+
+def _parse_lamp(t: Table, index: int, seen: dict[str, int]) -> Lamp:
+    """One ``[[lamp]]``: a point or sphere lamp on a worldline (``power``), or a distant
+    lamp (``direction`` with ``irradiance``); its spectrum as relview.light.lamps reads it."""
+    name = t.string("name", f"lamp{index + 1}")
+    t.context = f'lamp "{name}"'
+    if name in seen:
+        raise t.error("name", f'duplicate lamp name "{name}" (already used by lamp #{seen[name] + 1})',
+                      name)
+    seen[name] = index
+    distant_keys = ("direction", "irradiance", "frame_beta")
+    point_keys = ("power", "radius", "motion", "shadow_samples", "seed")
+    t.check_keys(("name",) + LAMP_SPECTRUM_KEYS + distant_keys + point_keys)
+    lamp_spectrum = LampSpectrum.from_table(t)
+    if t.has("direction"):
+        for key in point_keys:
+            if t.has(key):
+                raise t.error(key, f"{key} = {show(t.data[key])} does not apply to a distant lamp "
+                              "(one with a direction); give power, radius and motion only to "
+                              "point and sphere lamps", t.data[key])
+        return Lamp(name=name, spectrum=lamp_spectrum,
+                    direction=_unit(t.vector("direction", 3, nonzero=True)),
+                    irradiance=t.number("irradiance", positive=True, unit="W/m2"),
+                    frame_beta=t.beta("frame_beta"))
+    for key in distant_keys:
+        if t.has(key):
+            raise t.error(key, f"{key} = {show(t.data[key])} applies only to a distant lamp; give "
+                          "direction too, or power (and motion) for a lamp on a worldline",
+                          t.data[key])
+    radius = t.number("radius", 0.0, nonnegative=True, high=MAX_COORDINATE, unit="m")
+    motion = t.motion("motion", None, section="lamp.motion") or UniformMotion()
+    with t.errors_at("motion"):
+        motion.validate(radius)
+    return Lamp(name=name, spectrum=lamp_spectrum,
+                power=t.number("power", positive=True, unit="W"), radius=radius, motion=motion,
+                shadow_samples=t.integer("shadow_samples", 16, low=1, high=MAX_SHADOW_SAMPLES),
+                seed=t.integer("seed", 0, low=0, high=2**63 - 1))
+
+
+def _parse_lamps(root: Table) -> list[Lamp]:
+    value = root.data.get("lamp")
+    if value is None:
+        return []
+    if not isinstance(value, list):
+        raise root.error("lamp", "lamps are an array of tables: write [[lamp]] (double brackets) "
+                         f"for each lamp, got {_type_name(value)}", value)
+    lamps: list[Lamp] = []
+    seen: dict[str, int] = {}
+    for i, item in enumerate(value):
+        if not isinstance(item, Mapping):
+            raise root.error("lamp", f"lamp entry {i + 1} is {_type_name(item)}, not a table: "
+                             f"{show(item)}", item)
+        lamps.append(_parse_lamp(Table(item, root.doc, ("lamp", i), "lamp", "", f"lamp #{i + 1}"),
+                                 i, seen))
+    return lamps
+
+
     if t is None:
         return None
     t.check_keys(("start", "end", "frames", "fps"))
@@ -553,7 +616,7 @@ def _build(data: Any, doc: _Document, raw: bytes | None, source_path: Path | Non
         raise SceneError(f"a scene is a table of sections, got {_type_name(data)}", file=doc.source)
     root = Table(data, doc, (), "")
     title, fmt = _parse_meta(root)
-    root.check_keys(("scene", "render", "camera", "body", "background", "animation"))
+    root.check_keys(("scene", "render", "camera", "body", "background", "animation", "lamp"))
     render = _parse_render(root)
     camera = _parse_camera(root)
     bodies = _parse_bodies(root)
@@ -562,6 +625,7 @@ def _build(data: Any, doc: _Document, raw: bytes | None, source_path: Path | Non
     animation = _parse_animation(root)
     if raw is None:
         raw = json.dumps(data, sort_keys=True, default=show).encode()
+    lamps = _parse_lamps(root)
     return dict(
         camera=camera,
         bodies=bodies,
@@ -574,6 +638,7 @@ def _build(data: Any, doc: _Document, raw: bytes | None, source_path: Path | Non
         source_hash=_hash(raw, doc.referenced),
     )
 
+        lamps=lamps,
 
 def fields_from_dict(data: Mapping, base_dir: str | Path = ".", source: str = "<dict>") -> dict:
     """Validate the structure a scene file holds (nested dicts/lists) into Scene fields.
