@@ -321,15 +321,20 @@ class TabulatedSpectrum(SpectralSurface):
             except ValueError:
                 if first_row:
                     continue  # header line
+                # the line itself is not quoted: the file may not be a spectrum at all,
+                # and its text is nobody's business in an error message
                 raise ValueError(
-                    f"{path}, line {lineno}: expected two numbers (nm, W/(sr m2 nm)), got {raw.strip()!r}"
+                    f"{path}, line {lineno}: expected two numbers (nm, W/(sr m2 nm)) separated "
+                    f"by a comma, semicolon, tab or spaces; is this a spectrum file?"
                 ) from None
             if len(numbers) != 2:
                 raise ValueError(
                     f"{path}, line {lineno}: expected 2 columns (nm, W/(sr m2 nm)), got {len(numbers)}"
                 )
             if not all(math.isfinite(v) for v in numbers):
-                raise ValueError(f"{path}, line {lineno}: values must be finite, got {raw.strip()!r}")
+                raise ValueError(
+                    f"{path}, line {lineno}: values must be finite, got {numbers[0]!r}, {numbers[1]!r}"
+                )
             if numbers[0] <= 0.0:
                 raise ValueError(f"{path}, line {lineno}: wavelength must be > 0 nm, got {numbers[0]}")
             if numbers[1] < 0.0:
