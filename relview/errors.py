@@ -86,6 +86,18 @@ class OutputError(UserError):
     """An output path cannot be written (missing directory, no permission, would overwrite)."""
 
 
+class WorkersLost(UserError):
+    """Worker processes (or a Dask scheduler) were lost more often than a run retries.
+
+    The frames that finished are kept; ``frames`` lists those still missing, which a
+    rerun of the same command renders.
+    """
+
+    def __init__(self, message: str, *, frames: list[int] | None = None, **where) -> None:
+        self.frames = list(frames or [])
+        super().__init__(message, **where)
+
+
 class MeshWarning(UserWarning):
     """A mesh file was accepted with a repair or a caveat (degenerate triangles, open edges)."""
 

@@ -102,13 +102,22 @@ def test_cluster_and_workers_together_are_refused(local_frames, tmp_path):
         )
 
 
-def test_unreachable_scheduler_is_a_user_error(local_frames, tmp_path, monkeypatch):
-    scene_file, _ = local_frames
+def _animate_on_unreachable_scheduler(scene_file, out, monkeypatch):
     monkeypatch.setattr(farm, "CONNECT_TIMEOUT_S", 1)
     with pytest.raises(UserError, match="cannot reach"):
-        batch.animate(
-            load_scene(scene_file), tmp_path / "x", cluster="tcp://127.0.0.1:9", progress=False
-        )
+        batch.animate(load_scene(scene_file), out, cluster="tcp://127.0.0.1:9", progress=False)
+
+
+def test_unreachable_scheduler_is_a_user_error(local_frames, tmp_path, monkeypatch):
+    scene_file, _ = local_frames
+    _animate_on_unreachable_scheduler(scene_file, tmp_path / "x", monkeypatch)
+
+
+def test_unreachable_scheduler_leaves_no_manifest(local_frames, tmp_path, monkeypatch):
+    """The cluster is reached before anything is written to the output directory."""
+    scene_file, _ = local_frames
+    _animate_on_unreachable_scheduler(scene_file, tmp_path / "x", monkeypatch)
+    assert not (tmp_path / "x").exists()
 
 
 OBJ_TETRAHEDRON = """\

@@ -23,6 +23,7 @@ reused on resume.
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import json
 import math
@@ -55,10 +56,17 @@ from relview.animation.manifest import (
 )
 from relview.animation.timing import FRAME_NAME_PATTERN, frame_name, frame_times, resolve_frames
 from relview.animation.video import VIDEO_TYPES, assemble_video
-from relview.animation.workers import FrameRenderer, render_in_processes, render_serial
-from relview.errors import OutputError, UserError
+from relview.animation.workers import (
+    WORKER_BASE_BYTES,
+    FrameRenderer,
+    check_worker_count,
+    render_in_processes,
+    render_serial,
+)
+from relview.errors import OutputError, UserError, WorkersLost
+from relview.geometry.shapes import mesh_data
 from relview.imaging.exposure import ExposureLock
-from relview.renderer import RenderContext, check_memory, metering_masks, render
+from relview.renderer import RenderContext, check_memory, estimate_bytes, metering_masks, render
 
 __all__ = [
     "DEFAULT_WORKERS",
@@ -211,7 +219,8 @@ def animate(
             "(docs/scene-format.md)",
             file=where,
         )
-    check_memory(*scene.render.resolution)
+    faces = scene_faces(scene)
+    check_memory(*scene.render.resolution, faces=faces)
     times = frame_times(anim)
     wanted = resolve_frames(frames, len(times))
     if video is not None and Path(video).suffix.lower() not in VIDEO_TYPES:
@@ -222,6 +231,9 @@ def animate(
         )
     if workers is not None and workers < 1:
         raise UserError(f"--workers must be >= 1, got {workers}")
+    per_worker = WORKER_BASE_BYTES + estimate_bytes(*scene.render.resolution, faces=faces)
+    if workers is not None and workers > 1:
+        check_worker_count(workers, per_worker, f"--workers {workers}")
     if cluster is not None:
         if workers is not None:
             raise UserError(
@@ -229,7 +241,9 @@ def animate(
                 "the cluster (local:N, or start dask workers for a tcp:// scheduler)"
             )
         if isinstance(cluster, str):
-            farm.parse_cluster(cluster)  # a malformed address fails before any work
+            kind, value = farm.parse_cluster(cluster)  # a malformed address fails before work
+            if kind == "local":
+                check_worker_count(int(value), per_worker, f"--cluster {cluster}")
     out_dir = Path(out_dir)
     identity = scene_identity(scene)
     earlier = claim_directory(out_dir, identity, overwrite)
@@ -295,46 +309,15 @@ def animate(
             "with other settings or an earlier version of the scene, or changed since; pass "
             "--overwrite to render them again in place, or write to another directory with -o"
         )
-    manifest.save()  # settings first, so the directory is claimed before any frame lands
-
-    if todo:
-        loop_started = _time.perf_counter()
-        results, summary.backend = _start_backend(renderer, todo, cluster, workers)
-        bar = None
-        if progress:
-            from tqdm import tqdm  # ~50 ms to import; needed only when a bar is shown
-
-            bar = tqdm(
-                total=len(todo), desc=f"frames -> {out_dir}", unit="frame", dynamic_ncols=True
-            )
-            if summary.skipped or summary.adopted:
-                bar.set_postfix_str(f"{len(summary.skipped) + len(summary.adopted)} already done")
-        try:
-            for result in results:
-                written = write_frame_file(out_dir, result.index, result.png)
-                manifest.record(
-                    result.index,
-                    {
-                        "time_s": result.time_s,
-                        "file": written.name,
-                        "sha256": result.sha256,
-                        "settings_sha256": digest,
-                        "white_cd_m2": result.white,
-                        "mean_relative_luminance": result.mean_luminance,
-                        "relview_version": __version__,
-                    },
-                )
-                manifest.save()
-                summary.rendered.append(result.index)
-                if bar is not None:
-                    bar.update(1)
-            summary.render_seconds = _time.perf_counter() - loop_started
-        finally:
-            close = getattr(results, "close", None)
-            if close is not None:
-                close()
-            if bar is not None:
-                bar.close()
+    with contextlib.ExitStack() as stack:
+        session = None
+        if todo and cluster is not None:
+            # Connect (or start local:N) before the manifest is written, so a cluster that
+            # cannot be reached leaves no frameless manifest behind.
+            session = stack.enter_context(farm.FarmSession(cluster))
+        manifest.save()  # settings first, so the directory is claimed before any frame lands
+        if todo:
+            _render_todo(renderer, todo, session, workers, manifest, digest, summary, progress)
     summary.seconds = _time.perf_counter() - started
 
     current = current_frames(out_dir, manifest, digest, times)
@@ -354,14 +337,62 @@ def animate(
     return summary
 
 
-def _start_backend(renderer: FrameRenderer, todo, cluster, workers):
+def scene_faces(scene) -> int:
+    """Triangles of the scene's bodies (mesh files are read once and cached by shapes)."""
+    return sum(len(mesh_data(body).faces) for body in scene.bodies)
+
+
+def _start_backend(renderer: FrameRenderer, todo, session, workers):
     """An iterator of RenderedFrame for the jobs, and a description of where they run."""
-    if cluster is not None:
-        return farm.render_frames(renderer, todo, cluster), f"dask {cluster}"
+    if session is not None:
+        return farm.render_frames(renderer, todo, session), f"dask {session.cluster}"
     n = min(DEFAULT_WORKERS if workers is None else workers, len(todo))
     if n <= 1:
         return render_serial(renderer, todo), "1 process"
     return render_in_processes(renderer, todo, n), f"{n} processes, 1 numba thread each"
+
+
+def _render_todo(renderer, todo, session, workers, manifest, digest, summary, progress) -> None:
+    """Render the ``todo`` frames, writing and recording each one as it lands."""
+    out_dir = manifest.out_dir
+    loop_started = _time.perf_counter()
+    results, summary.backend = _start_backend(renderer, todo, session, workers)
+    bar = None
+    if progress:
+        from tqdm import tqdm  # ~50 ms to import; needed only when a bar is shown
+
+        bar = tqdm(total=len(todo), desc=f"frames -> {out_dir}", unit="frame", dynamic_ncols=True)
+        if summary.skipped or summary.adopted:
+            bar.set_postfix_str(f"{len(summary.skipped) + len(summary.adopted)} already done")
+    try:
+        for result in results:
+            written = write_frame_file(out_dir, result.index, result.png)
+            manifest.record(
+                result.index,
+                {
+                    "time_s": result.time_s,
+                    "file": written.name,
+                    "sha256": result.sha256,
+                    "settings_sha256": digest,
+                    "white_cd_m2": result.white,
+                    "mean_relative_luminance": result.mean_luminance,
+                    "relview_version": __version__,
+                },
+            )
+            manifest.save()
+            summary.rendered.append(result.index)
+            if bar is not None:
+                bar.update(1)
+        summary.render_seconds = _time.perf_counter() - loop_started
+    except WorkersLost as exc:
+        exc.file = str(out_dir)  # the message says where the finished frames are kept
+        raise
+    finally:
+        close = getattr(results, "close", None)
+        if close is not None:
+            close()
+        if bar is not None:
+            bar.close()
 
 
 def _flash_check(manifest: Manifest, current: dict[int, dict], fps: float) -> list[FlashEpisode]:

@@ -95,14 +95,16 @@ def resolve_frames(frames: range | slice | Iterable[int] | None, n_frames: int) 
 
 
 def _checked_range(r: range, n_frames: int, what: str) -> range:
+    # Only comparisons of start and stop here: len(r) and r[-1] overflow a C ssize_t
+    # for a range such as 0:99999999999999999999 (OverflowError).
     if r.start < 0 or r.stop < 0:
         raise UserError(f"{what}: frame indices start at 0; negative indices are not allowed")
-    if len(r) == 0:
+    if r.start >= r.stop:
         kind = "reversed" if r.start > r.stop else "empty"
         raise UserError(
             f"{what}: the range is {kind} (A:B is half-open, A < B; "
             f"the animation has frames 0..{n_frames - 1})"
         )
-    if r.start >= n_frames or r[-1] >= n_frames:
+    if r.start >= n_frames or r.stop > n_frames:
         raise UserError(f"{what}: the animation has {n_frames} frame(s), indices 0..{n_frames - 1}")
     return r
