@@ -468,14 +468,14 @@ class Reflective(Surface):
         self.uses_position = False
         self.uses_uv = texture is not None
         self._texels = None if texture is None else load_texture(self.texture)
+        #: lit by the scene's lamps (when it has any) instead of the co-moving lamp: set
+        #: by from_table for a ``color`` that names neither ``lamp`` nor ``luminance``
+        self.scene_lit = False
 
     @classmethod
     def from_table(cls, table) -> Reflective:
         """``color = [r, g, b]`` (linear sRGB reflectance), optional ``lamp`` (K or a named
         lamp, default a 5800 K blackbody), ``luminance`` (cd/m^2) and ``texture`` (image)."""
-        #: lit by the scene's lamps (when it has any) instead of the co-moving lamp: set
-        #: by from_table for a ``color`` that names neither ``lamp`` nor ``luminance``
-        self.scene_lit = False
         rgb = table.vector("color", 3)
         if np.any(rgb < 0) or np.any(rgb > 1):
             raise table.error(
@@ -494,19 +494,19 @@ class Reflective(Surface):
         if table.has("texture"):
             texture = table.path_value("texture", what="texture image")
             _check_image(table, texture)
-        return cls(
+        surface = cls(
             rgb=tuple(float(c) for c in rgb),
             lamp=lamp,
             luminance=table.number("luminance", 100.0, positive=True, unit="cd/m2"),
             texture=texture,
         )
+        surface.scene_lit = not (table.has("lamp") or table.has("luminance"))
+        return surface
 
     def key(self):
         tex = None
         if self.texture is not None:
             tex = (str(self.texture), hash(self._texels.tobytes()))
-        surface.scene_lit = not (table.has("lamp") or table.has("luminance"))
-        return surface
         lit = ("scene-lit",) if self.scene_lit else ()  # lit by the scene's lamps instead
         return ("reflective", self.rgb, self.lamp_key, self.luminance, tex) + lit
 
@@ -552,11 +552,6 @@ class Reflective(Surface):
                 xyz += weight[:, None] * table.lookup(dc)
         return xyz * (self.luminance * brightness)[:, None]
 
-    def __repr__(self):
-        return (
-            f"Reflective(rgb={self.rgb!r}, lamp={self.lamp!r}, luminance={self.luminance!r}, "
-            f"texture={None if self.texture is None else str(self.texture)!r})"
-        )
     def lit_xyz(self, doppler, rest_position, uv, effects, incident) -> np.ndarray:
         """Lambert reflection of the scene's lamps (relview.light.lamps): linear in rgb
         over the basis colours, like the co-moving lamp."""
@@ -565,6 +560,11 @@ class Reflective(Surface):
         d = _as_doppler(doppler)
         return np.einsum("nc,nck->nk", self.colour_at(uv, d.size), incident.basis_xyz(d, effects))
 
+    def __repr__(self):
+        return (
+            f"Reflective(rgb={self.rgb!r}, lamp={self.lamp!r}, luminance={self.luminance!r}, "
+            f"texture={None if self.texture is None else str(self.texture)!r})"
+        )
 
 
 _LAMP_NORMS: dict[Hashable, float] = {}
@@ -739,16 +739,16 @@ class Pattern(Surface):
         return np.any(dist < 0.5 * self.line_width, axis=1)
 
     def observed_xyz(self, doppler, rest_position, uv=None, effects=None) -> np.ndarray:
-        d = _as_doppler(doppler)
-        mask = self.second_mask(rest_position)
-        if mask.shape[0] != d.size:
-            raise ValueError(f"pattern: {d.size} Doppler factors but {mask.shape[0]} positions")
-        pos = np.asarray(rest_position, dtype=float).reshape(-1, 3)
         return self.lit_xyz(doppler, rest_position, uv, effects, None)
 
     def lit_xyz(self, doppler, rest_position, uv, effects, incident) -> np.ndarray:
         """Each cell's surface, lit by ``incident`` (relview.light.lamps.Incident) or,
         when it is None, by its own light only."""
+        d = _as_doppler(doppler)
+        mask = self.second_mask(rest_position)
+        if mask.shape[0] != d.size:
+            raise ValueError(f"pattern: {d.size} Doppler factors but {mask.shape[0]} positions")
+        pos = np.asarray(rest_position, dtype=float).reshape(-1, 3)
         uv_arr = None if uv is None else np.asarray(uv, dtype=float).reshape(-1, 2)
         out = np.zeros((d.size, 3))
         for surface, sel in ((self.first, ~mask), (self.second, mask)):

@@ -1,0 +1,274 @@
+"""Lamps lighting reflective surfaces: lamp events, shadow rays, incident light per hit.
+
+For each shading point, the emission event E = (ct_E, x_E) of a camera ray on a surface
+that is lit by the scene's lamps (docs/physics.md, "Lamps"):
+
+1. the lamp event L on E's past light cone (the retarded solve of bodies, vectorised over
+   the events E; closed form for inertial lamps); with ``delay`` off, the lamp where it
+   is at t_E;
+2. the shadow test: a backward null ray from E towards L, cast through the exposure's
+   Tracer (every inertial body exactly at its own retarded event along the ray); a hit
+   with path length l below |x_E - x_L| means shadow. Sphere lamps send
+   ``shadow_samples`` rays to seeded points of their disc: the unshadowed fraction;
+3. the photon 4-momentum (1, k), k = (x_E - x_L)/|x_E - x_L|, carried into the surface's
+   rest frame R and the lamp's: D_in = gamma_s (1 - beta_s.k) / (gamma_L (1 - beta_L.k)),
+   the direction in R (aberration) gives cos(theta') against the rest-frame normal, and
+   r' = |x_E - x_L| gamma_s (1 - beta_s.k) is the lamp distance in R;
+4. the factor A of relview.light.lamps (power or irradiance, cos, distance, 1/pi), which
+   the surface turns into XYZ with D_in and the camera's D_out.
+
+Distant lamps are plane waves from a fixed direction in their own frame; their light is
+aberrated into S, the shadow ray runs to infinity.
+
+Effect switches (docs/physics.md): ``delay`` off places lamps and shadow rays at the
+time of E; ``contraction`` off uses Galilean maps (no gammas, k' = k - beta);
+``aberration`` off takes the S direction of the incident light unchanged as its
+direction in R; ``doppler`` / ``beaming`` act on D_in as on D_out (relview.light.lamps).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from relview.geometry.trace import Tracer
+from relview.kinematics.solvers import SOLVER_RTOL, _solve_increasing, inertial_light_delay
+from relview.light.lamps import Incident, lit_table
+from relview.scene.parts import Effects, Lamp
+
+#: shadow rays start this far (m) from the surface, against hitting their own triangle
+SHADOW_OFFSET_M = 1e-6
+#: names of the float layers a lit scene adds to a Frame
+LAYER_NAMES = ("incident_doppler", "shadowed_fraction", "total_doppler")
+
+
+def null_to_frame(k: np.ndarray, beta: np.ndarray, relativistic: bool = True):
+    """A photon of 4-momentum (1, k) in S (k (N,3) unit propagation direction) seen from a
+    frame moving with (N,3) or (3,) ``beta``: (frequency ratio k0' (N,), unit direction
+    (N,3)). Relativistic: the pure boost (Jackson eq. 11.19 with (gamma-1)/b^2 =
+    gamma^2/(gamma+1)); Galilean: k0' = 1 - beta.k and k' = k - beta."""
+    beta = np.broadcast_to(np.asarray(beta, float), k.shape)
+    bk = np.sum(beta * k, axis=1)
+    if relativistic:
+        g = 1.0 / np.sqrt(1.0 - np.sum(beta * beta, axis=1))
+        k0 = g * (1.0 - bk)
+        kp = k + ((g * g / (g + 1.0)) * bk - g)[:, None] * beta
+        return k0, kp / k0[:, None]
+    kp = k - beta
+    return 1.0 - bk, kp / np.linalg.norm(kp, axis=1)[:, None]
+
+
+def lamp_events(lamp: Lamp, events: np.ndarray, effects: Effects):
+    """(L (N,4) [ct, x] m, beta_L (N,3)): the lamp centre's events whose light reaches each
+    of the (N,4) ``events`` (the retarded solve of RigidKinematics.retarded, vectorised
+    over the receiving events); with ``delay`` off, the lamp at the events' own times."""
+    motion = lamp.motion
+    n = len(events)
+    t = events[:, 0]
+    origin = np.zeros((n, 3))
+    if not effects.delay:
+        x, beta = motion.state(origin, t, contraction=effects.contraction)
+        return np.column_stack([t, x]), beta
+    if motion.is_inertial:
+        beta, e0 = motion.inertial_frame()
+        beta = np.asarray(beta, float)
+        x_now = e0[1:] + np.outer(t - e0[0], beta)  # the lamp at each event's time
+        tau = inertial_light_delay(events[:, 1:] - x_now, beta)
+        return (np.column_stack([t - tau, x_now - tau[:, None] * beta]),
+                np.broadcast_to(beta, (n, 3)).copy())
+    ev_now, _ = motion.events(origin, t, effects.contraction)
+    dist = np.linalg.norm(events[:, 1:] - ev_now[:, 1:], axis=1) + np.abs(ev_now[:, 0] - t)
+
+    def fun(s, idx):
+        # h(s) = |x_E - X(s)| - (t_E - t(s)), increasing along a timelike worldline
+        e, de = motion.events(origin[idx], s, effects.contraction)
+        r = events[idx, 1:] - e[:, 1:]
+        rn = np.linalg.norm(r, axis=1)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            dr = np.where(rn > 0, -np.sum(r * de[:, 1:], axis=1) / rn, 0.0)
+        return rn - (t[idx] - e[:, 0]), dr + de[:, 0]
+
+    step = dist + 1e-9 * (1.0 + np.abs(t))
+    tol = SOLVER_RTOL * dist + 4 * np.finfo(float).eps * (np.abs(t) + dist) + 1e-300
+    s = _solve_increasing(fun, t - dist, step, tol)
+    ev, dev = motion.events(origin, s, effects.contraction)
+    return ev, dev[:, 1:] / dev[:, :1]
+
+
+def rest_normals(body, body_index: int, mesh, hits_face, hits_bary, events, beta_s,
+                 effects: Effects) -> np.ndarray:
+    """(N,3) unit normals of the hit faces in each surface point's rest frame (axes
+    parallel to S's). Inertial bodies: the face normal of the rest-frame mesh. Other
+    motions: two short face tangents placed simultaneously in S at the hit time
+    (motion.state), then stretched back by gamma along beta (the inverse of the
+    Lorentz-FitzGerald contraction of relview.kinematics.lorentz.contract), crossed."""
+    vertices, faces = mesh
+    tri = vertices[faces[hits_face]]  # (N, 3, 3), mesh axes (rotation applied)
+    e1 = tri[:, 1] - tri[:, 0]
+    e2 = tri[:, 2] - tri[:, 0]
+    if body.motion.is_inertial:
+        n = np.cross(e1, e2)
+        return n / np.linalg.norm(n, axis=1)[:, None]
+    u = hits_bary[:, :1]
+    v = hits_bary[:, 1:]
+    p = (1.0 - u - v) * tri[:, 0] + u * tri[:, 1] + v * tri[:, 2]
+    size = np.maximum(np.linalg.norm(e1, axis=1), np.linalg.norm(e2, axis=1))[:, None]
+    eps = 1e-4 * size
+    t1 = e1 / np.linalg.norm(e1, axis=1)[:, None] * eps
+    t2 = e2 / np.linalg.norm(e2, axis=1)[:, None] * eps
+    m = len(p)
+    pts = np.concatenate([p, p + t1, p + t2])
+    x, _ = body.motion.state(pts, np.tile(events[:, 0], 3), contraction=effects.contraction)
+    w1 = x[m:2 * m] - x[:m]
+    w2 = x[2 * m:] - x[:m]
+    if effects.contraction:
+        b2 = np.sum(beta_s * beta_s, axis=1)
+        g = 1.0 / np.sqrt(1.0 - b2)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            f = np.where(b2 > 0, (g - 1.0) / b2, 0.0)
+        w1 = w1 + (f * np.sum(w1 * beta_s, axis=1))[:, None] * beta_s
+        w2 = w2 + (f * np.sum(w2 * beta_s, axis=1))[:, None] * beta_s
+    n = np.cross(w1, w2)
+    return n / np.linalg.norm(n, axis=1)[:, None]
+
+
+def _shadow_free(tracer: Tracer, start: np.ndarray, towards: np.ndarray, distance: np.ndarray,
+                 effects: Effects, reference=None) -> np.ndarray:
+    """(N,) True where the backward null ray from each start event along unit ``towards``
+    meets no body before ``distance`` (m; inf for a distant lamp). ``reference``: the
+    exposure's reference event (relview.geometry.trace)."""
+    if tracer is None or tracer.packed is None or len(start) == 0:
+        return np.ones(len(start), bool)
+    hits = tracer.cast(start, towards, effects, l_min=SHADOW_OFFSET_M, reference=reference)
+    return ~(hits.l < distance * (1.0 - 1e-9))
+
+
+def _disc_points(lamp: Lamp, k: np.ndarray) -> np.ndarray:
+    """(S, N, 3) seeded offsets uniform over the lamp's disc as seen along k (N,3): the
+    disc of radius ``lamp.radius`` perpendicular to the line of sight in S."""
+    rng = np.random.default_rng(lamp.seed)
+    n = len(k)
+    s = lamp.shadow_samples
+    r = lamp.radius * np.sqrt(rng.uniform(size=(s, 1)))
+    phi = 2.0 * math.pi * rng.uniform(size=(s, 1))
+    helper = np.where(np.abs(k[:, :1]) < 0.9, [[1.0, 0.0, 0.0]], [[0.0, 1.0, 0.0]])
+    a = np.cross(k, helper)
+    a /= np.linalg.norm(a, axis=1)[:, None]
+    b = np.cross(k, a)
+    return ((r * np.cos(phi))[:, :, None] * a[None] + (r * np.sin(phi))[:, :, None] * b[None]
+            ).reshape(s, n, 3)
+
+
+@dataclass
+class LampTerm:
+    """One lamp's light at N points: D_in, the factor A (unshadowed), the unshadowed
+    fraction, and the bolometric irradiance (W/m^2) it would give without shadow."""
+
+    d_in: np.ndarray
+    weight: np.ndarray
+    visible: np.ndarray
+    irradiance: np.ndarray
+
+
+def lamp_term(lamp: Lamp, tracer: Tracer | None, events: np.ndarray, beta_s: np.ndarray,
+              normals: np.ndarray, effects: Effects, reference=None) -> LampTerm:
+    """The light of ``lamp`` at the surface events (N,4) moving with beta_s (N,3), whose
+    rest-frame normals (N,3) face the camera."""
+    n = len(events)
+    rel = bool(effects.contraction)
+    if lamp.distant:
+        # plane wave: propagation -direction in the lamp's frame F, carried into S
+        k_f = -np.broadcast_to(np.asarray(lamp.direction, float), (n, 3))
+        _, k = null_to_frame(k_f, -np.asarray(lamp.frame_beta, float), rel)
+        k0_lamp, _ = null_to_frame(k, lamp.frame_beta, rel)
+        towards, distance = -k, np.full(n, np.inf)
+    else:
+        ev_l, beta_l = lamp_events(lamp, events, effects)
+        sep = events[:, 1:] - ev_l[:, 1:]
+        distance = np.linalg.norm(sep, axis=1)
+        k = sep / distance[:, None]
+        towards = -k
+        k0_lamp, _ = null_to_frame(k, beta_l, rel)
+    k0_s, k_rest = null_to_frame(k, beta_s, rel)
+    if not effects.aberration:
+        k_rest = k
+    d_in = k0_s / k0_lamp
+    cos_in = np.maximum(-np.sum(normals * k_rest, axis=1), 0.0)
+    if lamp.distant:
+        d_beam = d_in if effects.beaming else np.ones(n)
+        irradiance = lamp.irradiance * d_in**2 * cos_in
+        weight = lamp.irradiance * cos_in / (math.pi * d_beam**2)
+    else:
+        r_rest = distance * (k0_s if rel else np.linalg.norm(k - beta_s, axis=1))
+        irradiance = d_in**4 * lamp.power * cos_in / (4.0 * math.pi * r_rest**2)
+        weight = lamp.power * cos_in / (4.0 * math.pi**2 * r_rest**2)
+    visible = np.zeros(n)
+    lit = np.nonzero(cos_in > 0)[0]
+    if len(lit):
+        start = events[lit]
+        if lamp.distant or lamp.radius == 0.0:
+            visible[lit] = _shadow_free(tracer, start, towards[lit], distance[lit], effects,
+                                        reference)
+        else:
+            offsets = _disc_points(lamp, k[lit])
+            target = ev_l[lit, 1:][None] + offsets  # (S, M, 3) points of the lamp's disc
+            seg = target - events[lit, 1:][None]
+            dist = np.linalg.norm(seg, axis=2)
+            free = _shadow_free(tracer, np.tile(start, (len(offsets), 1)),
+                                (seg / dist[:, :, None]).reshape(-1, 3), dist.reshape(-1),
+                                effects, reference)
+            visible[lit] = free.reshape(len(offsets), -1).mean(axis=0)
+    return LampTerm(d_in, weight, visible, irradiance)
+
+
+class LampLayers:
+    """The float layers of a lit scene's first exposure sample, filled batch by batch."""
+
+    def __init__(self, n: int):
+        self.values = {name: np.full(n, np.nan) for name in LAYER_NAMES}
+
+    def images(self, height: int, width: int) -> dict[str, np.ndarray]:
+        return {name: v.reshape(height, width) for name, v in self.values.items()}
+
+
+def scene_lit(scene) -> bool:
+    """Whether any body surface of ``scene`` takes light from its lamps."""
+    return bool(scene.lamps) and any(takes_lamps(b.surface) for b in scene.bodies)
+
+
+def takes_lamps(surface) -> bool:
+    if getattr(surface, "scene_lit", False):
+        return True
+    return any(takes_lamps(getattr(surface, part, None)) for part in ("first", "second")
+               if getattr(surface, part, None) is not None)
+
+
+def incident_light(scene, body_index: int, mesh, tracer: Tracer | None, hits, sel: np.ndarray,
+                   camera_event: np.ndarray, effects: Effects, reference=None):
+    """(Incident, incident D of the brightest lamp (N,), shadowed fraction (N,)) at the
+    hits ``sel`` of body ``body_index``: every lamp's light, for Surface.lit_xyz."""
+    body = scene.bodies[body_index]
+    events = hits.emit_event[sel]
+    beta_s = hits.beta_emit[sel]
+    normals = rest_normals(body, body_index, mesh, hits.face[sel], hits.bary[sel], events,
+                           beta_s, effects)
+    # two-sided: the normal on the camera's side, judged in the surface's rest frame
+    out = np.asarray(camera_event, float)[1:] - events[:, 1:]
+    out /= np.linalg.norm(out, axis=1)[:, None]
+    _, out_rest = null_to_frame(out, beta_s, bool(effects.contraction))
+    normals = normals * np.where(np.sum(normals * out_rest, axis=1) < 0, -1.0, 1.0)[:, None]
+    terms = [lamp_term(lamp, tracer, events, beta_s, normals, effects, reference)
+             for lamp in scene.lamps]
+    d_in = np.stack([t.d_in for t in terms])
+    weight = np.stack([t.weight * t.visible for t in terms])
+    irr = np.stack([t.irradiance for t in terms])
+    total = irr.sum(axis=0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        shadowed = np.where(total > 0, 1.0 - (irr * np.stack([t.visible for t in terms])
+                                              ).sum(axis=0) / total, np.nan)
+    brightest = np.take_along_axis(d_in, np.argmax(irr, axis=0)[None], 0)[0]
+    brightest = np.where(total > 0, brightest, np.nan)
+    tables = [lit_table(lamp.spectrum) for lamp in scene.lamps]
+    return Incident(tables, d_in, weight), brightest, shadowed

@@ -1,0 +1,354 @@
+"""Lamps as scene objects: their spectra, the light they deliver, and the colour it makes.
+
+A lamp is either
+
+* a **point or sphere lamp** on a worldline (any motion kind): radiant power P (W),
+  isotropic in its own rest frame, with a relative spectrum p(lambda) (integral 1); or
+* a **distant lamp** (parallel light, like sunlight): a plane wave of irradiance E0
+  (W/m^2, on a plate facing it) arriving from a fixed direction in the inertial frame the
+  lamp is at rest in.
+
+Light from a lamp reaching a surface point is Doppler-shifted by D_in (frequency in the
+surface's rest frame over frequency in the lamp's), reflected in the surface's rest
+frame, and shifted again by D_out on its way to the camera. The formulas, with their
+sources (docs/physics.md, "Lamps"):
+
+* point lamp, spectral irradiance on a plate in the surface's rest frame R
+  (Rybicki & Lightman 1979, ch. 4, I_nu / nu^3 invariant; McKinley 1980, Am. J. Phys. 48,
+  612, the D^4 of a moving point source)::
+
+      E_lambda(lambda) = cos(theta') D_in^5 P p(D_in lambda) / (4 pi r'^2)
+
+  with r' the lamp-to-surface distance in R (the time component, in R, of the null
+  separation from the lamp event to the surface event) and theta' the angle of
+  incidence in R; integrated over lambda this is D_in^4 P cos(theta') / (4 pi r'^2);
+* distant lamp: a plane wave's energy flux goes as D^2 (Einstein 1905, section 8), so
+  E_lambda(lambda) = cos(theta') D_in^3 E0 p(D_in lambda);
+* Lambert reflection in R: L_lambda = rho(lambda) E_lambda / pi;
+* to the camera: L_obs(lambda) = D_out^5 L_lambda(D_out lambda) (physics.md).
+
+So a surface of linear-sRGB reflectance (r, g, b) (Mallett & Yuksel basis, as for the
+co-moving-lamp surfaces of relview.light.materials) lit by one lamp records
+
+    XYZ = A * sum_c rgb_c Q_c(D_in, D_out),
+    Q_c(a, b) = (a b)^5 K_m integral xbar(lambda) B_c(b lambda) p(a b lambda) d lambda,
+
+with A = P cos(theta') / (4 pi^2 r'^2) (point lamp) or E0 cos(theta') / (pi D_in^2)
+(distant lamp). :class:`LitTable` tabulates Q over (ln(D_in D_out), ln D_out).
+
+This module sits in the light layer: it knows spectra and formulas, not scenes; the
+per-pixel geometry (lamp events, shadow rays) is relview.illumination's.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Hashable
+
+import numpy as np
+from numba import njit, prange
+
+from relview.light import materials, spectrum
+from relview.light.spectrum import K_M_LM_PER_W
+
+#: Wien's displacement constant b = lambda_max T, nm K (CODATA 2018: 2.897771955e-3 m K)
+WIEN_NM_K = 2.897771955e6
+#: keys that choose a lamp's spectrum (exactly one is given)
+SPECTRUM_KEYS = ("blackbody", "line", "lines", "spectrum", "illuminant")
+#: standard illuminants a lamp may name
+ILLUMINANTS = materials.NAMED_LAMPS
+
+
+class LampSpectrum:
+    """A lamp's relative spectral power p(lambda) (1/nm), normalised to integral 1.
+
+    ``power(lambda_nm)``: any non-negative function (W/nm up to a factor) defined at every
+    wavelength > 0; ``span_nm``: the range outside which it is negligible (or zero);
+    ``knots_nm``: wavelengths with fine structure (line profiles, table points).
+    Keeps the cumulative integral C(x) = integral_0^x p on a fine grid, from which the
+    energy in any wavelength bin is C(hi) - C(lo): exact for narrow lines too.
+    """
+
+    #: geometric step of the cumulative grid (relative), and its knot-free point budget
+    STEP = 2e-4
+
+    def __init__(self, key: Hashable, power: Callable[[np.ndarray], np.ndarray],
+                 span_nm: tuple[float, float], knots_nm: np.ndarray | None = None,
+                 label: str = ""):
+        self.key = key
+        self.label = label or str(key)
+        lo, hi = float(span_nm[0]), float(span_nm[1])
+        n = int(math.ceil(math.log(hi / lo) / self.STEP)) + 1
+        grid = np.geomspace(lo, hi, n)
+        if knots_nm is not None and len(knots_nm):
+            k = np.asarray(knots_nm, float)
+            grid = np.union1d(grid, k[(k > 0)])
+        values = np.maximum(np.asarray(power(grid), float), 0.0)
+        cumulative = np.concatenate([[0.0], np.cumsum(0.5 * (values[1:] + values[:-1])
+                                                      * np.diff(grid))])
+        total = cumulative[-1]
+        if not (math.isfinite(total) and total > 0.0):
+            raise ValueError(f"lamp spectrum {self.label}: no power at any wavelength")
+        self._power = power
+        self._scale = 1.0 / total
+        self.grid_nm = grid
+        self.cumulative = cumulative / total
+
+    def density(self, wavelength_nm) -> np.ndarray:
+        """p(lambda) in 1/nm (integral 1 over all wavelengths)."""
+        return self._scale * np.maximum(np.asarray(self._power(wavelength_nm), float), 0.0)
+
+    def energy_below(self, wavelength_nm) -> np.ndarray:
+        """C(lambda): the fraction of the power at wavelengths below ``lambda``."""
+        return np.interp(wavelength_nm, self.grid_nm, self.cumulative, left=0.0, right=1.0)
+
+    def luminous_efficacy(self) -> float:
+        """K_m integral p ybar (lm/W) of the lamp at rest (CIE 15 definition)."""
+        w = spectrum.CMF_WAVELENGTHS_NM
+        return float(K_M_LM_PER_W * np.trapezoid(self.density(w) * spectrum.CMF_VALUES[:, 1], w))
+
+    # -- constructors
+    @classmethod
+    def blackbody(cls, temperature_k: float) -> LampSpectrum:
+        t = float(temperature_k)
+        peak = WIEN_NM_K / t
+        # beyond [0.05, 1000] x the peak wavelength less than 1e-8 of the power remains
+        return cls(("blackbody", t), lambda w: spectrum.planck_spectral_radiance(w, t),
+                   (0.05 * peak, 1000.0 * peak), label=f"blackbody {t:g} K")
+
+    @classmethod
+    def illuminant(cls, name: str) -> LampSpectrum:
+        if name.strip().upper() != "D65":
+            raise ValueError(f"unknown illuminant {name!r}; choose one of: {', '.join(ILLUMINANTS)}")
+        peak = WIEN_NM_K / spectrum.D65_CCT_K  # the table continues as a 6504 K Planckian
+        return cls(("illuminant", "D65"), spectrum.cie_d65_relative_spd,
+                   (0.05 * peak, 1000.0 * peak), spectrum.D65_WAVELENGTHS_NM, label="D65")
+
+    @classmethod
+    def from_surface(cls, surface) -> LampSpectrum:
+        """The spectrum of an emission-line or tabulated surface of relview.light.materials
+        (its rest-frame spectral radiance, as relative power)."""
+        knots = surface.knots_nm()
+        if isinstance(surface, materials.EmissionLines):
+            width = surface._sigma.max() * 12.0
+            span = (max(surface._centre.min() - width, 1e-3), surface._centre.max() + width)
+        else:
+            span = (knots.min(), knots.max())
+        return cls(surface.key(), surface.spectral_radiance, span, knots, label=str(surface))
+
+    @classmethod
+    def from_table(cls, table) -> LampSpectrum:
+        """Exactly one of ``blackbody`` (K), ``line``, ``lines``, ``spectrum`` (a CSV file,
+        as for surfaces) or ``illuminant`` ("D65"); ``table`` is the scene reader's
+        validated table (duck-typed: this layer does not import it)."""
+        given = [k for k in SPECTRUM_KEYS if table.has(k)]
+        if len(given) != 1:
+            raise table.error(given[1] if given else None,
+                              f"a lamp needs exactly one spectrum key, one of: "
+                              f"{', '.join(SPECTRUM_KEYS)} (given: {', '.join(given) or 'none'})")
+        kind = given[0]
+        value = table.data[kind]
+        if kind == "blackbody":
+            return cls.blackbody(table.number("blackbody", low=materials.MIN_LAMP_TEMPERATURE,
+                                              high=materials.MAX_TEMPERATURE, unit="K"))
+        if kind == "illuminant":
+            return cls.illuminant(table.string("illuminant", choices=ILLUMINANTS))
+        try:
+            if kind == "spectrum":
+                surface = materials.TabulatedSpectrum.from_table(table)
+            else:
+                surface = materials.EmissionLines.from_table(table)
+            return cls.from_surface(surface)
+        except ValueError as exc:
+            raise table.error(kind, f"{kind} = {table.show(value)}: {exc}", value) from exc
+
+
+# --------------------------------------------------------------------------------------
+# Irradiance (bolometric, for checks and layers)
+# --------------------------------------------------------------------------------------
+
+
+def point_irradiance(power_w, d_in, r_rest_m, cos_incidence) -> np.ndarray:
+    """W/m^2 on a plate in its rest frame from an isotropic point lamp of ``power_w``:
+    D_in^4 P cos(theta') / (4 pi r'^2) (McKinley 1980; Rybicki & Lightman ch. 4); 0 for
+    light arriving from behind."""
+    return (np.asarray(d_in, float) ** 4 * power_w * np.maximum(cos_incidence, 0.0)
+            / (4.0 * math.pi * np.asarray(r_rest_m, float) ** 2))
+
+
+def plane_wave_irradiance(irradiance_w_m2, d_in, cos_incidence) -> np.ndarray:
+    """W/m^2 on a plate from a plane wave of ``irradiance_w_m2`` in its own frame:
+    D_in^2 E0 cos(theta') (Einstein 1905, section 8: the energy of a light complex
+    transforms as D^2, and so does its flux through a plate facing it)."""
+    return np.asarray(d_in, float) ** 2 * irradiance_w_m2 * np.maximum(cos_incidence, 0.0)
+
+
+# --------------------------------------------------------------------------------------
+# The reflected colour: a table over (ln D_in D_out, ln D_out)
+# --------------------------------------------------------------------------------------
+
+#: the reflectance basis is constant outside its table (380-780 nm), so for
+#: D_out lambda outside it over the whole CMF range (360-830 nm) Q no longer depends on
+#: D_out except through D_in D_out: the v axis is clamped there, exactly
+V_MIN = math.log(materials.BASIS_WAVELENGTHS_NM[0] / spectrum.VISIBLE_MAX_NM)
+V_MAX = math.log(materials.BASIS_WAVELENGTHS_NM[-1] / spectrum.VISIBLE_MIN_NM)
+#: node spacings in ln(D_in D_out) and ln D_out (accuracy measured in tests/test_lamps.py)
+U_STEP = math.log(10.0) / 400.0
+V_STEP = 0.005
+
+
+class LitTable:
+    """Q_c(D_in, D_out) of one lamp spectrum for the three basis reflectances (module
+    docstring), tabulated on nodes u = ln(D_in D_out) = k U_STEP and v = ln D_out in
+    [V_MIN, V_MAX], and interpolated bilinearly (in ln Q where the four corners are
+    positive, else in Q). The u range grows on demand.
+
+    The wavelength integral is a midpoint rule over 1-nm bins of the CIE 1931 colour-
+    matching functions (360-830 nm) in which the lamp contributes the exact energy of each
+    bin (C(hi) - C(lo) of :class:`LampSpectrum`), so narrow lamp lines are not missed.
+    """
+
+    def __init__(self, lamp_spectrum: LampSpectrum):
+        self.spectrum = lamp_spectrum
+        lam = spectrum.CMF_WAVELENGTHS_NM
+        self._lam = lam
+        self._edges = np.concatenate([[lam[0] - 0.5], 0.5 * (lam[1:] + lam[:-1]),
+                                      [lam[-1] + 0.5]])
+        nv = int(math.ceil((V_MAX - V_MIN) / V_STEP)) + 1
+        self.v0 = V_MIN
+        self.v_nodes = V_MIN + np.arange(nv) * V_STEP
+        # (L, V*3*3): xbar_k(lambda) B_c(e^v lambda) per node v, basis c, channel k
+        basis = materials.reflectance_basis(np.exp(self.v_nodes)[:, None] * lam[None, :])
+        weights = np.einsum("lk,vlc->lvck", spectrum.CMF_VALUES, basis)
+        self._weights = K_M_LM_PER_W * weights.reshape(len(lam), -1)
+        self.k_lo = 0
+        self.q = np.zeros((0, nv, 3, 3))
+
+    def _compute(self, ks: np.ndarray) -> np.ndarray:
+        u = ks * U_STEP
+        scale = np.exp(u)[:, None]
+        e = self._edges[None, :]
+        bins = (self.spectrum.energy_below(scale * e[:, 1:])
+                - self.spectrum.energy_below(scale * e[:, :-1])) / scale  # integral p(e^u l) dl
+        q = (bins @ self._weights) * np.exp(5.0 * u)[:, None]
+        return q.reshape(len(ks), len(self.v_nodes), 3, 3)
+
+    def _cover(self, u_min: float, u_max: float) -> None:
+        lo = int(math.floor(u_min / U_STEP)) - 1
+        hi = int(math.ceil(u_max / U_STEP)) + 1
+        if self.q.shape[0] == 0:
+            self.k_lo = lo
+            self.q = self._compute(np.arange(lo, hi + 1))
+            return
+        k_hi = self.k_lo + self.q.shape[0] - 1
+        parts = []
+        if lo < self.k_lo:
+            parts.append(self._compute(np.arange(lo, self.k_lo)))
+        parts.append(self.q)
+        if hi > k_hi:
+            parts.append(self._compute(np.arange(k_hi + 1, hi + 1)))
+        if len(parts) > 1:
+            self.q = np.concatenate(parts)
+            self.k_lo = min(lo, self.k_lo)
+
+    def lookup(self, d_in, d_out) -> np.ndarray:
+        """(N, 3 basis, 3 XYZ): Q_c(D_in, D_out) per hit."""
+        d_in = np.asarray(d_in, float).reshape(-1)
+        d_out = np.asarray(d_out, float).reshape(-1)
+        if d_in.size == 0:
+            return np.zeros((0, 3, 3))
+        if not (np.all(d_in > 0) and np.all(d_out > 0) and np.all(np.isfinite(d_in))
+                and np.all(np.isfinite(d_out))):
+            raise ValueError("Doppler factors must be finite and > 0")
+        u = np.log(d_in) + np.log(d_out)
+        self._cover(float(u.min()), float(u.max()))
+        v = np.clip(np.log(d_out), V_MIN, self.v_nodes[-1])
+        return _bilinear(u, v, self.k_lo * U_STEP, self.v0, self.q)
+
+    def direct(self, d_in: float, d_out: float) -> np.ndarray:
+        """(3, 3) Q by the same bin sum at exactly (D_in, D_out), no table (for checks)."""
+        scale = d_in * d_out
+        e = self._edges
+        bins = (self.spectrum.energy_below(scale * e[1:])
+                - self.spectrum.energy_below(scale * e[:-1])) / scale
+        basis = materials.reflectance_basis(d_out * self._lam)
+        return (K_M_LM_PER_W * scale**5
+                * np.einsum("l,lk,lc->ck", bins, spectrum.CMF_VALUES, basis))
+
+
+@njit(parallel=True, cache=True)
+def _bilinear(u, v, u0, v0, q):
+    n = u.shape[0]
+    nu = q.shape[0]
+    nv = q.shape[1]
+    out = np.empty((n, 3, 3))
+    for i in prange(n):
+        x = (u[i] - u0) / U_STEP
+        y = (v[i] - v0) / V_STEP
+        a = min(max(int(np.floor(x)), 0), nu - 2)
+        b = min(max(int(np.floor(y)), 0), nv - 2)
+        tx = x - a
+        ty = y - b
+        for c in range(3):
+            for k in range(3):
+                q00 = q[a, b, c, k]
+                q10 = q[a + 1, b, c, k]
+                q01 = q[a, b + 1, c, k]
+                q11 = q[a + 1, b + 1, c, k]
+                if q00 > 0.0 and q10 > 0.0 and q01 > 0.0 and q11 > 0.0:
+                    out[i, c, k] = np.exp((1 - tx) * (1 - ty) * np.log(q00)
+                                          + tx * (1 - ty) * np.log(q10)
+                                          + (1 - tx) * ty * np.log(q01)
+                                          + tx * ty * np.log(q11))
+                else:
+                    out[i, c, k] = ((1 - tx) * (1 - ty) * q00 + tx * (1 - ty) * q10
+                                    + (1 - tx) * ty * q01 + tx * ty * q11)
+    return out
+
+
+_TABLES: dict[Hashable, LitTable] = {}
+
+
+def lit_table(lamp_spectrum: LampSpectrum) -> LitTable:
+    """The (cached) LitTable of a lamp spectrum; lamps with equal spectra share it."""
+    table = _TABLES.get(lamp_spectrum.key)
+    if table is None:
+        table = _TABLES[lamp_spectrum.key] = LitTable(lamp_spectrum)
+    return table
+
+
+class Incident:
+    """The light of the scene's lamps arriving at N surface points, ready for reflection.
+
+    ``tables``: one LitTable per lamp; ``d_in``: (J, N) incident Doppler factors;
+    ``weight``: (J, N) the factor A of the module docstring (cos, distance, power or
+    irradiance, unshadowed fraction, 1/pi), already with the beaming switch applied to the
+    distant lamps' D^-2. Surfaces of relview.light.materials call :meth:`basis_xyz`.
+    """
+
+    def __init__(self, tables: list[LitTable], d_in: np.ndarray, weight: np.ndarray):
+        self.tables = tables
+        self.d_in = np.asarray(d_in, float).reshape(len(tables), -1)
+        self.weight = np.asarray(weight, float).reshape(len(tables), -1)
+
+    def subset(self, sel) -> Incident:
+        return Incident(self.tables, self.d_in[:, sel], self.weight[:, sel])
+
+    def basis_xyz(self, d_out, effects) -> np.ndarray:
+        """(N, 3 basis, 3 XYZ) reflected by a perfect reflector of each basis colour, seen
+        with ``d_out``. The switches act on both shifts (docs/physics.md): ``doppler`` off
+        looks the colour up at D_in = D_out = 1, ``beaming`` off removes the D^4
+        brightening of each; (Db / Dc)^4 as in relview.light.spectrum.effect_factors."""
+        d_out = np.asarray(d_out, float).reshape(-1)
+        doppler_on = True if effects is None else bool(effects.doppler)
+        beaming_on = True if effects is None else bool(effects.beaming)
+        dc_out, bright_out = spectrum.effect_factors(d_out, doppler_on, beaming_on)
+        out = np.zeros((d_out.size, 3, 3))
+        for table, d_in, w in zip(self.tables, self.d_in, self.weight, strict=True):
+            lit = w > 0
+            if not np.any(lit):
+                continue
+            dc_in, bright_in = spectrum.effect_factors(d_in[lit], doppler_on, beaming_on)
+            q = table.lookup(dc_in, dc_out[lit])
+            out[lit] += q * (w[lit] * bright_in * bright_out[lit])[:, None, None]
+        return out
