@@ -141,7 +141,8 @@ def _shadow_free(tracer: Tracer, start: np.ndarray, towards: np.ndarray, distanc
     exposure's reference event (relview.geometry.trace)."""
     if tracer is None or tracer.packed is None or len(start) == 0:
         return np.ones(len(start), bool)
-    hits = tracer.cast(start, towards, effects, l_min=SHADOW_OFFSET_M, reference=reference)
+    centred = {} if reference is None else {"reference": reference}
+    hits = tracer.cast(start, towards, effects, l_min=SHADOW_OFFSET_M, **centred)
     return ~(hits.l < distance * (1.0 - 1e-9))
 
 

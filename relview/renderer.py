@@ -18,6 +18,7 @@ from pathlib import Path
 import numpy as np
 
 from relview import framing
+from relview import illumination
 from relview.geometry import camera as cam_mod
 from relview.geometry.shapes import free_memory, mesh_bytes
 from relview.geometry.trace import Hits, Tracer, uniform_groups
@@ -92,12 +93,22 @@ class RenderContext:
     def tracer(self, camera_event: np.ndarray) -> Tracer:
         """The tracer for one exposure event (light-cone snapshots join uniform groups)."""
         if not self.other:
-            return self._uniform_tracer
-        from relview.geometry import lightcone
+            tracer = self._uniform_tracer
+        else:
+            from relview.geometry import lightcone
 
-        snap = lightcone.snapshot_groups(self.scene, self.meshes, self.other, camera_event,
-                                         self.effects)
-        return Tracer(self.uniform_groups + snap)
+            snap = lightcone.snapshot_groups(self.scene, self.meshes, self.other, camera_event,
+                                             self.effects)
+            tracer = Tracer(self.uniform_groups + snap)
+        # the exposure being rendered: shade() casts the lamps' shadow rays through it
+        self.exposure = (np.asarray(camera_event, float), tracer, None)
+        return tracer
+
+    def lamp_layers(self, height: int, width: int) -> dict[str, np.ndarray]:
+        """The float layers a lit scene adds (relview.illumination.LAYER_NAMES), from the
+        first colour picture of the frame just rendered; none for scenes without lamps."""
+        layers, self._lamp_layers = getattr(self, "_lamp_layers", None), None
+        return {} if layers is None else layers.images(height, width)
 
 
 def camera_state(scene: Scene, time_s: float) -> tuple[np.ndarray, np.ndarray]:
@@ -259,7 +270,7 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
             hits.body[~valid] = -1
             hits.doppler[~valid] = np.nan
         dop = hits.doppler
-        col = shade(scene, context, hits, dop, effects)
+        col = shade(scene, context, hits, dop, effects, slice(a, b) if s == 0 else None)
         if sky.per_pixel(scene.background):
             miss = (hits.body < 0) & valid
             if np.any(miss):
@@ -306,15 +317,26 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
     }
     if layer_temp is not None:
         layers["temperature"] = layer_temp.reshape(height, width)
+    layers.update(context.lamp_layers(height, width))
     meta = provenance(scene, t, width, height, samples, effects, white,
                       metering=metering_report(scene, exposure, image, region, lamps))
     return Frame(image, layers, white, t, meta, tone=scene.render.tone)
 
 
 def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
-          effects: Effects) -> np.ndarray:
-    """(N, 3) observed XYZ of every hit (zeros on misses), one call per body's surface."""
+          effects: Effects, layer_rows: slice | None = None) -> np.ndarray:
+    """(N, 3) observed XYZ of every hit (zeros on misses), one call per body's surface.
+
+    Surfaces lit by the scene's lamps get their incident light from
+    relview.illumination (shadow rays through the exposure's tracer,
+    ``context.exposure``); ``layer_rows``: where these hits sit in the frame, to fill the
+    lamp layers (the first colour picture only)."""
     out = np.zeros((len(doppler), 3))
+    lit_scene = bool(scene.lamps) and illumination.scene_lit(scene)
+    if lit_scene and layer_rows is not None:
+        if layer_rows.start == 0:  # a new frame (pixel_centres holds its size)
+            context._lamp_layers = illumination.LampLayers(int(np.prod(context._centres_size)))
+        lamp_layers = context._lamp_layers.values
     for i, body in enumerate(scene.bodies):
         sel = np.nonzero(hits.body == i)[0]
         if len(sel) == 0:
@@ -328,7 +350,20 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
             uv = ((1 - w[:, 0] - w[:, 1])[:, None] * uvs[faces[:, 0]] + w[:, :1] * uvs[faces[:, 1]]
                   + w[:, 1:] * uvs[faces[:, 2]])
         rest = hits.rest_position[sel] if getattr(surface, "uses_position", True) else None
-        out[sel] = surface.observed_xyz(doppler[sel], rest, uv, effects)
+        if not (lit_scene and illumination.takes_lamps(surface)):
+            out[sel] = surface.observed_xyz(doppler[sel], rest, uv, effects)
+            continue
+        if rest is None:
+            rest = hits.rest_position[sel]
+        camera_event, tracer, reference = context.exposure
+        incident, d_in, shadowed = illumination.incident_light(
+            scene, i, context.meshes[i], tracer, hits, sel, camera_event, effects, reference)
+        out[sel] = surface.lit_xyz(doppler[sel], rest, uv, effects, incident)
+        if layer_rows is not None:
+            rows = np.arange(layer_rows.start, layer_rows.stop)[sel]
+            lamp_layers["incident_doppler"][rows] = d_in
+            lamp_layers["shadowed_fraction"][rows] = shadowed
+            lamp_layers["total_doppler"][rows] = d_in * doppler[sel]
     return out
 
 
