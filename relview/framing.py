@@ -123,7 +123,7 @@ def apparent(scene: Scene, body_index: int, vertices: np.ndarray, event: np.ndar
     return Apparent(body.name, d_cam, dop, dist)
 
 
-def _centre_direction(directions: np.ndarray, up: np.ndarray) -> np.ndarray:
+def centre_direction(directions: np.ndarray, up: np.ndarray) -> np.ndarray:
     """The direction towards the centre of the directions' angular box (gnomonic
     coordinates about their mean direction, refined twice)."""
     mean = directions.mean(axis=0)
@@ -149,6 +149,11 @@ def _inside(camera: Camera, width: int, height: int, directions: np.ndarray,
     half_w, half_h = width / 2.0 / (1.0 + margin), height / 2.0 / (1.0 + margin)
     return bool(np.all(np.abs(px[:, 0] - width / 2.0) <= half_w)
                 and np.all(np.abs(px[:, 1] - height / 2.0) <= half_h))
+
+
+def holds(camera: Camera, width: int, height: int, directions: np.ndarray) -> bool:
+    """Whether every one of ``directions`` (camera frame) falls inside the image."""
+    return len(directions) > 0 and _inside(camera, width, height, directions, 0.0)
 
 
 def fitted_fov(camera: Camera, width: int, height: int, directions: np.ndarray,
@@ -199,7 +204,7 @@ def resolve_camera(scene: Scene, event: np.ndarray, beta_cam: np.ndarray, effect
     if aim_names:
         d = directions(aim_names)
         if len(d):
-            out = dataclasses.replace(out, direction=_centre_direction(d, np.asarray(cam.up, float)),
+            out = dataclasses.replace(out, direction=centre_direction(d, np.asarray(cam.up, float)),
                                       look_at=None)
     if fit_names:
         d = directions(fit_names)

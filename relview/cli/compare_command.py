@@ -14,7 +14,7 @@ from relview.cli.options import (
 )
 from relview.errors import UserError
 from relview.figures.layer_maps import LAYERS, layer_map
-from relview.figures.sheets import DEFAULT_PANELS, PANELS, compare_sheet
+from relview.figures.sheets import DEFAULT_PANELS, FRAMINGS, PANELS, compare_sheet
 from relview.imaging.formats import FIGURE_FORMATS, figure_type_hint
 
 
@@ -57,14 +57,18 @@ def cmd_compare(args) -> int:
         body=args.body,
         overwrite=args.overwrite,
         progress=not args.quiet,
+        framing=args.framing,
+        overlay=args.overlay,
     )
+    print(f"  framing: {sheet.framing}")
     for p in sheet.panels:
         scale = (
             f"{p.metres_per_pixel:.4g} m/px at {p.scale_distance_m:.4g} m"
             if math.isfinite(p.metres_per_pixel)
             else "no scale"
         )
-        print(f"  {p.kind.name:<16} white {p.frame.white:.4g} cd/m2  {scale}")
+        print(f"  {p.kind.name:<16} white {p.frame.white:.4g} cd/m2  {scale}"
+              + (f"  ({p.out_of_view})" if p.out_of_view else ""))
     print(f"wrote {sheet.path}\nwrote {sheet.sidecar}")
     return 0
 
@@ -101,6 +105,20 @@ def register(subparsers) -> None:
         choices=("held", "each"),
         default="held",
         help="held: one white level for all panels (default); each: per panel",
+    )
+    p.add_argument(
+        "--framing",
+        choices=FRAMINGS,
+        default="auto",
+        help="scene: the scene's camera; common: one view holding the main body in every "
+        "panel; each: every panel aims at and fits it; auto (default): scene when it shows "
+        "the main body whole in every panel, else common",
+    )
+    p.add_argument(
+        "--overlay",
+        action="store_true",
+        help="add a panel with the main body's measured and photographed outlines "
+        "(solid and dashed) and a scale bar",
     )
     p.add_argument(
         "--layer",

@@ -277,6 +277,8 @@ class Panel:
     metres_per_pixel: float  # at the main body's centre as drawn in this panel; NaN if none
     scale_distance_m: float  # the distance that scale refers to
     exposure: str  # "held" or "each"
+    camera: object = None  # the camera this panel was rendered with (framing applied)
+    out_of_view: str = ""  # why the main body is not seen in this panel ("" when it is)
 
     @property
     def title(self) -> str:
@@ -297,6 +299,8 @@ class Sheet:
     metadata: dict = field(default_factory=dict)
     path: Path | None = None
     sidecar: Path | None = None
+    framing: str = "scene"  # how the panels were framed (FRAMINGS)
+    overlay: bool = False  # draw the measured and photographed outlines on one more panel
 
     def panel(self, name: str) -> Panel:
         key = panel_kind(name).name
@@ -319,6 +323,47 @@ def _drawn_centre(scene: Scene, index: int, time_s: float, effects: Effects, con
     return np.asarray(r.emit_position, float)
 
 
+#: How a sheet frames its panels. scene: the scene's camera as written; common: one
+#: view direction and field of view holding the main body's apparent image in every panel;
+#: each: every panel aims at and fits the main body itself; auto: the scene's camera when
+#: it shows the main body in every panel, else common.
+FRAMINGS = ("auto", "scene", "common", "each")
+
+
+def _framed_scenes(scenes: list[Scene], kinds: list[PanelKind], index: int | None,
+                   time_s: float, resolution, framing_mode: str) -> tuple[list[Scene], str]:
+    """The panels' scenes with the sheet's framing applied, and the framing used."""
+    from relview import framing
+    from relview.renderer import camera_state
+
+    if framing_mode not in FRAMINGS:
+        raise UserError(f"framing must be one of {', '.join(FRAMINGS)}, got {framing_mode!r}")
+    if index is None or framing_mode == "scene":
+        return scenes, "scene"
+    name = scenes[0].bodies[index].name
+    if framing_mode == "each":
+        return [dataclasses.replace(s, camera=dataclasses.replace(
+            s.camera, aim_at=(name,), fit=(name,))) for s in scenes], "each"
+    seen, cameras = [], []
+    for s, kind in zip(scenes, kinds):
+        event, beta = camera_state(s, time_s)
+        verts = framing.mesh_vertices(s)[index]
+        seen.append(framing.apparent(s, index, verts, event, beta, kind.effects).directions)
+        cameras.append(framing.resolve_camera(s, event, beta, kind.effects, resolution=resolution))
+    if framing_mode == "auto":
+        w, h = resolution
+        if all(framing.holds(c, w, h, d) for c, d in zip(cameras, seen)):
+            return scenes, "scene"
+    directions = np.concatenate(seen)
+    base = scenes[0].camera
+    aimed = dataclasses.replace(base, direction=framing.centre_direction(
+        directions, np.asarray(base.up, float)), look_at=None, aim_at=(), fit=())
+    aimed.fov = framing.fitted_fov(aimed, *resolution, directions, base.margin)
+    return [dataclasses.replace(s, camera=dataclasses.replace(
+        aimed, position=s.camera.position, time=s.camera.time, beta=s.camera.beta,
+        motion=s.camera.motion)) for s in scenes], "common"
+
+
 def render_panels(
     scene: Scene,
     time: float | None = None,
@@ -328,6 +373,8 @@ def render_panels(
     exposure: str = "held",
     body=None,
     progress: bool = False,
+    framing: str = "auto",
+    overlay: bool = False,
 ) -> Sheet:
     """Render the panels of one exposure event (no file written; see :func:`compare_sheet`).
 
@@ -335,7 +382,11 @@ def render_panels(
     exposure setting gives the first panel without Doppler colour or beaming (or, if
     every panel has them, an extra unshown "rest" render); a fixed setting is used as it is;
     "each": every panel exposed by itself (brightness then not comparable).
+    ``framing``: one of :data:`FRAMINGS`. ``overlay``: the sheet gets one more panel with
+    the main body's measured and photographed outlines (both panels are rendered, shown
+    or not).
     """
+    from relview import framing as framing_mod
     from relview.renderer import RenderContext, camera_state, render
 
     if exposure not in ("held", "each"):
@@ -347,9 +398,15 @@ def render_panels(
     )
     if not kinds:
         raise UserError("a comparison sheet needs at least one panel")
+    if overlay:  # the outlines come from these two panels
+        kinds += [PANELS[n] for n in ("measured", "photograph") if PANELS[n] not in kinds]
     t = scene.camera.time if time is None else float(time)
     res = tuple(resolution or scene.render.resolution)
     bi = main_body_index(scene, body, t)
+    if overlay and bi is None:
+        raise UserError("an outline overlay needs a body in the scene")
+    scenes, framing_used = _framed_scenes([panel_scene(scene, k, t) for k in kinds], kinds, bi, t,
+                                          res, framing)
     beta = body_state(scene, bi, t)[1] if bi is not None else np.zeros(3)
     white = None
     # Held exposure is set by rest-frame brightness: the first panel without Doppler colour
@@ -375,7 +432,7 @@ def render_panels(
         bar = tqdm(total=len(kinds), desc="panels", unit="panel", leave=False)
     for i in order:
         kind = kinds[i]
-        s = panel_scene(scene, kind, t)
+        s = scenes[i]
         context = RenderContext(s, kind.effects)
         setting = scene.render.exposure if (exposure == "each" or white is None) else white
         frame = render(
@@ -384,18 +441,27 @@ def render_panels(
         if exposure == "held" and white is None:
             white = frame.white
         mpp, dist = math.nan, math.nan
+        event, beta_cam = camera_state(s, t)
+        camera = framing_mod.resolve_camera(s, event, beta_cam, kind.effects, context.meshes, res)
+        missing = ""
         if bi is not None:
             centre = _drawn_centre(s, bi, t, kind.effects, context)
-            cam_pos = camera_state(s, t)[0][1:]
-            dist = scale_distance(s.camera, cam_pos, centre)
-            mpp = metres_per_pixel(s.camera, res[0], dist)
-        out[i] = Panel(kind, frame, mpp, dist, exposure)
+            dist = scale_distance(camera, event[1:], centre)
+            mpp = metres_per_pixel(camera, res[0], dist)
+            if not np.any(frame.layers["body"] == bi):
+                sight = framing_mod.sightings(s, event, beta_cam, kind.effects, camera, frame,
+                                              context.meshes, res)[bi]
+                missing = (f"{sight.body} hidden behind another body" if sight.in_frame else
+                           f"{sight.body} out of view: {sight.miss_deg:.3g} deg outside the frame"
+                           + (f" ({sight.miss_side})" if sight.miss_side else ""))
+        out[i] = Panel(kind, frame, mpp, dist, exposure, camera, missing)
         if bar is not None:
             bar.update(1)
     if bar is not None:
         bar.close()
     name = scene.bodies[bi].name if bi is not None else None
-    sheet = Sheet(scene, t, out, name, beta, float(lorentz_factor(beta)), white)
+    sheet = Sheet(scene, t, out, name, beta, float(lorentz_factor(beta)), white,
+                  framing=framing_used, overlay=overlay)
     sheet.metadata = sheet_provenance(sheet)
     return sheet
 
@@ -419,6 +485,8 @@ def sheet_provenance(sheet: Sheet) -> dict:
         "beta": [float(v) for v in sheet.beta],
         "gamma": sheet.gamma,
         "exposure_mode": sheet.panels[0].exposure,
+        "framing": sheet.framing,
+        "overlay": sheet.overlay,
         "panels": [
             {
                 "name": p.kind.name,
@@ -427,6 +495,9 @@ def sheet_provenance(sheet: Sheet) -> dict:
                 "white_cd_m2": float(p.frame.white),
                 "metres_per_pixel": None if math.isnan(p.metres_per_pixel) else p.metres_per_pixel,
                 "scale_distance_m": None if math.isnan(p.scale_distance_m) else p.scale_distance_m,
+                "view_direction": [float(v) for v in p.camera.forward()],
+                "fov_deg": float(p.camera.fov),
+                "main_body_out_of_view": p.out_of_view,
             }
             for p in sheet.panels
         ],
@@ -457,6 +528,49 @@ def _draw_scale_bar(ax, mpp: float, width: int, height: int) -> None:
     )
 
 
+def _draw_notice(ax, text: str, width: int, height: int) -> None:
+    """A panel's notice (e.g. the main body out of view), across its middle."""
+    ax.text(width / 2, height / 2, text, color="white", ha="center", va="center",
+            fontsize="medium", wrap=True,
+            bbox={"facecolor": "0.25", "edgecolor": "white", "lw": 0.8, "pad": 4.0})
+
+
+#: Line styles of the outline overlay: (panel, colour, line style, what it is).
+OVERLAY_LINES = (
+    ("measured", "#4fc3f7", "solid", "measured (one instant, contracted)"),
+    ("photograph", "#ffb74d", "dashed", "photograph (light delay)"),
+)
+
+
+def _draw_overlay(ax, sheet: Sheet, width: int, height: int) -> None:
+    """The main body's outline in the measured and the photographed panel, one style each,
+    on one panel; with the photograph's scale bar (both panels share one camera only when
+    the sheet's framing is not "each")."""
+    index = sheet.scene.body_index(sheet.main_body)
+    ax.imshow(np.zeros((height, width, 3)), interpolation="nearest")
+    ax.set_xticks([])
+    ax.set_yticks([])
+    handles = []
+    for name, colour, style, label in OVERLAY_LINES:
+        mask = (sheet.panel(name).frame.layers["body"] == index).astype(float)
+        if mask.any():
+            ax.contour(mask, levels=[0.5], colors=[colour], linestyles=[style], linewidths=1.6)
+        handles.append((colour, style, label + ("" if mask.any() else ": out of view")))
+    from matplotlib.lines import Line2D  # local: matplotlib loads only when drawing
+
+    ax.legend([Line2D([], [], color=c, ls=s, lw=1.6) for c, s, _ in handles],
+              [lab for _, _, lab in handles], loc="upper right", fontsize="x-small",
+              facecolor="0.15", labelcolor="white", edgecolor="0.5")
+    photo = sheet.panel("photograph")
+    if math.isfinite(photo.metres_per_pixel):
+        _draw_scale_bar(ax, photo.metres_per_pixel, width, height)
+    ax.set_title("measured vs photographed", fontsize="large", fontweight="bold")
+    same = "one camera" if sheet.framing != "each" else "each panel framed by itself"
+    ax.text(0.0, -0.02, f"outlines of {sheet.main_body}; {same}\n{time_text(sheet.time)}\n"
+            "scale bar at the photographed centre", transform=ax.transAxes,
+            fontsize="x-small", ha="left", va="top")
+
+
 def time_text(t: float) -> str:
     """The exposure time as printed on figures: seconds and nanoseconds."""
     return f"t = {t:.6g} s ({t * 1e9:.4g} ns)" if t else "t = 0 s"
@@ -480,7 +594,7 @@ def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
-    n = len(sheet.panels)
+    n = len(sheet.panels) + (1 if sheet.overlay else 0)
     ncol = min(n, columns)
     nrow = math.ceil(n / ncol)
     h, w = sheet.panels[0].frame.image.shape[:2]
@@ -515,6 +629,10 @@ def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
         )
         if math.isfinite(p.metres_per_pixel):
             _draw_scale_bar(ax, p.metres_per_pixel, w, h)
+        if p.out_of_view:
+            _draw_notice(ax, p.out_of_view, w, h)
+    if sheet.overlay:
+        _draw_overlay(axes.ravel()[len(sheet.panels)], sheet, w, h)
     b = np.linalg.norm(sheet.beta)
     head = f"{sheet.scene.title + ': ' if sheet.scene.title else ''}{time_text(sheet.time)}"
     if sheet.main_body:
@@ -542,6 +660,8 @@ def compare_sheet(
     body=None,
     overwrite: bool = False,
     progress: bool = False,
+    framing: str = "auto",
+    overlay: bool = False,
 ) -> Sheet:
     """Render a comparison sheet of one exposure event; write it to ``out`` if given.
 
@@ -552,7 +672,8 @@ def compare_sheet(
     if out is not None:
         figure_format(Path(out))  # refuse a bad extension before rendering
     sheet = render_panels(
-        scene, time, panels, resolution=resolution, exposure=exposure, body=body, progress=progress
+        scene, time, panels, resolution=resolution, exposure=exposure, body=body,
+        progress=progress, framing=framing, overlay=overlay,
     )
     if out is not None:
         fig = draw_sheet(sheet)
@@ -562,6 +683,7 @@ def compare_sheet(
 
 __all__ = [
     "DEFAULT_PANELS",
+    "FRAMINGS",
     "PANELS",
     "Panel",
     "PanelKind",
