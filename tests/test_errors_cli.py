@@ -425,16 +425,16 @@ def _render(capsys, scene, out, *extra):
     return run(capsys, "render", scene, "-o", out, "--quiet", *extra)
 
 
-def test_second_render_gets_a_numbered_name_and_first_is_untouched(tmp_path, capsys):
+def test_second_render_to_a_named_file_is_refused_and_first_is_untouched(tmp_path, capsys):
+    # the rule for explicit -o paths (README, docs/errors.md): refused, exit 2, no new name
     scene = write_text(tmp_path, SCENE)
     first = tmp_path / "out.png"
     assert _render(capsys, scene, first)[0] == 0
     before, mtime = first.read_bytes(), first.stat().st_mtime_ns
-    code, out, _ = _render(capsys, scene, first, "--resolution", "8x8")
-    assert code == 0 and f"wrote {tmp_path / 'out-1.png'}" in out
+    code, out, err = _render(capsys, scene, first, "--resolution", "8x8")
+    assert code == 2 and "--overwrite" in err and str(first) in err
     assert first.read_bytes() == before and first.stat().st_mtime_ns == mtime
-    assert _render(capsys, scene, first)[0] == 0
-    assert (tmp_path / "out-2.png").exists()
+    assert not (tmp_path / "out-1.png").exists()
 
 
 def test_overwrite_replaces(tmp_path, capsys):

@@ -17,13 +17,17 @@ from pathlib import Path
 from relview.cli import animate_command, compare_command
 from relview.cli.options import (
     add_frame_options,
+    attach_negative_values,
     check_output_path,
     default_output,
     finite_time,
     point_text,
+    refuse_existing,
     scene_with_overrides,
 )
 from relview.errors import UserError
+from relview.figures.timeline import length_csv_path
+from relview.imaging.figure_files import sidecar_path
 
 
 class _Parser(argparse.ArgumentParser):
@@ -119,6 +123,28 @@ def _probe_over_time(scene, args) -> int:
     return 0
 
 
+def named_outputs(args) -> list[tuple[str, Path]]:
+    """The output files the user named on the command line, with the companions each
+    one brings (for :func:`relview.cli.options.refuse_existing`)."""
+    named: list[tuple[str, Path]] = []
+    output = getattr(args, "output", None)
+    if output and args.command == "render":
+        named.append(("-o", Path(output)))
+        if args.layers:
+            named.append(("-o (its --layers file)", Path(output).with_suffix(".npz")))
+    elif output and args.command == "compare":
+        named += [("-o", Path(output)), ("-o (its sidecar)", sidecar_path(Path(output)))]
+    elif args.command == "probe":
+        if args.csv:
+            named.append(("--csv", Path(args.csv)))
+            if len(args.point) == 2:
+                named.append(("--csv (its length table)", length_csv_path(args.csv)))
+        if args.plot:
+            named += [("--plot", Path(args.plot)), ("--plot (its sidecar)",
+                                                     sidecar_path(Path(args.plot)))]
+    return named
+
+
 def cmd_check(args) -> int:
     from relview.scene.model import load_scene
 
@@ -186,7 +212,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--body", required=True, metavar="NAME")
     p.add_argument("--point", required=True, type=point_text, action="append", metavar="X,Y,Z",
                    help="point in the body's rest frame, metres (repeat for more points; "
-                   "two points add the photographed length between them; write --point=-1,0,0 when X is negative)")
+                   "two points add the photographed length between them; negative "
+                   "coordinates as in --point -5,0,0)")
     p.add_argument("--time", type=finite_time, metavar="S", help="exposure time (s), scene frame")
     p.add_argument("--times", metavar="A:B:N",
                    help="N exposure times from A to B seconds: a probe table over time")
@@ -243,7 +270,10 @@ def main(argv=None) -> int:
     try:
         with warnings.catch_warnings():
             warnings.showwarning = _show_warning
-            args = build_parser().parse_args(argv)
+            parser = build_parser()
+            args = parser.parse_args(attach_negative_values(
+                parser, sys.argv[1:] if argv is None else argv))
+            refuse_existing(named_outputs(args), getattr(args, "overwrite", False))
             # a person at a terminal is told why the first run waits; logs and pipes,
             # whose stderr carries only errors and warnings, are not
             if args.command in ("render", "probe", "animate", "compare") and sys.stderr.isatty():

@@ -10,9 +10,12 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import math
+import os
+import re
+from collections.abc import Iterable
 from pathlib import Path
 
-from relview.errors import UserError
+from relview.errors import OutputError, UserError
 from relview.imaging import formats
 from relview.renderer import check_memory
 from relview.scene.model import load_scene
@@ -81,7 +84,8 @@ def add_frame_options(p: argparse.ArgumentParser) -> None:
                    help="display curve for PNGs: none (clip, default) or reinhard (Reinhard et al. "
                    "2002, on luminance)")
     p.add_argument("--overwrite", action="store_true",
-                   help="replace existing output files (default: write a numbered new name)")
+                   help="replace existing output files (default: an existing file named with "
+                   "-o, --csv or --plot is an error; default names get a numbered new name)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
 
 
@@ -118,3 +122,70 @@ def default_output(scene_path: str, suffix: str) -> Path:
 #: and the check live with the writers (relview.imaging.formats: FRAME_FORMATS, the
 #: default, and FIGURE_FORMATS); the commands take it from here with their other helpers.
 check_output_path = formats.check_output_path
+
+
+# --------------------------------------------------------------------------- negative values
+
+#: A value that starts with '-' and a digit (or '-.' and a digit): a negative number, a
+#: point such as -5,0,0, a time range such as -1:1:5. argparse takes only plain negative
+#: numbers like -5 or -0.5 as values; anything else that starts with '-' it reads as an
+#: option ("expected one argument").
+_NEGATIVE_VALUE = re.compile(r"^-\.?\d")
+
+#: The options whose values may be negative: rest-frame points, scene times and time
+#: ranges. Others (--resolution -5x5, --samples -1) keep argparse's own message.
+SIGNED_OPTIONS = frozenset({"--point", "--time", "--times"})
+
+
+def _signed_options(parser: argparse.ArgumentParser) -> set[str]:
+    """The :data:`SIGNED_OPTIONS` that ``parser`` has, taking exactly one value each."""
+    return {s for a in parser._actions if a.option_strings and a.nargs is None
+            for s in a.option_strings if s in SIGNED_OPTIONS}
+
+
+def attach_negative_values(parser: argparse.ArgumentParser, argv: Iterable[str]) -> list[str]:
+    """argv with each negative value joined to its option: ``--point -5,0,0`` ->
+    ``--point=-5,0,0`` (also ``--time -1e-8``, ``--times -1:1:5``; :data:`SIGNED_OPTIONS`),
+    so argparse reads it as the option's value. Options are looked up in the command's
+    own parser (the first word that is a command); nothing after ``--`` is touched."""
+    argv = list(argv)
+    commands: dict[str, argparse.ArgumentParser] = {}
+    for action in parser._actions:
+        if isinstance(action, argparse._SubParsersAction):
+            commands.update(action.choices)
+    takes_value = _signed_options(parser)
+    out: list[str] = []
+    i = 0
+    while i < len(argv):
+        word = argv[i]
+        if word == "--":
+            out.extend(argv[i:])
+            break
+        if word in commands and not any(w in commands for w in out):
+            takes_value = takes_value | _signed_options(commands[word])
+        if (word in takes_value and i + 1 < len(argv)
+                and _NEGATIVE_VALUE.match(argv[i + 1])):
+            out.append(f"{word}={argv[i + 1]}")
+            i += 2
+            continue
+        out.append(word)
+        i += 1
+    return out
+
+
+# --------------------------------------------------------------------------- explicit outputs
+
+
+def refuse_existing(outputs: Iterable[tuple[str, Path]], overwrite: bool) -> None:
+    """The rule for output paths the user names (``-o``, ``--csv``, ``--plot``): an
+    existing file is refused (exit 2) unless ``--overwrite``, checked before any work.
+    ``outputs``: (how the path was given, path) pairs, companions included (the .npz
+    of --layers, a figure's .json sidecar). Default names are not checked here: they
+    get a numbered new name instead (relview.imaging.files.safe_output_path)."""
+    if overwrite:
+        return
+    for flag, path in outputs:
+        if os.path.lexists(path) and not Path(path).is_dir():
+            raise OutputError(
+                f"{flag}: the file exists; pass --overwrite to replace it, or name another "
+                "file (relview never replaces a file you named unless asked)", file=path)
