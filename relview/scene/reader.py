@@ -33,9 +33,9 @@ from relview.geometry.camera import PROJECTIONS as projection_registry
 from relview.geometry.shapes import MAX_COORDINATE, MAX_DETAIL, SHAPES, load_mesh_file
 from relview.kinematics.lorentz import C
 from relview.kinematics.uniform import UniformMotion
-from relview.light.materials import MAX_TEMPERATURE, read_surface
 from relview.light.lamps import SPECTRUM_KEYS as LAMP_SPECTRUM_KEYS
 from relview.light.lamps import LampSpectrum
+from relview.light.materials import MAX_TEMPERATURE, read_surface
 from relview.light.sky import CMB_TEMPERATURE_K
 from relview.scene.parts import (
     Animation,
@@ -43,8 +43,8 @@ from relview.scene.parts import (
     Body,
     Camera,
     Effects,
-    RenderSettings,
     Lamp,
+    RenderSettings,
 )
 from relview.scene.table import Table, _Document, _type_name, show
 
@@ -520,8 +520,6 @@ def _parse_microwave_sky(t: Table) -> Background:
                       camera_velocity=camera_velocity)
 
 
-def _parse_animation(root: Table) -> Animation | None:
-    t = root.table("animation", None, section="animation")
 #: most shadow rays per shaded point towards one sphere lamp
 MAX_SHADOW_SAMPLES = 4096
 
@@ -582,6 +580,8 @@ def _parse_lamps(root: Table) -> list[Lamp]:
     return lamps
 
 
+def _parse_animation(root: Table) -> Animation | None:
+    t = root.table("animation", None, section="animation")
     if t is None:
         return None
     t.check_keys(("start", "end", "frames", "fps"))
@@ -623,9 +623,9 @@ def _build(data: Any, doc: _Document, raw: bytes | None, source_path: Path | Non
     _check_framing_names(root, camera, bodies)
     background = _parse_background(root)
     animation = _parse_animation(root)
+    lamps = _parse_lamps(root)
     if raw is None:
         raw = json.dumps(data, sort_keys=True, default=show).encode()
-    lamps = _parse_lamps(root)
     return dict(
         camera=camera,
         bodies=bodies,
@@ -636,9 +636,9 @@ def _build(data: Any, doc: _Document, raw: bytes | None, source_path: Path | Non
         format=fmt,
         source_path=source_path,
         source_hash=_hash(raw, doc.referenced),
+        lamps=lamps,
     )
 
-        lamps=lamps,
 
 def fields_from_dict(data: Mapping, base_dir: str | Path = ".", source: str = "<dict>") -> dict:
     """Validate the structure a scene file holds (nested dicts/lists) into Scene fields.
