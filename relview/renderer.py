@@ -23,7 +23,9 @@ from relview.geometry import camera as cam_mod
 from relview.geometry.shapes import free_memory, mesh_bytes
 from relview.geometry.trace import Hits, Tracer, uniform_groups
 from relview.imaging.exposure import clipped_fraction, expose, exposure_white, metered_pixels
+from relview.imaging.display import to_8bit
 from relview.imaging.formats import frame_format
+from relview.imaging.png import encode_png
 from relview.kinematics.lorentz import C
 from relview.scene.model import Scene
 from relview.scene.parts import Effects
@@ -57,6 +59,18 @@ class Frame:
         path = Path(path)
         return frame_format(path).write(self, path, bits=bits, tone=tone or self.tone,
                                         overwrite=overwrite)
+
+    def _repr_png_(self) -> bytes:
+        """The picture as 8-bit sRGB PNG bytes (the scene's tone curve, provenance in text
+        chunks): what Jupyter and IPython show for a Frame."""
+        return encode_png(to_8bit(self.image, self.tone), self.metadata)
+
+    def __repr__(self) -> str:
+        """One line: size, time, white and the scene (the arrays are in .image, .layers)."""
+        height, width = self.image.shape[:2]
+        scene = Path(self.metadata.get("scene") or "scene").name
+        return (f"<Frame {width}x{height} of {scene} at t = {self.time:.6g} s, "
+                f"white {self.white:.4g} cd/m2, layers: {', '.join(self.layers)}>")
 
 
 class RenderContext:

@@ -109,7 +109,7 @@ def write_exr(
     except ImportError:
         raise OutputError(
             "cannot write OpenEXR: the optional package 'OpenEXR' is not "
-            "installed (pip install OpenEXR)",
+            "installed (pip install 'relview[exr]', or pip install OpenEXR)",
             file=path,
         ) from None
     channels = _exr_channels(linear, layers)
