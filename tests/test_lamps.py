@@ -1,0 +1,370 @@
+"""Lamps on worldlines: reading, irradiance, colour, shadows (relview.light.lamps,
+relview.illumination), each check against a source outside the project."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from conftest import camera_scene
+
+from relview import illumination
+from relview.geometry.trace import Tracer, uniform_groups
+from relview.kinematics.hyperbolic import HyperbolicMotion
+from relview.kinematics.lorentz import C
+from relview.kinematics.uniform import UniformMotion
+from relview.light.lamps import LampSpectrum, lit_table
+from relview.light.materials import Reflective
+from relview.renderer import render
+from relview.scene.model import Scene
+from relview.scene.parts import Body, Effects, Lamp
+
+
+def _colour():
+    import colour  # slow import: only for the tests that compare with colour-science
+
+    return colour
+
+
+def grey(value: float = 0.5) -> Reflective:
+    """A grey surface lit by the scene's lamps (what a ``color`` without ``lamp`` reads as)."""
+    s = Reflective((value, value, value))
+    s.scene_lit = True
+    return s
+
+
+def plate(name="plate", size=(8.0, 8.0), beta=(0.0, 0.0, 0.0), position=(0.0, 0.0, 0.0),
+          surface=None, time=0.0) -> Body:
+    return Body(name=name, shape="plane", size=np.array(size, float),
+                surface=surface or grey(),
+                motion=UniformMotion(beta=np.array(beta, float), position=np.array(position, float),
+                                     time=time))
+
+
+def point_lamp(position, power=500.0, temperature=3000.0, beta=(0.0, 0.0, 0.0), **keys) -> Lamp:
+    return Lamp(name="lamp", spectrum=LampSpectrum.blackbody(temperature), power=power,
+                motion=UniformMotion(beta=np.array(beta, float), position=np.array(position, float)),
+                **keys)
+
+
+def luminous_efficacy_colour_science(temperature: float) -> float:
+    """K = 683 lm/W * integral(B ybar) / integral(B) for a Planckian lamp (CIE 15), with
+    colour-science's Planck spectrum and CIE 1931 observer; the denominator by
+    Stefan-Boltzmann (integral of B_lambda over all lambda = sigma T^4 / pi)."""
+    colour = _colour()
+    cmfs = colour.MSDS_CMFS["CIE 1931 2 Degree Standard Observer"]
+    sd = colour.sd_blackbody(temperature, cmfs.shape)  # W/(sr m2 nm)
+    w = sd.wavelengths
+    ybar = cmfs.values[:, 1]
+    num = np.trapezoid(sd.values * ybar, w)
+    sigma = 5.670374419e-8  # W m^-2 K^-4 (CODATA 2018)
+    return 683.0 * num / (sigma * temperature**4 / math.pi)
+
+
+# ------------------------------------------------------------------------ reading scenes
+
+
+SCENE = """
+[render]
+resolution = [32, 18]
+[camera]
+position = [0.0, -5.0, 1.0]
+look_at = [0.0, 0.0, 0.0]
+[[body]]
+name = "floor"
+shape = "plane"
+size = [6.0, 6.0]
+[body.surface]
+color = [0.5, 0.5, 0.5]
+"""
+
+
+def test_lamp_sections_are_read(tmp_path):
+    from relview.scene.model import load_scene
+
+    path = tmp_path / "s.toml"
+    path.write_text(SCENE + """
+[[lamp]]
+name = "mast"
+blackbody = 3000.0
+power = 500.0
+radius = 0.2
+[lamp.motion]
+kind = "uniform"
+position = [0.0, 4.0, 3.0]
+beta = [0.1, 0.0, 0.0]
+
+[[lamp]]
+name = "sun"
+illuminant = "D65"
+direction = [0.0, -1.0, 1.0]
+irradiance = 800.0
+frame_beta = [0.0, 0.0, 0.0]
+""")
+    scene = load_scene(path)
+    mast, sun = scene.lamps
+    assert mast.power == 500.0 and mast.radius == 0.2 and not mast.distant
+    assert np.allclose(mast.motion.beta, [0.1, 0.0, 0.0])
+    assert sun.distant and np.allclose(sun.direction, np.array([0, -1, 1]) / math.sqrt(2))
+    assert scene.bodies[0].surface.scene_lit
+
+
+@pytest.mark.parametrize("extra, message", [
+    ('name = "a"\nblackbody = 3000.0\npowr = 1.0\n', "powr"),
+    ('name = "a"\nblackbody = 3000.0\ndirection = [0.0, 0.0, 1.0]\nirradiance = 5.0\npower = 1.0\n',
+     "distant lamp"),
+    ('name = "a"\npower = 1.0\n', "exactly one spectrum key"),
+    ('name = "a"\nblackbody = 3000.0\nblackbody_k = 1\npower = 1.0\n', "blackbody_k"),
+    ('name = "a"\nblackbody = 3000.0\npower = -1.0\n', "> 0"),
+])
+def test_bad_lamp_keys_are_named(tmp_path, extra, message):
+    from relview.errors import SceneError
+    from relview.scene.model import load_scene
+
+    path = tmp_path / "s.toml"
+    path.write_text(SCENE + "[[lamp]]\n" + extra)
+    with pytest.raises(SceneError, match=message) as info:
+        load_scene(path)
+    assert "s.toml" in str(info.value)
+
+
+def test_co_moving_lamp_surfaces_ignore_scene_lamps():
+    # a colour with its own lamp keeps it: the picture is the same with or without [[lamp]]
+    own = Reflective((0.5, 0.4, 0.3), lamp=5800.0, luminance=100.0)
+    scene = camera_scene([plate(surface=own)], position=(0.0, -5.0, 1.0), resolution=(24, 16))
+    bare = render(scene)
+    lit = render(scene.replace(lamps=[point_lamp((0.0, 0.0, 3.0))]))
+    assert np.array_equal(bare.layers["xyz"], lit.layers["xyz"])
+    assert set(bare.layers) == set(lit.layers)  # no lamp layers without lit surfaces
+
+
+# ------------------------------------------------------------------- at rest: photometry
+
+
+def test_lambert_and_inverse_square_at_rest():
+    """Lamp and plate at rest: L_v = rho / pi * E_v with E_v = I_v cos(theta) / r^2 and
+    I_v = K P / (4 pi) (Lambert's cosine law, inverse-square law; K, the luminous efficacy
+    of the 3000 K Planckian lamp, per CIE 15 from colour-science's tables)."""
+    rho, power, temp = 0.5, 500.0, 3000.0
+    lamp_at = np.array([0.7, -0.4, 2.0])
+    scene = camera_scene([plate(surface=grey(rho))], position=(0.0, -4.0, 3.0),
+                         look_at=(0.0, 0.0, 0.0), resolution=(40, 30))
+    frame = render(scene.replace(lamps=[point_lamp(lamp_at, power, temp)]))
+    hit = frame.layers["body"] == 0
+    x = frame.layers["emit_position"][hit]
+    sep = lamp_at - x
+    r = np.linalg.norm(sep, axis=1)
+    cos = sep[:, 2] / r
+    k = luminous_efficacy_colour_science(temp)
+    expected = rho / math.pi * (k * power / (4 * math.pi)) * cos / r**2
+    got = frame.layers["xyz"][hit][:, 1]
+    # table interpolation 1e-3 and Mallett-Yuksel grey = 0.5 to 1e-5 (measured)
+    assert np.max(np.abs(got / expected - 1)) < 2e-3
+    assert np.all(frame.layers["shadowed_fraction"][hit] == 0.0)
+    assert np.allclose(frame.layers["incident_doppler"][hit], 1.0)
+
+
+def test_distant_lamp_at_rest():
+    """A distant lamp of irradiance E0 (W/m2) at 45 degrees: L_v = rho / pi * K E0 cos 45
+    (Lambert; K of CIE D65 from colour-science, CIE 15)."""
+    colour = _colour()
+    rho, e0 = 0.4, 600.0
+    sun = Lamp(name="sun", spectrum=LampSpectrum.illuminant("D65"),
+               direction=np.array([0.0, 1.0, 1.0]) / math.sqrt(2), irradiance=e0)
+    scene = camera_scene([plate(surface=grey(rho))], position=(0.0, -4.0, 3.0),
+                         resolution=(20, 12))
+    frame = render(scene.replace(lamps=[sun]))
+    hit = frame.layers["body"] == 0
+    cmfs = colour.MSDS_CMFS["CIE 1931 2 Degree Standard Observer"]
+    # colour-science's D65 table (CIE 15) inside 360-780 nm, scaled to the share of the
+    # lamp's power our declared extension leaves there (ybar beyond 780 nm < 1e-4 of peak)
+    d65 = colour.SDS_ILLUMINANTS["D65"]
+    w = np.arange(360.0, 781.0)
+    s65 = np.interp(w, d65.wavelengths, d65.values)
+    share = sun.spectrum.energy_below(780.0) - sun.spectrum.energy_below(360.0)
+    ybar = np.interp(w, cmfs.wavelengths, cmfs.values[:, 1])
+    k = 683.0 * share * np.trapezoid(s65 * ybar, w) / np.trapezoid(s65, w)
+    expected = rho / math.pi * k * e0 * math.cos(math.radians(45.0))
+    assert np.allclose(frame.layers["xyz"][hit][:, 1], expected, rtol=3e-3)
+
+
+# -------------------------------------------------------------- moving: double Doppler
+
+
+def test_grey_body_shows_lamp_spectrum_shifted_by_d_in_times_d_out():
+    """A lamp at rest lights a grey plate receding at 0.5c; the camera records the lamp's
+    Planck spectrum shifted by D_in x D_out, i.e. a blackbody at D_in D_out T (Planck's
+    law with L_nu / nu^3 invariant, Rybicki & Lightman ch. 4): its chromaticity from
+    colour-science's Planck spectrum and CIE 1931 observer."""
+    colour = _colour()
+    temp = 4000.0
+    wall = plate(beta=(0.0, 0.5, 0.0), position=(0.0, 3.0, 0.0), size=(30.0, 30.0))
+    wall.rotation = np.array([90.0, 0.0, 0.0])  # facing the camera and the lamp (along y)
+    scene = camera_scene([wall], position=(0.0, -3.0, 0.0), look_at=(0.0, 10.0, 0.0),
+                         resolution=(16, 12), fov=20.0)
+    frame = render(scene.replace(lamps=[point_lamp((0.0, -2.0, 0.5), 5e4, temp)]))
+    hit = frame.layers["body"] == 0
+    assert hit.sum() > 50
+    d_tot = frame.layers["total_doppler"][hit]
+    d_in = frame.layers["incident_doppler"][hit]
+    # receding at 0.5c from a lamp behind the camera: D_in near sqrt(1/3) (head-on
+    # Doppler factor sqrt((1 - b)/(1 + b)), Einstein 1905)
+    assert np.all(np.abs(d_in - math.sqrt(1 / 3)) < 0.05)
+    cmfs = colour.MSDS_CMFS["CIE 1931 2 Degree Standard Observer"]
+    xyz = frame.layers["xyz"][hit]
+    got = xyz[:, :2] / xyz.sum(axis=1)[:, None]
+    for g, dt in zip(got[::7], d_tot[::7], strict=False):
+        ref = colour.XYZ_to_xy(colour.sd_to_XYZ(colour.sd_blackbody(temp * dt, cmfs.shape),
+                                                cmfs, method="Integration"))
+        assert np.max(np.abs(g - ref)) < 2e-3  # grey basis and 1-nm bins (measured 1e-3)
+
+
+def test_lit_table_matches_its_direct_sum():
+    # the table's interpolation error against the exact bin sum at random (D_in, D_out)
+    table = lit_table(LampSpectrum.blackbody(3000.0))
+    rng = np.random.default_rng(2)
+    for span, tolerance in ((1.0, 2e-3), (1.5, 2e-2)):  # measured 9e-4 and 1.0e-2
+        a = np.exp(rng.uniform(-span, span, 150))
+        b = np.exp(rng.uniform(-span, span, 150))
+        q = table.lookup(a, b)
+        ref = np.array([table.direct(x, y) for x, y in zip(a, b, strict=True)])
+        scale = np.abs(ref).max(axis=(1, 2))[:, None, None]
+        assert np.max(np.abs(q - ref) / scale) < tolerance
+
+
+def test_narrow_line_lamp_keeps_its_power():
+    # a 0.01 nm line: the bin energies still hold all of it (C(hi) - C(lo))
+    from relview.light.materials import EmissionLines
+
+    spec = LampSpectrum.from_surface(EmissionLines([(589.0, 0.01, 1.0)]))
+    assert spec.energy_below(588.5) < 1e-9 and abs(spec.energy_below(589.5) - 1) < 1e-9
+    # luminous efficacy 683 ybar(589 nm) lm/W (CIE 1931 ybar from colour-science)
+    ybar = _colour().MSDS_CMFS["CIE 1931 2 Degree Standard Observer"][589.0][1]
+    q = lit_table(spec).direct(1.0, 1.0)
+    assert abs(q.sum(axis=0)[1] / (683.0 * ybar) - 1) < 1e-3
+
+
+# ------------------------------------------------------------------------- lamp events
+
+
+def test_lamp_events_of_an_accelerated_lamp_match_the_retarded_solve():
+    # vectorised over receiving events, against RigidKinematics.retarded one event at a time
+    lamp = Lamp(name="l", spectrum=LampSpectrum.blackbody(3000.0), power=1.0,
+                motion=HyperbolicMotion(acceleration=np.array([3e15, 0.0, 0.0]),
+                                        position=np.array([0.0, 2.0, 1.0])))
+    rng = np.random.default_rng(3)
+    events = np.column_stack([rng.uniform(0, 10, 6), rng.uniform(-3, 3, (6, 3))])
+    ev, beta = illumination.lamp_events(lamp, events, Effects())
+    for e, got, b in zip(events, ev, beta, strict=True):
+        ref, ref_beta = lamp.motion.retarded(np.zeros((1, 3)), e)
+        assert np.allclose(got, ref[0], rtol=0, atol=1e-9)
+        assert np.allclose(b, ref_beta[0], atol=1e-9)
+
+
+# -------------------------------------------------------------------------- shadows
+
+
+def test_shadow_of_a_moving_bar_on_a_wall_at_rest():
+    """A thin bar (rest length L along x, at height h) moving at beta along x between a
+    point lamp at rest at height H and a floor at rest. Closed form: the floor point
+    (X, 0, 0) at time t is dark when the light ray from the lamp (0, 0, H), which crosses
+    height h at x = f X (f = (H - h)/H) at time t - (1 - f) sqrt(X^2 + H^2), meets the
+    bar there: |f X - beta (t - (1 - f) r)| <= L / (2 gamma) (straight light paths, the
+    Lorentz-FitzGerald contraction, Einstein 1905). Edges found by scipy's brentq."""
+    from scipy.optimize import brentq
+
+    big_h, h, length, beta = 4.0, 2.0, 1.0, 0.8
+    gamma = 1.0 / math.sqrt(1 - beta**2)
+    bar = Body(name="bar", shape="box", size=np.array([length, 0.4, 1e-4]), surface=grey(),
+               motion=UniformMotion(beta=np.array([beta, 0, 0]), position=np.array([0, 0, h])))
+    meshes = [(np.array(v), np.array(f)) for v, f in [_box_mesh(bar)]]
+    tracer = Tracer(uniform_groups([bar], meshes, Effects()))
+    lamp = point_lamp((0.0, 0.0, big_h))
+    t = 1.5  # ct, m: the bar's centre is at x = 1.2 then
+    xs = np.linspace(-2.0, 6.0, 16001)
+    events = np.column_stack([np.full(xs.size, t), xs, np.zeros(xs.size), np.zeros(xs.size)])
+    up = np.tile([0.0, 0.0, 1.0], (xs.size, 1))
+    term = illumination.lamp_term(lamp, tracer, events, np.zeros((xs.size, 3)), up, Effects())
+    dark = xs[term.visible == 0]
+    f = (big_h - h) / big_h
+
+    def edge(sign):
+        return brentq(lambda x: f * x - beta * (t - (1 - f) * math.hypot(x, big_h))
+                      - sign * length / (2 * gamma), -5.0, 10.0)
+
+    step = xs[1] - xs[0]
+    assert abs(dark.min() - edge(-1)) < 2 * step
+    assert abs(dark.max() - edge(+1)) < 2 * step
+    # the shadow of the bar where it is now (no delay) would be elsewhere: it lags
+    assert edge(+1) < (beta * t + length / (2 * gamma)) / f
+
+
+def _box_mesh(body):
+    from relview.geometry.shapes import mesh_data
+
+    md = mesh_data(body)
+    return md.vertices, md.faces
+
+
+def test_direct_lighting_at_rest_matches_a_classical_ray_tracer():
+    """beta = 0 everywhere: each pixel's luminance equals a classical direct-lighting
+    computation: first hits and shadow rays by trimesh's ray queries, Lambert's law
+    rho/pi E with E = K P cos / (4 pi r^2) (K from colour-science per CIE 15)."""
+    import trimesh
+
+    from relview.geometry import camera as cam_mod
+
+    rho, power, temp = 0.6, 2000.0, 3500.0
+    floor = plate(size=(10.0, 10.0), surface=grey(rho))
+    cube = Body(name="cube", shape="box", size=np.array([1.0, 1.0, 1.0]), surface=grey(rho),
+                motion=UniformMotion(position=np.array([0.3, 0.5, 0.5])))
+    lamp_at = np.array([-1.5, -0.5, 3.0])
+    scene = camera_scene([floor, cube], position=(2.0, -5.0, 3.0), look_at=(0.0, 0.5, 0.3),
+                         resolution=(64, 40))
+    frame = render(scene.replace(lamps=[point_lamp(lamp_at, power, temp)]))
+    meshes = []
+    for b in (floor, cube):
+        v, f = _box_mesh(b)
+        meshes.append(trimesh.Trimesh(v + b.motion.position, f, process=False))
+    world = trimesh.util.concatenate(meshes)
+    w, h = scene.render.resolution
+    d, _ = cam_mod.scene_directions(scene.camera, w, h, cam_mod.pixel_grid(w, h), None)
+    origin = np.tile(scene.camera.position, (len(d), 1))
+    loc, ray, tri = world.ray.intersects_location(origin, d, multiple_hits=False)
+    x = loc
+    normal = world.face_normals[tri]
+    normal *= np.where(np.sum(normal * d[ray], axis=1) > 0, -1.0, 1.0)[:, None]
+    sep = lamp_at - x
+    r = np.linalg.norm(sep, axis=1)
+    cos = np.maximum(np.sum(normal * sep, axis=1) / r, 0.0)
+    start = x + 1e-5 * normal  # off the surface, on the lit side (common practice)
+    blocked = np.zeros(len(x), bool)
+    s_loc, s_ray, _ = world.ray.intersects_location(start, sep / r[:, None], multiple_hits=False)
+    blocked[s_ray] = np.linalg.norm(s_loc - start[s_ray], axis=1) < r[s_ray]
+    k = luminous_efficacy_colour_science(temp)
+    expected = np.zeros(len(d))
+    expected[ray] = rho / math.pi * k * power * cos * ~blocked / (4 * math.pi * r**2)
+    got = frame.layers["xyz"].reshape(-1, 3)[:, 1]
+    close = np.isclose(got, expected, rtol=3e-3, atol=1e-9 * expected.max())
+    # pixels whose ray grazes an edge may differ between the two tracers (common practice)
+    assert close.mean() > 0.99
+    assert (frame.layers["shadowed_fraction"] == 1).sum() > 20  # the cube casts a shadow
+
+
+def test_sphere_lamp_gives_a_soft_penumbra():
+    bar = Body(name="bar", shape="box", size=np.array([0.5, 4.0, 1e-3]), surface=grey(),
+               motion=UniformMotion(position=np.array([0.0, 0.0, 1.0])))
+    tracer = Tracer(uniform_groups([bar], [_box_mesh(bar)], Effects()))
+    lamp = point_lamp((0.0, 0.0, 3.0), radius=0.3, shadow_samples=64)
+    xs = np.linspace(-1.5, 1.5, 301)
+    events = np.column_stack([np.zeros(xs.size), xs, np.zeros(xs.size), np.zeros(xs.size)])
+    term = illumination.lamp_term(lamp, tracer, events, np.zeros((xs.size, 3)),
+                                  np.tile([0.0, 0.0, 1.0], (xs.size, 1)), Effects(delay=False))
+    v = term.visible
+    assert v[np.abs(xs) < 0.1].max() == 0.0 and v[np.abs(xs) > 1.0].min() == 1.0
+    partial = (v > 0) & (v < 1)
+    # penumbra between the umbra and full light, by similar triangles (lamp radius 0.3,
+    # lamp height 3, bar at 1): edges at x = 0.25 * 1.5 -/+ 0.3 * 0.5
+    assert partial.any()
+    assert np.all(np.abs(np.abs(xs[partial]) - 0.375) <= 0.15 + 0.011)
