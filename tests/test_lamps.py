@@ -12,12 +12,10 @@ from conftest import camera_scene
 from relview import illumination
 from relview.geometry.trace import Tracer, uniform_groups
 from relview.kinematics.hyperbolic import HyperbolicMotion
-from relview.kinematics.lorentz import C
 from relview.kinematics.uniform import UniformMotion
 from relview.light.lamps import LampSpectrum, lit_table
 from relview.light.materials import Reflective
 from relview.renderer import render
-from relview.scene.model import Scene
 from relview.scene.parts import Body, Effects, Lamp
 
 
