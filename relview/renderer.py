@@ -17,16 +17,16 @@ from pathlib import Path
 
 import numpy as np
 
-from relview import framing
-from relview import illumination
+from relview import framing, illumination
 from relview.geometry import camera as cam_mod
 from relview.geometry.shapes import free_memory, mesh_bytes
 from relview.geometry.trace import Hits, Tracer, uniform_groups
-from relview.imaging.exposure import clipped_fraction, expose, exposure_white, metered_pixels
 from relview.imaging.display import to_8bit
+from relview.imaging.exposure import clipped_fraction, expose, exposure_white, metered_pixels
 from relview.imaging.formats import frame_format
 from relview.imaging.png import encode_png
 from relview.kinematics.lorentz import C
+from relview.kinematics.magnitudes import check_time
 from relview.scene.model import Scene
 from relview.scene.parts import Effects
 
@@ -104,18 +104,23 @@ class RenderContext:
             self._centres_size = (width, height)
         return self._centres
 
-    def tracer(self, camera_event: np.ndarray) -> Tracer:
-        """The tracer for one exposure event (light-cone snapshots join uniform groups)."""
+    def tracer(self, camera_event: np.ndarray, reference=None,
+               tolerance: float | None = None) -> Tracer:
+        """The tracer for one exposure event (light-cone snapshots join uniform groups).
+
+        ``reference`` = (t s, x m), the exposure event the snapshots are centred on (pass
+        the same to Tracer.cast); ``tolerance``: the snapshots' (default: a fraction of
+        the scene's pixel, relview.geometry.lightcone.pixel_tolerance)."""
         if not self.other:
             tracer = self._uniform_tracer
         else:
             from relview.geometry import lightcone
 
             snap = lightcone.snapshot_groups(self.scene, self.meshes, self.other, camera_event,
-                                             self.effects)
+                                             self.effects, tolerance, reference=reference)
             tracer = Tracer(self.uniform_groups + snap)
         # the exposure being rendered: shade() casts the lamps' shadow rays through it
-        self.exposure = (np.asarray(camera_event, float), tracer, None)
+        self.exposure = (np.asarray(camera_event, float), tracer, reference)
         return tracer
 
     def lamp_layers(self, height: int, width: int) -> dict[str, np.ndarray]:
@@ -130,7 +135,8 @@ def camera_state(scene: Scene, time_s: float) -> tuple[np.ndarray, np.ndarray]:
     cam = scene.camera
     motion = getattr(cam, "motion", None)
     if motion is not None:
-        x, beta = motion.state(np.zeros((1, 3)), C * time_s)
+        # solved with times counted from the exposure, exact for equal times however large
+        x, beta = motion.shifted(time_s, np.zeros(3)).state(np.zeros((1, 3)), 0.0)
         return np.concatenate([[C * time_s], x[0]]), np.asarray(beta[0], float)
     beta = np.asarray(cam.beta, float)
     x = np.asarray(cam.position, float) + beta * C * (time_s - cam.time)
@@ -207,19 +213,21 @@ def check_memory(width: int, height: int, source: str = "render.resolution",
 
 
 def exposure_times(t: float, shutter: float, samples: int, shutter_samples: int) -> np.ndarray:
-    """Scene times (s) of the exposure events of one frame.
+    """Scene times (s) of the exposure events whose pictures are averaged into one frame,
+    each with the same weight.
 
-    Sample 0 is the nominal exposure event t (it also fills the data layers). With an
-    open shutter (``shutter`` > 0 s) the frame integrates samples * shutter_samples events
-    in all; the others are stratified evenly over [t - shutter/2, t + shutter/2]
-    (relativistic motion blur: each is a full retarded-time picture). Without a shutter
-    every sample is at t and only the pixel position is jittered.
+    With an open shutter (``shutter`` > 0 s) the frame integrates n = samples *
+    shutter_samples events, one at the middle of each of n equal strata of
+    [t - shutter/2, t + shutter/2] (relativistic motion blur: each is a full retarded-time
+    picture). Equal weights over equal strata make this an unbiased box filter: a pixel
+    covered for a fraction f of the exposure gets f (to within 1/n). The data layers
+    come from a separate picture at the nominal time t (render). Without a shutter every
+    event is at t and only the pixel position is jittered.
     """
     n = samples * (shutter_samples if shutter > 0 else 1)
     if shutter <= 0 or n == 1:
         return np.full(n, float(t))
-    rest = t + shutter * ((np.arange(n - 1) + 0.5) / (n - 1) - 0.5)
-    return np.concatenate([[float(t)], rest])
+    return t + shutter * ((np.arange(n) + 0.5) / n - 0.5)
 
 
 def render(scene: Scene, time: float | None = None, *, resolution=None, samples=None,
@@ -236,6 +244,7 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
     if context is None or context.effects != effects:
         context = RenderContext(scene, effects)
     t = scene.camera.time if time is None else time
+    check_time(t, "time" if time is not None else "[camera] time")
     event, beta_cam = camera_state(scene, t)
     for name in bodies_around_camera(scene, context, event):
         import warnings
@@ -259,8 +268,13 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
     layer_temp = np.full(n_pix, np.nan) if scene.background.kind == "cmb" else None
     centres = context.pixel_centres(width, height)
     times = exposure_times(t, scene.render.shutter, samples, scene.render.shutter_samples)
-    n_samples = len(times)
-    batches = [(s, a) for s in range(n_samples) for a in range(0, n_pix, RAYS_PER_BATCH)]
+    n_samples = len(times)  # pictures averaged into the colour
+    # With an open shutter the data layers come from an extra picture at the nominal time
+    # that adds nothing to the colour (exposure_times); otherwise sample 0 serves both.
+    first_colour = 1 if scene.render.shutter > 0 else 0
+    if first_colour:
+        times = np.concatenate([[float(t)], times])
+    batches = [(s, a) for s in range(len(times)) for a in range(0, n_pix, RAYS_PER_BATCH)]
     bar = None
     if progress:
         from tqdm import tqdm
@@ -271,30 +285,36 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
         if s not in state:  # one exposure event (and light-cone snapshot) per sample
             state.clear()
             ev, beta_c = (event, beta_cam) if s == 0 else camera_state(scene, times[s])
-            state[s] = (ev, beta_c, context.tracer(ev))
-        ev, beta_c, tracer = state[s]
+            # every cast is centred on its own exposure event (relview.geometry.trace)
+            reference = (times[s], ev[1:])
+            state[s] = (ev, beta_c, context.tracer(ev, reference), reference)
+        ev, beta_c, tracer, reference = state[s]
         b = min(a + RAYS_PER_BATCH, n_pix)
         px = centres[a:b]
         if s > 0 and samples > 1:
             px = px + rng.uniform(-0.5, 0.5, size=px.shape)
         d_s, valid = cam_mod.scene_directions(cam, width, height, px,
                                               beta_c if effects.aberration else None)
-        hits = tracer.cast(ev, d_s, effects, beta_cam=beta_c)
+        hits = tracer.cast(ev, d_s, effects, beta_cam=beta_c, reference=reference)
         if not valid.all():
             hits.body[~valid] = -1
             hits.doppler[~valid] = np.nan
         dop = hits.doppler
-        col = shade(scene, context, hits, dop, effects, slice(a, b) if s == 0 else None)
+        if s < first_colour:  # the nominal picture of an open shutter: data layers only
+            col = None
+        else:
+            col = shade(scene, context, hits, dop, effects, slice(a, b) if s == first_colour else None)
         if sky.per_pixel(scene.background):
             miss = (hits.body < 0) & valid
-            if np.any(miss):
+            if np.any(miss) and col is not None:
                 col[miss] = sky.sky_xyz(scene.background, d_s[miss], beta_c, effects)
+            if np.any(miss):
                 if s == 0 and layer_temp is not None:
                     layer_temp[a:b][miss] = sky.microwave_temperature(
                         scene.background, d_s[miss], beta_c, effects)
-        if s == 0:
+        if s == first_colour:
             xyz[a:b] = col
-        else:
+        elif s > first_colour:
             xyz[a:b] += col
         if s == 0 and a == 0 and b == n_pix:  # the whole frame in one batch: no copies
             layer_d, layer_body, layer_rest = dop, hits.body, hits.rest_position

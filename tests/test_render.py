@@ -156,8 +156,8 @@ def test_open_shutter_integrates_the_exposure_events():
     sh = 4e-9
     blur = dict_scene(cam, [body], {"shutter": sh, "shutter_samples": 4, "exposure": 1e6})
     times = exposure_times(0.0, sh, 1, 4)
-    assert times[0] == 0.0 and len(times) == 4
-    assert times[1:].min() >= -sh / 2 and times[1:].max() <= sh / 2
+    assert len(times) == 4  # equally weighted strata (the nominal time is not among them)
+    assert times.min() >= -sh / 2 and times.max() <= sh / 2
     f = relview.render(blur, resolution=(64, 36))
     inst = dict_scene(cam, [body], {"exposure": 1e6})
     mean = sum(relview.render(inst, ti, resolution=(64, 36)).layers["xyz"] for ti in times) / 4

@@ -33,6 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from relview.geometry.trace import FrameGroup
+from relview.kinematics.lorentz import C
 
 #: Default interpolation tolerance (radians as seen from the camera, and beta) when no
 #: scene is at hand. A 960-pixel-wide 60 degree image has 1.1e-3 rad pixels.
@@ -271,25 +272,36 @@ def pixel_tolerance(scene) -> float:
 
 
 def snapshot_groups(scene, meshes, indices, camera_event, effects, tolerance: float | None = None,
-                    max_triangles: int = DEFAULT_MAX_TRIANGLES) -> list[FrameGroup]:
+                    max_triangles: int = DEFAULT_MAX_TRIANGLES,
+                    reference=None) -> list[FrameGroup]:
     """Frame groups (one per body in ``indices``) of light-cone snapshots, for
     :class:`relview.geometry.trace.Tracer`. ``meshes[i]`` is body i's rest-frame mesh (vertices
     along the rest-frame axes, rotation applied). ``tolerance`` (rad and beta) defaults to
     :func:`pixel_tolerance`. Each group has ``.snapshot`` attached (segments, measured
-    error)."""
+    error).
+
+    ``reference`` = (t_R s, x_R (3,) m), normally the exposure event: the motions are
+    solved in coordinates centred on it (RigidKinematics.shifted), so the snapshot does not
+    depend on where the scene sits in time or space; its vertices and events are then
+    relative to that event, and the group's origin is that event. Default: the scene's
+    own origin (t = 0, x = 0)."""
     if tolerance is None:
         tolerance = pixel_tolerance(scene)
     groups = []
-    cam = np.asarray(camera_event, float).reshape(4)
+    t_ref, x_ref = (0.0, np.zeros(3)) if reference is None else (
+        float(reference[0]), np.asarray(reference[1], float).reshape(3))
+    ref_event = np.concatenate([[C * t_ref], x_ref])
+    cam = np.asarray(camera_event, float).reshape(4) - ref_event
     for i in indices:
         body = scene.bodies[i]
         verts, faces = meshes[i]
         check_body_speed(scene, i, verts)
-        snap = snapshot(body.motion, verts, faces, cam, effects, tolerance, max_triangles)
+        motion = body.motion.shifted(t_ref, x_ref)
+        snap = snapshot(motion, verts, faces, cam, effects, tolerance, max_triangles)
         rot = body.rotation_matrix()
         group = FrameGroup(
             beta=np.zeros(3),
-            origin_event=np.zeros(4),
+            origin_event=ref_event,
             matrix=np.eye(4),
             bodies=[i],
             body_offset=[np.zeros(3)],
@@ -301,6 +313,7 @@ def snapshot_groups(scene, meshes, indices, camera_event, effects, tolerance: fl
             vertex_body_coords=snap.body_coords @ rot,  # rest-frame axes -> body axes (R^T p)
             vertex_beta=snap.beta,
             vertex_bary=snap.bary,
+            origin_time=t_ref,
         )
         group.snapshot = snap
         groups.append(group)

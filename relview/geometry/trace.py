@@ -21,6 +21,12 @@ Effect switches change only the map and the 4-direction:
 * ``delay`` off: k = (0, d), light instantaneous, every hit is at time t_c;
 * ``contraction`` off: the Galilean map (ct, x) -> (ct, x - beta ct) replaces the boost.
 
+Every cast works relative to a reference event R, the exposure event (``reference`` =
+(t_R in s, x_R in m)): start events and frame-group origins are passed to the kernels as
+E - R and e0 - R, so the kernels see small numbers wherever the scene sits in time and
+space, and R is added back only to the reported emission events. Light-cone snapshots
+are built in the same coordinates (their vertices are x - x_R).
+
 Bodies with equal velocity share a rest frame and one bounding-volume hierarchy.
 Bodies whose motion is not uniform are handed to :mod:`relview.geometry.lightcone`, which
 turns them into static meshes on the camera's past light cone; those join here as a
@@ -36,6 +42,7 @@ from numba import njit, prange
 
 from relview.geometry import bvh as bvh_mod
 from relview.kinematics.lorentz import (
+    C,
     boost_matrix,
     camera_gamma,
     doppler_along,
@@ -67,6 +74,10 @@ class FrameGroup:
     vertex_beta: np.ndarray | None = None
     vertex_bary: np.ndarray | None = None
     bvh: bvh_mod.BVH | None = None  # built on first use, kept while the group lives
+    # Scene time (s) of origin_event when known: then the frame's origin is placed relative
+    # to a cast's reference event as (origin_time - t_ref) c, which keeps its precision
+    # where both times are large (relview.kinematics.magnitudes).
+    origin_time: float | None = None
 
 
 @dataclass
@@ -296,30 +307,37 @@ class Tracer:
         self.tri_slot = np.concatenate(slot)
         self.slot_offset = np.array(offs, float).reshape(-1, 3)
         self.slot_rotation = np.array(rots, float).reshape(-1, 3, 3)
-        self.g_origin = np.stack([g.origin_event for g in groups])
+        self.g_origin = np.stack([np.asarray(g.origin_event, float) for g in groups])
+        self.g_time = np.array([np.nan if g.origin_time is None else float(g.origin_time)
+                                for g in groups])
         self.g_matrix = np.stack([g.matrix for g in groups])
         self.g_beta = np.stack([np.asarray(g.beta, float) for g in groups])
         assert len(self.tri_body) == len(p.v0)
 
     def cast(self, ray_origin: np.ndarray, d_scene: np.ndarray, effects: Effects,
-             l_min: float = 1e-9, beta_cam=None) -> Hits:
+             l_min: float = 1e-9, beta_cam=None, reference=None) -> Hits:
         """Cast backward null rays along (N, 3) unit S directions from (N, 4) start events,
         or from one shared (4,) event. With ``beta_cam`` the hits carry their Doppler
-        factor as seen by a camera of that velocity."""
+        factor as seen by a camera of that velocity. ``reference`` = (t_R s, x_R (3,) m)
+        is the event the kernels' coordinates are centred on (module docstring; the
+        exposure event); by default the first start event."""
         if self.packed is None:
             return _empty_hits(len(d_scene))
         p = self.packed
-        ray_o = np.ascontiguousarray(np.atleast_2d(ray_origin), dtype=np.float64)
+        ray_abs = np.atleast_2d(np.asarray(ray_origin, dtype=np.float64))
+        ref, g_origin = self._centred_origins(ray_abs[0], reference)
+        ray_o = np.ascontiguousarray(ray_abs - ref)
         ray_d = np.ascontiguousarray(d_scene, dtype=np.float64)
         k_time = -1.0 if effects.delay else 0.0
         kernel = _cast_packets if len(ray_o) == 1 else _cast
-        l, tri, u, v = kernel(ray_o, ray_d, k_time, self.g_origin, self.g_matrix, p.root,
+        l, tri, u, v = kernel(ray_o, ray_d, k_time, g_origin, self.g_matrix, p.root,
                               p.nodes, p.links, p.tris, l_min)
         bc = np.zeros(3) if beta_cam is None else np.asarray(beta_cam, np.float64).reshape(3)
         body, face, group, emit, rest, beta, doppler = _resolve(
             ray_o, ray_d, k_time, l, tri, p.tri_group, self.tri_body, self.tri_local,
-            self.tri_slot, self.g_origin, self.g_matrix, self.g_beta, self.slot_offset,
+            self.tri_slot, g_origin, self.g_matrix, self.g_beta, self.slot_offset,
             self.slot_rotation, bc, bool(effects.contraction))
+        emit += ref  # back to scene-frame events for the caller
         for gi, g in enumerate(self.groups):
             if g.vertex_body_coords is None:
                 continue
@@ -338,6 +356,21 @@ class Tracer:
                 u[sel], v[sel] = face_uv[:, 0], face_uv[:, 1]
         return Hits(body, face, np.stack([u, v], -1), l, emit, rest, beta, group,
                     doppler if beta_cam is not None else None)
+
+
+    def _centred_origins(self, first_event: np.ndarray, reference):
+        """(R (4,), group origins e0 - R (G, 4)): R is ``reference`` as an event, or the
+        first start event. Origins with a known scene time take their time offset from the
+        times in seconds, (t0 - t_R) c, exact for equal times however large."""
+        if reference is None:
+            ref = first_event.copy()
+            return ref, np.ascontiguousarray(self.g_origin - ref)
+        t_ref, x_ref = float(reference[0]), np.asarray(reference[1], float).reshape(3)
+        ref = np.concatenate([[C * t_ref], x_ref])
+        g_origin = self.g_origin - ref
+        timed = np.isfinite(self.g_time)
+        g_origin[timed, 0] = (self.g_time[timed] - t_ref) * C
+        return ref, np.ascontiguousarray(g_origin)
 
 
 def _interpolate(weights: np.ndarray, tri_vertices: np.ndarray, values: np.ndarray):
@@ -385,7 +418,10 @@ def uniform_groups(bodies, meshes, effects: Effects, indices=None) -> list[Frame
             offs.append(off)
             rots.append(rot)
             nv += len(v)
-        groups.append(FrameGroup(beta, e0, m, members, offs, rots, np.concatenate(fbody),
-                                 np.concatenate(flocal), np.concatenate(verts),
-                                 np.concatenate(faces)))
+        group = FrameGroup(beta, e0, m, members, offs, rots, np.concatenate(fbody),
+                           np.concatenate(flocal), np.concatenate(verts),
+                           np.concatenate(faces))
+        t0 = getattr(bodies[members[0]].motion, "time", None)  # s, when e0 is at that time
+        group.origin_time = float(t0) if t0 is not None and C * float(t0) == e0[0] else None
+        groups.append(group)
     return groups

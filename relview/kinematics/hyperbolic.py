@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from relview.kinematics.lorentz import C
+from relview.kinematics.magnitudes import read_position, read_time
 from relview.kinematics.worldline import RigidKinematics, _vec3
 
 #: Largest horizon distance c^2/a (m) the worldline arithmetic can square without overflow.
@@ -53,11 +54,14 @@ class HyperbolicMotion(RigidKinematics):
         of the moment the origin is at rest."""
         table.check_keys(("kind", "acceleration", "position", "time"))
         acceleration = table.vector("acceleration", 3, nonzero=True, unit="m/s2")
-        position = table.vector("position", 3, (0.0, 0.0, 0.0), unit="m")
-        time = table.number("time", 0.0, unit="s")
+        position = read_position(table)
+        time = read_time(table)
         # the constructor refuses an acceleration whose magnitude underflows to zero
         with table.errors_at("acceleration"):
             return cls(acceleration=acceleration, position=position, time=time)
+
+    def _shifted(self, dt_s, dx):
+        return replace(self, position=self.position - dx, time=self.time - dt_s)
 
     def _origin(self, s):
         d = s - self.s0

@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from relview.kinematics.lorentz import C
+from relview.kinematics.magnitudes import read_position, read_time
 from relview.kinematics.worldline import RigidKinematics, _perpendicular_basis, _unit, _vec3
 
 # ----------------------------------------------------------------------------- orbit
@@ -82,11 +83,14 @@ class OrbitMotion(RigidKinematics):
             if beta >= 1.0:
                 raise table.error("beta", f"beta = {beta!r}: the orbital speed must be below 1",
                                   beta)
-        return cls(center=table.vector("center", 3, (0.0, 0.0, 0.0), unit="m"), radius=radius,
+        return cls(center=read_position(table, "center"), radius=radius,
                    period=period, beta=beta,
                    axis=table.vector("axis", 3, (0.0, 0.0, 1.0), nonzero=True),
                    phase=table.number("phase", 0.0, unit="degrees"),
-                   time=table.number("time", 0.0, unit="s"))
+                   time=read_time(table))
+
+    def _shifted(self, dt_s, dx):
+        return replace(self, center=self.center - dx, time=self.time - dt_s)
 
     def _origin(self, s):
         phi = math.radians(self.phase) + self.omega_ct * (s - self.s0)

@@ -3,12 +3,13 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy.interpolate import CubicSpline
 
 from relview.kinematics.lorentz import C
+from relview.kinematics.magnitudes import refuse_unresolvable
 from relview.kinematics.worldline import RigidKinematics
 
 # ----------------------------------------------------------------------------- path
@@ -70,6 +71,8 @@ class PathMotion(RigidKinematics):
         table.check_keys(("kind", "times", "positions"))
         times = table.number_list("times", unit="s")
         positions = table.vector_list("positions", 3, unit="m")
+        refuse_unresolvable(table, "times", times, "s")
+        refuse_unresolvable(table, "positions", positions, "m")
         # the constructor's checks (increasing times, matching counts, speeds below c) name
         # the key they concern
         with table.errors_at("times" if len(positions) == len(times) else "positions"):
@@ -113,6 +116,9 @@ class PathMotion(RigidKinematics):
         v = self.d1(s.ravel())
         inv_g = np.sqrt(1.0 - np.sum(v * v, axis=1)).reshape(s.shape)
         return half * (inv_g @ weights)
+
+    def _shifted(self, dt_s, dx):
+        return replace(self, times=self.times - dt_s, positions=self.positions - dx)
 
     def _origin(self, s):
         s_first, s_last = self.knots[0], self.knots[-1]

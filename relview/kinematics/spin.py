@@ -3,12 +3,13 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
 
 from relview.kinematics.lorentz import C
+from relview.kinematics.magnitudes import read_position, read_time
 from relview.kinematics.uniform import UniformMotion
 from relview.kinematics.worldline import RigidKinematics, _rotation, _unit, _vec3
 
@@ -56,8 +57,11 @@ class SpinMotion(RigidKinematics):
         return cls(base=base, axis=table.vector("axis", 3, (0.0, 0.0, 1.0), nonzero=True),
                    angular_velocity=table.number("angular_velocity", unit="rad/s"),
                    center_offset=table.vector("center_offset", 3, (0.0, 0.0, 0.0), unit="m"),
-                   time=table.number("time", 0.0, unit="s"),
+                   time=read_time(table),
                    phase=table.number("phase", 0.0, unit="degrees"))
+
+    def _shifted(self, dt_s, dx):
+        return replace(self, base=self._base.shifted(dt_s, dx), time=self.time - dt_s)
 
     def _origin(self, s):
         return self._base._origin(s)
@@ -175,8 +179,11 @@ class RollingMotion(RigidKinematics):
         axis = table.vector("axis", 3, None, nonzero=True)
         with table.errors_at("axis"):  # the constructor checks the axis against beta
             return cls(radius=table.number("radius", positive=True, unit="m"), beta=beta,
-                       axis=axis, position=table.vector("position", 3, (0.0, 0.0, 0.0), unit="m"),
-                       time=table.number("time", 0.0, unit="s"))
+                       axis=axis, position=read_position(table),
+                       time=read_time(table))
+
+    def _shifted(self, dt_s, dx):
+        return replace(self, position=self.position - dx, time=self.time - dt_s)
 
     def contact_point(self) -> np.ndarray:
         """Body coordinates (m) of the point touching the ground at ``time``."""

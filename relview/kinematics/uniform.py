@@ -2,11 +2,12 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from relview.kinematics.lorentz import C, contract
+from relview.kinematics.magnitudes import read_position, read_time
 from relview.kinematics.solvers import inertial_light_delay
 from relview.kinematics.worldline import RigidKinematics, _as_points, _points_and_times, _vec3
 
@@ -40,8 +41,8 @@ class UniformMotion(RigidKinematics):
         table.check_keys(("kind", "beta", "position", "time"))
         return cls(
             beta=table.beta("beta"),
-            position=table.vector("position", 3, (0.0, 0.0, 0.0), unit="m"),
-            time=table.number("time", 0.0, unit="s"),
+            position=read_position(table),
+            time=read_time(table),
         )
 
     # Derived from the fields on every use, so a motion edited in a script stays consistent.
@@ -52,6 +53,9 @@ class UniformMotion(RigidKinematics):
     @property
     def gamma(self) -> float:
         return 1.0 / float(np.sqrt(1.0 - float(self.beta @ self.beta)))
+
+    def _shifted(self, dt_s, dx):
+        return replace(self, position=self.position - dx, time=self.time - dt_s)
 
     def inertial_frame(self) -> tuple[np.ndarray, np.ndarray]:
         return self.beta, np.concatenate([[self.s0], self.position])

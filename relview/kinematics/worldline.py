@@ -161,6 +161,22 @@ class RigidKinematics:
         s = np.atleast_1d(np.asarray(t_ct, dtype=float))
         return self._proper_time(s)[0]
 
+    def shifted(self, dt_s: float, dx_m) -> RigidKinematics:
+        """The same motion in coordinates whose origin is the scene event (dt_s s, dx_m m):
+        its event (t, x) becomes (t - dt_s, x - dx_m). The renderer solves each exposure in
+        coordinates centred on the exposure event, so that the result does not depend on
+        where the scene sits in time or space (relview.kinematics.magnitudes). Kinds shift
+        their own time and position fields (the subtraction of nearby values is exact);
+        this default wraps the motion instead, which keeps the meaning but not the
+        precision far from the origin."""
+        dx = np.asarray(dx_m, dtype=float).reshape(3)
+        if float(dt_s) == 0.0 and not np.any(dx):
+            return self
+        return self._shifted(float(dt_s), dx)
+
+    def _shifted(self, dt_s: float, dx: np.ndarray) -> RigidKinematics:
+        return _Translated(self, dt_s * C, dx)
+
     @classmethod
     def from_table(cls, table):
         """Build the motion from its scene-file table (a relview.scene.table.Table)."""
@@ -325,3 +341,28 @@ class RigidKinematics:
         return ""
 
 
+class _Translated(RigidKinematics):
+    """A motion seen from coordinates shifted by (dt_ct, dx): the fallback of
+    :meth:`RigidKinematics.shifted` for kinds that do not shift their own fields."""
+
+    def __init__(self, inner: RigidKinematics, dt_ct: float, dx: np.ndarray):
+        self.inner, self.dt_ct, self.dx = inner, dt_ct, dx
+        self.kind = inner.kind
+        self.is_inertial = inner.is_inertial
+
+    def inertial_frame(self):
+        beta, event = self.inner.inertial_frame()
+        return beta, np.asarray(event, float) - np.concatenate([[self.dt_ct], self.dx])
+
+    def _origin(self, s):
+        x, b, db = self.inner._origin(s + self.dt_ct)
+        return x - self.dx, b, db
+
+    def _proper_time(self, s):
+        return self.inner._proper_time(s + self.dt_ct)
+
+    def _attitude(self, s, relativistic=True):
+        return self.inner._attitude(s + self.dt_ct, relativistic)
+
+    def _sample_times(self):
+        return self.inner._sample_times() - self.dt_ct

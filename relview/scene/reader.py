@@ -32,6 +32,7 @@ from relview.errors import MeshError, SceneError
 from relview.geometry.camera import PROJECTIONS as projection_registry
 from relview.geometry.shapes import MAX_COORDINATE, MAX_DETAIL, SHAPES, load_mesh_file
 from relview.kinematics.lorentz import C
+from relview.kinematics.magnitudes import read_time, refuse_unresolvable
 from relview.kinematics.uniform import UniformMotion
 from relview.light.lamps import SPECTRUM_KEYS as LAMP_SPECTRUM_KEYS
 from relview.light.lamps import LampSpectrum
@@ -185,7 +186,7 @@ def _parse_camera(root: Table) -> Camera:
     t = root.table("camera", section="camera")
     t.check_keys(("position", "look_at", "direction", "up", "fov", "time", "beta", "projection",
                   "motion", "aim_at", "fit", "margin"))
-    time = t.number("time", 0.0, unit="s")
+    time = read_time(t)  # refuses times float64 cannot resolve (relview.kinematics.magnitudes)
     motion = None
     if t.has("motion"):
         # The camera rides any motion kind; its place and velocity follow the worldline.
@@ -198,6 +199,7 @@ def _parse_camera(root: Table) -> Camera:
         position = np.asarray(motion.state(np.zeros((1, 3)), C * time)[0][0], float)
     else:
         position = t.vector("position", 3, unit="m")
+        refuse_unresolvable(t, "position", position, "m")
     aim_at, fit, margin = _framing_keys(t)
     if t.has("look_at") == t.has("direction") and not (aim_at and not t.has("look_at")):
         both = t.has("look_at")
