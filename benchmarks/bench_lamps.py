@@ -1,0 +1,85 @@
+"""Lamp benchmark: the cost of one point lamp with shadows on the frame benchmark.
+
+Run (not part of pytest; the machine is shared, so run it when it is quiet):
+
+    python benchmarks/bench_lamps.py                # 960x540, 81 920-triangle sphere
+    python benchmarks/bench_lamps.py --repeats 5 --resolution 480x270
+
+Set-up: benchmarks/bench_frame.py's frame (an icosphere of detail 6 at 3.5 m, camera at
+rest, 60 degree field) with its surface made a grey ``color`` and a floor plate under it,
+rendered (a) with co-moving lamps only (no [[lamp]]: the frame without lamps) and (b) lit
+by one point lamp at rest with shadows (the sphere shadows the floor). Target:
+(b) / (a) <= 2. Prints median [min-max] seconds of each after one warm-up render.
+"""
+
+from __future__ import annotations
+
+import argparse
+import statistics
+import sys
+import time
+import tomllib
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+import bench_frame  # noqa: E402  (the frame benchmark's fixed set-up)
+
+TARGET_RATIO = 2.0
+
+LAMP = """
+[[lamp]]
+name = "bench"
+blackbody = 3000.0
+power = 2000.0
+[lamp.motion]
+position = [1.5, -2.0, 3.0]
+"""
+
+
+def scene_text(width: int, height: int, lit: bool) -> str:
+    """bench_frame's scene at rest, grey, on a floor; lit by LAMP or by co-moving lamps."""
+    own_lamp = "" if lit else "\nlamp = 3000.0"
+    text = bench_frame.scene_toml(0.0)
+    text = text.replace(f"resolution = [{bench_frame.WIDTH}, {bench_frame.HEIGHT}]",
+                        f"resolution = [{width}, {height}]")
+    text = text.replace(f"blackbody = {bench_frame.BLACKBODY_K!r}",
+                        "color = [0.6, 0.6, 0.6]" + own_lamp)
+    floor = ('\n[[body]]\nname = "floor"\nshape = "plane"\nsize = [20.0, 20.0]\n'
+             "[body.motion]\nposition = [0.0, 0.0, -1.2]\n"
+             f"[body.surface]\ncolor = [0.5, 0.5, 0.5]{own_lamp}\n")
+    return text + floor + (LAMP if lit else "")
+
+
+def timed(scene, repeats: int) -> list[float]:
+    import relview
+
+    relview.render(scene)  # warm-up: compiled kernels, colour tables
+    out = []
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        relview.render(scene)
+        out.append(time.perf_counter() - t0)
+    return out
+
+
+def main(argv=None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--repeats", type=int, default=3)
+    parser.add_argument("--resolution", default=f"{bench_frame.WIDTH}x{bench_frame.HEIGHT}")
+    args = parser.parse_args(argv)
+    width, height = (int(v) for v in args.resolution.split("x"))
+    import relview
+
+    medians = {}
+    for lit, label in ((False, "without lamps"), (True, "one point lamp, shadows")):
+        scene = relview.Scene.from_dict(tomllib.loads(scene_text(width, height, lit)))
+        runs = timed(scene, args.repeats)
+        medians[lit] = statistics.median(runs)
+        print(f"{label:26s} {medians[lit]:.3f} s [{min(runs):.3f}-{max(runs):.3f}]")
+    print(f"ratio {medians[True] / medians[False]:.2f} (target <= {TARGET_RATIO})")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
