@@ -244,3 +244,27 @@ def test_worker_mesh_copy_is_checked_by_content_in_a_private_directory(tmp_path)
     copy.write_bytes(planted)
     again = Path(farm._unpack_on_worker(bundle).bodies[0].file)
     assert hashlib.sha256(again.read_bytes()).hexdigest() == hashlib.sha256(data).hexdigest()
+
+
+def test_stale_temporaries_of_a_killed_write_are_removed_by_the_next_write(tmp_path):
+    # A write killed between creating its hidden temporary and the rename leaves
+    # ".NAME.XXXXXXXX.part" behind; the next write of that file removes it once it is old
+    # enough that no running write can own it, and leaves young or foreign files alone.
+    import os
+    import time
+
+    from relview.imaging.files import STALE_PART_AGE_S, atomic_write
+
+    stale = tmp_path / ".fig.png.0123abcd.part"
+    young = tmp_path / ".fig.png.89abcdef.part"
+    foreign = tmp_path / ".fig.png.notours.part"
+    other_target = tmp_path / ".other.png.0123abcd.part"
+    for f in (stale, young, foreign, other_target):
+        f.write_bytes(b"half a file")
+    old = time.time() - 2 * STALE_PART_AGE_S
+    for f in (stale, foreign, other_target):
+        os.utime(f, (old, old))
+    written = atomic_write(tmp_path / "fig.png", lambda fh: fh.write(b"png"))
+    assert written.read_bytes() == b"png"
+    assert not stale.exists()
+    assert young.exists() and foreign.exists() and other_target.exists()

@@ -14,10 +14,12 @@ Metadata (provenance) is stored as JSON: :func:`metadata_json` for the text,
 from __future__ import annotations
 
 import errno
+import glob
 import itertools
 import json
 import os
 import secrets
+import time
 from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any, BinaryIO
@@ -134,6 +136,28 @@ def _fsync_directory(directory: Path) -> None:
         os.close(fd)
 
 
+#: A hidden temporary (``.NAME.XXXXXXXX.part``) older than this is left over from a write
+#: that was killed (SIGKILL, power loss) and is removed by the next write of the same file;
+#: a younger one may belong to a write still running in another process (common practice:
+#: temporary-file cleaners work by age).
+STALE_PART_AGE_S = 3600.0
+
+
+def _remove_stale_parts(directory: Path, name: str) -> None:
+    """Delete this target's temporaries left behind by killed writes (older than
+    :data:`STALE_PART_AGE_S`); errors are ignored (another process may clean up too)."""
+    now = time.time()
+    for old in directory.glob(f".{glob.escape(name)}.*.part"):
+        rest = old.name[len(name) + 2: -len(".part")]
+        if len(rest) != 8 or any(c not in "0123456789abcdef" for c in rest):
+            continue  # not one of ours
+        try:
+            if now - old.stat().st_mtime > STALE_PART_AGE_S:
+                old.unlink()
+        except OSError:
+            pass
+
+
 def atomic_write(
     path: str | os.PathLike, write: Callable[[BinaryIO], None], overwrite: bool = False
 ) -> Path:
@@ -141,7 +165,8 @@ def atomic_write(
 
     The data go to a hidden temporary file in the target directory (created with
     the usual permissions, subject to the umask), which is flushed, fsynced and
-    then renamed into place. Any failure removes the temporary file; an OSError
+    then renamed into place; temporaries of the same file left by killed writes are
+    removed first (:data:`STALE_PART_AGE_S`). Any failure removes the temporary file; an OSError
     becomes :class:`OutputError` naming the path and the reason. A missing target
     directory is created.
     """
@@ -155,6 +180,7 @@ def atomic_write(
         ) from exc
     except OSError as exc:
         raise _output_error(final, exc) from exc
+    _remove_stale_parts(directory, final.name)
     tmp: Path | None = None
     try:
         while True:
