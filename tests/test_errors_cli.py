@@ -601,7 +601,14 @@ def test_path_values_that_crashed_the_loader(tmp_path, capsys, value, words):
 
 def test_huge_camera_coordinates_are_not_taken_for_look_at_equals_position(tmp_path, capsys):
     # |position|^2 overflowed to inf and the camera check called the two points equal.
+    # Positions beyond what float64 resolves to a metre are now refused as such (the
+    # picture depends only on differences), naming the position, never look_at.
     path = write_text(tmp_path, edit("position = [0.0, -6.0, 0.0]", "position = [0.0, -1e300, 0.0]"))
+    code, out, err = run(capsys, "check", path)
+    assert_user_error(code, err, str(path), "[camera] position", "too large to compute with")
+    assert "look_at" not in err and "equals the camera position" not in err
+    # large but resolvable coordinates still load, with look_at far from the camera
+    path = write_text(tmp_path, edit("position = [0.0, -6.0, 0.0]", "position = [0.0, -1e15, 0.0]"))
     code, out, err = run(capsys, "check", path)
     assert code == 0 and f"{path}: ok" in out, err
 

@@ -806,7 +806,7 @@ def test_exactly_one_of_look_at_and_direction(tmp_path):
     assert_names(
         err, "[camera] direction", "direction = [0.0, 1.0, 0.0]", line_of(text, "direction")
     )
-    assert "exactly one of look_at and direction" in str(err)
+    assert "exactly one of look_at, direction" in str(err)  # (and aim_at, the third way)
     text = replace(VALID, "look_at = [0.0, 0.0, 0.0]\n", "")
     err = error_of(tmp_path, text)
     assert "[camera]" in str(err) and "neither" in str(err) and err.line == 1
