@@ -12,6 +12,8 @@ Pipeline for one exposure event (docs/physics.md):
 
 from __future__ import annotations
 
+import hashlib
+from collections import OrderedDict
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -73,29 +75,113 @@ class Frame:
                 f"white {self.white:.4g} cd/m2, layers: {', '.join(self.layers)}>")
 
 
+#: Built scene geometry kept per process, most recently used last (at most this many
+#: scenes): renders, animations, sheets, probes and Dask workers in one process share it.
+GEOMETRY_CACHE_SIZE = 8
+_GEOMETRY_CACHE: OrderedDict[str, SceneGeometry] = OrderedDict()
+
+
+@dataclass
+class SceneGeometry:
+    """What a scene's bodies give before any exposure: rest-frame meshes, the inertial
+    frame groups with their hierarchies (built on first use, kept by the groups), and
+    the tracer over them when every body moves inertially. Read-only once built."""
+
+    meshes: list  # (vertices (V, 3), faces (F, 3)) per body, rest frame, rotation applied
+    uv: list  # (V, 2) per body, or None
+    other: list[int]  # bodies whose motion is not inertial (light-cone snapshots)
+    uniform_groups: list
+    uniform_tracer: Tracer | None
+
+
+def geometry_key(scene: Scene, effects: Effects) -> str:
+    """Digest of everything :class:`SceneGeometry` depends on: each body's mesh inputs
+    (shape, size, radius, height, detail, mesh file with its modification time and size,
+    scale, centring, rotation), whether its motion is inertial and then its rest frame
+    (velocity, origin event, origin time), and the effect switches. Scripts edit Scene
+    objects in place, so the key is the content, never the object's identity."""
+    h = hashlib.sha256(repr(sorted(vars(effects).items())).encode())
+
+    def add(*values):
+        for v in values:
+            h.update(np.asarray(v, float).tobytes() if isinstance(v, np.ndarray)
+                     else repr(v).encode())
+            h.update(b"|")
+
+    for body in scene.bodies:
+        file = getattr(body, "file", None)
+        stamp = None
+        if file is not None:
+            try:
+                st = Path(file).stat()
+                stamp = (str(Path(file).resolve()), st.st_mtime_ns, st.st_size)
+            except OSError:
+                stamp = str(file)  # mesh_data reports the problem
+        add(body.shape, _floats(body.size), body.radius, body.height, body.detail, stamp,
+            float(body.scale), bool(getattr(body, "center", True)), _floats(body.rotation))
+        motion = body.motion
+        if motion.is_inertial:
+            beta, event = motion.inertial_frame()
+            add("inertial", _floats(beta), _floats(event), getattr(motion, "time", None))
+        else:
+            add("snapshots")
+    return h.hexdigest()
+
+
+def _floats(value) -> np.ndarray | None:
+    return None if value is None else np.asarray(value, float)
+
+
+def scene_geometry(scene: Scene, effects: Effects) -> SceneGeometry:
+    """The scene's :class:`SceneGeometry`, from the per-process cache when a scene of the
+    same content (:func:`geometry_key`) was built before, else built and kept."""
+    key = geometry_key(scene, effects)
+    built = _GEOMETRY_CACHE.get(key)
+    if built is not None:
+        _GEOMETRY_CACHE.move_to_end(key)
+        return built
+    from relview.geometry import shapes
+
+    meshes, uv = [], []
+    for body in scene.bodies:
+        md = shapes.mesh_data(body)
+        meshes.append((md.vertices, md.faces))
+        uv.append(md.uv)
+    # inertial bodies are traced exactly in their rest frames; the others through
+    # light-cone snapshots rebuilt per exposure
+    uniform = [i for i, b in enumerate(scene.bodies) if b.motion.is_inertial]
+    other = [i for i in range(len(scene.bodies)) if i not in set(uniform)]
+    groups = uniform_groups(scene.bodies, meshes, effects, uniform)
+    built = SceneGeometry(meshes, uv, other, groups, Tracer(groups) if not other else None)
+    _GEOMETRY_CACHE[key] = built
+    while len(_GEOMETRY_CACHE) > GEOMETRY_CACHE_SIZE:
+        _GEOMETRY_CACHE.popitem(last=False)
+    return built
+
+
+def clear_geometry_cache() -> None:
+    """Forget every scene's built geometry (the next render builds it again)."""
+    _GEOMETRY_CACHE.clear()
+
+
 class RenderContext:
     """What a scene needs before any exposure: meshes and the uniform-motion hierarchies.
 
-    Reused across the frames of an animation, so hierarchies are built once.
+    Reused across the frames of an animation. The built parts come from the per-process
+    cache (:func:`scene_geometry`), so a new context for a scene of unchanged content,
+    as ``render(scene)`` makes on every call, builds nothing again; the context itself
+    holds only the state of the exposure being rendered.
     """
 
     def __init__(self, scene: Scene, effects: Effects | None = None):
-        from relview.geometry import shapes
-
         self.scene = scene
         self.effects = effects or scene.render.effects
-        self.meshes = []
-        self.uv = []
-        for body in scene.bodies:
-            md = shapes.mesh_data(body)
-            self.meshes.append((md.vertices, md.faces))
-            self.uv.append(md.uv)
-        # inertial bodies are traced exactly in their rest frames; the others through
-        # light-cone snapshots rebuilt per exposure
-        uniform = [i for i, b in enumerate(scene.bodies) if b.motion.is_inertial]
-        self.other = [i for i in range(len(scene.bodies)) if i not in uniform]
-        self.uniform_groups = uniform_groups(scene.bodies, self.meshes, self.effects, uniform)
-        self._uniform_tracer = Tracer(self.uniform_groups) if not self.other else None
+        built = scene_geometry(scene, self.effects)
+        self.meshes = built.meshes
+        self.uv = built.uv
+        self.other = built.other
+        self.uniform_groups = built.uniform_groups
+        self._uniform_tracer = built.uniform_tracer
 
     def pixel_centres(self, width: int, height: int) -> np.ndarray:
         """(H*W, 2) pixel-centre positions, kept across the frames of an animation."""
