@@ -60,6 +60,63 @@ def null_to_frame(k: np.ndarray, beta: np.ndarray, relativistic: bool = True):
     return 1.0 - bk, kp / np.linalg.norm(kp, axis=1)[:, None]
 
 
+def null_from_frame(k_rest: np.ndarray, beta: np.ndarray, relativistic: bool = True):
+    """The inverse of :func:`null_to_frame`: the unit S propagation direction (N,3) of a
+    photon whose direction in the frame moving with ``beta`` (N,3) is unit ``k_rest``
+    (N,3) (the frame's axes parallel to S's). Relativistic: the boost by -beta;
+    Galilean: the unit k with k - beta parallel to k_rest (light at c in S)."""
+    beta = np.broadcast_to(np.asarray(beta, float), k_rest.shape)
+    if relativistic:
+        return null_to_frame(k_rest, -beta, True)[1]
+    bk = np.sum(beta * k_rest, axis=1)
+    s = -bk + np.sqrt(bk * bk + 1.0 - np.sum(beta * beta, axis=1))
+    k = beta + s[:, None] * k_rest
+    return k / np.linalg.norm(k, axis=1)[:, None]
+
+
+def reflect_in_rest_frame(k_out: np.ndarray, beta_m: np.ndarray, normals: np.ndarray,
+                          effects: Effects) -> np.ndarray:
+    """(N,3) unit S propagation direction k_in of the light that a mirror moving with
+    beta_m (N,3), of rest-frame unit normals (N,3), reflects into the unit S direction
+    k_out (N,3): k_out boosted into the mirror's rest frame, its spatial part reflected
+    about the normal there (the law of reflection holds in the rest frame, the frequency
+    is kept), boosted back (Einstein 1905, section 8, whose formulas this reproduces:
+    tests/test_mirrors.py). Reflection is its own inverse, so the same map takes k_in to
+    k_out. ``aberration`` off reflects the S direction itself."""
+    rel = bool(effects.contraction)
+    if not effects.aberration:
+        return k_out - 2.0 * np.sum(k_out * normals, axis=1)[:, None] * normals
+    _, k_rest = null_to_frame(k_out, beta_m, rel)
+    k_rest = k_rest - 2.0 * np.sum(k_rest * normals, axis=1)[:, None] * normals
+    return null_from_frame(k_rest, beta_m, rel)
+
+
+def doppler_between(k: np.ndarray, beta_source: np.ndarray, beta_receiver: np.ndarray,
+                    effects: Effects) -> np.ndarray:
+    """(N,) D = frequency received / frequency sent of light propagating along unit S
+    directions k (N,3) from a source moving with beta_source to a receiver moving with
+    beta_receiver: gamma_r (1 - beta_r.k) / (gamma_s (1 - beta_s.k)) (Rybicki & Lightman
+    eq. 4.11 applied twice); without ``contraction`` the gammas are dropped."""
+    rel = bool(effects.contraction)
+    return null_to_frame(k, beta_receiver, rel)[0] / null_to_frame(k, beta_source, rel)[0]
+
+
+def mirror_directions(body, body_index: int, mesh, hits, sel: np.ndarray, viewer: np.ndarray,
+                      effects: Effects):
+    """(backward S directions (N,3) of the reflected rays, mirror velocities beta_m (N,3))
+    at the hits ``sel`` of mirror body ``body_index``, seen by rays that started at the
+    ``viewer`` events ((4,) or (N,4): the camera's exposure event, or the previous
+    mirror's hit events). The reflected ray is the backward null ray from each hit event
+    along -k_in of :func:`reflect_in_rest_frame`."""
+    events = hits.emit_event[sel]
+    beta_m = hits.beta_emit[sel]
+    normals = rest_normals(body, body_index, mesh, hits.face[sel], hits.bary[sel], events,
+                           beta_m, effects)
+    k_out = np.asarray(viewer, float)[..., 1:] - events[:, 1:]  # towards the viewer
+    k_out /= np.linalg.norm(k_out, axis=1)[:, None]
+    return -reflect_in_rest_frame(k_out, beta_m, normals, effects), beta_m
+
+
 def lamp_events(lamp: Lamp, events: np.ndarray, effects: Effects):
     """(L (N,4) [ct, x] m, beta_L (N,3)): the lamp centre's events whose light reaches each
     of the (N,4) ``events`` (the retarded solve of RigidKinematics.retarded, vectorised
@@ -249,14 +306,16 @@ def takes_lamps(surface) -> bool:
 def incident_light(scene, body_index: int, mesh, tracer: Tracer | None, hits, sel: np.ndarray,
                    camera_event: np.ndarray, effects: Effects, reference=None):
     """(Incident, incident D of the brightest lamp (N,), shadowed fraction (N,)) at the
-    hits ``sel`` of body ``body_index``: every lamp's light, for Surface.lit_xyz."""
+    hits ``sel`` of body ``body_index``: every lamp's light, for Surface.lit_xyz.
+    ``camera_event``: where the rays were received, (4,) or one (N,4) event per hit (a
+    mirror's hit events for surfaces seen in it)."""
     body = scene.bodies[body_index]
     events = hits.emit_event[sel]
     beta_s = hits.beta_emit[sel]
     normals = rest_normals(body, body_index, mesh, hits.face[sel], hits.bary[sel], events,
                            beta_s, effects)
     # two-sided: the normal on the camera's side, judged in the surface's rest frame
-    out = np.asarray(camera_event, float)[1:] - events[:, 1:]
+    out = np.asarray(camera_event, float)[..., 1:] - events[:, 1:]
     out /= np.linalg.norm(out, axis=1)[:, None]
     _, out_rest = null_to_frame(out, beta_s, bool(effects.contraction))
     normals = normals * np.where(np.sum(normals * out_rest, axis=1) < 0, -1.0, 1.0)[:, None]

@@ -444,13 +444,16 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
 
 
 def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
-          effects: Effects, layer_rows: slice | None = None) -> np.ndarray:
+          effects: Effects, layer_rows: slice | None = None, viewer: np.ndarray | None = None,
+          bounce: int = 0) -> np.ndarray:
     """(N, 3) observed XYZ of every hit (zeros on misses), one call per body's surface.
 
     Surfaces lit by the scene's lamps get their incident light from
     relview.illumination (shadow rays through the exposure's tracer,
     ``context.exposure``); ``layer_rows``: where these hits sit in the frame, to fill the
-    lamp layers (the first colour picture only)."""
+    lamp layers (the first colour picture only). Mirrors reflect the rays on
+    (:func:`mirror_xyz`): ``viewer`` (default the exposure event) is where the rays
+    started, (4,) or (N, 4), ``bounce`` how many reflections they made before."""
     out = np.zeros((len(doppler), 3))
     lit_scene = bool(scene.lamps) and illumination.scene_lit(scene)
     if lit_scene and layer_rows is not None:
@@ -470,12 +473,21 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
             uv = ((1 - w[:, 0] - w[:, 1])[:, None] * uvs[faces[:, 0]] + w[:, :1] * uvs[faces[:, 1]]
                   + w[:, 1:] * uvs[faces[:, 2]])
         rest = hits.rest_position[sel] if getattr(surface, "uses_position", True) else None
+        if getattr(surface, "mirror", False):
+            if bounce < surface.bounces:
+                seen_by = context.exposure[0] if viewer is None else viewer
+                out[sel] = mirror_xyz(scene, context, hits, i, sel, doppler[sel], effects,
+                                      seen_by[sel] if np.ndim(seen_by) == 2 else seen_by,
+                                      bounce)
+            continue
         if not (lit_scene and illumination.takes_lamps(surface)):
             out[sel] = surface.observed_xyz(doppler[sel], rest, uv, effects)
             continue
         if rest is None:
             rest = hits.rest_position[sel]
         camera_event, tracer, reference = context.exposure
+        if viewer is not None:  # seen in a mirror: received at the mirror's hit events
+            camera_event = viewer[sel] if np.ndim(viewer) == 2 else viewer
         incident, d_in, shadowed = illumination.incident_light(
             scene, i, context.meshes[i], tracer, hits, sel, camera_event, effects, reference)
         out[sel] = surface.lit_xyz(doppler[sel], rest, uv, effects, incident)
@@ -485,6 +497,34 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
             lamp_layers["shadowed_fraction"][rows] = shadowed
             lamp_layers["total_doppler"][rows] = d_in * doppler[sel]
     return out
+
+
+def mirror_xyz(scene: Scene, context: RenderContext, hits: Hits, body_index: int,
+               sel: np.ndarray, doppler: np.ndarray, effects: Effects, viewer: np.ndarray,
+               bounce: int) -> np.ndarray:
+    """(N, 3) XYZ a moving mirror shows at its hits ``sel`` (docs/physics.md, "Mirrors").
+
+    Each ray is reflected in the mirror's rest frame (relview.illumination) and cast on
+    as a backward null ray from the mirror's hit event through the exposure's tracer, so
+    what it meets is seen at its own retarded event. Its light reaches the camera with
+    D = D_in D_out: D_in from the source into the mirror's rest frame, where reflection
+    keeps the frequency and multiplies the radiance by R, and ``doppler`` = D_out from
+    the mirror to the camera (I_nu / nu^3 invariant along both legs, Rybicki & Lightman
+    ch. 4), which reproduces Einstein 1905, section 8 (tests/test_mirrors.py)."""
+    surface = scene.bodies[body_index].surface
+    _, tracer, reference = context.exposure
+    start = hits.emit_event[sel]
+    d_r, beta_m = illumination.mirror_directions(scene.bodies[body_index], body_index,
+                                                 context.meshes[body_index], hits, sel,
+                                                 viewer, effects)
+    seen = tracer.cast(start, d_r, effects, l_min=illumination.SHADOW_OFFSET_M,
+                       reference=reference)
+    hit = seen.body >= 0
+    d_total = np.full(len(sel), np.nan)
+    d_total[hit] = doppler[hit] * illumination.doppler_between(
+        -d_r[hit], seen.beta_emit[hit], beta_m[hit], effects)
+    col = shade(scene, context, seen, d_total, effects, viewer=start, bounce=bounce + 1)
+    return surface.reflectivity * col
 
 
 def _lamp_surface_pixels(surface, rest: np.ndarray) -> np.ndarray:

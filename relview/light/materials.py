@@ -771,6 +771,61 @@ _PATTERN_DEPTH: contextvars.ContextVar[int] = contextvars.ContextVar("pattern_de
 
 
 # --------------------------------------------------------------------------------------
+# Mirrors
+# --------------------------------------------------------------------------------------
+
+#: reflections a camera ray may make in a row when a mirror names no ``bounces``
+DEFAULT_BOUNCES = 2
+#: most reflections in a row a scene file may ask for
+MAX_BOUNCES = 8
+
+
+class Mirror(Surface):
+    """A specular mirror of reflectivity ``reflectivity`` (0..1, the same at every
+    wavelength) in the body's rest frame, emitting nothing itself.
+
+    The renderer (relview.renderer.shade, relview.illumination.mirror_directions) reflects
+    each camera ray in the mirror's rest frame and casts it on, backward in time, from the
+    mirror's hit event; what it meets is seen with the product of the Doppler factors of
+    both legs, times ``reflectivity`` (docs/physics.md, "Mirrors"). A ray already reflected
+    ``bounces`` times, counting this mirror, is not reflected again here: it sees black.
+    """
+
+    uses_position = False
+    uses_uv = False
+    #: the renderer reflects rays on this surface
+    mirror = True
+
+    def __init__(self, reflectivity: float = 1.0, bounces: int = DEFAULT_BOUNCES):
+        r = float(reflectivity)
+        if not (math.isfinite(r) and 0.0 <= r <= 1.0):
+            raise ValueError(f"mirror reflectivity must lie in 0..1, got {reflectivity!r}")
+        if int(bounces) != bounces or not 1 <= int(bounces) <= MAX_BOUNCES:
+            raise ValueError(f"mirror bounces must be an integer 1..{MAX_BOUNCES}, got {bounces!r}")
+        self.reflectivity = r
+        self.bounces = int(bounces)
+
+    @classmethod
+    def from_table(cls, table) -> Mirror:
+        """``mirror = R`` (reflectivity 0..1 in the rest frame), optional ``bounces``."""
+        r = table.number("mirror", low=0.0, high=1.0)
+        bounces = DEFAULT_BOUNCES
+        if table.has("bounces"):
+            bounces = table.integer("bounces", low=1, high=MAX_BOUNCES)
+        return cls(r, bounces)
+
+    def key(self):
+        return ("mirror", self.reflectivity, self.bounces)
+
+    def observed_xyz(self, doppler, rest_position=None, uv=None, effects=None) -> np.ndarray:
+        # its own light: none (what it reflects is added by the renderer)
+        return np.zeros((_as_doppler(doppler).size, 3))
+
+    def __repr__(self):
+        return f"Mirror(reflectivity={self.reflectivity!r}, bounces={self.bounces!r})"
+
+
+# --------------------------------------------------------------------------------------
 # Scene-file surface kinds
 # --------------------------------------------------------------------------------------
 
@@ -795,6 +850,7 @@ SURFACE_KINDS: dict[str, SurfaceKind] = {
     "spectrum": SurfaceKind(TabulatedSpectrum.from_table),
     "color": SurfaceKind(Reflective.from_table, ("lamp", "luminance", "texture")),
     "pattern": SurfaceKind(Pattern.from_table),
+    "mirror": SurfaceKind(Mirror.from_table, ("bounces",)),
 }
 
 
