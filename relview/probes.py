@@ -18,6 +18,13 @@ import numpy as np
 from relview import framing
 from relview.geometry import camera as cam_mod
 from relview.geometry.lightcone import DEFAULT_TOLERANCE, pixel_tolerance
+from relview.kinematics.clocks import (
+    camera_reading,
+    clock_coordinate,
+    reading_from_coordinate,
+    reference_times,
+    tick_rates,
+)
 from relview.kinematics.lorentz import C, aberrate_to_camera
 from relview.kinematics.magnitudes import check_time
 from relview.scene.model import Scene
@@ -37,6 +44,16 @@ class ProbeResult:
     doppler: float  # D = nu_observed / nu_emitted
     light_delay: float  # s, camera time minus emission time
     beta_emit: tuple[float, float, float]  # velocity / c of the point at emission
+    # the body's clock (relview.kinematics.clocks): its reading carried by the light
+    # (the reference point's proper time at the emission's rest-frame instant), s
+    proper_time: float = float("nan")
+    # how fast the camera sees that reading advance, per second of its own proper time
+    # (the Doppler factor for an inertial body)
+    tick_rate: float = float("nan")
+    # the clock's reading at the point's event at the exposure's scene time (one instant
+    # of the scene frame: the reading the Lorentz transformation gives), s
+    computed_proper_time: float = float("nan")
+    camera_proper_time: float = float("nan")  # the camera's own clock at the exposure, s
 
     def __getitem__(self, key):  # dict-style access as well as attributes
         return getattr(self, key)
@@ -66,6 +83,28 @@ def retarded_events(scene: Scene, body_index: int, points_rest: np.ndarray,
         motion = motion.shifted(reference[0], reference[1])
         cam = cam - np.concatenate([[C * reference[0]], reference[1]])
     return motion.retarded(p, cam, delay=effects.delay, contraction=effects.contraction)
+
+
+def clock_data(scene: Scene, body_index: int, points_rest: np.ndarray, emit_ct: np.ndarray,
+               propagation: np.ndarray, beta_cam: np.ndarray, effects: Effects, reference):
+    """The body clock as the camera sees it (relview.kinematics.clocks), for body points
+    (N, 3) in body axes whose light left at scene times ``emit_ct`` (N,) ct m relative to
+    the exposure event ``reference`` = (t s, x m), along unit ``propagation`` directions
+    (emitter -> camera, S): (reading carried by the light s, tick rate per second of
+    camera proper time, reading at the point's event at the exposure's scene time s)."""
+    body = scene.bodies[body_index]
+    p = np.atleast_2d(points_rest) @ body.rotation_matrix().T
+    motion = body.motion.shifted(reference[0], reference[1])  # times relative to the exposure
+    relativistic = effects.contraction
+    s_emit = reference_times(motion, p, emit_ct, relativistic)
+    seen = reading_from_coordinate(body.motion, body.clock,
+                                   clock_coordinate(motion, s_emit, relativistic)[0], relativistic)
+    rate = tick_rates(motion, p, s_emit, propagation, beta_cam, relativistic, effects.delay)
+    s_now = reference_times(motion, p, np.zeros(len(p)), relativistic)
+    computed = reading_from_coordinate(body.motion, body.clock,
+                                       clock_coordinate(motion, s_now, relativistic)[0],
+                                       relativistic)
+    return seen, rate, computed
 
 
 def probe_many(scene: Scene, body, points, time: float | None = None,
@@ -103,6 +142,9 @@ def probe_many(scene: Scene, body, points, time: float | None = None,
     tol = np.maximum(1e-6, 2.0 * snap_error) * np.maximum(dist, 1e-3)
     visible = hits.l >= dist - tol
     dop = doppler_along(beta_e, d_s, beta_cam, effects)  # of the point, not of what hides it
+    seen_clock, rate, computed = clock_data(scene, bi, pts, relative[:, 0], -d_s, beta_cam,
+                                            effects, reference)
+    cam_clock = camera_reading(scene.camera, t, effects.contraction)
     out = []
     name = scene.bodies[bi].name
     for i in range(len(pts)):
@@ -112,7 +154,9 @@ def probe_many(scene: Scene, body, points, time: float | None = None,
             pixel=(float(px[i, 0]), float(px[i, 1])), in_view=bool(in_view[i]),
             visible=bool(visible[i]), doppler=float(dop[i]),
             light_delay=float(-relative[i, 0] / C),
-            beta_emit=tuple(map(float, beta_e[i]))))
+            beta_emit=tuple(map(float, beta_e[i])), proper_time=float(seen_clock[i]),
+            tick_rate=float(rate[i]), computed_proper_time=float(computed[i]),
+            camera_proper_time=cam_clock))
     return out
 
 

@@ -27,6 +27,7 @@ from relview.imaging.display import to_8bit
 from relview.imaging.exposure import clipped_fraction, expose, exposure_white, metered_pixels
 from relview.imaging.formats import frame_format
 from relview.imaging.png import encode_png
+from relview.kinematics.clocks import body_readings, reading_from_coordinate
 from relview.kinematics.lorentz import C
 from relview.kinematics.magnitudes import check_time
 from relview.scene.model import Scene
@@ -350,6 +351,7 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
     layer_pos = np.empty((n_pix, 3))
     layer_rest = np.empty((n_pix, 3))
     layer_body = np.empty(n_pix, np.int64)
+    layer_clock = np.empty(n_pix)  # the body clock's reading at emission, s (NaN: sky)
     # the microwave sky's recorded blackbody temperature (K), NaN where a body is seen
     layer_temp = np.full(n_pix, np.nan) if scene.background.kind == "cmb" else None
     centres = context.pixel_centres(width, height)
@@ -402,6 +404,9 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
             xyz[a:b] = col
         elif s > first_colour:
             xyz[a:b] += col
+        if s == 0:
+            layer_clock[a:b] = body_readings(scene.bodies, hits.body, hits.clock,
+                                             effects.contraction)
         if s == 0 and a == 0 and b == n_pix:  # the whole frame in one batch: no copies
             layer_d, layer_body, layer_rest = dop, hits.body, hits.rest_position
             layer_t, layer_pos = hits.emit_event[:, 0].copy(), hits.emit_event[:, 1:]
@@ -434,6 +439,7 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
         "emit_position": layer_pos.reshape(height, width, 3),
         "rest_position": layer_rest.reshape(height, width, 3),
         "body": layer_body.reshape(height, width),
+        "proper_time": layer_clock.reshape(height, width),
     }
     if layer_temp is not None:
         layers["temperature"] = layer_temp.reshape(height, width)
@@ -480,8 +486,12 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
                                       seen_by[sel] if np.ndim(seen_by) == 2 else seen_by,
                                       bounce)
             continue
+        clock = {}  # the clock reading at emission, for surfaces that show it (clock faces)
+        if getattr(surface, "uses_proper_time", False):
+            clock["proper_time"] = reading_from_coordinate(body.motion, body.clock,
+                                                           hits.clock[sel], effects.contraction)
         if not (lit_scene and illumination.takes_lamps(surface)):
-            out[sel] = surface.observed_xyz(doppler[sel], rest, uv, effects)
+            out[sel] = surface.observed_xyz(doppler[sel], rest, uv, effects, **clock)
             continue
         if rest is None:
             rest = hits.rest_position[sel]
@@ -490,7 +500,7 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
             camera_event = viewer[sel] if np.ndim(viewer) == 2 else viewer
         incident, d_in, shadowed = illumination.incident_light(
             scene, i, context.meshes[i], tracer, hits, sel, camera_event, effects, reference)
-        out[sel] = surface.lit_xyz(doppler[sel], rest, uv, effects, incident)
+        out[sel] = surface.lit_xyz(doppler[sel], rest, uv, effects, incident, **clock)
         if layer_rows is not None:
             rows = np.arange(layer_rows.start, layer_rows.stop)[sel]
             lamp_layers["incident_doppler"][rows] = d_in

@@ -33,6 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from relview.geometry.trace import FrameGroup
+from relview.kinematics.clocks import clock_coordinate, reference_times
 from relview.kinematics.lorentz import C
 
 #: Default interpolation tolerance (radians as seen from the camera, and beta) when no
@@ -60,6 +61,31 @@ class Snapshot:
     beta: np.ndarray  # (V, 3) velocity / c at emission
     segments: int  # n for uniform n^2 splitting; 0 for adaptive refinement
     error: float  # measured interpolation error (see module docstring)
+    # (V, 2): the body clock (relview.kinematics.clocks.clock_coordinate, ct m) along each
+    # vertex's worldline near its emission, as a line in the emission time t (ct m):
+    # clock = c0 + r t, columns (c0, r) (see _vertex_clock)
+    clock: np.ndarray | None = None
+
+
+def _vertex_clock(kin, points, ev, effects) -> np.ndarray:
+    """(V, 2) (c0, r): the clock coordinate of the reference point at the rest-frame
+    instant of each vertex's events, to first order in their time t about the emission,
+    clock = c0 + r t, r = d clock/dt along the vertex's worldline (NaN: no emission).
+
+    The tracer blends c0 + r t_hit over the hit triangle with the hit's own emission time:
+    blending the vertices' clocks themselves would miss that a flat face's emission times
+    are not linear across it (the path lengths from the camera are not), an error of
+    about (face size)^2 / (2 distance c) whatever the tolerance."""
+    out = np.full((len(points), 2), np.nan)
+    ok = np.isfinite(ev[:, 0])
+    if np.any(ok):
+        s = reference_times(kin, points[ok], ev[ok, 0], effects.contraction)
+        value, rate = clock_coordinate(kin, s, effects.contraction)
+        _, dev = kin.events(points[ok], s, effects.contraction)
+        r = rate / dev[:, 0]
+        out[ok, 0] = value - r * ev[ok, 0]
+        out[ok, 1] = r
+    return out
 
 
 def _tessellation(n: int):
@@ -238,7 +264,8 @@ def snapshot(motion, vertices, faces, camera_event, effects, tolerance: float = 
         err = _uniform_error(kin, pts, ev, beta, sub, cam, effects, np.random.default_rng(0))
     keep = np.all(np.isfinite(ev[sub, 0]), axis=1)
     positions = np.where(np.isfinite(ev[:, 1:]), ev[:, 1:], 0.0)  # unused where NaN (faces dropped)
-    return Snapshot(positions, sub[keep], parent[keep], pts, bary, ev, beta, n, err)
+    return Snapshot(positions, sub[keep], parent[keep], pts, bary, ev, beta, n, err,
+                    _vertex_clock(kin, pts, ev, effects))
 
 
 def check_body_speed(scene, index: int, vertices) -> None:
@@ -313,6 +340,7 @@ def snapshot_groups(scene, meshes, indices, camera_event, effects, tolerance: fl
             vertex_body_coords=snap.body_coords @ rot,  # rest-frame axes -> body axes (R^T p)
             vertex_beta=snap.beta,
             vertex_bary=snap.bary,
+            vertex_clock=snap.clock,
             origin_time=t_ref,
         )
         group.snapshot = snap

@@ -41,6 +41,7 @@ import numpy as np
 from numba import njit, prange
 
 from relview.geometry import bvh as bvh_mod
+from relview.kinematics.clocks import clock_coordinate
 from relview.kinematics.lorentz import (
     C,
     boost_matrix,
@@ -73,6 +74,14 @@ class FrameGroup:
     # barycentric (u, v) in its original mesh face, interpolated the same way.
     vertex_beta: np.ndarray | None = None
     vertex_bary: np.ndarray | None = None
+    # Light-cone snapshots: per-vertex body clock (relview.kinematics.clocks) as a line in
+    # emission time, (V, 2) (c0, r): clock = c0 + r t; blended at the hit's own t (ct m,
+    # relative to the cast's reference event; relview.geometry.lightcone._vertex_clock).
+    vertex_clock: np.ndarray | None = None
+    # Rigid bodies: rest-frame time (ct' m, the time row of the frame map) at which each
+    # body's clock coordinate is zero, relative to origin_event; a hit's ct' minus this is
+    # the body's clock coordinate at emission. None: unknown (NaN clocks).
+    body_clock_offset: list[float] | None = None
     bvh: bvh_mod.BVH | None = None  # built on first use, kept while the group lives
     # Scene time (s) of origin_event when known: then the frame's origin is placed relative
     # to a cast's reference event as (origin_time - t_ref) c, which keeps its precision
@@ -93,6 +102,9 @@ class Hits:
     beta_emit: np.ndarray  # (N, 3) velocity of the emitting point in S (at emission)
     group: np.ndarray  # (N,) frame group index, -1 on a miss
     doppler: np.ndarray | None = None  # (N,) D (NaN on a miss), when cast with beta_cam
+    # (N,) ct m: the body clock's coordinate at the emission's rest-frame instant
+    # (relview.kinematics.clocks; readings from relview.kinematics.clocks.body_readings)
+    clock: np.ndarray | None = None
 
     @property
     def hit(self) -> np.ndarray:
@@ -208,12 +220,15 @@ def _cast_packets(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links,
 
 @njit(parallel=True, cache=True)
 def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_slot, g_origin,
-             g_matrix, g_beta, slot_offset, slot_rotation, beta_cam, relativistic):
-    """Per ray: body, face, emission event, body-frame hit point and emitter velocity.
+             g_matrix, g_beta, slot_offset, slot_rotation, slot_clock, beta_cam, relativistic):
+    """Per ray: body, face, emission event, body-frame hit point, emitter velocity and the
+    body clock's coordinate at emission.
 
     Rigid (uniform-motion) bodies map the frame hit point back to body axes through their
-    slot's offset and rotation; triangles with slot -1 (light-cone snapshots) leave the
-    body-frame point to the caller.
+    slot's offset and rotation; the clock coordinate is the hit's rest-frame time minus
+    that of the body's proper-time zero event (slot_clock): an inertial body's proper
+    time is its rest-frame time. Triangles with slot -1 (light-cone snapshots) leave the
+    body-frame point and the clock to the caller.
     """
     n = ray_d.shape[0]
     o_step = 0 if ray_o.shape[0] == 1 else 1  # one shared start event, or one per ray
@@ -226,6 +241,7 @@ def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_s
     rest = np.empty((n, 3))
     beta = np.empty((n, 3))
     doppler = np.empty(n)
+    clock = np.empty(n)
     g_cam = camera_gamma(beta_cam, relativistic)
     for i in prange(n):
         t = tri[i]
@@ -234,6 +250,7 @@ def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_s
             face[i] = -1
             group[i] = -1
             doppler[i] = np.nan
+            clock[i] = np.nan
             for a in range(4):
                 emit[i, a] = np.nan
             for a in range(3):
@@ -255,17 +272,22 @@ def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_s
         if s < 0:
             for a in range(3):  # a light-cone snapshot: the caller interpolates
                 rest[i, a] = np.nan
+            clock[i] = np.nan
             continue
         # hit point in the group frame (the emission event mapped like a start event),
         # relative to the body's origin there
         fx, fy, fz = _frame_origin(g_matrix[g], g_origin[g], emit, i)
+        m = g_matrix[g]
+        clock[i] = (m[0, 0] * (emit[i, 0] - g_origin[g, 0]) + m[0, 1] * (emit[i, 1] - g_origin[g, 1])
+                    + m[0, 2] * (emit[i, 2] - g_origin[g, 2])
+                    + m[0, 3] * (emit[i, 3] - g_origin[g, 3]) - slot_clock[s])
         rx = fx - slot_offset[s, 0]
         ry = fy - slot_offset[s, 1]
         rz = fz - slot_offset[s, 2]
         for a in range(3):  # R^T rel: frame axes -> body axes
             rest[i, a] = (slot_rotation[s, 0, a] * rx + slot_rotation[s, 1, a] * ry
                           + slot_rotation[s, 2, a] * rz)
-    return body, face, group, emit, rest, beta, doppler
+    return body, face, group, emit, rest, beta, doppler, clock
 
 
 class Tracer:
@@ -288,7 +310,7 @@ class Tracer:
             return
         # per packed triangle: scene body, face in the body's mesh, rigid-transform slot
         p = self.packed
-        body, local, slot, offs, rots = [], [], [], [], []
+        body, local, slot, offs, rots, clocks = [], [], [], [], [], []
         for g in groups:
             gface = g.bvh.face_id
             body.append(g.face_body[gface])
@@ -301,12 +323,15 @@ class Tracer:
             lookup = {b: first + j for j, b in enumerate(g.bodies)}
             offs.extend(g.body_offset)
             rots.extend(g.body_rotation)
+            clocks.extend(g.body_clock_offset if g.body_clock_offset is not None
+                          else [np.nan] * len(g.bodies))
             slot.append(np.array([lookup[b] for b in g.face_body[gface]], np.int64))
         self.tri_body = np.concatenate(body)
         self.tri_local = np.concatenate(local)
         self.tri_slot = np.concatenate(slot)
         self.slot_offset = np.array(offs, float).reshape(-1, 3)
         self.slot_rotation = np.array(rots, float).reshape(-1, 3, 3)
+        self.slot_clock = np.array(clocks, float).reshape(-1)
         self.g_origin = np.stack([np.asarray(g.origin_event, float) for g in groups])
         self.g_time = np.array([np.nan if g.origin_time is None else float(g.origin_time)
                                 for g in groups])
@@ -333,10 +358,12 @@ class Tracer:
         l, tri, u, v = kernel(ray_o, ray_d, k_time, g_origin, self.g_matrix, p.root,
                               p.nodes, p.links, p.tris, l_min)
         bc = np.zeros(3) if beta_cam is None else np.asarray(beta_cam, np.float64).reshape(3)
-        body, face, group, emit, rest, beta, doppler = _resolve(
+        body, face, group, emit, rest, beta, doppler, clock = _resolve(
             ray_o, ray_d, k_time, l, tri, p.tri_group, self.tri_body, self.tri_local,
             self.tri_slot, g_origin, self.g_matrix, self.g_beta, self.slot_offset,
-            self.slot_rotation, bc, bool(effects.contraction))
+            self.slot_rotation, self.slot_clock, bc, bool(effects.contraction))
+        # the snapshots' clocks take the emission times relative to the reference event
+        t_rel = emit[:, 0].copy() if any(g.vertex_clock is not None for g in self.groups) else None
         emit += ref  # back to scene-frame events for the caller
         for gi, g in enumerate(self.groups):
             if g.vertex_body_coords is None:
@@ -351,11 +378,14 @@ class Tracer:
             if g.vertex_beta is not None:  # velocity of the emitting point
                 beta[sel] = _interpolate(w, tri_v, g.vertex_beta)
                 doppler[sel] = doppler_along(beta[sel], ray_d[sel], bc, effects.contraction)
+            if g.vertex_clock is not None:  # the body clock at the emission's instant
+                line = _interpolate(w, tri_v, g.vertex_clock)
+                clock[sel] = line[:, 0] + line[:, 1] * t_rel[sel]
             if g.vertex_bary is not None:  # (u, v) in the original face, for UV lookups
                 face_uv = _interpolate(w, tri_v, g.vertex_bary)
                 u[sel], v[sel] = face_uv[:, 0], face_uv[:, 1]
         return Hits(body, face, np.stack([u, v], -1), l, emit, rest, beta, group,
-                    doppler if beta_cam is not None else None)
+                    doppler if beta_cam is not None else None, clock)
 
 
     def _centred_origins(self, first_event: np.ndarray, reference):
@@ -381,7 +411,8 @@ def _interpolate(weights: np.ndarray, tri_vertices: np.ndarray, values: np.ndarr
 def _empty_hits(n: int) -> Hits:
     return Hits(np.full(n, -1, np.int64), np.full(n, -1, np.int64), np.zeros((n, 2)),
                 np.full(n, np.inf), np.full((n, 4), np.nan), np.full((n, 3), np.nan),
-                np.full((n, 3), np.nan), np.full(n, -1, np.int64), np.full(n, np.nan))
+                np.full((n, 3), np.nan), np.full(n, -1, np.int64), np.full(n, np.nan),
+                np.full(n, np.nan))
 
 
 def uniform_groups(bodies, meshes, effects: Effects, indices=None) -> list[FrameGroup]:
@@ -404,11 +435,12 @@ def uniform_groups(bodies, meshes, effects: Effects, indices=None) -> list[Frame
         beta = np.array(key)
         m = frame_matrix(beta, effects)
         e0 = np.asarray(frames[members[0]][1], float)
-        verts, faces, fbody, flocal, offs, rots = [], [], [], [], [], []
+        verts, faces, fbody, flocal, offs, rots, clocks = [], [], [], [], [], [], []
         nv = 0
         for i in members:
             eb = np.asarray(frames[i][1], float)
-            off = (m @ (eb - e0))[1:]  # body origin, static in the frame
+            placed = m @ (eb - e0)
+            off = placed[1:]  # body origin, static in the frame
             rot = bodies[i].rotation_matrix()
             v, f = meshes[i]
             verts.append(off + np.asarray(v, float))
@@ -417,10 +449,13 @@ def uniform_groups(bodies, meshes, effects: Effects, indices=None) -> list[Frame
             flocal.append(np.arange(len(f), dtype=np.int64))
             offs.append(off)
             rots.append(rot)
+            # ct' of the clock's zero: the origin event's ct' less its clock coordinate there
+            zero = clock_coordinate(bodies[i].motion, eb[0], effects.contraction)[0][0]
+            clocks.append(float(placed[0] - zero))
             nv += len(v)
         group = FrameGroup(beta, e0, m, members, offs, rots, np.concatenate(fbody),
                            np.concatenate(flocal), np.concatenate(verts),
-                           np.concatenate(faces))
+                           np.concatenate(faces), body_clock_offset=clocks)
         t0 = getattr(bodies[members[0]].motion, "time", None)  # s, when e0 is at that time
         group.origin_time = float(t0) if t0 is not None and C * float(t0) == e0[0] else None
         groups.append(group)

@@ -44,6 +44,16 @@ class RenderSettings:
 
 
 @dataclass
+class Clock:
+    """The setting of a clock carried by a body's reference point (or the camera): it
+    reads ``reading`` seconds at the reference point's event at scene time ``time`` s and
+    then advances with that point's proper time (relview.kinematics.clocks)."""
+
+    reading: float = 0.0  # s
+    time: float = 0.0  # s, scene time of the setting event
+
+
+@dataclass
 class Camera:
     position: np.ndarray  # (3,) m, scene frame, at the exposure event
     look_at: np.ndarray | None = None  # (3,) m
@@ -62,6 +72,7 @@ class Camera:
     aim_at: tuple[str, ...] = ()
     fit: tuple[str, ...] = ()
     margin: float = 0.15
+    clock: Clock = field(default_factory=Clock)  # the camera's own clock setting
 
     def forward(self) -> np.ndarray:
         if self.direction is not None:
@@ -98,6 +109,7 @@ class Body:
     detail: int | None = None  # tessellation level of curved primitives
     source_key: str = ""  # where in the scene file this body came from, for messages
     center: bool = True  # mesh: shift the file's bounding-box centre onto the body origin
+    clock: Clock = field(default_factory=Clock)  # the body's clock setting (proper_time layer)
 
     def rotation_matrix(self) -> np.ndarray:
         """Rest-frame orientation: body axes -> rest-frame axes (x, then y, then z turns)."""

@@ -43,6 +43,7 @@ from relview.scene.parts import (
     Background,
     Body,
     Camera,
+    Clock,
     Effects,
     Lamp,
     RenderSettings,
@@ -185,7 +186,7 @@ def _unit(v: np.ndarray) -> np.ndarray:
 def _parse_camera(root: Table) -> Camera:
     t = root.table("camera", section="camera")
     t.check_keys(("position", "look_at", "direction", "up", "fov", "time", "beta", "projection",
-                  "motion", "aim_at", "fit", "margin"))
+                  "motion", "aim_at", "fit", "margin", "clock"))
     time = read_time(t)  # refuses times float64 cannot resolve (relview.kinematics.magnitudes)
     motion = None
     if t.has("motion"):
@@ -276,7 +277,18 @@ def _parse_camera(root: Table) -> Camera:
         aim_at=aim_at,
         fit=fit,
         margin=margin,
+        clock=_parse_clock(t, "camera.clock"),
     )
+
+
+def _parse_clock(t: Table, section: str) -> Clock:
+    """``[body.clock]`` / ``[camera.clock]``: the clock reads ``reading`` s at the reference
+    point's event at scene time ``time`` s (relview.kinematics.clocks)."""
+    c = t.table("clock", None, section=section)
+    if c is None:
+        return Clock()
+    c.check_keys(("reading", "time"))
+    return Clock(reading=read_time(c, "reading"), time=read_time(c, "time"))
 
 
 def _body_names(t: Table, key: str) -> tuple[str, ...]:
@@ -335,7 +347,7 @@ _SHAPE_KEYS = {
     "plane": ("size",),
     "mesh": ("file", "scale", "center"),
 }
-_BODY_COMMON = ("name", "shape", "rotation", "motion", "surface")
+_BODY_COMMON = ("name", "shape", "rotation", "motion", "surface", "clock")
 
 
 def _parse_body(t: Table, index: int, seen: dict[str, int]) -> Body:
@@ -390,6 +402,7 @@ def _parse_body(t: Table, index: int, seen: dict[str, int]) -> Body:
 
     body.motion = _parse_motion(t)
     body.surface = _parse_surface(t)
+    body.clock = _parse_clock(t, "body.clock")
     return body
 
 
