@@ -207,3 +207,92 @@ def test_proper_time_layer_matches_the_exact_probe(kind):
     else:
         assert np.all(err <= 1.5 * pixel_tolerance(scene) * delay)
     assert np.all(np.isfinite(layer[seen]))
+
+
+# ----------------------------------------------------------------- the clock face
+
+
+def _decode_digits(face, reading, n_cells):
+    """Read the seven-segment display of a ClockFace back by sampling each segment's
+    middle (segment layout a-g, common practice for numeric displays)."""
+    from relview.light.materials import _SEGMENTS
+
+    pitch, width = 0.21, 0.16
+    left = -0.5 * (n_cells * pitch - (pitch - width))
+    mids = [(0.5, 1.95), (0.95, 1.5), (0.95, 0.5), (0.5, 0.05), (0.05, 0.5), (0.05, 1.5),
+            (0.5, 1.0)]
+    shown = []
+    for cell in range(n_cells):
+        pts = []
+        for x, y in mids:
+            a = left + cell * pitch + x * width
+            b = -0.62 + y * 0.16
+            pts.append([0.0, a * face.radius, b * face.radius])
+        lit = face.ink_mask(np.array(pts), np.full(7, reading))
+        if cell == 0:
+            shown.append("-" if lit[6] and not lit[0] else "")
+            continue
+        match = [d for d in range(10) if np.array_equal(_SEGMENTS[d], lit)]
+        shown.append(str(match[0]) if match else "?")
+    return "".join(shown)
+
+
+def test_clock_face_hand_and_digits():
+    from relview.light.materials import ClockFace
+
+    face = ClockFace(period=1e-7, phase=0.0, radius=1.0, axes=(1, 2), unit=1e-9, digits=3)
+    up, right = np.array([[0.0, 0.0, 0.5]]), np.array([[0.0, 0.5, 0.0]])
+    # the hand turns clockwise from axis j (here z) towards axis i (y): a quarter period
+    # later it points along +y
+    assert face.ink_mask(up, [0.0])[0] and not face.ink_mask(right, [0.0])[0]
+    assert face.ink_mask(right, [2.5e-8])[0] and not face.ink_mask(up, [2.5e-8])[0]
+    assert _decode_digits(face, 47.3e-9, 4) == "047"
+    assert _decode_digits(face, 912e-9, 4) == "912"
+    assert _decode_digits(face, -5.5e-9, 4) == "-006"  # floor: whole units elapsed
+
+
+def test_clock_face_keys_are_checked():
+    motion = {"kind": "uniform"}
+    scene = scene_from_dict({"camera": {"position": [0, 0, 0], "look_at": [0, 1, 0]},
+                             "body": [{"name": "c", "shape": "box", "size": [1, 1, 1],
+                                       "motion": motion,
+                                       "surface": {"clock_face": {"period": 2e-8}}}]})
+    assert scene.bodies[0].surface.period == 2e-8
+    for bad, key in (({"period": -1.0}, "period"), ({"axes": [1, 1]}, "axes"),
+                     ({"hand": 1.0}, "hand")):
+        with pytest.raises(SceneError, match=key):
+            scene_from_dict({"camera": {"position": [0, 0, 0], "look_at": [0, 1, 0]},
+                             "body": [{"name": "c", "shape": "box", "size": [1, 1, 1],
+                                       "surface": {"clock_face": bad}}]})
+
+
+def test_rendered_clock_face_runs_three_times_fast_head_on():
+    # a clock face approaching head-on at 0.8c: the readings its pixels carry advance
+    # 3 s per camera second (Einstein 1905, section 7), and the dial drawn is the one
+    # those readings give (ink where the face's own mask puts it, darker than the face)
+    from relview.light.materials import ClockFace
+
+    motion = {"kind": "uniform", "beta": [0.0, -0.8, 0.0], "position": [0.0, 40.0, 0.0]}
+    scene = scene_from_dict({
+        "camera": {"position": [0, 0, 0], "look_at": [0, 1, 0], "fov": 0.5},
+        "body": [{"name": "c", "shape": "box", "size": [1.0, 0.05, 1.0], "motion": motion,
+                  "surface": {"clock_face": {"period": 4e-8, "radius": 0.5, "axes": [0, 2],
+                                             "face": {"blackbody": 5000.0},
+                                             "ink": {"blackbody": 5000.0, "scale": 0.01}}}}],
+        "render": {"resolution": [64, 64], "exposure": 1e9}})
+    frames = [render(scene, time=t) for t in (0.0, 1e-8)]
+    means = []
+    for f in frames:
+        seen = f.layers["body"] == 0
+        assert seen.sum() > 500
+        means.append(np.mean(f.layers["proper_time"][seen]))
+        face = scene.bodies[0].surface
+        assert isinstance(face, ClockFace)
+        ink = face.ink_mask(f.layers["rest_position"][seen], f.layers["proper_time"][seen])
+        y = f.layers["xyz"][seen][:, 1]
+        assert 0.05 < ink.mean() < 0.6
+        assert y[ink].max() < 0.05 * y[~ink].min()
+    # the two means are over different pixel sets (the face grows as it nears): points
+    # 0.5 m off the axis at ~190 m have paths longer by r^2 / 2d = 0.7 mm, 2e-12 s, so
+    # the means agree with 3 to about 1e-4
+    assert (means[1] - means[0]) / 1e-8 == pytest.approx(3.0, rel=2e-4)

@@ -87,6 +87,10 @@ def cmd_probe(args) -> int:
             ("visible", "yes" if r.visible else "no (hidden)"),
             ("Doppler factor D", f"{r.doppler:.6g}"),
             ("beta at emission", "(%.6g, %.6g, %.6g)" % r.beta_emit),
+            ("clock reading seen", f"{r.proper_time:.9g} s"),
+            ("tick rate seen", f"{r.tick_rate:.6g} s per camera s"),
+            ("clock, computed", f"{r.computed_proper_time:.9g} s (at the exposure's scene time)"),
+            ("camera clock", f"{r.camera_proper_time:.9g} s"),
         ]
         width = max(len(k) for k, _ in rows)
         if i:

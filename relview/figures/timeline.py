@@ -57,6 +57,13 @@ COLUMNS: dict[str, tuple[str, str]] = {
     "in_view": ("", "the projection has an image of the direction (pixel may be off-image)"),
     "visible": ("", "no surface hides the point"),
     "doppler": ("", "Doppler factor D = nu_observed / nu_emitted"),
+    "proper_time_s": ("s", "the body clock's reading carried by the light (seen)"),
+    "tick_rate": ("", "d(seen reading) / d(camera proper time): how fast the clock is seen to run"),
+    "computed_proper_time_s": (
+        "s",
+        "the body clock's reading at the point's event at the exposure's scene time (computed)",
+    ),
+    "camera_proper_time_s": ("s", "the camera's own clock at the exposure"),
 }
 
 #: Columns of the length table (two points).
@@ -214,6 +221,10 @@ def probe_table(
                     "in_view": r.in_view,
                     "visible": r.visible,
                     "doppler": r.doppler,
+                    "proper_time_s": r.proper_time,
+                    "tick_rate": r.tick_rate,
+                    "computed_proper_time_s": r.computed_proper_time,
+                    "camera_proper_time_s": r.camera_proper_time,
                 }
             )
         if len(pts) == 2:
@@ -385,14 +396,14 @@ def _time_unit(times: np.ndarray) -> tuple[str, float]:
 
 
 def draw_table(table: ProbeTable):
-    """A matplotlib Figure: apparent direction, Doppler factor, light delay (and the
-    photographed length with rest and contracted lengths) against exposure time.
+    """A matplotlib Figure: apparent direction, Doppler factor, light delay, the clock
+    readings (seen, computed, camera) (and the photographed length with rest and contracted lengths) against exposure time.
     Hollow markers: the point is hidden or out of view."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
     from matplotlib.ticker import FuncFormatter
 
-    n_ax = 4 if table.length else 3
+    n_ax = 5 if table.length else 4
     fig = Figure(figsize=(7.0, 2.2 * n_ax + 0.6), dpi=100)
     FigureCanvasAgg(fig)
     axes = fig.subplots(n_ax, 1, sharex=True)
@@ -433,9 +444,10 @@ def draw_table(table: ProbeTable):
     )
     axes[1].axhline(1.0, color="0.6", lw=0.8)
     axes[2].set_ylabel("light delay (ns)")
+    _draw_clocks(axes[3], table, f, unit)
     if table.length:
         t = table.length_column("time_s") / f
-        ax = axes[3]
+        ax = axes[4]
         ax.plot(
             t,
             table.length_column("photographed_length_m"),
@@ -466,6 +478,27 @@ def draw_table(table: ProbeTable):
     return fig
 
 
+def _draw_clocks(ax, table: ProbeTable, f: float, unit: str) -> None:
+    """Clock readings against exposure time: each point's seen reading (the light's), the
+    computed reading at the exposure's scene time, and the camera's own clock; all in the
+    time axis' unit, so a slope of 1 is one second per second."""
+    if "proper_time_s" not in table.rows[0]:  # a table written before clocks existed
+        ax.set_visible(False)
+        return
+    for k in table.points:
+        t = table.column("time_s", k) / f
+        colour = f"C{k % 10}"
+        ax.plot(t, table.column("proper_time_s", k).astype(float) / f, "-", color=colour,
+                label=f"point {k} seen")
+        ax.plot(t, table.column("computed_proper_time_s", k).astype(float) / f, "--",
+                color=colour, label=f"point {k} computed (one instant)")
+    t = table.column("time_s", table.points[0]) / f
+    ax.plot(t, table.column("camera_proper_time_s", table.points[0]).astype(float) / f, ":",
+            color="0.3", label="camera clock")
+    ax.set_ylabel(f"clock reading ({unit})")
+    ax.legend(fontsize="x-small", ncol=2)
+
+
 def write_plot(table: ProbeTable, path, overwrite: bool = False) -> tuple[Path, Path]:
     """Draw the table (format by extension: .png, .pdf, .svg) with provenance metadata and
     a JSON sidecar. Returns (plot path, sidecar path)."""
@@ -480,7 +513,8 @@ def write_plot(table: ProbeTable, path, overwrite: bool = False) -> tuple[Path, 
 
 def format_rows(table: ProbeTable) -> str:
     """A compact text table for the terminal."""
-    head = ("time_s", "pt", "emit_time_s", "az_deg", "el_deg", "pixel_x", "pixel_y", "seen", "D")
+    head = ("time_s", "pt", "emit_time_s", "az_deg", "el_deg", "pixel_x", "pixel_y", "seen", "D",
+            "clock_seen_s", "tick_rate", "clock_comp_s", "camera_s")
     lines = ["  ".join(f"{h:>12}" for h in head)]
     for r in table.rows:
         seen = "yes" if (r["visible"] and r["in_view"]) else "no"
@@ -494,6 +528,10 @@ def format_rows(table: ProbeTable) -> str:
             f"{r['pixel_y']:.2f}",
             seen,
             f"{r['doppler']:.5g}",
+            f"{r['proper_time_s']:.6g}",
+            f"{r['tick_rate']:.5g}",
+            f"{r['computed_proper_time_s']:.6g}",
+            f"{r['camera_proper_time_s']:.6g}",
         )
         lines.append("  ".join(f"{v:>12}" for v in vals))
     if table.length:
