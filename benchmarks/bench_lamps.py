@@ -1,4 +1,5 @@
-"""Lamp benchmark: the cost of one point lamp with shadows on the frame benchmark.
+"""Lamp and mirror benchmark: the cost of one point lamp with shadows, and of one mirror
+bounce, on the frame benchmark.
 
 Run (not part of pytest; the machine is shared, so run it when it is quiet):
 
@@ -7,14 +8,17 @@ Run (not part of pytest; the machine is shared, so run it when it is quiet):
 
 Set-up: benchmarks/bench_frame.py's frame (an icosphere of detail 6 at 3.5 m, camera at
 rest, 60 degree field) with its surface made a grey ``color`` and a floor plate under it,
-rendered (a) with co-moving lamps only (no [[lamp]]: the frame without lamps) and (b) lit
-by one point lamp at rest with shadows (the sphere shadows the floor). Target:
-(b) / (a) <= 2. Prints median [min-max] seconds of each after one warm-up render.
+rendered (a) with co-moving lamps only (no [[lamp]]: the frame without lamps), (b) lit
+by one point lamp at rest with shadows (the sphere shadows the floor), and (c) as (a)
+with the floor a mirror (``mirror = 0.9``: every floor pixel casts one reflected ray, most
+of which see the sphere). Targets: (b) / (a) <= 2 and (c) / (a) <= 2.5. Prints median
+[min-max] seconds of each after one warm-up render, the ratios and the load average.
 """
 
 from __future__ import annotations
 
 import argparse
+import os
 import statistics
 import sys
 import time
@@ -26,6 +30,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 import bench_frame  # noqa: E402  (the frame benchmark's fixed set-up)
 
 TARGET_RATIO = 2.0
+#: one mirror bounce against the frame without (issue 10)
+TARGET_MIRROR_RATIO = 2.5
 
 LAMP = """
 [[lamp]]
@@ -37,8 +43,9 @@ position = [1.5, -2.0, 3.0]
 """
 
 
-def scene_text(width: int, height: int, lit: bool) -> str:
-    """bench_frame's scene at rest, grey, on a floor; lit by LAMP or by co-moving lamps."""
+def scene_text(width: int, height: int, lit: bool, mirror: bool = False) -> str:
+    """bench_frame's scene at rest, grey, on a floor; lit by LAMP or by co-moving lamps;
+    ``mirror``: the floor a mirror (co-moving lamps)."""
     own_lamp = "" if lit else "\nlamp = 3000.0"
     text = bench_frame.scene_toml(0.0)
     text = text.replace(f"resolution = [{bench_frame.WIDTH}, {bench_frame.HEIGHT}]",
@@ -47,7 +54,8 @@ def scene_text(width: int, height: int, lit: bool) -> str:
                         "color = [0.6, 0.6, 0.6]" + own_lamp)
     floor = ('\n[[body]]\nname = "floor"\nshape = "plane"\nsize = [20.0, 20.0]\n'
              "[body.motion]\nposition = [0.0, 0.0, -1.2]\n"
-             f"[body.surface]\ncolor = [0.5, 0.5, 0.5]{own_lamp}\n")
+             "[body.surface]\n"
+             + ("mirror = 0.9\n" if mirror else f"color = [0.5, 0.5, 0.5]{own_lamp}\n"))
     return text + floor + (LAMP if lit else "")
 
 
@@ -72,12 +80,17 @@ def main(argv=None) -> int:
     import relview
 
     medians = {}
-    for lit, label in ((False, "without lamps"), (True, "one point lamp, shadows")):
-        scene = relview.Scene.from_dict(tomllib.loads(scene_text(width, height, lit)))
+    cases = (("bare", False, False, "without lamps"), ("lamp", True, False, "one point lamp, shadows"),
+             ("mirror", False, True, "mirror floor, one bounce"))
+    for key, lit, mirror, label in cases:
+        scene = relview.Scene.from_dict(tomllib.loads(scene_text(width, height, lit, mirror)))
         runs = timed(scene, args.repeats)
-        medians[lit] = statistics.median(runs)
-        print(f"{label:26s} {medians[lit]:.3f} s [{min(runs):.3f}-{max(runs):.3f}]")
-    print(f"ratio {medians[True] / medians[False]:.2f} (target <= {TARGET_RATIO})")
+        medians[key] = statistics.median(runs)
+        print(f"{label:26s} {medians[key]:.3f} s [{min(runs):.3f}-{max(runs):.3f}]")
+    print(f"lamp ratio {medians['lamp'] / medians['bare']:.2f} (target <= {TARGET_RATIO})")
+    print(f"mirror ratio {medians['mirror'] / medians['bare']:.2f} "
+          f"(target <= {TARGET_MIRROR_RATIO})")
+    print("load average (1, 5, 15 min): " + " ".join(f"{v:.2f}" for v in os.getloadavg()))
     return 0
 
 
