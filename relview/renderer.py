@@ -22,7 +22,7 @@ import numpy as np
 from relview import framing, illumination
 from relview.geometry import camera as cam_mod
 from relview.geometry.shapes import free_memory, mesh_bytes
-from relview.geometry.trace import Hits, Tracer, uniform_groups
+from relview.geometry.trace import Hits, Tracer, frame_matrix, uniform_groups
 from relview.imaging.display import to_8bit
 from relview.imaging.exposure import clipped_fraction, expose, exposure_white, metered_pixels
 from relview.imaging.formats import frame_format
@@ -93,6 +93,9 @@ class SceneGeometry:
     other: list[int]  # bodies whose motion is not inertial (light-cone snapshots)
     uniform_groups: list
     uniform_tracer: Tracer | None
+    # bodies with an inside (inertial, not planes): scene index, frame map (K, 4, 4),
+    # rest-frame origin event (K, 4), mesh bounds (K, 3) each; for bodies_around_camera
+    enclosing: tuple | None = None
 
 
 def geometry_key(scene: Scene, effects: Effects) -> str:
@@ -154,6 +157,14 @@ def scene_geometry(scene: Scene, effects: Effects) -> SceneGeometry:
     other = [i for i in range(len(scene.bodies)) if i not in set(uniform)]
     groups = uniform_groups(scene.bodies, meshes, effects, uniform)
     built = SceneGeometry(meshes, uv, other, groups, Tracer(groups) if not other else None)
+    solid = [i for i in uniform if scene.bodies[i].shape != "plane"]
+    frames = [scene.bodies[i].motion.inertial_frame() for i in solid]
+    built.enclosing = (
+        np.array(solid, np.int64),
+        np.array([frame_matrix(np.asarray(b, float), effects) for b, _ in frames]).reshape(-1, 4, 4),
+        np.array([np.asarray(e, float) for _, e in frames]).reshape(-1, 4),
+        np.array([meshes[i][0].min(axis=0) for i in solid]).reshape(-1, 3),
+        np.array([meshes[i][0].max(axis=0) for i in solid]).reshape(-1, 3))
     _GEOMETRY_CACHE[key] = built
     while len(_GEOMETRY_CACHE) > GEOMETRY_CACHE_SIZE:
         _GEOMETRY_CACHE.popitem(last=False)
@@ -183,6 +194,7 @@ class RenderContext:
         self.other = built.other
         self.uniform_groups = built.uniform_groups
         self._uniform_tracer = built.uniform_tracer
+        self.enclosing = built.enclosing
 
     def pixel_centres(self, width: int, height: int) -> np.ndarray:
         """(H*W, 2) pixel-centre positions, kept across the frames of an animation."""
@@ -253,19 +265,22 @@ def bodies_around_camera(scene: Scene, context: RenderContext,
     without contraction, the tracer uses), where the body is its static rest-frame
     mesh; the point is tested with trimesh's ray-parity ``contains``. Being inside a
     rigid body's world tube does not depend on the frame. Open meshes and planes have
-    no inside and are skipped.
+    no inside and are skipped. The maps and mesh bounds come with the context
+    (SceneGeometry.enclosing), and one vectorised test over every body (its bounds
+    widened by a part in 1e9) leaves the few whose bounds may hold the event.
     """
-    from relview.geometry.trace import frame_matrix
-
+    index, matrices, origins, lo, hi = context.enclosing
+    event = np.asarray(camera_event, float)
+    x_all = np.einsum("kij,kj->ki", matrices, event - origins)[:, 1:]
+    slack = 1e-9 * (np.abs(x_all) + (hi - lo))
+    near = np.all((x_all >= lo - slack) & (x_all <= hi + slack), axis=1)
     inside = []
-    for i, body in enumerate(scene.bodies):
-        if not body.motion.is_inertial or body.shape == "plane":
-            continue
-        beta, origin = body.motion.inertial_frame()
-        m = frame_matrix(np.asarray(beta, float), context.effects)
-        x = (m @ (np.asarray(camera_event, float) - origin))[1:]
+    for k in np.nonzero(near)[0]:
+        i = int(index[k])
+        body = scene.bodies[i]
+        x = (matrices[k] @ (event - origins[k]))[1:]
         vertices, faces = context.meshes[i]
-        if np.any(x < vertices.min(axis=0)) or np.any(x > vertices.max(axis=0)):
+        if np.any(x < lo[k]) or np.any(x > hi[k]):
             continue
         import trimesh
 
@@ -466,10 +481,8 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
         if layer_rows.start == 0:  # a new frame (pixel_centres holds its size)
             context._lamp_layers = illumination.LampLayers(int(np.prod(context._centres_size)))
         lamp_layers = context._lamp_layers.values
-    for i, body in enumerate(scene.bodies):
-        sel = np.nonzero(hits.body == i)[0]
-        if len(sel) == 0:
-            continue
+    for i, sel in rows_by_body(hits.body):
+        body = scene.bodies[i]
         surface = body.surface
         uv = None
         if context.uv[i] is not None and getattr(surface, "uses_uv", True):
@@ -551,15 +564,24 @@ def _lamp_surface_pixels(surface, rest: np.ndarray) -> np.ndarray:
     return np.full(len(rest), bool(own))
 
 
+def rows_by_body(body: np.ndarray) -> list[tuple[int, np.ndarray]]:
+    """(body index, its rows in ascending order) for every body that ``body`` (N,) names
+    (-1: none): one sort instead of a pass over all rows per body of the scene."""
+    seen = np.nonzero(body >= 0)[0]
+    order = seen[np.argsort(body[seen], kind="stable")]
+    index, starts = np.unique(body[order], return_index=True)
+    return list(zip(index.tolist(), np.split(order, starts[1:]))) if len(order) else []
+
+
 def lamp_pixels(scene: Scene, body_layer: np.ndarray, rest_layer: np.ndarray) -> np.ndarray:
     """(H, W) bool: pixels that see a lamp, i.e. a self-luminous surface (automatic
     exposure leaves them out; docs/colour.md). ``body_layer`` (H, W) body indices (-1:
     background), ``rest_layer`` (H, W, 3) rest-frame hit points."""
-    lamps = np.zeros(body_layer.shape, bool)
-    for i, body in enumerate(scene.bodies):
-        sel = body_layer == i
-        if np.any(sel):
-            lamps[sel] = _lamp_surface_pixels(body.surface, rest_layer[sel])
+    lamps = np.zeros(body_layer.size, bool)
+    rest = rest_layer.reshape(-1, 3)
+    for i, sel in rows_by_body(body_layer.reshape(-1)):
+        lamps[sel] = _lamp_surface_pixels(scene.bodies[i].surface, rest[sel])
+    lamps = lamps.reshape(body_layer.shape)
     return lamps
 
 

@@ -507,3 +507,52 @@ def packet_first_hits(ox, oy, oz, dx, dy, dz, l_min, best, best_tri, best_u, bes
                 stack[sp] = a
                 stack[sp + 1] = b
             sp += 2
+
+
+# ------------------------------------------------------------------ trees over boxes
+
+
+def box_tree(lo: np.ndarray, hi: np.ndarray):
+    """A hierarchy over (K, 3) boxes [lo, hi] for overlap queries (:func:`boxes_overlapping`):
+    (nodes (M, 6) float64 lo xyz hi xyz, links (M, 4) int64 left, right, first item,
+    count, order (K,) item of each leaf slot). Built by the same binned SAH as the
+    triangle hierarchies, on the boxes' centres."""
+    lo = np.ascontiguousarray(lo, dtype=np.float64)
+    hi = np.ascontiguousarray(hi, dtype=np.float64)
+    n_lo, n_hi, left, right, start, count, order = _build(lo, hi, 0.5 * (lo + hi), MAX_LEAF,
+                                                         N_BINS)
+    nodes = np.ascontiguousarray(np.concatenate([n_lo, n_hi], axis=1))
+    links = np.ascontiguousarray(np.stack([left, right, start, count], axis=1))
+    return nodes, links, order.astype(np.int64)
+
+
+@njit(cache=True, inline="always")
+def boxes_overlapping(qlx, qly, qlz, qhx, qhy, qhz, nodes, links, order, items, out, stack):
+    """Items of a :func:`box_tree` whose boxes ``items`` (K, 6: lo xyz, hi xyz) overlap the
+    query box [ql, qh] (closed intervals, so touching counts), written to ``out`` in tree
+    order; returns how many. ``stack``: int64 scratch of STACK_SIZE (the tree is at most
+    MAX_DEPTH deep)."""
+    k = 0
+    sp = 1
+    stack[0] = 0
+    while sp > 0:
+        sp -= 1
+        node = stack[sp]
+        if (nodes[node, 0] > qhx or nodes[node, 3] < qlx or nodes[node, 1] > qhy
+                or nodes[node, 4] < qly or nodes[node, 2] > qhz or nodes[node, 5] < qlz):
+            continue
+        cnt = links[node, 3]
+        if cnt > 0:
+            s = links[node, 2]
+            for j in range(s, s + cnt):
+                i = order[j]
+                if (items[i, 0] > qhx or items[i, 3] < qlx or items[i, 1] > qhy
+                        or items[i, 4] < qly or items[i, 2] > qhz or items[i, 5] < qlz):
+                    continue
+                out[k] = i
+                k += 1
+        else:
+            stack[sp] = links[node, 0]
+            stack[sp + 1] = links[node, 1]
+            sp += 2
+    return k

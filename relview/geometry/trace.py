@@ -135,6 +135,9 @@ def _frame_origin(m, origin, ray_o, io):
 
 #: rays handled together by one thread: neighbouring pixels share traversal paths
 RAY_CHUNK = 256
+#: frame groups from which a cast from one start event culls groups by direction
+#: (:func:`group_direction_boxes`); with fewer the packets simply walk them all
+CULL_MIN_GROUPS = 2
 
 
 @njit(parallel=True, cache=True, fastmath=_FAST)
@@ -179,10 +182,105 @@ def _cast(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links, tris, l
     return out_l, out_tri, out_u, out_v
 
 
+#: Slack added to the direction boxes of frame groups (radians and unit-vector
+#: components) and, relatively, to each group's bounding radius: far above float64
+#: rounding of the hits, so culling never drops a hit the full loop would find.
+CULL_SLACK = 1e-7
+
+
+@njit(cache=True, inline="always")
+def _packet_groups(ray_d, base, m_rays, cull_nodes, cull_links, cull_order, cull_boxes,
+                   candidates, stack):
+    """Groups whose direction box overlaps the box of the packet's directions, sorted
+    ascending into ``candidates``; returns how many."""
+    lx = ly = lz = np.inf
+    hx = hy = hz = -np.inf
+    for r in range(m_rays):
+        i = base + r
+        lx = min(lx, ray_d[i, 0])
+        ly = min(ly, ray_d[i, 1])
+        lz = min(lz, ray_d[i, 2])
+        hx = max(hx, ray_d[i, 0])
+        hy = max(hy, ray_d[i, 1])
+        hz = max(hz, ray_d[i, 2])
+    k = bvh_mod.boxes_overlapping(lx, ly, lz, hx, hy, hz, cull_nodes, cull_links, cull_order,
+                                  cull_boxes, candidates, stack)
+    for a in range(1, k):  # insertion sort: few groups per packet
+        g = candidates[a]
+        b = a - 1
+        while b >= 0 and candidates[b] > g:
+            candidates[b + 1] = candidates[b]
+            b -= 1
+        candidates[b + 1] = g
+    return k
+
+
+def group_direction_boxes(event, k_time, g_origin, g_matrix, root_lo, root_hi):
+    """(G, 6) boxes (lo xyz, hi xyz) in the space of unit S directions d: a backward ray
+    from ``event`` (4,) along a unit d outside group g's box cannot meet that group's
+    hierarchy (root box [root_lo, root_hi] (G, 3) in the group's frame). Coordinates are
+    the kernels' (centred on the cast's reference event).
+
+    The root box lies in the ball B(c', r) at rest in the group's frame. At every S time
+    the ball is a ball of radius r (Galilean map) or an ellipsoid inside it (boost:
+    contraction along beta only), around the centre's S worldline p(t) = p + beta (t - t_E)
+    with velocity beta. A backward ray (t_E - l, x_E + l d) meets it only if
+    |l (d + beta) - q| <= r for some l >= 0 (q = p - x_E; beta -> 0 without light delay),
+    i.e. d + beta lies in the cone of half-angle alpha = asin(r/|q|) around q. Writing
+    d = -beta + s u with u a unit vector in that cone, |d| = 1 gives
+    s = u.beta + sqrt((u.beta)^2 + 1 - beta^2), increasing in u.beta; each component of u
+    and u.beta range over exact intervals on the cone's cap (angle to the axis +- alpha),
+    so d_i = -beta_i + s u_i lies in the product of the intervals. A group whose ball
+    holds x_E gets the whole sphere.
+    """
+    minv = np.linalg.inv(g_matrix)  # frame (ct', x') -> S displacement
+    centre = 0.5 * (root_lo + root_hi)
+    radius = 0.5 * np.linalg.norm(root_hi - root_lo, axis=1)
+    u4 = minv[:, :, 0]  # S displacement per unit ct' at fixed x': the frame's 4-velocity
+    c4 = np.concatenate([np.zeros((len(centre), 1)), centre], axis=1)
+    x0 = g_origin + np.einsum("gij,gj->gi", minv, c4)  # centre's event at ct' = 0
+    tau = (event[0] - x0[:, 0]) / u4[:, 0]
+    p = x0[:, 1:] + tau[:, None] * u4[:, 1:]  # centre at the ray's start time
+    beta = u4[:, 1:] / u4[:, :1] if k_time != 0.0 else np.zeros_like(p)
+    q = p - event[1:]
+    dist = np.linalg.norm(q, axis=1)
+    r = radius * (1.0 + CULL_SLACK) + CULL_SLACK * dist
+    everywhere = ~(dist > r)  # NaN-safe: unknown geometry is never culled
+    with np.errstate(invalid="ignore", divide="ignore"):
+        alpha = np.arcsin(np.clip(r / dist, 0.0, 1.0)) + CULL_SLACK
+        axis = q / dist[:, None]
+
+        def cap_range(cos_to_axis):
+            """Range of cos(angle to a fixed vector) over the cap, given the cap axis'."""
+            theta = np.arccos(np.clip(cos_to_axis, -1.0, 1.0))
+            return (np.cos(np.minimum(np.pi, theta + alpha)),
+                    np.cos(np.maximum(0.0, theta - alpha)))
+
+        u_lo, u_hi = cap_range(axis.T)  # (3, G) each: the components of u
+        b = np.linalg.norm(beta, axis=1)
+        x_lo, x_hi = cap_range(np.einsum("gi,gi->g", axis, beta) / np.where(b > 0, b, 1.0))
+        x_lo, x_hi = b * x_lo, b * x_hi  # u.beta
+        s_lo = x_lo + np.sqrt(x_lo * x_lo + 1.0 - b * b)
+        s_hi = x_hi + np.sqrt(x_hi * x_hi + 1.0 - b * b)
+        corners = np.stack([s_lo * u_lo, s_lo * u_hi, s_hi * u_lo, s_hi * u_hi])
+        lo = (corners.min(axis=0) - beta.T).T - CULL_SLACK
+        hi = (corners.max(axis=0) - beta.T).T + CULL_SLACK
+    bad = everywhere | ~np.all(np.isfinite(lo) & np.isfinite(hi), axis=1)
+    lo[bad] = -2.0
+    hi[bad] = 2.0
+    return np.concatenate([lo, hi], axis=1)
+
+
 @njit(parallel=True, cache=True, fastmath=_FAST)
-def _cast_packets(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links, tris, l_min):
+def _cast_packets(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links, tris, l_min,
+                  cull=None):
     """:func:`_cast` for rays from one shared start event ray_o (1, 4), traversed in packets
-    of bvh.PACKET neighbouring rays (camera rays are coherent): same results, faster."""
+    of bvh.PACKET neighbouring rays (camera rays are coherent): same results, faster.
+
+    With ``cull`` = (nodes, links, order, boxes), a bvh.box_tree over the (G, 6) boxes of
+    :func:`group_direction_boxes`, a packet walks only the groups whose box overlaps the
+    box of its own directions, in ascending group order as without it (so ties resolve
+    the same); without, every group."""
     n = ray_d.shape[0]
     n_groups = roots.shape[0]
     P = bvh_mod.PACKET
@@ -193,6 +291,7 @@ def _cast_packets(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links,
     n_packets = (n + P - 1) // P
     for p in prange(n_packets):
         stack = np.empty(bvh_mod.STACK_SIZE, np.int64)
+        candidates = np.arange(n_groups)
         dx = np.empty(P)
         dy = np.empty(P)
         dz = np.empty(P)
@@ -202,7 +301,12 @@ def _cast_packets(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links,
         best_v = np.zeros(P)
         base = p * P
         m_rays = min(P, n - base)
-        for g in range(n_groups):
+        n_cand = n_groups
+        if cull is not None:
+            n_cand = _packet_groups(ray_d, base, m_rays, cull[0], cull[1], cull[2], cull[3],
+                                    candidates, stack)
+        for c in range(n_cand):
+            g = candidates[c]
             m = g_matrix[g]
             ox, oy, oz = _frame_origin(m, g_origin[g], ray_o, 0)
             for r in range(P):
@@ -354,9 +458,13 @@ class Tracer:
         ray_o = np.ascontiguousarray(ray_abs - ref)
         ray_d = np.ascontiguousarray(d_scene, dtype=np.float64)
         k_time = -1.0 if effects.delay else 0.0
-        kernel = _cast_packets if len(ray_o) == 1 else _cast
-        l, tri, u, v = kernel(ray_o, ray_d, k_time, g_origin, self.g_matrix, p.root,
-                              p.nodes, p.links, p.tris, l_min)
+        if len(ray_o) == 1:
+            l, tri, u, v = _cast_packets(ray_o, ray_d, k_time, g_origin, self.g_matrix, p.root,
+                                         p.nodes, p.links, p.tris, l_min,
+                                         self._group_culling(ray_o[0], ray_d, k_time, g_origin))
+        else:
+            l, tri, u, v = _cast(ray_o, ray_d, k_time, g_origin, self.g_matrix, p.root,
+                                 p.nodes, p.links, p.tris, l_min)
         bc = np.zeros(3) if beta_cam is None else np.asarray(beta_cam, np.float64).reshape(3)
         body, face, group, emit, rest, beta, doppler, clock = _resolve(
             ray_o, ray_d, k_time, l, tri, p.tri_group, self.tri_body, self.tri_local,
@@ -387,6 +495,23 @@ class Tracer:
         return Hits(body, face, np.stack([u, v], -1), l, emit, rest, beta, group,
                     doppler if beta_cam is not None else None, clock)
 
+
+    def _group_culling(self, event, ray_d, k_time, g_origin):
+        """The direction-box tree over the frame groups for rays from one start event
+        (``cull`` of :func:`_cast_packets`), or None, which walks every group: with fewer
+        than CULL_MIN_GROUPS groups, or directions not of unit length (the bound holds for
+        unit directions)."""
+        n_groups = len(self.groups)
+        if n_groups >= CULL_MIN_GROUPS and len(ray_d):
+            norm2 = np.einsum("ij,ij->i", ray_d, ray_d)
+            if np.all(np.abs(norm2 - 1.0) <= 1e-12):
+                p = self.packed
+                roots = p.root
+                boxes = group_direction_boxes(event, k_time, g_origin, self.g_matrix,
+                                              p.node_lo[roots], p.node_hi[roots])
+                nodes, links, order = bvh_mod.box_tree(boxes[:, :3], boxes[:, 3:])
+                return nodes, links, order, np.ascontiguousarray(boxes)
+        return None
 
     def _centred_origins(self, first_event: np.ndarray, reference):
         """(R (4,), group origins e0 - R (G, 4)): R is ``reference`` as an event, or the
