@@ -296,3 +296,36 @@ def test_rendered_clock_face_runs_three_times_fast_head_on():
     # 0.5 m off the axis at ~190 m have paths longer by r^2 / 2d = 0.7 mm, 2e-12 s, so
     # the means agree with 3 to about 1e-4
     assert (means[1] - means[0]) / 1e-8 == pytest.approx(3.0, rel=2e-4)
+
+
+# ----------------------------------------------------------------- the clock sheet, the demo
+
+
+def test_clock_sheet_of_the_demo_prints_computed_and_seen_readings():
+    import re
+    from pathlib import Path
+
+    from relview.figures.sheets import clock_text, render_panels
+    from relview.scene.model import load_scene
+
+    scene = load_scene(Path(__file__).parent.parent / "scenes" / "clock-crossing.toml")
+    sheet = render_panels(scene, None, "clock-computed,clock-photograph", resolution=(96, 54),
+                          framing="scene")
+    for panel in sheet.panels:  # both clocks in view in both panels
+        body = panel.frame.layers["body"]
+        assert (body == 0).sum() > 20 and (body == 1).sum() > 20
+    computed = clock_text(sheet, sheet.panel("clock-computed"))
+    seen = clock_text(sheet, sheet.panel("clock-photograph"))
+    # one instant of the scene frame: both clocks read t / gamma = 100 ns / 1.25 = 80 ns
+    # (Einstein 1905, section 4), the camera's own clock 100 ns
+    assert "inbound clock 80 ns" in computed and "outbound clock 80 ns" in computed
+    assert "camera clock 100 ns" in computed and "camera clock 100 ns" in seen
+    # photographed: each runs at its Doppler factor 1 / (gamma (1 - beta.n)), n from where
+    # the light left the origin to the camera (Einstein 1905, section 7): near 2 and 1/2
+    for name, beta in (("inbound", -0.6), ("outbound", 0.6)):
+        r = probe(scene, name, (0.0, 0.0, 0.0))
+        n = -np.asarray(r.emit_position) / np.linalg.norm(r.emit_position)
+        expected = 1.0 / (1.25 * (1.0 - beta * n[0]))
+        rate = float(re.search(rf"{name} clock [-\d.e]+ ns, seen to run x([\d.]+)", seen)[1])
+        assert rate == pytest.approx(expected, rel=1e-3)  # printed to 4 digits
+    assert 1.9 < float(re.search(r"inbound.*x([\d.]+)", seen)[1]) < 2.0

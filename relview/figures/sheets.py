@@ -50,6 +50,9 @@ class PanelKind:
     effects: Effects
     subtitle: str
     at_rest: bool = False  # render the rest scene (every beta = 0) instead of the scene
+    # clock panels print the bodies' clock readings under the picture: "computed" (at
+    # the exposure's scene time) or "seen" (carried by the light); "" for none
+    clock: str = ""
 
 
 _SHAPE_ONLY = {
@@ -101,6 +104,19 @@ PANELS: dict[str, PanelKind] = {
             "beaming-only",
             Effects(**{**_SHAPE_ONLY, "beaming": True}),
             "measured + beaming (brightness ~ D^4);\nno light delay, no colour shift",
+        ),
+        PanelKind(
+            "clock-computed",
+            Effects(**_SHAPE_ONLY),
+            "the clocks at one instant of the scene frame (no light delay):\n"
+            "the readings the Lorentz transformation gives",
+            clock="computed",
+        ),
+        PanelKind(
+            "clock-photograph",
+            Effects(),
+            "the clocks as photographed: each point shows\nthe reading its light left with",
+            clock="seen",
         ),
     )
 }
@@ -576,6 +592,28 @@ def time_text(t: float) -> str:
     return f"t = {t:.6g} s ({t * 1e9:.4g} ns)" if t else "t = 0 s"
 
 
+def clock_text(sheet: Sheet, panel: Panel) -> str:
+    """Clock panels: each clock-faced body's reading (the main body's when no body has a
+    clock face) at its origin, computed at the exposure's scene time or as photographed,
+    and the camera's own clock (relview.probes)."""
+    from relview.probes import probe
+
+    scene = sheet.scene
+    names = [b.name for b in scene.bodies if getattr(b.surface, "uses_proper_time", False)]
+    if not names and sheet.main_body:
+        names = [sheet.main_body]
+    lines, camera = [], None
+    for name in names:
+        r = probe(scene, name, (0.0, 0.0, 0.0), time=sheet.time, effects=panel.kind.effects)
+        value = r.computed_proper_time if panel.kind.clock == "computed" else r.proper_time
+        rate = "" if panel.kind.clock == "computed" else f", seen to run x{r.tick_rate:.4g}"
+        lines.append(f"{name} clock {value * 1e9:.4g} ns{rate}")
+        camera = r.camera_proper_time
+    if camera is not None:
+        lines.append(f"camera clock {camera * 1e9:.4g} ns")
+    return "\n".join(lines)
+
+
 def _speed_text(sheet: Sheet, panel: Panel) -> str:
     """Per-panel line: time, and the main body's speed (or that it is shown at rest)."""
     text = time_text(sheet.time)
@@ -618,10 +656,11 @@ def draw_sheet(sheet: Sheet, *, columns: int = 4, tone: str = "none"):
             else f"white {p.frame.white:.3g} cd/m2, own auto"
         )
         ax.set_title(p.kind.name, fontsize="large", fontweight="bold")
+        clocks = f"\n{clock_text(sheet, p)}" if p.kind.clock else ""
         ax.text(
             0.0,
             -0.02,
-            f"{p.kind.subtitle}\n{_speed_text(sheet, p)}\n{expo}",
+            f"{p.kind.subtitle}\n{_speed_text(sheet, p)}\n{expo}{clocks}",
             transform=ax.transAxes,
             fontsize="x-small",
             ha="left",
@@ -689,6 +728,7 @@ __all__ = [
     "PanelKind",
     "Sheet",
     "body_state",
+    "clock_text",
     "compare_sheet",
     "draw_sheet",
     "main_body_index",
