@@ -34,6 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from relview.geometry.trace import Tracer
+from relview.kinematics.lorentz import C
 from relview.kinematics.solvers import SOLVER_RTOL, _solve_increasing, inertial_light_delay
 from relview.light.lamps import Incident, lit_table
 from relview.scene.parts import Effects, Lamp
@@ -230,25 +231,32 @@ class LampTerm:
     irradiance: np.ndarray
 
 
+def _lamp_light(lamp: Lamp, events: np.ndarray, effects: Effects):
+    """(k (N,3) unit S propagation, lamp-frame frequency k0_L (N,), lamp events (N,4) or
+    None, distance (N,) m, inf for a distant lamp) of ``lamp``'s light reaching the (N,4)
+    ``events``."""
+    rel = bool(effects.contraction)
+    n = len(events)
+    if lamp.distant:
+        # plane wave: propagation -direction in the lamp's frame F, carried into S
+        k_f = -np.broadcast_to(np.asarray(lamp.direction, float), (n, 3))
+        _, k = null_to_frame(k_f, -np.asarray(lamp.frame_beta, float), rel)
+        k0_lamp, _ = null_to_frame(k, lamp.frame_beta, rel)
+        return k, k0_lamp, None, np.full(n, np.inf)
+    ev_l, beta_l = lamp_events(lamp, events, effects)
+    sep = events[:, 1:] - ev_l[:, 1:]
+    distance = np.linalg.norm(sep, axis=1)
+    k = sep / distance[:, None]
+    return k, null_to_frame(k, beta_l, rel)[0], ev_l, distance
+
+
 def lamp_term(lamp: Lamp, tracer: Tracer | None, events: np.ndarray, beta_s: np.ndarray,
               normals: np.ndarray, effects: Effects, reference=None) -> LampTerm:
     """The light of ``lamp`` at the surface events (N,4) moving with beta_s (N,3), whose
     rest-frame normals (N,3) face the camera."""
     n = len(events)
     rel = bool(effects.contraction)
-    if lamp.distant:
-        # plane wave: propagation -direction in the lamp's frame F, carried into S
-        k_f = -np.broadcast_to(np.asarray(lamp.direction, float), (n, 3))
-        _, k = null_to_frame(k_f, -np.asarray(lamp.frame_beta, float), rel)
-        k0_lamp, _ = null_to_frame(k, lamp.frame_beta, rel)
-        towards, distance = -k, np.full(n, np.inf)
-    else:
-        ev_l, beta_l = lamp_events(lamp, events, effects)
-        sep = events[:, 1:] - ev_l[:, 1:]
-        distance = np.linalg.norm(sep, axis=1)
-        k = sep / distance[:, None]
-        towards = -k
-        k0_lamp, _ = null_to_frame(k, beta_l, rel)
+    k, k0_lamp, ev_l, distance = _lamp_light(lamp, events, effects)
     k0_s, k_rest = null_to_frame(k, beta_s, rel)
     if not effects.aberration:
         k_rest = k
@@ -265,20 +273,63 @@ def lamp_term(lamp: Lamp, tracer: Tracer | None, events: np.ndarray, beta_s: np.
     visible = np.zeros(n)
     lit = np.nonzero(cos_in > 0)[0]
     if len(lit):
-        start = events[lit]
-        if lamp.distant or lamp.radius == 0.0:
-            visible[lit] = _shadow_free(tracer, start, towards[lit], distance[lit], effects,
-                                        reference)
-        else:
-            offsets = _disc_points(lamp, k[lit])
-            target = ev_l[lit, 1:][None] + offsets  # (S, M, 3) points of the lamp's disc
-            seg = target - events[lit, 1:][None]
-            dist = np.linalg.norm(seg, axis=2)
-            free = _shadow_free(tracer, np.tile(start, (len(offsets), 1)),
-                                (seg / dist[:, :, None]).reshape(-1, 3), dist.reshape(-1),
-                                effects, reference)
-            visible[lit] = free.reshape(len(offsets), -1).mean(axis=0)
+        visible[lit] = _unshadowed(lamp, tracer, events[lit], k[lit], distance[lit],
+                                   None if ev_l is None else ev_l[lit], effects, reference)
     return LampTerm(d_in, weight, visible, irradiance)
+
+
+def _unshadowed(lamp: Lamp, tracer, events, k, distance, ev_l, effects: Effects, reference):
+    """(N,) unshadowed fraction of ``lamp`` at the (N,4) ``events`` its light reaches along
+    unit k (N,3) from the lamp events ``ev_l`` (N,4; None for a distant lamp) at
+    ``distance`` (N,): one shadow ray, or ``shadow_samples`` to a sphere lamp's disc."""
+    if lamp.distant or lamp.radius == 0.0:
+        return _shadow_free(tracer, events, -k, distance, effects, reference).astype(float)
+    offsets = _disc_points(lamp, k)
+    target = ev_l[:, 1:][None] + offsets  # (S, M, 3) points of the lamp's disc
+    seg = target - events[:, 1:][None]
+    dist = np.linalg.norm(seg, axis=2)
+    free = _shadow_free(tracer, np.tile(events, (len(offsets), 1)),
+                        (seg / dist[:, :, None]).reshape(-1, 3), dist.reshape(-1),
+                        effects, reference)
+    return free.reshape(len(offsets), -1).mean(axis=0)
+
+
+@dataclass
+class LampSighting:
+    """One lamp as a body point receives it (``relview probe``)."""
+
+    lamp: str
+    event_time: float  # s, scene time of the lamp event whose light arrives (NaN: distant)
+    event_position: tuple[float, float, float]  # m, scene frame (NaN: distant)
+    direction_rest: tuple[float, float, float]  # unit propagation of its light, point's frame
+    doppler_in: float  # D_in = frequency in the point's rest frame / in the lamp's
+    lit_fraction: float  # unshadowed fraction (1: lit, 0: in shadow)
+    lit: bool  # any of its light arrives unshadowed
+
+
+def lamp_sightings(lamps, tracer: Tracer | None, event: np.ndarray, beta: np.ndarray,
+                   effects: Effects, reference=None) -> list[LampSighting]:
+    """Each lamp's light at one event (4,) of a point moving with ``beta`` (3,): the
+    lamp event, the incident direction in the point's rest frame, D_in and the
+    unshadowed fraction (shadow rays as for shading; a point inside a body, or on a
+    face turned away from the lamp, is shadowed by that body itself)."""
+    events = np.asarray(event, float).reshape(1, 4)
+    beta_s = np.asarray(beta, float).reshape(1, 3)
+    rel = bool(effects.contraction)
+    out = []
+    for lamp in lamps:
+        k, k0_lamp, ev_l, distance = _lamp_light(lamp, events, effects)
+        when, where = float("nan"), (float("nan"),) * 3
+        if ev_l is not None:
+            when, where = float(ev_l[0, 0] / C), tuple(map(float, ev_l[0, 1:]))
+        k0_s, k_rest = null_to_frame(k, beta_s, rel)
+        if not effects.aberration:
+            k_rest = k
+        free = _unshadowed(lamp, tracer, events, k, distance, ev_l, effects, reference)
+        out.append(LampSighting(lamp.name, when, where, tuple(map(float, k_rest[0])),
+                                float(k0_s[0] / k0_lamp[0]), float(free[0]),
+                                bool(free[0] > 0.0)))
+    return out
 
 
 class LampLayers:

@@ -11,11 +11,11 @@ kind; a closed form for inertial motion, relview.kinematics.solvers.inertial_lig
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, field
 
 import numpy as np
 
-from relview import framing
+from relview import framing, illumination
 from relview.geometry import camera as cam_mod
 from relview.geometry.lightcone import DEFAULT_TOLERANCE, pixel_tolerance
 from relview.kinematics.clocks import (
@@ -54,6 +54,9 @@ class ProbeResult:
     # of the scene frame: the reading the Lorentz transformation gives), s
     computed_proper_time: float = float("nan")
     camera_proper_time: float = float("nan")  # the camera's own clock at the exposure, s
+    # each lamp's light at the emission event (relview.illumination.LampSighting): its
+    # lamp event, incident direction in the point's rest frame, D_in, and whether it is lit
+    lamps: list = field(default_factory=list)
 
     def __getitem__(self, key):  # dict-style access as well as attributes
         return getattr(self, key)
@@ -145,6 +148,8 @@ def probe_many(scene: Scene, body, points, time: float | None = None,
     seen_clock, rate, computed = clock_data(scene, bi, pts, relative[:, 0], -d_s, beta_cam,
                                             effects, reference)
     cam_clock = camera_reading(scene.camera, t, effects.contraction)
+    lamps = [illumination.lamp_sightings(scene.lamps, tracer, emit[i], beta_e[i], effects,
+                                         reference) for i in range(len(pts))]
     out = []
     name = scene.bodies[bi].name
     for i in range(len(pts)):
@@ -156,7 +161,7 @@ def probe_many(scene: Scene, body, points, time: float | None = None,
             light_delay=float(-relative[i, 0] / C),
             beta_emit=tuple(map(float, beta_e[i])), proper_time=float(seen_clock[i]),
             tick_rate=float(rate[i]), computed_proper_time=float(computed[i]),
-            camera_proper_time=cam_clock))
+            camera_proper_time=cam_clock, lamps=lamps[i]))
     return out
 
 

@@ -366,3 +366,52 @@ def test_sphere_lamp_gives_a_soft_penumbra():
     # lamp height 3, bar at 1): edges at x = 0.25 * 1.5 -/+ 0.3 * 0.5
     assert partial.any()
     assert np.all(np.abs(np.abs(xs[partial]) - 0.375) <= 0.15 + 0.011)
+
+
+# ------------------------------------------------------------------ the probe's lamp rows
+
+
+def test_probe_reports_each_lamps_event_direction_doppler_and_shadow():
+    """A plate point probed under a lamp at rest: the lamp event is r/c before the point's
+    emission event (light at c in S), and for a plate moving at beta along x the light
+    arrives with D_in = gamma (1 - beta cos theta) (Einstein 1905, section 7, the
+    Doppler principle for an observer moving at angle theta to the light) from the
+    rest-frame angle cos theta' = (cos theta - beta) / (1 - beta cos theta) (section 7,
+    aberration); a box between them puts the point in shadow."""
+    from relview.kinematics.lorentz import C
+    from relview.probes import probe
+
+    beta = 0.5
+    lamp_at = np.array([-3.0, 0.0, 4.0])
+    moving = plate(beta=(beta, 0.0, 0.0), size=(200.0, 200.0))
+    scene = camera_scene([moving], position=(0.0, -5.0, 3.0), resolution=(32, 18))
+    scene = scene.replace(lamps=[point_lamp(lamp_at)])
+    r = probe(scene, "plate", (0.0, 0.0, 0.0))
+    (seen,) = r.lamps
+    event = np.array(r.emit_position)
+    sep = event - lamp_at
+    dist = np.linalg.norm(sep)
+    assert abs((r.emit_time - seen.event_time) * C / dist - 1.0) < 1e-9
+    assert np.allclose(seen.event_position, lamp_at, atol=1e-9)
+    cos = sep[0] / dist  # the light's propagation against the plate's motion
+    gamma = 1.0 / math.sqrt(1.0 - beta**2)
+    assert abs(seen.doppler_in - gamma * (1.0 - beta * cos)) < 1e-12
+    assert abs(seen.direction_rest[0] - (cos - beta) / (1.0 - beta * cos)) < 1e-12
+    assert seen.lit and seen.lit_fraction == 1.0
+    # a box at rest across the light path (halfway, where the path is then)
+    mid = 0.5 * (lamp_at + event)
+    box = Body(name="box", shape="box", size=np.array([0.6, 0.6, 0.6]), surface=grey(),
+               motion=UniformMotion(position=mid))
+    shaded = probe(scene.replace(bodies=[moving, box]), "plate", (0.0, 0.0, 0.0))
+    assert not shaded.lamps[0].lit and shaded.lamps[0].lit_fraction == 0.0
+
+
+def test_probe_command_prints_the_lamp_rows(tmp_path, capsys):
+    from relview.cli.app import main
+
+    path = tmp_path / "s.toml"
+    path.write_text(SCENE + '[[lamp]]\nname = "mast"\nblackbody = 3000.0\npower = 500.0\n'
+                    "[lamp.motion]\nposition = [0.0, 1.0, 3.0]\n")
+    assert main(["probe", str(path), "--body", "floor", "--point", "0,0,0"]) == 0
+    out = capsys.readouterr().out
+    assert "lamp mast: D_in" in out and "lamp mast: lit" in out and "yes" in out

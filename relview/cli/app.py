@@ -92,6 +92,17 @@ def cmd_probe(args) -> int:
             ("clock, computed", f"{r.computed_proper_time:.9g} s (at the exposure's scene time)"),
             ("camera clock", f"{r.camera_proper_time:.9g} s"),
         ]
+        for lamp in r.lamps:  # the light of each lamp at the emission event
+            event = ("distant (plane wave)" if lamp.event_time != lamp.event_time else
+                     "t = %.9g s at (%.6g, %.6g, %.6g) m" % (lamp.event_time, *lamp.event_position))
+            rows += [
+                (f"lamp {lamp.lamp}: event", event),
+                (f"lamp {lamp.lamp}: incident (rest)", "(%.6f, %.6f, %.6f)" % lamp.direction_rest),
+                (f"lamp {lamp.lamp}: D_in", f"{lamp.doppler_in:.6g}"),
+                (f"lamp {lamp.lamp}: lit", ("yes" if lamp.lit_fraction == 1.0 else
+                                            f"{lamp.lit_fraction:.3g} of it" if lamp.lit
+                                            else "no (shadowed)")),
+            ]
         width = max(len(k) for k, _ in rows)
         if i:
             print()
