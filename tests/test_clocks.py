@@ -329,3 +329,15 @@ def test_clock_sheet_of_the_demo_prints_computed_and_seen_readings():
         rate = float(re.search(rf"{name} clock [-\d.e]+ ns, seen to run x([\d.]+)", seen)[1])
         assert rate == pytest.approx(expected, rel=1e-3)  # printed to 4 digits
     assert 1.9 < float(re.search(r"inbound.*x([\d.]+)", seen)[1]) < 2.0
+
+
+def test_camera_on_an_orbit_keeps_its_proper_time():
+    # the camera's own clock on any worldline: on a circular orbit tau = t / gamma
+    # (Einstein 1905, section 4)
+    scene = scene_from_dict({
+        "camera": {"look_at": [0.0, 0.0, 10.0], "time": 2e-7, "clock": {"reading": 1.0},
+                   "motion": {"kind": "orbit", "radius": 5.0, "beta": 0.8}},
+        "body": [{"name": "b", "shape": "sphere", "radius": 1.0, "surface": {"blackbody": 5e3},
+                  "motion": {"position": [0.0, 0.0, 10.0]}}]})
+    r = probe(scene, "b", (0.0, 0.0, 0.0))
+    assert r.camera_proper_time == pytest.approx(1.0 + 2e-7 * 0.6, rel=1e-15)

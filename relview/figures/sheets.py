@@ -596,7 +596,7 @@ def clock_text(sheet: Sheet, panel: Panel) -> str:
     """Clock panels: each clock-faced body's reading (the main body's when no body has a
     clock face) at its origin, computed at the exposure's scene time or as photographed,
     and the camera's own clock (relview.probes)."""
-    from relview.probes import probe
+    from relview.probes import probe  # local: probes loads the numba kernels
 
     scene = sheet.scene
     names = [b.name for b in scene.bodies if getattr(b.surface, "uses_proper_time", False)]
