@@ -139,7 +139,8 @@ def test_blackbody_seen_in_a_moving_mirror_is_a_blackbody_at_t_times_the_ratio(b
         worst_xy = max(worst_xy, np.max(np.abs(got[i, :2] / got[i].sum()
                                                - ref[:2] / ref.sum())))
         worst_y = max(worst_y, abs(got[i, 1] / ref[1] - 1.0))
-    # blackbody Doppler table interpolation and 1-nm against 5-nm... (measured below)
+    # the blackbody Doppler table's interpolation; measured 3.4e-6 in xy and 1.6e-4 in Y
+    # (the bounds leave room for the table's documented accuracy)
     assert worst_xy < 1e-3
     assert worst_y < 3e-3
 
