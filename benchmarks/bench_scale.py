@@ -17,9 +17,11 @@ field), bodies are blackbody icospheres:
   0.9c as the light seen left it, context reused;
 * ``N bodies``: N spheres of radius 0.05 m, detail 3 (1 280 triangles), on a grid across
   the view, each with its own velocity (|beta| from 0.1 to 0.8, directions spread),
-  context reused; N = 1, 10, 100, 1 000.
+  context reused; N = 1, 10, 100, 1 000. The seen area grows with N (0.1 % of the
+  pixels for one body, two thirds for 1 000), so a second series keeps it about fixed:
+  radius 0.05 m x sqrt(1000 / N) (one sphere of 1.6 m, ..., 1 000 of 0.05 m).
 
-Times are median [min-max] seconds over ``--repeats`` frames after one warm-up frame.
+Each line prints the share of pixels that see a body. Times are median [min-max] seconds over ``--repeats`` frames after one warm-up frame.
 Peak memory: the resident-memory high-water mark (VmHWM, reset through
 /proc/self/clear_refs, Linux) over the case's warm-up and timed frames, and the RSS
 before the case. The load average is printed before and after every case.
@@ -81,9 +83,9 @@ def scene_hyperbolic(c):
                        f"position = [{x0!r}, 0.0, 0.0]\ntime = {t0!r}")
 
 
-def scene_many(c, n: int):
-    """n small spheres (radius 0.05 m, detail 3) on a grid across the view, each with its
-    own velocity, each at its grid point when the light seen at t = 0 leaves it."""
+def scene_many(c, n: int, radius: float = 0.05):
+    """n spheres (``radius``, detail 3) on a grid across the view, each with its own
+    velocity, each at its grid point when the light seen at t = 0 leaves it."""
     rng = np.random.default_rng(n)
     side = int(np.ceil(np.sqrt(n)))
     distance = bench_frame.CAMERA_DISTANCE_M
@@ -96,7 +98,7 @@ def scene_many(c, n: int):
         beta = (0.1 + 0.7 * k / max(1, n - 1)) * direction / np.linalg.norm(direction)
         seen = -float(np.sqrt(x * x + distance**2 + z * z)) / c
         bodies.append(
-            f'[[body]]\nname = "b{k}"\nshape = "sphere"\nradius = 0.05\ndetail = 3\n'
+            f'[[body]]\nname = "b{k}"\nshape = "sphere"\nradius = {radius!r}\ndetail = 3\n'
             f'[body.motion]\nkind = "uniform"\nbeta = [{", ".join(repr(float(v)) for v in beta)}]'
             f"\nposition = [{x!r}, 0.0, {z!r}]\ntime = {seen!r}\n"
             f"[body.surface]\nblackbody = {bench_frame.BLACKBODY_K!r}\n")
@@ -127,7 +129,8 @@ def run_case(name, fn, repeats, rows):
     before = load()
     rss0 = rss_mib("VmRSS")
     reset_peak()
-    fn()  # warm-up
+    frame = fn()  # warm-up
+    seen = float((frame.layers["body"] >= 0).mean())
     times = []
     for _ in range(repeats):
         t0 = time.perf_counter()
@@ -135,9 +138,9 @@ def run_case(name, fn, repeats, rows):
         times.append(time.perf_counter() - t0)
     peak = rss_mib("VmHWM")
     rows[name] = times
-    print(f"{name:<42} {statistics.median(times):8.4f} s [{min(times):.4f}-{max(times):.4f}]"
-          f"  RSS before {rss0:6.0f} MiB, peak {peak:6.0f} MiB  load {before} -> {load()}",
-          flush=True)
+    print(f"{name:<44} {statistics.median(times):8.4f} s [{min(times):.4f}-{max(times):.4f}]"
+          f"  hits {100 * seen:5.1f} %  RSS before {rss0:5.0f} MiB, peak {peak:5.0f} MiB"
+          f"  load {before} -> {load()}", flush=True)
 
 
 def main(argv=None) -> None:
@@ -183,6 +186,9 @@ def main(argv=None) -> None:
             many = scene_of(f"many{n}", scene_many(C, n))
             run_case(f"{n} bodies x 1280 tri, own velocities", with_context(many),
                      args.repeats, rows)
+        for n in counts:  # the same seen area whatever n: radius ~ 1 / sqrt(n)
+            many = scene_of(f"area{n}", scene_many(C, n, 0.05 * float(np.sqrt(max(counts) / n))))
+            run_case(f"{n} bodies, same seen area", with_context(many), args.repeats, rows)
 
     med = {k: statistics.median(v) for k, v in rows.items()}
     best = {k: min(v) for k, v in rows.items()}
@@ -198,8 +204,11 @@ def main(argv=None) -> None:
     ratio("render(scene) again / with explicit context", "uniform 0.9c, render(scene) again",
           "uniform 0.9c, context reused", TARGET_SECOND)
     for n in counts:
-        ratio(f"{n} bodies / 1 body", f"{n} bodies x 1280 tri, own velocities",
-              "1 bodies x 1280 tri, own velocities", TARGET_MANY)
+        ratio(f"{n} bodies / 1 body (same body size)", f"{n} bodies x 1280 tri, own velocities",
+              f"{counts[0]} bodies x 1280 tri, own velocities", TARGET_MANY)
+    for n in counts:
+        ratio(f"{n} bodies / 1 body (same seen area)", f"{n} bodies, same seen area",
+              f"{counts[0]} bodies, same seen area", TARGET_MANY)
     print(f"load at end {load()}")
 
 

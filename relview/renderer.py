@@ -80,6 +80,8 @@ class Frame:
 #: scenes): renders, animations, sheets, probes and Dask workers in one process share it.
 GEOMETRY_CACHE_SIZE = 8
 _GEOMETRY_CACHE: OrderedDict[str, SceneGeometry] = OrderedDict()
+#: Pixel-centre grids by (width, height), shared the same way.
+_PIXEL_CENTRES: dict[tuple[int, int], np.ndarray] = {}
 
 
 @dataclass
@@ -199,7 +201,13 @@ class RenderContext:
     def pixel_centres(self, width: int, height: int) -> np.ndarray:
         """(H*W, 2) pixel-centre positions, kept across the frames of an animation."""
         if getattr(self, "_centres_size", None) != (width, height):
-            self._centres = cam_mod.pixel_grid(width, height)
+            self._centres = _PIXEL_CENTRES.get((width, height))
+            if self._centres is None:  # shared by every context of this process, read-only
+                self._centres = cam_mod.pixel_grid(width, height)
+                self._centres.setflags(write=False)
+                if len(_PIXEL_CENTRES) >= GEOMETRY_CACHE_SIZE:
+                    _PIXEL_CENTRES.pop(next(iter(_PIXEL_CENTRES)))
+                _PIXEL_CENTRES[(width, height)] = self._centres
             self._centres_size = (width, height)
         return self._centres
 
