@@ -32,6 +32,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from relview.geometry import camera as cam_mod
+from relview.geometry import shapes
 from relview.kinematics.lorentz import C, aberrate_to_camera, doppler_along
 from relview.scene.model import Scene
 from relview.scene.parts import Camera, Effects
@@ -98,8 +99,6 @@ def mesh_vertices(scene: Scene, meshes=None) -> list[np.ndarray]:
     """Each body's rest-frame vertices (body rotation applied), subsampled for framing."""
     if meshes is not None:
         return [_vertices(m[0]) for m in meshes]
-    from relview.geometry import shapes
-
     return [_vertices(shapes.mesh_data(b).vertices) for b in scene.bodies]
 
 

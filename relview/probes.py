@@ -27,6 +27,7 @@ from relview.kinematics.clocks import (
 )
 from relview.kinematics.lorentz import C, aberrate_to_camera
 from relview.kinematics.magnitudes import check_time
+from relview.renderer import RenderContext, camera_state, doppler_along
 from relview.scene.model import Scene
 from relview.scene.parts import Effects
 
@@ -113,8 +114,6 @@ def clock_data(scene: Scene, body_index: int, points_rest: np.ndarray, emit_ct: 
 def probe_many(scene: Scene, body, points, time: float | None = None,
                effects: Effects | None = None, context=None) -> list[ProbeResult]:
     """Probe several points (N, 3) of one body at one exposure (see :func:`probe`)."""
-    from relview.renderer import RenderContext, camera_state, doppler_along
-
     effects = effects or scene.render.effects
     bi = body if isinstance(body, (int, np.integer)) else scene.body_index(body)
     pts = np.atleast_2d(np.asarray(points, float))

@@ -14,6 +14,7 @@ import traceback
 import warnings
 from pathlib import Path
 
+from relview import __version__
 from relview.cli import animate_command, compare_command
 from relview.cli.options import (
     add_frame_options,
@@ -25,9 +26,11 @@ from relview.cli.options import (
     refuse_existing,
     scene_with_overrides,
 )
-from relview.errors import UserError
+from relview.errors import SceneWarning, UserError
+from relview.figures import timeline
 from relview.figures.timeline import length_csv_path
 from relview.imaging.figure_files import sidecar_path
+from relview.scene.model import load_scene
 
 
 class _Parser(argparse.ArgumentParser):
@@ -38,6 +41,7 @@ class _Parser(argparse.ArgumentParser):
 
 
 def cmd_render(args) -> int:
+    # imported here: it loads the numba kernels, which command start-up does not need
     from relview.renderer import render
 
     scene = scene_with_overrides(args)
@@ -53,6 +57,7 @@ def cmd_render(args) -> int:
 
 
 def cmd_probe(args) -> int:
+    # imported here: it loads the numba kernels, which command start-up does not need
     from relview.probes import probe
 
     scene = scene_with_overrides(args)
@@ -115,8 +120,6 @@ def _probe_over_time(scene, args) -> int:
     """relview probe --times / --csv / --plot: a probe table (relview.figures.timeline)."""
     import numpy as np
 
-    from relview.figures import timeline
-
     if args.times is not None and args.time is not None:
         raise UserError("give either --time S (one exposure) or --times A:B:N, not both")
     if args.times is not None:
@@ -161,14 +164,13 @@ def named_outputs(args) -> list[tuple[str, Path]]:
 
 
 def cmd_check(args) -> int:
-    from relview.scene.model import load_scene
+    # imported here: they load the numba kernels, which command start-up does not need
+    from relview.geometry import lightcone, shapes
+    from relview.renderer import check_memory, estimate_bytes
 
     scene = load_scene(args.scene)
     w, h = scene.render.resolution
-    from relview.renderer import check_memory, estimate_bytes
-
     check_memory(w, h, source=f"{args.scene}: render.resolution")
-    from relview.geometry import lightcone, shapes
     for i, body in enumerate(scene.bodies):
         # every point of a body on a non-uniform worldline must stay below c
         if not body.motion.is_inertial:
@@ -182,8 +184,8 @@ def cmd_check(args) -> int:
 def _report_sightings(source, scene) -> None:
     """Where each body is seen at the exposure (one render at the scene's resolution),
     with a warning for each body outside the frame, hidden or only a few pixels big."""
+    # imported here: they load the numba kernels, which command start-up does not need
     from relview import framing
-    from relview.errors import SceneWarning
     from relview.renderer import camera_state, render
 
     if not scene.bodies:
@@ -203,7 +205,6 @@ def _report_sightings(source, scene) -> None:
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from relview import __version__
 
     parser = _Parser(prog="relview", description="Apparent images of relativistically "
                      "moving bodies: light delay, aberration, Doppler shift and beaming.")

@@ -30,6 +30,7 @@ from pathlib import Path
 
 import numpy as np
 
+from relview import __version__
 from relview.errors import UserError
 from relview.imaging.display import to_8bit
 from relview.imaging.figure_files import save_figure
@@ -210,6 +211,7 @@ def rest_scene(scene: Scene, time_s: float) -> Scene:
     Bodies keep their rest-frame shapes (no contraction, since beta = 0); bodies on
     non-uniform worldlines keep their orientation at ``time_s`` (:func:`rest_pose`).
     """
+    # imported here: it loads the numba kernels, which command start-up does not need
     from relview.renderer import camera_state
 
     bodies = []
@@ -333,6 +335,7 @@ def panel_scene(scene: Scene, kind: PanelKind, time_s: float) -> Scene:
 
 def _drawn_centre(scene: Scene, index: int, time_s: float, effects: Effects, context):
     """Where the main body's origin is drawn: its emission position for this panel."""
+    # imported here: it loads the numba kernels, which command start-up does not need
     from relview.probes import probe_many
 
     r = probe_many(scene, index, np.zeros((1, 3)), time_s, effects, context=context)[0]
@@ -349,6 +352,7 @@ FRAMINGS = ("auto", "scene", "common", "each")
 def _framed_scenes(scenes: list[Scene], kinds: list[PanelKind], index: int | None,
                    time_s: float, resolution, framing_mode: str) -> tuple[list[Scene], str]:
     """The panels' scenes with the sheet's framing applied, and the framing used."""
+    # imported here: it loads the numba kernels, which command start-up does not need
     from relview import framing
     from relview.renderer import camera_state
 
@@ -402,6 +406,7 @@ def render_panels(
     the main body's measured and photographed outlines (both panels are rendered, shown
     or not).
     """
+    # imported here: it loads the numba kernels, which command start-up does not need
     from relview import framing as framing_mod
     from relview.renderer import RenderContext, camera_state, render
 
@@ -484,7 +489,6 @@ def render_panels(
 
 def sheet_provenance(sheet: Sheet) -> dict:
     """Everything needed to make the sheet again, and the numbers printed on it."""
-    from relview import __version__
 
     scene = sheet.scene
     first = sheet.panels[0].frame

@@ -27,6 +27,7 @@ from pathlib import Path
 
 import numpy as np
 
+from relview import __version__
 from relview.errors import OutputError, UserError
 from relview.imaging.figure_files import save_figure
 from relview.imaging.files import atomic_write
@@ -159,7 +160,6 @@ class ProbeTable:
 def table_provenance(
     scene: Scene, body_name: str, points: np.ndarray, times: np.ndarray, effects: Effects
 ) -> dict:
-    from relview import __version__
 
     return {
         "relview_version": __version__,
@@ -179,6 +179,7 @@ def probe_table(
     scene: Scene, body, points, times, effects: Effects | None = None, progress: bool = False
 ) -> ProbeTable:
     """Probe rest-frame ``points`` (N, 3) m of ``body`` (name or index) at every time (s)."""
+    # imported here: it loads the numba kernels, which command start-up does not need
     from relview.probes import probe_many, retarded_events
     from relview.renderer import RenderContext, camera_state
 

@@ -32,6 +32,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from relview.errors import SceneError
 from relview.geometry.trace import FrameGroup
 from relview.kinematics.clocks import clock_coordinate, reference_times
 from relview.kinematics.lorentz import C
@@ -272,8 +273,6 @@ def check_body_speed(scene, index: int, vertices) -> None:
     """Reject a body some point of which would move at or above c under its motion
     (:meth:`relview.kinematics.worldline.RigidKinematics.validate` over the mesh's radius), as a
     SceneError naming the scene file and the body."""
-    from relview.errors import SceneError
-
     body = scene.bodies[index]
     extent = float(np.sqrt((np.asarray(vertices, float) ** 2).sum(axis=1).max())) if len(vertices) else 0.0
     kin = body.motion

@@ -30,6 +30,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from relview.geometry import camera as cam_mod
 from relview.kinematics.lorentz import aberrate_to_camera, compose_velocities, doppler_along
 from relview.light import spectrum
 from relview.scene.parts import Background, Camera, Effects
@@ -160,8 +161,6 @@ def generate_stars(bg: Background):
 def star_splat(bg: Background, camera: Camera, width: int, height: int, beta_cam: np.ndarray,
                effects: Effects, occluded: np.ndarray | None = None) -> np.ndarray | None:
     """(H, W, 3) XYZ image of the star field, or None for other backgrounds."""
-    from relview.geometry import camera as cam_mod
-
     if bg.kind != "stars":
         return None
     dirs, temps, lum = generate_stars(bg)
