@@ -2,10 +2,11 @@
 
 A packet of rays from one start event walks only the frame groups whose direction box
 overlaps the box of its directions. The reference is the full loop over every group (the
-same kernel given an empty tree): on random scenes of many bodies, each with its own
-velocity, under every combination of the delay and contraction switches, the culled
-cast must return exactly the hits of the full loop (never a miss, never a different
-triangle), and every hit's direction must lie in its group's box.
+same kernel without the tree), as issue 12 asks: on random scenes of many bodies, each
+with its own velocity, under every combination of the delay and contraction switches, the
+culled cast must return the hits of the full loop (the same triangle for every ray: never
+a miss, never another face; l, u, v equal to the last bits, see ``close``), and every
+hit's direction must lie in its group's box.
 """
 
 from __future__ import annotations
@@ -62,6 +63,23 @@ def culled(tracer, event, d, k_time):
     return out, tree[3]
 
 
+def close(a, b) -> bool:
+    """Equal to the last bits a kernel's compiled form may change: a kernel compiled in
+    this process and one loaded from numba's cache can differ there (seen at ecc3fd8
+    already, without culling), and the two casts compared here are two specialisations
+    of one kernel that need not be in the same state."""
+    scale = float(np.nanmax(np.abs(np.where(np.isfinite(a), a, 0.0)), initial=0.0))
+    return bool(np.allclose(a, b, rtol=1e-12, atol=1e-12 * scale, equal_nan=True))
+
+
+def same_hits(got, ref) -> None:
+    """The same triangle for every ray (never a miss, never another face), and the same
+    l, u, v (to the last bits, see close)."""
+    l, tri, u, v = got
+    assert np.array_equal(tri, ref[1])
+    assert close(l, ref[0]) and close(u, ref[2]) and close(v, ref[3])
+
+
 def camera_directions(rng, n_side, towards):
     """Coherent rays (a pixel grid around the direction ``towards``) plus scattered random
     ones."""
@@ -87,8 +105,7 @@ def test_culled_cast_equals_the_loop_over_every_group(seed, delay, contraction):
         d = camera_directions(rng, 96, -event[1:])  # the grid looks at the scene's middle
         ref = full_loop(tracer, event, d, k_time)
         got, boxes = culled(tracer, event, d, k_time)
-        for a, b in zip(got, ref):
-            assert np.array_equal(a, b)
+        same_hits(got, ref)
         hit = ref[1] >= 0
         assert hit.sum() > 500  # the scene is seen, so the comparison means something
         group = tracer.packed.tri_group[ref[1][hit]]
@@ -113,8 +130,7 @@ def test_fast_bodies_seen_edge_on_and_a_camera_inside_a_group_ball():
     d = camera_directions(rng, 128, rng.normal(size=3))
     ref = full_loop(tracer, event, d, -1.0)
     got, boxes = culled(tracer, event, d, -1.0)
-    for a, b in zip(got, ref):
-        assert np.array_equal(a, b)
+    same_hits(got, ref)
     assert np.all(boxes[-1] == [-2, -2, -2, 2, 2, 2])
 
 
@@ -149,7 +165,8 @@ def test_many_body_render_is_unchanged_by_culling(monkeypatch):
     with_culling = render(s)
     monkeypatch.setattr(trace, "CULL_MIN_GROUPS", 10**9)
     without = render(s)
-    assert np.array_equal(with_culling.image, without.image)
+    assert np.array_equal(with_culling.layers["body"], without.layers["body"])
+    assert close(with_culling.image, without.image)
     for name in without.layers:
-        assert np.array_equal(with_culling.layers[name], without.layers[name], equal_nan=True)
+        assert close(with_culling.layers[name], without.layers[name]), name
     assert (with_culling.layers["body"] >= 0).mean() > 0.05
