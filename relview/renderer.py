@@ -20,8 +20,8 @@ from pathlib import Path
 import numpy as np
 
 from relview import framing, illumination
+from relview.frame_memory import RAYS_PER_BATCH, check_memory
 from relview.geometry import camera as cam_mod
-from relview.geometry.shapes import free_memory, mesh_bytes
 from relview.geometry.trace import Hits, Tracer, frame_matrix, uniform_groups
 from relview.imaging.display import to_8bit
 from relview.imaging.exposure import clipped_fraction, expose, exposure_white, metered_pixels
@@ -32,12 +32,6 @@ from relview.kinematics.lorentz import C
 from relview.kinematics.magnitudes import check_time
 from relview.scene.model import Scene
 from relview.scene.parts import Effects
-
-#: Rays traced per batch (a 960x540 frame is one batch); bounds the working memory of one
-#: batch to about 150 MB.
-RAYS_PER_BATCH = 1 << 19
-#: Bytes per pixel held for the float layers and accumulators of one frame.
-BYTES_PER_PIXEL = 8 * (3 + 3 + 1 + 1 + 3 + 3 + 1 + 3)
 
 
 @dataclass
@@ -297,29 +291,6 @@ def bodies_around_camera(scene: Scene, context: RenderContext,
         if mesh.is_watertight and bool(mesh.contains(x[None, :])[0]):
             inside.append(body.name)
     return inside
-
-
-def estimate_bytes(width: int, height: int, faces: int = 0) -> int:
-    """Working memory of one frame: layers plus one ray batch, plus ``faces`` mesh
-    triangles at relview.geometry.shapes.BYTES_PER_FACE each (measured)."""
-    return width * height * BYTES_PER_PIXEL + RAYS_PER_BATCH * 400 + mesh_bytes(faces)
-
-
-def check_memory(width: int, height: int, source: str = "render.resolution",
-                 faces: int = 0) -> None:
-    """Refuse before any work when a frame (and ``faces`` mesh triangles) would not fit in
-    this machine's memory."""
-    need = estimate_bytes(width, height, faces)
-    avail = free_memory()
-    if avail is None:
-        return
-    if need > 0.8 * avail:
-        from relview.errors import UserError
-
-        meshes = f" with {faces:,} mesh triangles" if faces else ""
-        raise UserError(f"{source} = [{width}, {height}]: a frame{meshes} needs about "
-                        f"{need / 2**30:.1f} GiB but only {avail / 2**30:.1f} GiB is free; "
-                        "lower the resolution" + (" or simplify the meshes" if faces else ""))
 
 
 def exposure_times(t: float, shutter: float, samples: int, shutter_samples: int) -> np.ndarray:

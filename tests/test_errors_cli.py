@@ -24,6 +24,7 @@ import pytest
 import trimesh
 from conftest import write_text
 
+import relview.frame_memory
 import relview.imaging.files
 import relview.renderer
 import relview.scene.table
@@ -348,8 +349,8 @@ def test_huge_resolution_in_scene_file_refused(tmp_path, capsys, monkeypatch, co
     monkeypatch.chdir(tmp_path)
     path = write_text(tmp_path, edit("resolution = [16, 9]", "resolution = [100000, 100000]"))
     code, _, err = run(capsys, command, path)
-    # 100000**2 pixels * 144 bytes: 1341.2 GiB (estimate_bytes, renderer.BYTES_PER_PIXEL)
-    need = relview.renderer.estimate_bytes(100000, 100000) / 2**30
+    # 100000**2 pixels * 144 bytes: 1341.2 GiB (estimate_bytes, frame_memory.BYTES_PER_PIXEL)
+    need = relview.frame_memory.estimate_bytes(100000, 100000) / 2**30
     assert_user_error(code, err, f"{path}: render.resolution = [100000, 100000]",
                       f"about {need:.1f} GiB")
 

@@ -21,7 +21,7 @@ LAYERS = [
     ("relview.geometry", "relview.light"),
     ("relview.imaging",),
     ("relview.scene",),
-    ("relview.renderer", "relview.probes", "relview.illumination", "relview.framing"),
+    ("relview.frame_memory", "relview.renderer", "relview.probes", "relview.illumination", "relview.framing"),
     ("relview.figures", "relview.animation"),
     ("relview.cli",),
 ]

@@ -158,14 +158,14 @@ def test_declared_face_counts_match_trimesh(tmp_path, ext):
 
 
 def test_frame_estimate_includes_mesh_triangles(monkeypatch):
-    from relview import renderer
+    from relview import frame_memory
 
-    plain = renderer.estimate_bytes(48, 27)
-    assert renderer.estimate_bytes(48, 27, faces=1000) == plain + 1000 * shapes.BYTES_PER_FACE
-    monkeypatch.setattr(renderer, "free_memory", lambda: 2 * plain)
-    renderer.check_memory(48, 27)  # the frame alone fits
+    plain = frame_memory.estimate_bytes(48, 27)
+    assert frame_memory.estimate_bytes(48, 27, faces=1000) == plain + 1000 * shapes.BYTES_PER_FACE
+    monkeypatch.setattr(frame_memory, "free_memory", lambda: 2 * plain)
+    frame_memory.check_memory(48, 27)  # the frame alone fits
     with pytest.raises(UserError, match="a frame with 1,000,000 mesh triangles needs about"):
-        renderer.check_memory(48, 27, faces=1_000_000)
+        frame_memory.check_memory(48, 27, faces=1_000_000)
 
 
 # ----------------------------------------------------------------------------- spectra

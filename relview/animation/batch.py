@@ -64,9 +64,9 @@ from relview.animation.workers import (
     render_serial,
 )
 from relview.errors import OutputError, UserError, WorkersLost
+from relview.frame_memory import check_memory, estimate_bytes
 from relview.geometry.shapes import mesh_data
 from relview.imaging.exposure import ExposureLock
-from relview.renderer import RenderContext, check_memory, estimate_bytes, metering_masks, render
 
 __all__ = [
     "DEFAULT_WORKERS",
@@ -110,6 +110,10 @@ def decide_exposure(scene, times: np.ndarray, unlock: bool, context=None) -> dic
     frames at frame times spread evenly over the whole animation, ExposureLock)
     or "per-frame" (automatic exposure of each frame on its own; ``unlock``).
     """
+    # imported here: the renderer loads the numba kernels, which `relview --help` and the
+    # option checks of `relview animate` do not need
+    from relview.renderer import RenderContext, metering_masks, render
+
     mode = _exposure_mode(scene, unlock)
     if mode == "fixed":
         lock = ExposureLock(scene.render.exposure)

@@ -29,6 +29,8 @@ from relview.cli.options import (
 from relview.errors import SceneWarning, UserError
 from relview.figures import timeline
 from relview.figures.timeline import length_csv_path
+from relview.frame_memory import check_memory, estimate_bytes
+from relview.geometry import shapes
 from relview.imaging.figure_files import sidecar_path
 from relview.scene.model import load_scene
 
@@ -164,9 +166,8 @@ def named_outputs(args) -> list[tuple[str, Path]]:
 
 
 def cmd_check(args) -> int:
-    # imported here: they load the numba kernels, which command start-up does not need
-    from relview.geometry import lightcone, shapes
-    from relview.renderer import check_memory, estimate_bytes
+    # imported here: it loads the numba kernels, which command start-up does not need
+    from relview.geometry import lightcone
 
     scene = load_scene(args.scene)
     w, h = scene.render.resolution

@@ -16,8 +16,8 @@ from collections.abc import Iterable
 from pathlib import Path
 
 from relview.errors import OutputError, UserError
+from relview.frame_memory import check_memory
 from relview.imaging import formats
-from relview.renderer import check_memory
 from relview.scene.model import load_scene
 from relview.scene.reader import MAX_SAMPLES
 
