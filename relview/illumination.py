@@ -192,6 +192,102 @@ def rest_normals(body, body_index: int, mesh, hits_face, hits_bary, events, beta
     return n / np.linalg.norm(n, axis=1)[:, None]
 
 
+#: shading points whose emission events lie within this angle (rad), seen from the
+#: exposure event, of their cluster's event share one light-cone snapshot of the bodies on
+#: non-inertial worldlines (RetardedOccluders)
+CLUSTER_ANGLE = 0.01
+#: at most this many clusters (snapshots) per cast of shadow or mirror rays
+MAX_CLUSTERS = 48
+
+
+def event_clusters(events: np.ndarray, spread_m: float, max_clusters: int = MAX_CLUSTERS):
+    """Split the (N,4) ``events`` into clusters by halving the widest coordinate (ct, x, y,
+    z) at its median, widest cluster first, until each cluster's spread is at most
+    ``spread_m`` or there are ``max_clusters``. Returns [(centre event (4,), rows,
+    spread m)], the centre the middle of the cluster's bounding box and the spread the
+    bound |ct - ct_c| + |x - x_c| <= half width in ct + norm of half widths in x."""
+
+    def entry(rows):
+        lo = events[rows].min(axis=0)
+        hi = events[rows].max(axis=0)
+        half = 0.5 * (hi - lo)
+        return [float(half[0] + np.linalg.norm(half[1:])), 0.5 * (lo + hi), rows, half]
+
+    clusters = [entry(np.arange(len(events)))]
+    while len(clusters) < max_clusters:
+        widest = max(range(len(clusters)), key=lambda j: clusters[j][0])
+        spread, _, rows, half = clusters[widest]
+        if spread <= spread_m or len(rows) < 2:
+            break
+        axis = int(np.argmax(half))
+        col = events[rows, axis]
+        cut = np.median(col)
+        low = col < cut if np.any(col < cut) else col <= cut
+        if low.all():
+            break
+        clusters[widest:widest + 1] = [entry(rows[low]), entry(rows[~low])]
+    return [(c[1], c[2], c[0]) for c in clusters]
+
+
+class RetardedOccluders:
+    """Shadow and mirror rays (backward null rays from surface events) through the scene's
+    bodies, each met where it was when the light along the ray passed it: inertial bodies
+    exactly (the uniform groups), bodies on other worldlines through light-cone snapshots
+    (relview.geometry.lightcone) built on the past light cone of the rays' own start
+    events, not the camera's. The start events of a cast are grouped by
+    :func:`event_clusters` with the spread CLUSTER_ANGLE x their median distance from
+    the exposure event, and each cluster casts through a snapshot on its centre's light
+    cone. A body point on the snapshot of a centre C instead of a start event E is
+    displaced by at most beta (|ct_E - ct_C| + |x_E - x_C|): first order in the spread
+    (measured in tests/test_lamps.py). ``spread`` holds the largest spread of the last
+    cast (m). Duck-types Tracer.cast and Tracer.packed."""
+
+    def __init__(self, scene, meshes, other, uniform_groups, exposure_tracer: Tracer,
+                 exposure_event: np.ndarray, tolerance: float | None = None,
+                 cluster_angle: float = CLUSTER_ANGLE, max_clusters: int = MAX_CLUSTERS):
+        self.scene = scene
+        self.meshes = meshes
+        self.other = list(other)
+        self.uniform_groups = list(uniform_groups)
+        self.exposure_tracer = exposure_tracer
+        self.exposure_event = np.asarray(exposure_event, float).reshape(4)
+        self.tolerance = tolerance
+        self.cluster_angle = cluster_angle
+        self.max_clusters = max_clusters
+        self.spread = 0.0
+
+    @property
+    def packed(self):
+        return self.exposure_tracer.packed
+
+    def cast(self, ray_origin: np.ndarray, d_scene: np.ndarray, effects: Effects,
+             l_min: float = 1e-9, beta_cam=None, reference=None):
+        from relview.geometry import lightcone  # loads the snapshot kernels on first use
+
+        d_scene = np.asarray(d_scene, float)
+        starts = np.broadcast_to(np.asarray(ray_origin, float), (len(d_scene), 4))
+        if len(d_scene) == 0:
+            return self.exposure_tracer.cast(starts, d_scene, effects, l_min, beta_cam, reference)
+        where = np.median(np.linalg.norm(starts[:, 1:] - self.exposure_event[1:], axis=1))
+        clusters = event_clusters(starts, self.cluster_angle * where, self.max_clusters)
+        self.spread = max(c[2] for c in clusters)
+        merged = None
+        for centre, rows, _ in clusters:
+            snaps = lightcone.snapshot_groups(self.scene, self.meshes, self.other, centre, effects,
+                                              self.tolerance, reference=reference)
+            hits = Tracer(self.uniform_groups + snaps).cast(
+                np.ascontiguousarray(starts[rows]), d_scene[rows], effects, l_min, beta_cam,
+                reference)
+            if merged is None:
+                merged = {k: (None if v is None else np.empty((len(d_scene),) + v.shape[1:],
+                                                               v.dtype))
+                          for k, v in vars(hits).items()}
+            for k, v in vars(hits).items():
+                if v is not None:
+                    merged[k][rows] = v
+        return type(hits)(**merged)
+
+
 def _shadow_free(tracer: Tracer, start: np.ndarray, towards: np.ndarray, distance: np.ndarray,
                  effects: Effects, reference=None) -> np.ndarray:
     """(N,) True where the backward null ray from each start event along unit ``towards``

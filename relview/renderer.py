@@ -220,8 +220,16 @@ class RenderContext:
             snap = lightcone.snapshot_groups(self.scene, self.meshes, self.other, camera_event,
                                              self.effects, tolerance, reference=reference)
             tracer = Tracer(self.uniform_groups + snap)
-        # the exposure being rendered: shade() casts the lamps' shadow rays through it
-        self.exposure = (np.asarray(camera_event, float), tracer, reference)
+        # the exposure being rendered: shade() casts the lamps' shadow rays and the
+        # mirrors' reflected rays through it, bodies on non-inertial worldlines on the
+        # light cones of the rays' own start events (illumination.RetardedOccluders)
+        secondary = tracer
+        if self.other and (illumination.scene_lit(self.scene) or any(
+                getattr(b.surface, "mirror", False) for b in self.scene.bodies)):
+            secondary = illumination.RetardedOccluders(
+                self.scene, self.meshes, self.other, self.uniform_groups, tracer,
+                camera_event, tolerance)
+        self.exposure = (np.asarray(camera_event, float), secondary, reference)
         return tracer
 
     def lamp_layers(self, height: int, width: int) -> dict[str, np.ndarray]:
