@@ -468,6 +468,12 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
         if layer_rows.start == 0:  # a new frame (pixel_centres holds its size)
             context._lamp_layers = illumination.LampLayers(int(np.prod(context._centres_size)))
         lamp_layers = context._lamp_layers.values
+    # Bodies whose hits are shaded by their own light alone are gathered by surface (the
+    # same surface.key(), and texture coordinates or none) and shaded in one call per
+    # surface: surfaces shade each hit on its own, so this gives the same colours as one
+    # call per body without a Doppler-table launch per body (benchmarks/results.md).
+    plain: dict = {}  # (surface key, has uv) -> [surface, [(body, rows, uv)]]
+    keys: dict = {}  # id(surface) -> surface.key(), computed once per surface object
     for i, sel in rows_by_body(hits.body):
         body = scene.bodies[i]
         surface = body.surface
@@ -478,7 +484,6 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
             uvs = context.uv[i]
             uv = ((1 - w[:, 0] - w[:, 1])[:, None] * uvs[faces[:, 0]] + w[:, :1] * uvs[faces[:, 1]]
                   + w[:, 1:] * uvs[faces[:, 2]])
-        rest = hits.rest_position[sel] if getattr(surface, "uses_position", True) else None
         if getattr(surface, "mirror", False):
             if bounce < surface.bounces:
                 seen_by = context.exposure[0] if viewer is None else viewer
@@ -486,15 +491,17 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
                                       seen_by[sel] if np.ndim(seen_by) == 2 else seen_by,
                                       bounce)
             continue
+        if not (lit_scene and illumination.takes_lamps(surface)):
+            if id(surface) not in keys:
+                keys[id(surface)] = surface.key()
+            entry = plain.setdefault((keys[id(surface)], uv is not None), [surface, []])
+            entry[1].append((i, sel, uv))
+            continue
+        rest = hits.rest_position[sel]
         clock = {}  # the clock reading at emission, for surfaces that show it (clock faces)
         if getattr(surface, "uses_proper_time", False):
             clock["proper_time"] = reading_from_coordinate(body.motion, body.clock,
                                                            hits.clock[sel], effects.contraction)
-        if not (lit_scene and illumination.takes_lamps(surface)):
-            out[sel] = surface.observed_xyz(doppler[sel], rest, uv, effects, **clock)
-            continue
-        if rest is None:
-            rest = hits.rest_position[sel]
         camera_event, tracer, reference = context.exposure
         if viewer is not None:  # seen in a mirror: received at the mirror's hit events
             camera_event = viewer[sel] if np.ndim(viewer) == 2 else viewer
@@ -506,6 +513,15 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
             lamp_layers["incident_doppler"][rows] = d_in
             lamp_layers["shadowed_fraction"][rows] = shadowed
             lamp_layers["total_doppler"][rows] = d_in * doppler[sel]
+    for surface, members in plain.values():
+        sel = np.concatenate([rows for _, rows, _ in members])
+        uv = None if members[0][2] is None else np.concatenate([m[2] for m in members])
+        rest = hits.rest_position[sel] if getattr(surface, "uses_position", True) else None
+        clock = {}
+        if getattr(surface, "uses_proper_time", False):
+            clock["proper_time"] = body_readings(scene.bodies, hits.body[sel], hits.clock[sel],
+                                                 effects.contraction)
+        out[sel] = surface.observed_xyz(doppler[sel], rest, uv, effects, **clock)
     return out
 
 

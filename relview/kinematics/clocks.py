@@ -69,16 +69,27 @@ def reading_from_coordinate(motion, clock, value_ct, relativistic: bool = True) 
 
 def body_readings(bodies, body_index, value_ct, relativistic: bool = True) -> np.ndarray:
     """(N,) clock readings (s) of hits on ``bodies`` (index -1: sky, NaN) from their
-    clock coordinates (N,) ct m (relview.geometry.trace.Hits.clock)."""
+    clock coordinates (N,) ct m (relview.geometry.trace.Hits.clock).
+
+    One vectorised pass: each body seen contributes its setting (reading and clock
+    coordinate at the setting event, :func:`reading_from_coordinate`) once, gathered to
+    its rows, so the cost does not grow with bodies x pixels; every row's arithmetic is
+    the same as reading_from_coordinate's."""
     index = np.asarray(body_index)
     out = np.full(index.shape, np.nan)
     if value_ct is None:  # hits cast without clocks
         return out
-    for i in np.unique(index[index >= 0]):
-        sel = index == i
-        body = bodies[int(i)]
-        out[sel] = reading_from_coordinate(body.motion, body.clock, np.asarray(value_ct)[sel],
-                                           relativistic)
+    seen = index >= 0
+    if not np.any(seen):
+        return out
+    present, rows_of = np.unique(index[seen], return_inverse=True)
+    setting = np.empty(len(present))  # the clock reading at its setting event, s
+    set_value = np.empty(len(present))  # the clock coordinate there, ct m
+    for k, i in enumerate(present.tolist()):
+        body = bodies[i]
+        setting[k] = float(body.clock.reading)
+        set_value[k] = clock_coordinate(body.motion, C * float(body.clock.time), relativistic)[0][0]
+    out[seen] = setting[rows_of] + (np.asarray(value_ct, float)[seen] - set_value[rows_of]) / C
     return out
 
 
