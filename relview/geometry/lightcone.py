@@ -145,11 +145,16 @@ def _solve_unique(kin, points, camera_event, effects):
     return ev[inverse], beta[inverse]
 
 
-def _chord_errors(kin, points, ev, beta, a, b, camera_event, effects):
+def _chord_errors(kin, points, ev, beta, a, b, camera_event, effects, solve=True):
     """Chord error (module docstring) of edges a-b, with the exact midpoint images.
-    NaN where an end has no retarded event."""
+    NaN where an end has no retarded event. ``solve`` False: the edges are known to be
+    distinct, so their midpoints are solved as they are, without looking for repeats."""
     mid = 0.5 * (points[a] + points[b])
-    ev_mid, beta_mid = _solve_unique(kin, mid, camera_event, effects)
+    if solve:
+        ev_mid, beta_mid = _solve_unique(kin, mid, camera_event, effects)
+    else:
+        ev_mid, beta_mid = kin.retarded(mid, camera_event, delay=effects.delay,
+                                        contraction=effects.contraction)
     chord = 0.5 * (ev[a, 1:] + ev[b, 1:])
     dist = np.linalg.norm(ev_mid[:, 1:] - camera_event[1:], axis=1)
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -208,16 +213,40 @@ def _split_marked(tri, mid, parent):
     return np.concatenate(parts), np.concatenate(owners)
 
 
+def _distinct_edges(vid, a, b):
+    """The distinct edges among per-face edges a-b (indices of per-face points whose
+    distinct points are ``vid``): (index of one per-face edge of each, index of each
+    per-face edge's distinct edge). An edge shared by two faces is one distinct edge."""
+    da, db = vid[a], vid[b]
+    key = np.minimum(da, db) * (1 << 32) + np.maximum(da, db)
+    _, first, inverse = np.unique(key, return_index=True, return_inverse=True)
+    return first, inverse
+
+
 def _adaptive(kin, vertices, faces, cam, effects, tolerance, max_triangles, max_rounds=14):
     """Red-green refinement of every edge whose chord error exceeds the tolerance; the
-    exact midpoint images computed for the test become the new vertices."""
+    exact midpoint images computed for the test become the new vertices.
+
+    Each face owns copies of its corners (their barycentrics are per face), but every
+    retarded solve is made once per *distinct* point: ``vid`` maps each per-face point to
+    its distinct point (at first the mesh's own vertex, then one new point per split
+    distinct edge), and the solved events live in arrays over distinct points. The copies
+    get identical values (the solves work point by point, and a midpoint's coordinates
+    do not depend on the order of its ends), so the mesh is the one that solving every
+    copy would give. Returns the per-face arrays and ``vid`` with the distinct points."""
     f0 = len(faces)
     points = vertices[faces].reshape(-1, 3)  # each face owns its corners (per-face bary)
+    vid = faces.reshape(-1).astype(np.int64)
     tri = np.arange(3 * f0, dtype=np.int64).reshape(f0, 3)
     parent = np.arange(f0, dtype=np.int64)
     bary = np.tile(np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]]), (f0, 1))
-    ev, beta = _solve_unique(kin, points, cam, effects)
-    good = np.empty(0, np.int64)  # keys of edges measured within tolerance
+    distinct = vertices.copy()  # (D, 3) body coordinates of the distinct points
+    ev_d = np.full((len(vertices), 4), np.nan)
+    beta_d = np.full((len(vertices), 3), np.nan)
+    used = np.unique(vid)
+    ev_d[used], beta_d[used] = kin.retarded(vertices[used], cam, delay=effects.delay,
+                                            contraction=effects.contraction)
+    good = np.empty(0, np.int64)  # keys of (per-face) edges measured within tolerance
     error = 0.0
     for _ in range(max_rounds):
         ends = np.stack([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [2, 0]]], axis=1)  # (F, 3, 2)
@@ -227,14 +256,17 @@ def _adaptive(kin, vertices, faces, cam, effects, tolerance, max_triangles, max_
         if todo.size == 0:
             break
         a, b = ukey[todo] >> 32, ukey[todo] & 0xFFFFFFFF
-        err, mid_pts, ev_mid, beta_mid = _chord_errors(kin, points, ev, beta, a, b, cam, effects)
+        first, edge_of = _distinct_edges(vid, a, b)
+        err_d, mid_d, ev_mid_d, beta_mid_d = _chord_errors(
+            kin, points, ev_d[vid], beta_d[vid], a[first], b[first], cam, effects, solve=False)
+        err = err_d[edge_of]
         bad = np.isfinite(err) & (err > tolerance)
         ok = ~bad
         if np.any(ok & np.isfinite(err)):
             error = max(error, float(np.max(err[ok & np.isfinite(err)])))
-        good = np.union1d(good, ukey[todo[ok]])
         if not np.any(bad):
             break
+        good = np.union1d(good, ukey[todo[ok]])  # for the rounds to come
         mid_of = np.full(len(ukey), -1, np.int64)
         new = len(points) + np.arange(int(bad.sum()))
         mid_of[todo[bad]] = new
@@ -242,14 +274,18 @@ def _adaptive(kin, vertices, faces, cam, effects, tolerance, max_triangles, max_
         if len(tri) + int((mid >= 0).sum()) > max_triangles:  # budget reached: stop here
             error = max(error, float(np.max(err[bad])))
             break
-        points = np.concatenate([points, mid_pts[bad]])
-        ev = np.concatenate([ev, ev_mid[bad]])
-        beta = np.concatenate([beta, beta_mid[bad]])
+        bad_d = np.isfinite(err_d) & (err_d > tolerance)
+        rank = np.cumsum(bad_d) - 1  # new distinct point of each split distinct edge
+        points = np.concatenate([points, mid_d[edge_of[bad]]])
+        vid = np.concatenate([vid, len(distinct) + rank[edge_of[bad]]])
+        distinct = np.concatenate([distinct, mid_d[bad_d]])
+        ev_d = np.concatenate([ev_d, ev_mid_d[bad_d]])
+        beta_d = np.concatenate([beta_d, beta_mid_d[bad_d]])
         bary = np.concatenate([bary, 0.5 * (bary[a[bad]] + bary[b[bad]])])
         tri, parent = _split_marked(tri, mid, parent)
     else:
         error = max(error, tolerance)  # rounds exhausted: not verified below the tolerance
-    return points, tri, parent, bary, ev, beta, error
+    return points, tri, parent, bary, vid, (distinct, ev_d, beta_d), error
 
 
 def snapshot(motion, vertices, faces, camera_event, effects, tolerance: float = DEFAULT_TOLERANCE,
@@ -268,18 +304,23 @@ def snapshot(motion, vertices, faces, camera_event, effects, tolerance: float = 
     faces = np.asarray(faces, np.int64)
     cam = np.asarray(camera_event, float).reshape(4)
     if segments is None:
-        pts, sub, parent, bary, ev, beta, err = _adaptive(kin, vertices, faces, cam, effects, tolerance,
-                                                          max_triangles)
+        pts, sub, parent, bary, vid, (distinct, ev_d, beta_d), err = _adaptive(
+            kin, vertices, faces, cam, effects, tolerance, max_triangles)
+        ev, beta = ev_d[vid], beta_d[vid]
         n = 0
     else:
         n = int(segments)
         pts, sub, parent, bary = _split_faces(vertices, faces, n)
         ev, beta = _solve_unique(kin, pts, cam, effects)
         err = _uniform_error(kin, pts, ev, beta, sub, cam, effects, np.random.default_rng(0))
+        distinct, vid = _unique_rows(pts)
+        ev_d = np.empty((len(distinct), 4))
+        ev_d[vid] = ev
     keep = np.all(np.isfinite(ev[sub, 0]), axis=1)
     positions = np.where(np.isfinite(ev[:, 1:]), ev[:, 1:], 0.0)  # unused where NaN (faces dropped)
-    return Snapshot(positions, sub[keep], parent[keep], pts, bary, ev, beta, n, err,
-                    _vertex_clock(kin, pts, ev, effects))
+    # the clock once per distinct point (it depends on the point and its event only)
+    clock = _vertex_clock(kin, distinct, ev_d, effects)[vid]
+    return Snapshot(positions, sub[keep], parent[keep], pts, bary, ev, beta, n, err, clock)
 
 
 def check_body_speed(scene, index: int, vertices) -> None:
