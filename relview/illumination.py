@@ -197,36 +197,32 @@ def rest_normals(body, body_index: int, mesh, hits_face, hits_bary, events, beta
 #: non-inertial worldlines (RetardedOccluders)
 CLUSTER_ANGLE = 0.01
 #: at most this many clusters (snapshots) per cast of shadow or mirror rays
-MAX_CLUSTERS = 48
+MAX_CLUSTERS = 6
 
 
 def event_clusters(events: np.ndarray, spread_m: float, max_clusters: int = MAX_CLUSTERS):
-    """Split the (N,4) ``events`` into clusters by halving the widest coordinate (ct, x, y,
-    z) at its median, widest cluster first, until each cluster's spread is at most
-    ``spread_m`` or there are ``max_clusters``. Returns [(centre event (4,), rows,
-    spread m)], the centre the middle of the cluster's bounding box and the spread the
-    bound |ct - ct_c| + |x - x_c| <= half width in ct + norm of half widths in x."""
-
-    def entry(rows):
-        lo = events[rows].min(axis=0)
-        hi = events[rows].max(axis=0)
-        half = 0.5 * (hi - lo)
-        return [float(half[0] + np.linalg.norm(half[1:])), 0.5 * (lo + hi), rows, half]
-
-    clusters = [entry(np.arange(len(events)))]
-    while len(clusters) < max_clusters:
-        widest = max(range(len(clusters)), key=lambda j: clusters[j][0])
-        spread, _, rows, half = clusters[widest]
-        if spread <= spread_m or len(rows) < 2:
-            break
-        axis = int(np.argmax(half))
-        col = events[rows, axis]
-        cut = np.median(col)
-        low = col < cut if np.any(col < cut) else col <= cut
-        if low.all():
-            break
-        clusters[widest:widest + 1] = [entry(rows[low]), entry(rows[~low])]
-    return [(c[1], c[2], c[0]) for c in clusters]
+    """Group the (N,4) ``events`` by the cells of a grid in (ct, x, y, z) anchored at 0,
+    of side a the power of 2 (m) at most spread_m / (0.5 + sqrt(3)/2), doubled until at
+    most ``max_clusters`` cells are occupied (so the casts of one exposure share cells).
+    Where that needs cells wider than the events' extent, one cluster: their bounding
+    box. Returns [(key, centre event (4,), rows, spread m)], the spread the bound
+    max |ct - ct_c| + |x - x_c| about the centre."""
+    root3 = 0.5 + 0.5 * math.sqrt(3.0)
+    side = 2.0 ** math.floor(math.log2(max(float(spread_m), 1e-300) / root3))
+    extent = float(np.max(np.ptp(events, axis=0)))
+    while side <= extent:
+        cells = np.floor(events / side).astype(np.int64)
+        index, inverse = np.unique(cells, axis=0, return_inverse=True)
+        if len(index) <= max_clusters:
+            inverse = inverse.reshape(-1)
+            return [((side, tuple(cell)), (cell + 0.5) * side, np.nonzero(inverse == j)[0],
+                     side * root3) for j, cell in enumerate(index)]
+        side *= 2.0
+    lo, hi = events.min(axis=0), events.max(axis=0)
+    half = 0.5 * (hi - lo)
+    centre = 0.5 * (lo + hi)
+    return [(("box", tuple(centre)), centre, np.arange(len(events)),
+             float(half[0] + np.linalg.norm(half[1:])))]
 
 
 class RetardedOccluders:
@@ -234,10 +230,10 @@ class RetardedOccluders:
     bodies, each met where it was when the light along the ray passed it: inertial bodies
     exactly (the uniform groups), bodies on other worldlines through light-cone snapshots
     (relview.geometry.lightcone) built on the past light cone of the rays' own start
-    events, not the camera's. The start events of a cast are grouped by
-    :func:`event_clusters` with the spread CLUSTER_ANGLE x their median distance from
-    the exposure event, and each cluster casts through a snapshot on its centre's light
-    cone. A body point on the snapshot of a centre C instead of a start event E is
+    events, not the camera's. The start events of a cast are grouped by the grid cells
+    of :func:`event_clusters` with the spread CLUSTER_ANGLE x their median distance from
+    the exposure event, and each cell casts through snapshots on its centre's light cone
+    (kept for the other casts of the exposure, which is what this object serves). A body point on the snapshot of a centre C instead of a start event E is
     displaced by at most beta (|ct_E - ct_C| + |x_E - x_C|): first order in the spread
     (measured in tests/test_lamps.py). ``spread`` holds the largest spread of the last
     cast (m). Duck-types Tracer.cast and Tracer.packed."""
@@ -255,6 +251,7 @@ class RetardedOccluders:
         self.cluster_angle = cluster_angle
         self.max_clusters = max_clusters
         self.spread = 0.0
+        self._tracers: dict = {}
 
     @property
     def packed(self):
@@ -270,12 +267,15 @@ class RetardedOccluders:
             return self.exposure_tracer.cast(starts, d_scene, effects, l_min, beta_cam, reference)
         where = np.median(np.linalg.norm(starts[:, 1:] - self.exposure_event[1:], axis=1))
         clusters = event_clusters(starts, self.cluster_angle * where, self.max_clusters)
-        self.spread = max(c[2] for c in clusters)
+        self.spread = max(c[3] for c in clusters)
         merged = None
-        for centre, rows, _ in clusters:
-            snaps = lightcone.snapshot_groups(self.scene, self.meshes, self.other, centre, effects,
-                                              self.tolerance, reference=reference)
-            hits = Tracer(self.uniform_groups + snaps).cast(
+        for key, centre, rows, _ in clusters:
+            tracer = self._tracers.get(key)
+            if tracer is None:  # one snapshot per grid cell and exposure, shared by casts
+                snaps = lightcone.snapshot_groups(self.scene, self.meshes, self.other, centre,
+                                                  effects, self.tolerance, reference=reference)
+                tracer = self._tracers[key] = Tracer(self.uniform_groups + snaps)
+            hits = tracer.cast(
                 np.ascontiguousarray(starts[rows]), d_scene[rows], effects, l_min, beta_cam,
                 reference)
             if merged is None:
@@ -289,15 +289,17 @@ class RetardedOccluders:
 
 
 def _shadow_free(tracer: Tracer, start: np.ndarray, towards: np.ndarray, distance: np.ndarray,
-                 effects: Effects, reference=None) -> np.ndarray:
+                 effects: Effects, reference=None, own_body: int = -1) -> np.ndarray:
     """(N,) True where the backward null ray from each start event along unit ``towards``
     meets no body before ``distance`` (m; inf for a distant lamp). ``reference``: the
-    exposure's reference event (relview.geometry.trace)."""
+    exposure's reference event (relview.geometry.trace). ``own_body``: the lamp's own
+    glowing sphere (scene body index, -1: none), which does not shadow its own light: a
+    ray meeting it first met nothing between the surface and the lamp."""
     if tracer is None or tracer.packed is None or len(start) == 0:
         return np.ones(len(start), bool)
     centred = {} if reference is None else {"reference": reference}
     hits = tracer.cast(start, towards, effects, l_min=SHADOW_OFFSET_M, **centred)
-    return ~(hits.l < distance * (1.0 - 1e-9))
+    return ~((hits.l < distance * (1.0 - 1e-9)) & (hits.body != own_body))
 
 
 def _disc_points(lamp: Lamp, k: np.ndarray) -> np.ndarray:
@@ -378,6 +380,7 @@ def _unshadowed(lamp: Lamp, tracer, events, k, distance, ev_l, effects: Effects,
     """(N,) unshadowed fraction of ``lamp`` at the (N,4) ``events`` its light reaches along
     unit k (N,3) from the lamp events ``ev_l`` (N,4; None for a distant lamp) at
     ``distance`` (N,): one shadow ray, or ``shadow_samples`` to a sphere lamp's disc."""
+    own = getattr(lamp, "glow_body", -1)  # set by the scene reader for sphere lamps
     if lamp.distant or lamp.radius == 0.0:
         return _shadow_free(tracer, events, -k, distance, effects, reference).astype(float)
     offsets = _disc_points(lamp, k)
@@ -386,7 +389,7 @@ def _unshadowed(lamp: Lamp, tracer, events, k, distance, ev_l, effects: Effects,
     dist = np.linalg.norm(seg, axis=2)
     free = _shadow_free(tracer, np.tile(events, (len(offsets), 1)),
                         (seg / dist[:, :, None]).reshape(-1, 3), dist.reshape(-1),
-                        effects, reference)
+                        effects, reference, own)
     return free.reshape(len(offsets), -1).mean(axis=0)
 
 

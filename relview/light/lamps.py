@@ -91,6 +91,7 @@ class LampSpectrum:
             raise ValueError(f"lamp spectrum {self.label}: no power at any wavelength")
         self._power = power
         self._scale = 1.0 / total
+        self.knots_nm = None if knots_nm is None else np.asarray(knots_nm, float)
         self.grid_nm = grid
         self.cumulative = cumulative / total
 
@@ -161,6 +162,53 @@ class LampSpectrum:
             return cls.from_surface(surface)
         except ValueError as exc:
             raise table.error(kind, f"{kind} = {table.show(value)}: {exc}", value) from exc
+
+
+# --------------------------------------------------------------------------------------
+# A sphere lamp as the camera sees it
+# --------------------------------------------------------------------------------------
+
+
+def sphere_radiance(power_w: float, radius_m: float) -> float:
+    """Radiance L (W/(sr m^2)) of a uniformly bright (Lambertian) sphere of radius R
+    radiating ``power_w``: its surface's exitance is M = pi L (radiance integrated over
+    the outward hemisphere with cos theta), so P = 4 pi R^2 M = 4 pi^2 R^2 L (Rybicki &
+    Lightman 1979, section 1.3: the flux of an isotropic field through a surface, F = pi
+    I, from memory)."""
+    return float(power_w) / (4.0 * math.pi**2 * float(radius_m) ** 2)
+
+
+class SphereGlow(materials.SpectralSurface):
+    """The surface of a sphere lamp: a self-luminous emitter of the lamp's spectrum whose
+    bolometric radiance in its rest frame is ``radiance`` (W/(sr m^2)), spectral radiance
+    radiance x p(lambda); seen with the Doppler factor of its points like any body
+    (relview.light.spectrum: L_obs(lambda) = D^5 L(D lambda)). Lamps of one spectrum share
+    a Doppler table; the radiance scales it."""
+
+    self_luminous = True
+
+    def __init__(self, lamp_spectrum: LampSpectrum, radiance: float):
+        self.spectrum = lamp_spectrum
+        self.radiance = float(radiance)
+
+    def key(self):
+        return ("sphere lamp", self.spectrum.key, self.radiance)
+
+    def spectral_radiance(self, wavelength_nm):
+        return self.radiance * self.spectrum.density(wavelength_nm)
+
+    def knots_nm(self):
+        return self.spectrum.knots_nm
+
+    def table(self):
+        return spectrum.cached_table(("sphere lamp", self.spectrum.key), self.spectrum.density,
+                                      self.spectrum.knots_nm)
+
+    def observed_xyz(self, doppler, rest_position=None, uv=None, effects=None):
+        return self.radiance * super().observed_xyz(doppler, rest_position, uv, effects)
+
+    def __repr__(self):
+        return f"SphereGlow({self.spectrum.label}, radiance={self.radiance!r} W/(sr m2))"
 
 
 # --------------------------------------------------------------------------------------

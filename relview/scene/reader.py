@@ -35,7 +35,7 @@ from relview.kinematics.lorentz import C
 from relview.kinematics.magnitudes import read_time, refuse_unresolvable
 from relview.kinematics.uniform import UniformMotion
 from relview.light.lamps import SPECTRUM_KEYS as LAMP_SPECTRUM_KEYS
-from relview.light.lamps import LampSpectrum
+from relview.light.lamps import LampSpectrum, SphereGlow, sphere_radiance
 from relview.light.materials import MAX_TEMPERATURE, read_surface
 from relview.light.sky import CMB_TEMPERATURE_K
 from relview.scene.parts import (
@@ -577,6 +577,24 @@ def _parse_lamp(t: Table, index: int, seen: dict[str, int]) -> Lamp:
                 seed=t.integer("seed", 0, low=0, high=2**63 - 1))
 
 
+def sphere_lamp_bodies(lamps: list[Lamp], first_index: int) -> list[Body]:
+    """A body per sphere lamp (radius > 0), for the scene's body list after the scene's
+    own bodies (from ``first_index`` on): a sphere of the lamp's radius on its worldline
+    whose surface glows with the radiance that gives the lamp's power
+    (relview.light.lamps.SphereGlow), so the camera and mirrors see the lamp. Each lamp
+    records its body's index as ``glow_body``: its own shadow rays pass that body."""
+    bodies = []
+    for lamp in lamps:
+        if lamp.distant or lamp.radius <= 0.0:
+            continue
+        lamp.glow_body = first_index + len(bodies)
+        bodies.append(Body(name=f"(lamp {lamp.name})", shape="sphere", radius=lamp.radius,
+                           motion=lamp.motion, source_key=f'[[lamp]] "{lamp.name}"',
+                           surface=SphereGlow(lamp.spectrum,
+                                              sphere_radiance(lamp.power, lamp.radius))))
+    return bodies
+
+
 def _parse_lamps(root: Table) -> list[Lamp]:
     value = root.data.get("lamp")
     if value is None:
@@ -639,6 +657,7 @@ def _build(data: Any, doc: _Document, raw: bytes | None, source_path: Path | Non
     background = _parse_background(root)
     animation = _parse_animation(root)
     lamps = _parse_lamps(root)
+    bodies = bodies + sphere_lamp_bodies(lamps, len(bodies))
     if raw is None:
         raw = json.dumps(data, sort_keys=True, default=show).encode()
     return dict(
