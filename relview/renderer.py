@@ -19,9 +19,11 @@ from pathlib import Path
 
 import numpy as np
 
-from relview import framing, illumination
+from relview import __version__, framing, illumination
+from relview.errors import SceneWarning
 from relview.frame_memory import RAYS_PER_BATCH, check_memory
 from relview.geometry import camera as cam_mod
+from relview.geometry import lightcone, shapes
 from relview.geometry.trace import Hits, Tracer, frame_matrix, uniform_groups
 from relview.imaging.display import to_8bit
 from relview.imaging.exposure import clipped_fraction, expose, exposure_white, metered_pixels
@@ -29,7 +31,10 @@ from relview.imaging.formats import frame_format
 from relview.imaging.png import encode_png
 from relview.kinematics.clocks import body_readings, reading_from_coordinate
 from relview.kinematics.lorentz import C
+from relview.kinematics.lorentz import doppler_along as lorentz_doppler_along
 from relview.kinematics.magnitudes import check_time
+from relview.light import sky
+from relview.light.materials import SpectralSurface
 from relview.scene.model import Scene
 from relview.scene.parts import Effects
 
@@ -140,7 +145,6 @@ def scene_geometry(scene: Scene, effects: Effects) -> SceneGeometry:
     if built is not None:
         _GEOMETRY_CACHE.move_to_end(key)
         return built
-    from relview.geometry import shapes
 
     meshes, uv = [], []
     for body in scene.bodies:
@@ -215,7 +219,6 @@ class RenderContext:
         if not self.other:
             tracer = self._uniform_tracer
         else:
-            from relview.geometry import lightcone
 
             snap = lightcone.snapshot_groups(self.scene, self.meshes, self.other, camera_event,
                                              self.effects, tolerance, reference=reference)
@@ -262,9 +265,7 @@ def doppler_along(beta_emit: np.ndarray, d_scene: np.ndarray, beta_cam: np.ndarr
     kinematics, no time dilation) the gammas are dropped: the classical Doppler
     factor for light moving at c in S.
     """
-    from relview.kinematics.lorentz import doppler_along as _kernel
-
-    return _kernel(beta_emit, d_scene, beta_cam, relativistic=effects.contraction)
+    return lorentz_doppler_along(beta_emit, d_scene, beta_cam, relativistic=effects.contraction)
 
 
 def bodies_around_camera(scene: Scene, context: RenderContext,
@@ -323,7 +324,6 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
            exposure=None, effects: Effects | None = None, context: RenderContext | None = None,
            progress: bool = False) -> Frame:
     """Render one exposure of ``scene`` at scene time ``time`` (default: camera.time)."""
-    from relview.light import sky
 
     width, height = resolution or scene.render.resolution
     samples = samples or scene.render.samples
@@ -338,7 +338,6 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
     for name in bodies_around_camera(scene, context, event):
         import warnings
 
-        from relview.errors import SceneWarning
 
         warnings.warn(f"{scene.source_path or 'scene'}: the camera is inside body {name!r} "
                       f"at t = {t:.6g} s (tested in the body's rest frame); every ray starts "
@@ -557,7 +556,6 @@ def _lamp_surface_pixels(surface, rest: np.ndarray) -> np.ndarray:
     """(N,) bool: which of the hits at rest-frame points ``rest`` (N, 3) show a
     self-luminous part of ``surface`` (blackbody, lines, tabulated spectrum; a pattern
     per cell). A surface may say so itself with a ``self_luminous`` attribute."""
-    from relview.light.materials import SpectralSurface
 
     if hasattr(surface, "second_mask"):  # a pattern of two surfaces
         second = surface.second_mask(rest)
@@ -629,7 +627,6 @@ def provenance(scene: Scene, t: float, width: int, height: int, samples: int,
     ``metering``: the entries of :func:`metering_report`."""
     import json
 
-    from relview import __version__
 
     return {
         "relview_version": __version__,
