@@ -195,9 +195,11 @@ def cpu_model() -> str:
         return platform.processor() or "unknown"
     wanted = ("sse4_2", "avx", "avx2", "fma", "avx512f")
     flags = [f for f in fields.get("flags", "").split() if f in wanted]
-    return (f"{fields.get('model name', 'unknown')} (family {fields.get('cpu family', '?')}, "
-            f"model {fields.get('model', '?')}, {fields.get('cpu MHz', '?')} MHz, cache "
-            f"{fields.get('cache size', '?')}, {' '.join(flags)})")
+    return (
+        f"{fields.get('model name', 'unknown')} (family {fields.get('cpu family', '?')}, "
+        f"model {fields.get('model', '?')}, {fields.get('cpu MHz', '?')} MHz, cache "
+        f"{fields.get('cache size', '?')}, {' '.join(flags)})"
+    )
 
 
 def versions() -> dict[str, str]:
@@ -212,10 +214,18 @@ def versions() -> dict[str, str]:
     src = relview_dir()
     out["relview imported from"] = str(src)
     try:
-        commit = subprocess.run(["git", "-C", str(src), "rev-parse", "--short", "HEAD"],
-                                capture_output=True, text=True, check=True).stdout.strip()
-        dirty = subprocess.run(["git", "-C", str(src), "status", "--porcelain", "."],
-                               capture_output=True, text=True, check=True).stdout.strip()
+        commit = subprocess.run(
+            ["git", "-C", str(src), "rev-parse", "--short", "HEAD"],
+            capture_output=True,
+            text=True,
+            check=True,
+        ).stdout.strip()
+        dirty = subprocess.run(
+            ["git", "-C", str(src), "status", "--porcelain", "."],
+            capture_output=True,
+            text=True,
+            check=True,
+        ).stdout.strip()
         out["relview commit"] = commit + (" + uncommitted changes in relview/" if dirty else "")
     except (OSError, subprocess.CalledProcessError):
         note = src.parent / "SNAPSHOT"
@@ -429,6 +439,7 @@ def bench_embree(vertices, faces, origin_xyz, d_s, repeats: int, threads: int) -
     chunks = [slice(bounds[i], bounds[i + 1]) for i in range(threads)]
     # embreex releases the GIL inside its ray loop, so Python threads run in parallel
     with ThreadPoolExecutor(threads) as pool:
+
         def cast_n():
             return list(pool.map(lambda s: sc.run(o32[s], d32[s], output=1), chunks))
 
@@ -503,8 +514,11 @@ def bench_ray_classes(rest: dict, emb_scene_rays, repeats: int) -> list[tuple]:
     numba.set_num_threads(1)
     rows = []
     try:
-        for label, sel in (("miss the bounding box", ~in_box), ("enter the box, miss", in_box & ~hit),
-                           ("hit", hit)):
+        for label, sel in (
+            ("miss the bounding box", ~in_box),
+            ("enter the box, miss", in_box & ~hit),
+            ("hit", hit),
+        ):
             n = int(sel.sum())
             if n == 0:
                 continue
@@ -542,8 +556,11 @@ def child_startup(scene_path: str, out_png: str) -> None:
     from relview.scene import reader as loader
 
     stamps["imported"] = time.time()
-    orig_load, orig_ctx_init, orig_cast = loader.read_scene_file, renderer.RenderContext.__init__, \
-        trace.Tracer.cast
+    orig_load, orig_ctx_init, orig_cast = (
+        loader.read_scene_file,
+        renderer.RenderContext.__init__,
+        trace.Tracer.cast,
+    )
     orig_build = bvh.build_bvh
     durations = {"bvh_build_calls": [], "cast_calls": []}  # seconds of each call
     build_args = []
@@ -611,6 +628,7 @@ def child_memory(scene_path: str) -> None:
     own peak the high-water mark is reset (writing 5 to /proc/self/clear_refs) after the
     scene and context are ready.
     """
+
     def maxrss():
         return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
 
@@ -642,15 +660,24 @@ def _child_json(cmd: list[str], prefix: str) -> dict:
     out = subprocess.run(cmd, capture_output=True, text=True, cwd=REPO)
     for line in out.stdout.splitlines():
         if line.startswith(prefix):
-            return json.loads(line[len(prefix):])
+            return json.loads(line[len(prefix) :])
     raise RuntimeError(f"{' '.join(cmd)} failed (exit {out.returncode}):\n{out.stderr[-2000:]}")
 
 
 def bench_startup(scene_path: Path, workdir: Path, repeats: int) -> dict:
     relview_cmd = Path(sys.executable).with_name("relview")
     out_small = workdir / "startup_small.png"
-    cmd = [str(relview_cmd), "render", str(scene_path), "--resolution", STARTUP_RESOLUTION,
-           "-o", str(out_small), "--quiet", "--overwrite"]
+    cmd = [
+        str(relview_cmd),
+        "render",
+        str(scene_path),
+        "--resolution",
+        STARTUP_RESOLUTION,
+        "-o",
+        str(out_small),
+        "--quiet",
+        "--overwrite",
+    ]
 
     def whole():
         subprocess.run(cmd, check=True, capture_output=True, cwd=workdir)
@@ -659,8 +686,14 @@ def bench_startup(scene_path: Path, workdir: Path, repeats: int) -> dict:
     # instrumented runs at the benchmark resolution
     stages = []
     durations = []
-    child = [sys.executable, str(Path(__file__).resolve()), "--child", "startup", str(scene_path),
-             str(workdir / "startup_full.png")]
+    child = [
+        sys.executable,
+        str(Path(__file__).resolve()),
+        "--child",
+        "startup",
+        str(scene_path),
+        str(workdir / "startup_full.png"),
+    ]
     _child_json(child, "BENCH_STAMPS ")  # warm-up (fills the numba cache if it was stale)
     compiled = 0
     for _ in range(repeats + 3):
@@ -677,8 +710,10 @@ def bench_startup(scene_path: Path, workdir: Path, repeats: int) -> dict:
         if len(stages) == repeats:
             break
     if not stages:
-        raise RuntimeError("every instrumented start-up run compiled numba code: is relview "
-                           "being edited? rerun when it is quiet")
+        raise RuntimeError(
+            "every instrumented start-up run compiled numba code: is relview "
+            "being edited? rerun when it is quiet"
+        )
     res["stages"] = {k: Stat([st[k] for st in stages]) for k in stages[0]}
     res["compiled_runs"] = compiled
     # numba cache loading: first call of a compiled stage minus the same work warm
@@ -707,6 +742,7 @@ def bench_memory(scene_path: Path) -> dict:
 # --------------------------------------------------------------------------------------
 # Profile
 # --------------------------------------------------------------------------------------
+
 
 def profile_frame(scene, ctx, frames: int) -> dict:
     """cProfile ``frames`` frames; per-frame time of each part of render() (averaged)."""
@@ -737,29 +773,40 @@ def profile_frame(scene, ctx, frames: int) -> dict:
     kernel = cum("bench_frame.py", "_cast_kernel")
     # the outermost function of each stage (a fused stage replaces its parts)
     camera = cum("camera.py", "scene_directions") or (
-        cum("camera.py", "pixels_to_directions") + cum("lorentz.py", "aberrate_to_scene"))
+        cum("camera.py", "pixels_to_directions") + cum("lorentz.py", "aberrate_to_scene")
+    )
     parts = {
-        "camera rays (pixel grid, directions, aberration)": cum("camera.py", "pixel_grid")
-        + camera,
+        "camera rays (pixel grid, directions, aberration)": cum("camera.py", "pixel_grid") + camera,
         "trace kernel (numba _cast)": kernel,
         # since the hit resolution computes D itself, the Doppler factor is part of the glue
-        "trace glue + Doppler factor (Tracer.cast outside the kernel)":
-        cum("trace.py", "cast") - kernel + cum("renderer.py", "doppler_of_hits"),
+        "trace glue + Doppler factor (Tracer.cast outside the kernel)": cum("trace.py", "cast")
+        - kernel
+        + cum("renderer.py", "doppler_of_hits"),
         "shading (renderer.shade -> observed_xyz)": cum("renderer.py", "shade"),
         "sky (sky_xyz, star_splat)": cum("sky.py", "sky_xyz") + cum("sky.py", "star_splat"),
         "exposure (exposure_white + expose)": cum("exposure.py", "exposure_white")
         + cum("exposure.py", "expose"),
-        "per-exposure set-up (memory check, camera-inside-body check, tracer, provenance)":
-        cum("renderer.py", "check_memory") + cum("renderer.py", "bodies_around_camera")
-        + cum("renderer.py", "tracer") + cum("renderer.py", "provenance"),
+        "per-exposure set-up (memory check, camera-inside-body check, tracer, provenance)": cum(
+            "renderer.py", "check_memory"
+        )
+        + cum("renderer.py", "bodies_around_camera")
+        + cum("renderer.py", "tracer")
+        + cum("renderer.py", "provenance"),
     }
     parts["rest of render() (allocation, layer copies, masks)"] = render_total - sum(parts.values())
     # heaviest functions by own time, for the report
     top = sorted(st.stats.items(), key=lambda kv: kv[1][2], reverse=True)[:12]
-    top_rows = [(f"{Path(f).name}:{ln}({name})", tt / frames, ct / frames)
-                for (f, ln, name), (_cc, _nc, tt, ct, _c) in top]
-    return {"wall": wall, "render_total": render_total, "parts": parts, "top": top_rows,
-            "frames": frames}
+    top_rows = [
+        (f"{Path(f).name}:{ln}({name})", tt / frames, ct / frames)
+        for (f, ln, name), (_cc, _nc, tt, ct, _c) in top
+    ]
+    return {
+        "wall": wall,
+        "render_total": render_total,
+        "parts": parts,
+        "top": top_rows,
+        "frames": frames,
+    }
 
 
 # --------------------------------------------------------------------------------------
@@ -774,37 +821,59 @@ def build_report(info: dict) -> str:
     add = lines.append
     add("# relview frame benchmark: results")
     add("")
-    add(f"Written by `benchmarks/bench_frame.py` on {info['date']} "
-        f"({info['repeats']} timed runs after one warm-up per figure; median [min-max]).")
+    add(
+        f"Written by `benchmarks/bench_frame.py` on {info['date']} "
+        f"({info['repeats']} timed runs after one warm-up per figure; median [min-max])."
+    )
     add("")
     add("## Machine and load")
     add("")
-    add(f"- CPU: {info['cpu']}, nproc = {info['nproc']}; numba threads = {info['numba_threads']} "
-        f"(threading layer: {info['numba_layer']})")
+    add(
+        f"- CPU: {info['cpu']}, nproc = {info['nproc']}; numba threads = {info['numba_threads']} "
+        f"(threading layer: {info['numba_layer']})"
+    )
     add("- Versions: " + ", ".join(f"{k} {v}" for k, v in info["versions"].items()))
-    add(f"- Load average (1/5/15 min) seen: start {info['load_start']}; "
-        + "; ".join(f"{k} {v}" for k, v in info["loads"]) + f"; end {info['load_end']}")
-    add("- The machine is shared with other engineers: spreads wider than ~20 % mean another "
-        "process competed for the 2 cores during that figure.")
-    add(f"- relview/*.py fingerprint: {info['fingerprint_start']} at the start, "
+    add(
+        f"- Load average (1/5/15 min) seen: start {info['load_start']}; "
+        + "; ".join(f"{k} {v}" for k, v in info["loads"])
+        + f"; end {info['load_end']}"
+    )
+    add(
+        "- The machine is shared with other engineers: spreads wider than ~20 % mean another "
+        "process competed for the 2 cores during that figure."
+    )
+    add(
+        f"- relview/*.py fingerprint: {info['fingerprint_start']} at the start, "
         f"{info['fingerprint_end']} at the end"
-        + (" (CHANGED during the run: the figures mix two versions of the code)"
-           if info["fingerprint_start"] != info["fingerprint_end"] else " (unchanged)")
+        + (
+            " (CHANGED during the run: the figures mix two versions of the code)"
+            if info["fingerprint_start"] != info["fingerprint_end"]
+            else " (unchanged)"
+        )
         + f"; numba functions compiled in the main process (cache misses, warm-ups "
-        f"included): {info['compiles_main']}.")
+        f"included): {info['compiles_main']}."
+    )
     add("")
     add("## Set-up")
     add("")
-    add(f"- Mesh: icosphere, radius {SPHERE_RADIUS_M} m, detail {SPHERE_DETAIL} = "
-        f"{info['triangles']} triangles (relview's own `shape = \"sphere\"`, which is "
-        "trimesh.creation.icosphere); 5800 K blackbody; black background.")
-    add(f"- Camera: pinhole, {WIDTH}x{HEIGHT}, horizontal fov {FOV_DEG} deg, 1 ray per pixel, "
-        f"{CAMERA_DISTANCE_M} m from the centre; rays = {n}.")
-    add(f"- Rest: body at rest; {rest['hit_fraction'] * 100:.1f} % of the rays hit it "
-        f"(centroid of the hits at pixel {fmt_px(rest['hit_centroid_px'])}).")
-    add(f"- Moving: beta = {MOVING_BETA} along +x, origin at x = 0 at t = -d/c, so it is seen "
+    add(
+        f"- Mesh: icosphere, radius {SPHERE_RADIUS_M} m, detail {SPHERE_DETAIL} = "
+        f'{info["triangles"]} triangles (relview\'s own `shape = "sphere"`, which is '
+        "trimesh.creation.icosphere); 5800 K blackbody; black background."
+    )
+    add(
+        f"- Camera: pinhole, {WIDTH}x{HEIGHT}, horizontal fov {FOV_DEG} deg, 1 ray per pixel, "
+        f"{CAMERA_DISTANCE_M} m from the centre; rays = {n}."
+    )
+    add(
+        f"- Rest: body at rest; {rest['hit_fraction'] * 100:.1f} % of the rays hit it "
+        f"(centroid of the hits at pixel {fmt_px(rest['hit_centroid_px'])})."
+    )
+    add(
+        f"- Moving: beta = {MOVING_BETA} along +x, origin at x = 0 at t = -d/c, so it is seen "
         f"near the centre at the exposure; {moving['hit_fraction'] * 100:.1f} % of rays hit "
-        f"(centroid at pixel {fmt_px(moving['hit_centroid_px'])}).")
+        f"(centroid at pixel {fmt_px(moving['hit_centroid_px'])})."
+    )
     add("")
     add("## Figures")
     add("")
@@ -831,41 +900,55 @@ def build_report(info: dict) -> str:
     add("")
     add("## Ratios against the targets")
     add("")
-    add("| ratio | of the medians | of the best runs | of the CPU times | target | "
-        "met (median / best) |")
+    add(
+        "| ratio | of the medians | of the best runs | of the CPU times | target | "
+        "met (median / best) |"
+    )
     add("|---|---|---|---|---|---|")
     for label, value, best, cpu, target in info["ratios"]:
         cpu_s = "-" if cpu is None else f"{cpu:.2f}"
-        add(f"| {label} | {value:.2f} | {best:.2f} | {cpu_s} | <= {target} | "
-            f"{'yes' if value <= target else 'no'} / {'yes' if best <= target else 'no'} |")
+        add(
+            f"| {label} | {value:.2f} | {best:.2f} | {cpu_s} | <= {target} | "
+            f"{'yes' if value <= target else 'no'} / {'yes' if best <= target else 'no'} |"
+        )
     add("")
-    add("On a loaded machine the best run is the one least disturbed by other processes, so "
+    add(
+        "On a loaded machine the best run is the one least disturbed by other processes, so "
         "the ratio of the best runs is the fairer reading of the code; the ratio of the "
         "medians is what a user on a busy machine sees. The CPU-time ratio compares CPU "
         "seconds summed over threads (CPU time also grows when another process shares the "
-        "core).")
+        "core)."
+    )
     add("")
     pr = info["paired"]
-    add(f"Paired rounds ({len(pr['rounds'])} rounds, each timing relview frame at rest, the "
+    add(
+        f"Paired rounds ({len(pr['rounds'])} rounds, each timing relview frame at rest, the "
         f"Embree cast and relview frame at {MOVING_BETA}c back to back; median [min-max] of "
-        "the per-round ratios, the steadiest reading on a shared machine):")
+        "the per-round ratios, the steadiest reading on a shared machine):"
+    )
     add("")
     add("| ratio | paired median [min-max] | target | met |")
     add("|---|---|---|---|")
     if "rest_vs_embree" in pr:
         st = pr["rest_vs_embree"]
-        add(f"| relview frame at rest / Embree cast ({info['embree']['threads']} threads) | "
+        add(
+            f"| relview frame at rest / Embree cast ({info['embree']['threads']} threads) | "
             f"{st.median:.2f} [{st.min:.2f}-{st.max:.2f}] | <= {TARGET_REST_VS_EMBREE} | "
-            f"{'yes' if st.median <= TARGET_REST_VS_EMBREE else 'no'} |")
+            f"{'yes' if st.median <= TARGET_REST_VS_EMBREE else 'no'} |"
+        )
     st = pr["moving_vs_rest"]
-    add(f"| relview frame at {MOVING_BETA}c / at rest | {st.median:.2f} [{st.min:.2f}-"
+    add(
+        f"| relview frame at {MOVING_BETA}c / at rest | {st.median:.2f} [{st.min:.2f}-"
         f"{st.max:.2f}] | <= {TARGET_MOVING_VS_REST} | "
-        f"{'yes' if st.median <= TARGET_MOVING_VS_REST else 'no'} |")
+        f"{'yes' if st.median <= TARGET_MOVING_VS_REST else 'no'} |"
+    )
     add("")
     if "kernel_vs_embree_1thread" in info:
-        add(f"Per-core traversal (no target): relview kernel / Embree cast, both on 1 thread, "
+        add(
+            f"Per-core traversal (no target): relview kernel / Embree cast, both on 1 thread, "
             f"rest rays: {info['kernel_vs_embree_1thread'][0]:.2f} (medians), "
-            f"{info['kernel_vs_embree_1thread'][1]:.2f} (best runs).")
+            f"{info['kernel_vs_embree_1thread'][1]:.2f} (best runs)."
+        )
         add("")
     if info.get("agreement"):
         add(f"Cross-check (rest rays): {info['agreement']}")
@@ -883,11 +966,15 @@ def build_report(info: dict) -> str:
     su = info["startup"]
     add("## Start-up (second run, numba cache warm)")
     add("")
-    add(f"- Whole command `relview render SCENE --resolution {STARTUP_RESOLUTION} -o FILE "
+    add(
+        f"- Whole command `relview render SCENE --resolution {STARTUP_RESOLUTION} -o FILE "
         f"--quiet --overwrite`: {su['whole_cmd'].s()} s wall, "
-        f"{su['whole_cmd'].cpu:.2f} s CPU (median).")
-    add(f"- Instrumented `relview render` at {WIDTH}x{HEIGHT} (seconds from spawning the process; "
-        f"{su['compiled_runs']} run(s) that had to compile numba code were left out):")
+        f"{su['whole_cmd'].cpu:.2f} s CPU (median)."
+    )
+    add(
+        f"- Instrumented `relview render` at {WIDTH}x{HEIGHT} (seconds from spawning the process; "
+        f"{su['compiled_runs']} run(s) that had to compile numba code were left out):"
+    )
     add("")
     add("| stage reached | s after spawn, median [min-max] |")
     add("|---|---|")
@@ -907,49 +994,68 @@ def build_report(info: dict) -> str:
             add(f"| {lab} | {su['stages'][k].s()} |")
     add("")
     if "bvh_first" in su:
-        add(f"Loading cached compiled code (numba cache warm, no compilation): the BVH build "
+        add(
+            f"Loading cached compiled code (numba cache warm, no compilation): the BVH build "
             f"takes {su['bvh_first'].s()} s on its first call in the command and "
             f"{su['bvh_again'].s()} s when repeated in the same process"
-            + (f"; the first `Tracer.cast` batch {su['cast_first'].s()} s, the second "
-               f"{su['cast_second'].s()} s (the batches hold about the same number of rays; "
-               f"{su['batches']} batches)" if "cast_first" in su else "")
-            + ". The differences are numba loading cached kernels.")
+            + (
+                f"; the first `Tracer.cast` batch {su['cast_first'].s()} s, the second "
+                f"{su['cast_second'].s()} s (the batches hold about the same number of rays; "
+                f"{su['batches']} batches)"
+                if "cast_first" in su
+                else ""
+            )
+            + ". The differences are numba loading cached kernels."
+        )
         add("")
     fb = su["stages"]["first_batch_start"]
-    add(f"Time from process start to the first batch of rays: median {fb.median:.2f} s, best "
+    add(
+        f"Time from process start to the first batch of rays: median {fb.median:.2f} s, best "
         f"{fb.min:.2f} s (target <= {TARGET_STARTUP_S} s: median "
         f"{'met' if fb.median <= TARGET_STARTUP_S else 'not met'}, best "
-        f"{'met' if fb.min <= TARGET_STARTUP_S else 'not met'}).")
+        f"{'met' if fb.min <= TARGET_STARTUP_S else 'not met'})."
+    )
     add("")
     add("## Peak memory of one full frame (in a process that only renders it)")
     add("")
-    add("| case | RSS after imports | after scene load | after context build | "
+    add(
+        "| case | RSS after imports | after scene load | after context build | "
         "peak before the frame | RSS at frame start | peak during the frame | "
-        "frame adds | process peak |")
+        "frame adds | process peak |"
+    )
     add("|---|---|---|---|---|---|---|---|---|")
     for key, m in info["memory"].items():
         mib = {k: v / 1024 for k, v in m.items() if isinstance(v, int) and not isinstance(v, bool)}
-        during = (f"{mib['peak_during_frame']:.0f}" if m["reset"]
-                  else "(high-water mark could not be reset)")
-        add(f"| {key} | {mib['imported_rss']:.0f} | {mib['loaded_rss']:.0f} | "
+        during = (
+            f"{mib['peak_during_frame']:.0f}"
+            if m["reset"]
+            else "(high-water mark could not be reset)"
+        )
+        add(
+            f"| {key} | {mib['imported_rss']:.0f} | {mib['loaded_rss']:.0f} | "
             f"{mib['context_rss']:.0f} | {mib['peak_before_frame']:.0f} | "
             f"{mib['frame_start_rss']:.0f} | {during} | "
             f"{mib['peak_during_frame'] - mib['frame_start_rss']:.0f} | "
-            f"{mib['process_peak']:.0f} |")
+            f"{mib['process_peak']:.0f} |"
+        )
     add("")
-    add("All in MiB, from /proc/self/status (VmRSS; peaks are VmHWM, the high-water mark, "
+    add(
+        "All in MiB, from /proc/self/status (VmRSS; peaks are VmHWM, the high-water mark, "
         "reset before the frame). 'Frame adds' = peak during the frame - RSS at its start. "
         "ru_maxrss of the same child: "
         + ", ".join(f"{k} {m['ru_maxrss'] / 1024:.0f} MiB" for k, m in info["memory"].items())
         + " (Linux carries the forking parent's RSS into a child's ru_maxrss, so this is the "
         "benchmark parent's size when larger; started from a shell, ru_maxrss equals the "
-        "process peak).")
+        "process peak)."
+    )
     add("")
     add("## Where one frame's time goes (cProfile; per-frame mean over the profiled frames)")
     add("")
     for key, p in info["profiles"].items():
-        add(f"### {key}: render() {p['render_total'] * 1e3:.0f} ms per frame under the profiler "
-            f"(mean of {p['frames']} frames after a warm-up; wall {p['wall'] * 1e3:.0f} ms)")
+        add(
+            f"### {key}: render() {p['render_total'] * 1e3:.0f} ms per frame under the profiler "
+            f"(mean of {p['frames']} frames after a warm-up; wall {p['wall'] * 1e3:.0f} ms)"
+        )
         add("")
         add("| part | ms | share |")
         add("|---|---|---|")
@@ -975,7 +1081,7 @@ def write_results(text: str) -> None:
     if RESULTS.exists():
         old = RESULTS.read_text()
         if ANALYSIS_MARK in old:
-            kept = old[old.index(ANALYSIS_MARK):]
+            kept = old[old.index(ANALYSIS_MARK) :]
     if not kept:
         kept = ANALYSIS_MARK + "\n\n## Analysis\n\n(none yet)\n"
     RESULTS.write_text(text + "\n" + kept)
@@ -985,23 +1091,32 @@ def print_summary(info: dict) -> None:
     rest, moving, emb = info["rest"], info["moving"], info["embree"]
     n = rest["rays"]
     print(f"\nrelview frame benchmark  {info['date']}  {info['cpu']}  nproc={info['nproc']}")
-    print(f"{info['triangles']} triangles, {WIDTH}x{HEIGHT}, {n} rays; median [min-max] of "
-          f"{info['repeats']} runs; load {info['load_start']} -> {info['load_end']}\n")
+    print(
+        f"{info['triangles']} triangles, {WIDTH}x{HEIGHT}, {n} rays; median [min-max] of "
+        f"{info['repeats']} runs; load {info['load_start']} -> {info['load_end']}\n"
+    )
     print(f"{'figure':40s} {'wall ms':>28s} {'CPU ms':>7s} {'Mrays/s':>8s}")
-    rows = [("relview frame, rest", rest["frame"]), ("relview trace, rest", rest["trace"]),
-            ("relview kernel, rest", rest["kernel"]),
-            ("relview kernel, rest, 1 thread", rest["kernel_1thread"]),
-            (f"relview frame, {MOVING_BETA}c", moving["frame"]),
-            (f"relview trace, {MOVING_BETA}c", moving["trace"]),
-            (f"relview kernel, {MOVING_BETA}c", moving["kernel"]),
-            (f"relview kernel, {MOVING_BETA}c, 1 thread", moving["kernel_1thread"])]
+    rows = [
+        ("relview frame, rest", rest["frame"]),
+        ("relview trace, rest", rest["trace"]),
+        ("relview kernel, rest", rest["kernel"]),
+        ("relview kernel, rest, 1 thread", rest["kernel_1thread"]),
+        (f"relview frame, {MOVING_BETA}c", moving["frame"]),
+        (f"relview trace, {MOVING_BETA}c", moving["trace"]),
+        (f"relview kernel, {MOVING_BETA}c", moving["kernel"]),
+        (f"relview kernel, {MOVING_BETA}c, 1 thread", moving["kernel_1thread"]),
+    ]
     if emb:
-        rows += [("Embree cast, 1 thread", emb["cast_1thread"]),
-                 (f"Embree cast, {emb['threads']} threads", emb["cast_nthreads"])]
+        rows += [
+            ("Embree cast, 1 thread", emb["cast_1thread"]),
+            (f"Embree cast, {emb['threads']} threads", emb["cast_nthreads"]),
+        ]
     for lab, st in rows:
         print(f"{lab:40s} {st.ms():>28s} {st.cpu_ms():>7s} {n / st.median / 1e6:8.2f}")
-    print(f"{'relview RenderContext build (BVH)':40s} {rest['context'].ms():>28s} "
-          f"{rest['context'].cpu_ms():>7s}")
+    print(
+        f"{'relview RenderContext build (BVH)':40s} {rest['context'].ms():>28s} "
+        f"{rest['context'].cpu_ms():>7s}"
+    )
     if emb:
         print(f"{'Embree scene build':40s} {emb['build'].ms():>28s} {emb['build'].cpu_ms():>7s}")
     print()
@@ -1011,39 +1126,57 @@ def print_summary(info: dict) -> None:
     pr = info["paired"]
     if "rest_vs_embree" in pr:
         st = pr["rest_vs_embree"]
-        print(f"{'paired rounds: frame at rest / Embree cast':58s} median {st.median:6.2f} "
-              f"[{st.min:.2f}-{st.max:.2f}]  (target <= {TARGET_REST_VS_EMBREE})")
+        print(
+            f"{'paired rounds: frame at rest / Embree cast':58s} median {st.median:6.2f} "
+            f"[{st.min:.2f}-{st.max:.2f}]  (target <= {TARGET_REST_VS_EMBREE})"
+        )
     st = pr["moving_vs_rest"]
-    print(f"{'paired rounds: frame at ' + str(MOVING_BETA) + 'c / frame at rest':58s} median "
-          f"{st.median:6.2f} [{st.min:.2f}-{st.max:.2f}]  (target <= {TARGET_MOVING_VS_REST})")
+    print(
+        f"{'paired rounds: frame at ' + str(MOVING_BETA) + 'c / frame at rest':58s} median "
+        f"{st.median:6.2f} [{st.min:.2f}-{st.max:.2f}]  (target <= {TARGET_MOVING_VS_REST})"
+    )
     if "kernel_vs_embree_1thread" in info:
-        print(f"{'relview kernel / Embree cast, both 1 thread (per-core traversal)':60s} "
-              f"median {info['kernel_vs_embree_1thread'][0]:.2f}, "
-              f"best {info['kernel_vs_embree_1thread'][1]:.2f}")
+        print(
+            f"{'relview kernel / Embree cast, both 1 thread (per-core traversal)':60s} "
+            f"median {info['kernel_vs_embree_1thread'][0]:.2f}, "
+            f"best {info['kernel_vs_embree_1thread'][1]:.2f}"
+        )
     if info.get("agreement"):
         print("cross-check:", info["agreement"])
     for label, n_rays, rv, em in info.get("ray_classes", []):
-        print(f"  1 thread, rays that {label:24s} {n_rays:7d}: relview {rv:5.0f} ns/ray, "
-              f"Embree {em:5.0f} ns/ray")
+        print(
+            f"  1 thread, rays that {label:24s} {n_rays:7d}: relview {rv:5.0f} ns/ray, "
+            f"Embree {em:5.0f} ns/ray"
+        )
     su = info["startup"]
     if info["fingerprint_start"] != info["fingerprint_end"]:
         print("WARNING: relview/*.py changed during the run; figures mix two code versions")
-    print(f"numba compiles in this process: {info['compiles_main']}; start-up runs that "
-          f"compiled (left out): {su['compiled_runs']}")
-    print(f"\nstart-up: whole command at {STARTUP_RESOLUTION}: {su['whole_cmd'].s()} s wall, "
-          f"{su['whole_cmd'].cpu:.2f} s CPU")
+    print(
+        f"numba compiles in this process: {info['compiles_main']}; start-up runs that "
+        f"compiled (left out): {su['compiled_runs']}"
+    )
+    print(
+        f"\nstart-up: whole command at {STARTUP_RESOLUTION}: {su['whole_cmd'].s()} s wall, "
+        f"{su['whole_cmd'].cpu:.2f} s CPU"
+    )
     for k, st in su["stages"].items():
         print(f"  {k:22s} {st.s()} s after spawn")
     if "bvh_first" in su:
-        casts = (f"; cast first batch {su['cast_first'].s()} s, second "
-                 f"{su['cast_second'].s()} s" if "cast_first" in su else "")
-        print(f"  BVH build first call {su['bvh_first'].s()} s, again {su['bvh_again'].s()} s"
-              + casts)
+        casts = (
+            f"; cast first batch {su['cast_first'].s()} s, second {su['cast_second'].s()} s"
+            if "cast_first" in su
+            else ""
+        )
+        print(
+            f"  BVH build first call {su['bvh_first'].s()} s, again {su['bvh_again'].s()} s" + casts
+        )
     for key, m in info["memory"].items():
-        print(f"memory {key}: process peak {m['process_peak'] / 1024:.0f} MiB; before the frame "
-              f"{m['peak_before_frame'] / 1024:.0f} MiB; during the frame "
-              f"{m['peak_during_frame'] / 1024:.0f} MiB (frame start RSS "
-              f"{m['frame_start_rss'] / 1024:.0f} MiB)")
+        print(
+            f"memory {key}: process peak {m['process_peak'] / 1024:.0f} MiB; before the frame "
+            f"{m['peak_before_frame'] / 1024:.0f} MiB; during the frame "
+            f"{m['peak_during_frame'] / 1024:.0f} MiB (frame start RSS "
+            f"{m['frame_start_rss'] / 1024:.0f} MiB)"
+        )
     for key, p in info["profiles"].items():
         print(f"\nprofile {key}: render() {p['render_total'] * 1e3:.0f} ms under cProfile")
         for lab, t in p["parts"].items():
@@ -1060,9 +1193,11 @@ def agreement(rest: dict, emb: dict) -> str:
     r_hit = hits.body >= 0
     both = e_hit & r_hit
     dl = np.abs(np.asarray(r["tfar"], float)[both] - hits.l[both])
-    return (f"hit/miss agree on {np.mean(e_hit == r_hit) * 100:.3f} % of rays "
-            f"({int(np.sum(e_hit != r_hit))} differ, silhouette pixels); distance differs by "
-            f"at most {dl.max():.2e} m (Embree float32, relview float64)")
+    return (
+        f"hit/miss agree on {np.mean(e_hit == r_hit) * 100:.3f} % of rays "
+        f"({int(np.sum(e_hit != r_hit))} differ, silhouette pixels); distance differs by "
+        f"at most {dl.max():.2e} m (Embree float32, relview float64)"
+    )
 
 
 def main(argv=None) -> int:
@@ -1084,10 +1219,17 @@ def main(argv=None) -> int:
 
     from relview.scene.model import load_scene
 
-    info = {"date": time.strftime("%Y-%m-%d %H:%M UTC", time.gmtime()), "cpu": cpu_model(),
-            "nproc": os.cpu_count(), "repeats": args.repeats, "versions": versions(),
-            "numba_threads": numba.get_num_threads(), "load_start": load_str(), "loads": [],
-            "fingerprint_start": relview_fingerprint()}
+    info = {
+        "date": time.strftime("%Y-%m-%d %H:%M UTC", time.gmtime()),
+        "cpu": cpu_model(),
+        "nproc": os.cpu_count(),
+        "repeats": args.repeats,
+        "versions": versions(),
+        "numba_threads": numba.get_num_threads(),
+        "load_start": load_str(),
+        "loads": [],
+        "fingerprint_start": relview_fingerprint(),
+    }
     with tempfile.TemporaryDirectory(prefix="relview-bench-") as tmp:
         tmp = Path(tmp)
         paths = {}
@@ -1108,8 +1250,7 @@ def main(argv=None) -> int:
         info["triangles"] = len(faces)
         origin, d_s, _valid = info["rest"]["rays_arrays"]
         print("Embree ...", flush=True)
-        emb = bench_embree(verts, faces, origin[:, 1:], d_s, args.repeats,
-                           numba.get_num_threads())
+        emb = bench_embree(verts, faces, origin[:, 1:], d_s, args.repeats, numba.get_num_threads())
         info["embree"] = emb
         info["loads"].append(("after Embree", load_str()))
 
@@ -1121,13 +1262,22 @@ def main(argv=None) -> int:
 
         r, m = info["rest"], info["moving"]
         if emb:
-            ratio(f"relview frame at rest / Embree cast ({emb['threads']} threads)", r["frame"],
-                  emb["cast_nthreads"], TARGET_REST_VS_EMBREE)
-            ratio("relview frame at rest / Embree cast (1 thread)", r["frame"],
-                  emb["cast_1thread"], TARGET_REST_VS_EMBREE)
+            ratio(
+                f"relview frame at rest / Embree cast ({emb['threads']} threads)",
+                r["frame"],
+                emb["cast_nthreads"],
+                TARGET_REST_VS_EMBREE,
+            )
+            ratio(
+                "relview frame at rest / Embree cast (1 thread)",
+                r["frame"],
+                emb["cast_1thread"],
+                TARGET_REST_VS_EMBREE,
+            )
             info["kernel_vs_embree_1thread"] = (
                 r["kernel_1thread"].median / emb["cast_1thread"].median,
-                r["kernel_1thread"].min / emb["cast_1thread"].min)
+                r["kernel_1thread"].min / emb["cast_1thread"].min,
+            )
             info["agreement"] = agreement(r, emb)
             info["ray_classes"] = bench_ray_classes(r, emb["scene"], args.repeats)
         else:
@@ -1135,25 +1285,37 @@ def main(argv=None) -> int:
         print("paired rounds ...", flush=True)
         info["paired"] = bench_paired(r, m, emb, args.repeats)
         info["loads"].append(("after paired rounds", load_str()))
-        ratio(f"relview frame at {MOVING_BETA}c / relview frame at rest", m["frame"], r["frame"],
-              TARGET_MOVING_VS_REST)
-        ratio(f"relview trace at {MOVING_BETA}c / relview trace at rest", m["trace"], r["trace"],
-              TARGET_MOVING_VS_REST)
+        ratio(
+            f"relview frame at {MOVING_BETA}c / relview frame at rest",
+            m["frame"],
+            r["frame"],
+            TARGET_MOVING_VS_REST,
+        )
+        ratio(
+            f"relview trace at {MOVING_BETA}c / relview trace at rest",
+            m["trace"],
+            r["trace"],
+            TARGET_MOVING_VS_REST,
+        )
         info["ratios"] = ratios
 
         print("start-up (subprocesses) ...", flush=True)
         info["startup"] = bench_startup(paths["rest"], tmp, args.repeats)
         info["loads"].append(("after start-up", load_str()))
         print("peak memory (subprocesses) ...", flush=True)
-        info["memory"] = {f"rest, {WIDTH}x{HEIGHT}": bench_memory(paths["rest"]),
-                          f"{MOVING_BETA}c, {WIDTH}x{HEIGHT}": bench_memory(paths["moving"])}
+        info["memory"] = {
+            f"rest, {WIDTH}x{HEIGHT}": bench_memory(paths["rest"]),
+            f"{MOVING_BETA}c, {WIDTH}x{HEIGHT}": bench_memory(paths["moving"]),
+        }
         info["profiles"] = {}
         if not args.no_profile:
             print("profile ...", flush=True)
-            info["profiles"]["rest"] = profile_frame(scenes["rest"], info["rest"]["context_obj"],
-                                                     args.repeats)
+            info["profiles"]["rest"] = profile_frame(
+                scenes["rest"], info["rest"]["context_obj"], args.repeats
+            )
             info["profiles"][f"{MOVING_BETA}c"] = profile_frame(
-                scenes["moving"], info["moving"]["context_obj"], args.repeats)
+                scenes["moving"], info["moving"]["context_obj"], args.repeats
+            )
         info["load_end"] = load_str()
         info["compiles_main"] = numba_compiles()
         info["fingerprint_end"] = relview_fingerprint()

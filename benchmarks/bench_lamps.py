@@ -50,24 +50,33 @@ def scene_text(width: int, height: int, lit: bool, mirror: bool = False) -> str:
     ``mirror``: the floor a mirror (co-moving lamps)."""
     own_lamp = "" if lit else "\nlamp = 3000.0"
     text = bench_frame.scene_toml(0.0)
-    text = text.replace(f"resolution = [{bench_frame.WIDTH}, {bench_frame.HEIGHT}]",
-                        f"resolution = [{width}, {height}]")
-    text = text.replace(f"blackbody = {bench_frame.BLACKBODY_K!r}",
-                        "color = [0.6, 0.6, 0.6]" + own_lamp)
-    floor = ('\n[[body]]\nname = "floor"\nshape = "plane"\nsize = [20.0, 20.0]\n'
-             "[body.motion]\nposition = [0.0, 0.0, -1.2]\n"
-             f"[body.surface]\ncolor = [0.5, 0.5, 0.5]{own_lamp}\n")
+    text = text.replace(
+        f"resolution = [{bench_frame.WIDTH}, {bench_frame.HEIGHT}]",
+        f"resolution = [{width}, {height}]",
+    )
+    text = text.replace(
+        f"blackbody = {bench_frame.BLACKBODY_K!r}", "color = [0.6, 0.6, 0.6]" + own_lamp
+    )
+    floor = (
+        '\n[[body]]\nname = "floor"\nshape = "plane"\nsize = [20.0, 20.0]\n'
+        "[body.motion]\nposition = [0.0, 0.0, -1.2]\n"
+        f"[body.surface]\ncolor = [0.5, 0.5, 0.5]{own_lamp}\n"
+    )
     # a backdrop filling the frame behind the sphere: as a mirror it sends its rays
     # back towards the camera, past or onto the sphere and the floor
-    backdrop = ('\n[[body]]\nname = "backdrop"\nshape = "plane"\nsize = [20.0, 20.0]\n'
-                "rotation = [90.0, 0.0, 0.0]\n[body.motion]\nposition = [0.0, 2.5, 0.0]\n"
-                "[body.surface]\n"
-                + ("mirror = 0.9\n" if mirror else f"color = [0.4, 0.4, 0.4]{own_lamp}\n"))
+    backdrop = (
+        '\n[[body]]\nname = "backdrop"\nshape = "plane"\nsize = [20.0, 20.0]\n'
+        "rotation = [90.0, 0.0, 0.0]\n[body.motion]\nposition = [0.0, 2.5, 0.0]\n"
+        "[body.surface]\n"
+        + ("mirror = 0.9\n" if mirror else f"color = [0.4, 0.4, 0.4]{own_lamp}\n")
+    )
     # and a wall behind the camera (out of its view), so reflected rays that pass the
     # sphere meet a surface too: every bounce is a full cast and a shaded hit
-    behind = ('\n[[body]]\nname = "behind"\nshape = "plane"\nsize = [20.0, 20.0]\n'
-              "rotation = [90.0, 0.0, 0.0]\n[body.motion]\nposition = [0.0, -4.0, 0.0]\n"
-              f"[body.surface]\ncolor = [0.3, 0.5, 0.7]{own_lamp}\n")
+    behind = (
+        '\n[[body]]\nname = "behind"\nshape = "plane"\nsize = [20.0, 20.0]\n'
+        "rotation = [90.0, 0.0, 0.0]\n[body.motion]\nposition = [0.0, -4.0, 0.0]\n"
+        f"[body.surface]\ncolor = [0.3, 0.5, 0.7]{own_lamp}\n"
+    )
     return text + floor + backdrop + behind + (LAMP if lit else "")
 
 
@@ -92,16 +101,20 @@ def main(argv=None) -> int:
     import relview
 
     medians = {}
-    cases = (("bare", False, False, "without lamps"), ("lamp", True, False, "one point lamp, shadows"),
-             ("mirror", False, True, "mirror backdrop, one bounce"))
+    cases = (
+        ("bare", False, False, "without lamps"),
+        ("lamp", True, False, "one point lamp, shadows"),
+        ("mirror", False, True, "mirror backdrop, one bounce"),
+    )
     for key, lit, mirror, label in cases:
         scene = relview.Scene.from_dict(tomllib.loads(scene_text(width, height, lit, mirror)))
         runs = timed(scene, args.repeats)
         medians[key] = statistics.median(runs)
         print(f"{label:26s} {medians[key]:.3f} s [{min(runs):.3f}-{max(runs):.3f}]")
     print(f"lamp ratio {medians['lamp'] / medians['bare']:.2f} (target <= {TARGET_RATIO})")
-    print(f"mirror ratio {medians['mirror'] / medians['bare']:.2f} "
-          f"(target <= {TARGET_MIRROR_RATIO})")
+    print(
+        f"mirror ratio {medians['mirror'] / medians['bare']:.2f} (target <= {TARGET_MIRROR_RATIO})"
+    )
     print("load average (1, 5, 15 min): " + " ".join(f"{v:.2f}" for v in os.getloadavg()))
     return 0
 

@@ -76,7 +76,9 @@ def main():
         "uniform (generic Newton)": (uniform, lambda p, c: RigidKinematics.retarded(uniform, p, c)),
         "hyperbolic": HyperbolicMotion(acceleration=[1e16, 0, 0]),
         "orbit": orbit,
-        "path": PathMotion(times=[0, 1e-8, 2e-8, 4e-8], positions=[[0, 0, 0], [2, 0, 0], [2, 2, 0], [0, 3, 1]]),
+        "path": PathMotion(
+            times=[0, 1e-8, 2e-8, 4e-8], positions=[[0, 0, 0], [2, 0, 0], [2, 2, 0], [0, 3, 1]]
+        ),
         "spin on orbit": SpinMotion(base=orbit, axis=[0, 1, 1], angular_velocity=0.5 * C),
         "rolling": RollingMotion(radius=1.0, beta=[0.9, 0, 0]),
     }
@@ -87,19 +89,25 @@ def main():
         (ev, _), times = timed(lambda: solve(pts, cam), args.repeats)
         travel = cam[0] - ev[:, 0]
         residual = np.abs(np.linalg.norm(cam[1:] - ev[:, 1:], axis=1) - travel) / travel
-        errs = [abs(brentq_time(kin, pts[i], cam) - ev[i, 0]) / travel[i]
-                for i in range(0, args.points, max(1, args.points // 20))]
+        errs = [
+            abs(brentq_time(kin, pts[i], cam) - ev[i, 0]) / travel[i]
+            for i in range(0, args.points, max(1, args.points // 20))
+        ]
         print(f"{name:26s} {fmt(times):28s} {residual.max():13.2e} {max(errs):14.2e}")
 
     wheel = trimesh.creation.cylinder(radius=0.5, height=0.2, sections=64)
     wheel.apply_transform(trimesh.transformations.rotation_matrix(np.pi / 2, [1, 0, 0]))
     verts, faces = np.asarray(wheel.vertices, float), np.asarray(wheel.faces, np.int64)
-    rolling = RollingMotion(radius=0.5, beta=np.array([0.7, 0.0, 0.0]), position=np.array([0.0, 0.0, 0.5]))
+    rolling = RollingMotion(
+        radius=0.5, beta=np.array([0.7, 0.0, 0.0]), position=np.array([0.0, 0.0, 0.5])
+    )
     cam = np.array([4.0, 0.0, -4.0, 0.5])
     print(f"\nlight-cone snapshot of a rolling wheel ({len(faces)} faces, beta = 0.7)")
     print(f"{'tolerance':>10s} {'time':28s} {'triangles':>10s} {'measured error':>15s}")
     for tol in (1e-2, 1e-3, 1e-4):
-        snap, times = timed(lambda: snapshot(rolling, verts, faces, cam, Effects(), tolerance=tol), args.repeats)
+        snap, times = timed(
+            lambda: snapshot(rolling, verts, faces, cam, Effects(), tolerance=tol), args.repeats
+        )
         print(f"{tol:10.0e} {fmt(times):28s} {len(snap.faces):10d} {snap.error:15.3e}")
     print(f"\nload average after: {os.getloadavg()}")
 

@@ -56,19 +56,20 @@ def frame_scene() -> str:
     WIDTH x HEIGHT."""
     return bench_frame.scene_toml(BETA).replace(
         f"resolution = [{bench_frame.WIDTH}, {bench_frame.HEIGHT}]",
-        f"resolution = [{WIDTH}, {HEIGHT}]")
+        f"resolution = [{WIDTH}, {HEIGHT}]",
+    )
 
 
 def without_bodies() -> str:
     """frame_scene's camera, render settings and background, no bodies."""
     text = frame_scene()
-    return text[:text.index("[[body]]")] + text[text.index("[background]"):]
+    return text[: text.index("[[body]]")] + text[text.index("[background]") :]
 
 
 def with_motion(text: str, motion: str) -> str:
     """``text`` with its (one) body's motion table replaced by ``motion``."""
     head, rest = text.split("[body.motion]\n", 1)
-    return head + "[body.motion]\n" + motion + "\n" + rest[rest.index("[body.surface]"):]
+    return head + "[body.motion]\n" + motion + "\n" + rest[rest.index("[body.surface]") :]
 
 
 def scene_hyperbolic(c):
@@ -78,9 +79,11 @@ def scene_hyperbolic(c):
     d = length * BETA / np.sqrt(1 - BETA**2)  # c (t - t0) where beta(t) = BETA
     x0 = -float(np.sqrt(length**2 + d**2) - length)
     t0 = float(-bench_frame.CAMERA_DISTANCE_M / c - d / c)
-    return with_motion(frame_scene(),
-                       f'kind = "hyperbolic"\nacceleration = [{c * c / length!r}, 0.0, 0.0]\n'
-                       f"position = [{x0!r}, 0.0, 0.0]\ntime = {t0!r}")
+    return with_motion(
+        frame_scene(),
+        f'kind = "hyperbolic"\nacceleration = [{c * c / length!r}, 0.0, 0.0]\n'
+        f"position = [{x0!r}, 0.0, 0.0]\ntime = {t0!r}",
+    )
 
 
 def scene_many(c, n: int, radius: float = 0.05):
@@ -101,7 +104,8 @@ def scene_many(c, n: int, radius: float = 0.05):
             f'[[body]]\nname = "b{k}"\nshape = "sphere"\nradius = {radius!r}\ndetail = 3\n'
             f'[body.motion]\nkind = "uniform"\nbeta = [{", ".join(repr(float(v)) for v in beta)}]'
             f"\nposition = [{x!r}, 0.0, {z!r}]\ntime = {seen!r}\n"
-            f"[body.surface]\nblackbody = {bench_frame.BLACKBODY_K!r}\n")
+            f"[body.surface]\nblackbody = {bench_frame.BLACKBODY_K!r}\n"
+        )
     return without_bodies() + "\n" + "\n".join(bodies)
 
 
@@ -138,17 +142,21 @@ def run_case(name, fn, repeats, rows):
         times.append(time.perf_counter() - t0)
     peak = rss_mib("VmHWM")
     rows[name] = times
-    print(f"{name:<44} {statistics.median(times):8.4f} s [{min(times):.4f}-{max(times):.4f}]"
-          f"  hits {100 * seen:5.1f} %  RSS before {rss0:5.0f} MiB, peak {peak:5.0f} MiB"
-          f"  load {before} -> {load()}", flush=True)
+    print(
+        f"{name:<44} {statistics.median(times):8.4f} s [{min(times):.4f}-{max(times):.4f}]"
+        f"  hits {100 * seen:5.1f} %  RSS before {rss0:5.0f} MiB, peak {peak:5.0f} MiB"
+        f"  load {before} -> {load()}",
+        flush=True,
+    )
 
 
 def main(argv=None) -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     parser.add_argument("--repeats", type=int, default=5)
     parser.add_argument("--counts", default="1,10,100,1000")
-    parser.add_argument("--skip", default="", help="comma list of cases to skip: "
-                        "uniform,second,hyperbolic,many")
+    parser.add_argument(
+        "--skip", default="", help="comma list of cases to skip: uniform,second,hyperbolic,many"
+    )
     args = parser.parse_args(argv)
     skip = set(filter(None, args.skip.split(",")))
 
@@ -159,10 +167,13 @@ def main(argv=None) -> None:
     from relview.renderer import RenderContext, render
     from relview.scene.model import load_scene
 
-    print(f"relview from {os.path.dirname(relview.__file__)}; {WIDTH}x{HEIGHT}, "
-          f"{args.repeats} repeats; load at start {load()}")
+    print(
+        f"relview from {os.path.dirname(relview.__file__)}; {WIDTH}x{HEIGHT}, "
+        f"{args.repeats} repeats; load at start {load()}"
+    )
     rows: dict[str, list[float]] = {}
     with tempfile.TemporaryDirectory() as tmp:
+
         def scene_of(key, text):
             path = os.path.join(tmp, f"{key}.toml")
             with open(path, "w") as f:
@@ -176,16 +187,21 @@ def main(argv=None) -> None:
         if "uniform" not in skip or "second" not in skip:
             uniform = scene_of("uniform", frame_scene())
             run_case("uniform 0.9c, context reused", with_context(uniform), args.repeats, rows)
-            run_case("uniform 0.9c, render(scene) again", lambda: relview.render(uniform),
-                     args.repeats, rows)
+            run_case(
+                "uniform 0.9c, render(scene) again",
+                lambda: relview.render(uniform),
+                args.repeats,
+                rows,
+            )
         if "hyperbolic" not in skip:
             hyper = scene_of("hyperbolic", scene_hyperbolic(C))
             run_case("hyperbolic 0.9c, context reused", with_context(hyper), args.repeats, rows)
         counts = [int(x) for x in args.counts.split(",") if x] if "many" not in skip else []
         for n in counts:
             many = scene_of(f"many{n}", scene_many(C, n))
-            run_case(f"{n} bodies x 1280 tri, own velocities", with_context(many),
-                     args.repeats, rows)
+            run_case(
+                f"{n} bodies x 1280 tri, own velocities", with_context(many), args.repeats, rows
+            )
         for n in counts:  # the same seen area whatever n: radius ~ 1 / sqrt(n)
             many = scene_of(f"area{n}", scene_many(C, n, 0.05 * float(np.sqrt(max(counts) / n))))
             run_case(f"{n} bodies, same seen area", with_context(many), args.repeats, rows)
@@ -196,19 +212,37 @@ def main(argv=None) -> None:
 
     def ratio(label, num, den, target):
         if num in med and den in med:
-            print(f"  {label:<52} {med[num] / med[den]:7.2f}; {best[num] / best[den]:7.2f}"
-                  f"   target <= {target}")
+            print(
+                f"  {label:<52} {med[num] / med[den]:7.2f}; {best[num] / best[den]:7.2f}"
+                f"   target <= {target}"
+            )
 
-    ratio("hyperbolic / uniform (context reused)", "hyperbolic 0.9c, context reused",
-          "uniform 0.9c, context reused", TARGET_HYPERBOLIC)
-    ratio("render(scene) again / with explicit context", "uniform 0.9c, render(scene) again",
-          "uniform 0.9c, context reused", TARGET_SECOND)
+    ratio(
+        "hyperbolic / uniform (context reused)",
+        "hyperbolic 0.9c, context reused",
+        "uniform 0.9c, context reused",
+        TARGET_HYPERBOLIC,
+    )
+    ratio(
+        "render(scene) again / with explicit context",
+        "uniform 0.9c, render(scene) again",
+        "uniform 0.9c, context reused",
+        TARGET_SECOND,
+    )
     for n in counts:
-        ratio(f"{n} bodies / 1 body (same body size)", f"{n} bodies x 1280 tri, own velocities",
-              f"{counts[0]} bodies x 1280 tri, own velocities", TARGET_MANY)
+        ratio(
+            f"{n} bodies / 1 body (same body size)",
+            f"{n} bodies x 1280 tri, own velocities",
+            f"{counts[0]} bodies x 1280 tri, own velocities",
+            TARGET_MANY,
+        )
     for n in counts:
-        ratio(f"{n} bodies / 1 body (same seen area)", f"{n} bodies, same seen area",
-              f"{counts[0]} bodies, same seen area", TARGET_MANY)
+        ratio(
+            f"{n} bodies / 1 body (same seen area)",
+            f"{n} bodies, same seen area",
+            f"{counts[0]} bodies, same seen area",
+            TARGET_MANY,
+        )
     print(f"load at end {load()}")
 
 

@@ -22,8 +22,9 @@ def estimate_bytes(width: int, height: int, faces: int = 0) -> int:
     return width * height * BYTES_PER_PIXEL + RAYS_PER_BATCH * 400 + mesh_bytes(faces)
 
 
-def check_memory(width: int, height: int, source: str = "render.resolution",
-                 faces: int = 0) -> None:
+def check_memory(
+    width: int, height: int, source: str = "render.resolution", faces: int = 0
+) -> None:
     """Refuse before any work when a frame (and ``faces`` mesh triangles) would not fit in
     this machine's memory."""
     need = estimate_bytes(width, height, faces)
@@ -32,6 +33,8 @@ def check_memory(width: int, height: int, source: str = "render.resolution",
         return
     if need > 0.8 * avail:
         meshes = f" with {faces:,} mesh triangles" if faces else ""
-        raise UserError(f"{source} = [{width}, {height}]: a frame{meshes} needs about "
-                        f"{need / 2**30:.1f} GiB but only {avail / 2**30:.1f} GiB is free; "
-                        "lower the resolution" + (" or simplify the meshes" if faces else ""))
+        raise UserError(
+            f"{source} = [{width}, {height}]: a frame{meshes} needs about "
+            f"{need / 2**30:.1f} GiB but only {avail / 2**30:.1f} GiB is free; "
+            "lower the resolution" + (" or simplify the meshes" if faces else "")
+        )

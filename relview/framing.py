@@ -102,16 +102,23 @@ def mesh_vertices(scene: Scene, meshes=None) -> list[np.ndarray]:
     return [_vertices(shapes.mesh_data(b).vertices) for b in scene.bodies]
 
 
-def apparent(scene: Scene, body_index: int, vertices: np.ndarray, event: np.ndarray,
-             beta_cam: np.ndarray, effects: Effects) -> Apparent:
+def apparent(
+    scene: Scene,
+    body_index: int,
+    vertices: np.ndarray,
+    event: np.ndarray,
+    beta_cam: np.ndarray,
+    effects: Effects,
+) -> Apparent:
     """Apparent directions and Doppler factors of a body's rest-frame ``vertices`` seen
     from the exposure ``event`` (ct, x) m by a camera moving with ``beta_cam``."""
     body = scene.bodies[body_index]
     event = np.asarray(event, float)
     # solved in coordinates centred on the exposure event, as the renderer does
     motion = body.motion.shifted(event[0] / C, event[1:])
-    emit, beta_e = motion.retarded(vertices, np.zeros(4), delay=effects.delay,
-                                   contraction=effects.contraction)
+    emit, beta_e = motion.retarded(
+        vertices, np.zeros(4), delay=effects.delay, contraction=effects.contraction
+    )
     ok = np.all(np.isfinite(emit), axis=1)
     sep = emit[ok, 1:]
     dist = np.linalg.norm(sep, axis=1)
@@ -140,14 +147,15 @@ def centre_direction(directions: np.ndarray, up: np.ndarray) -> np.ndarray:
     return aim
 
 
-def _inside(camera: Camera, width: int, height: int, directions: np.ndarray,
-            margin: float) -> bool:
+def _inside(camera: Camera, width: int, height: int, directions: np.ndarray, margin: float) -> bool:
     px, valid = cam_mod.directions_to_pixels(camera, width, height, directions)
     if not np.all(valid):
         return False
     half_w, half_h = width / 2.0 / (1.0 + margin), height / 2.0 / (1.0 + margin)
-    return bool(np.all(np.abs(px[:, 0] - width / 2.0) <= half_w)
-                and np.all(np.abs(px[:, 1] - height / 2.0) <= half_h))
+    return bool(
+        np.all(np.abs(px[:, 0] - width / 2.0) <= half_w)
+        and np.all(np.abs(px[:, 1] - height / 2.0) <= half_h)
+    )
 
 
 def holds(camera: Camera, width: int, height: int, directions: np.ndarray) -> bool:
@@ -155,8 +163,9 @@ def holds(camera: Camera, width: int, height: int, directions: np.ndarray) -> bo
     return len(directions) > 0 and _inside(camera, width, height, directions, 0.0)
 
 
-def fitted_fov(camera: Camera, width: int, height: int, directions: np.ndarray,
-               margin: float) -> float:
+def fitted_fov(
+    camera: Camera, width: int, height: int, directions: np.ndarray, margin: float
+) -> float:
     """The narrowest horizontal field of view (degrees) whose image holds every one of
     ``directions`` (camera frame) inside the central 1/(1 + margin) of each image axis.
 
@@ -178,8 +187,14 @@ def fitted_fov(camera: Camera, width: int, height: int, directions: np.ndarray,
     return high
 
 
-def resolve_camera(scene: Scene, event: np.ndarray, beta_cam: np.ndarray, effects: Effects,
-                   meshes=None, resolution=None) -> Camera:
+def resolve_camera(
+    scene: Scene,
+    event: np.ndarray,
+    beta_cam: np.ndarray,
+    effects: Effects,
+    meshes=None,
+    resolution=None,
+) -> Camera:
     """The scene's camera with ``aim_at`` and ``fit`` applied at the exposure ``event``.
 
     Without those keys the scene's own camera object is returned unchanged. ``aim_at``
@@ -194,8 +209,12 @@ def resolve_camera(scene: Scene, event: np.ndarray, beta_cam: np.ndarray, effect
     verts = mesh_vertices(scene, meshes)
 
     def directions(names):
-        found = [apparent(scene, scene.body_index(n), verts[scene.body_index(n)], event,
-                          beta_cam, effects).directions for n in names]
+        found = [
+            apparent(
+                scene, scene.body_index(n), verts[scene.body_index(n)], event, beta_cam, effects
+            ).directions
+            for n in names
+        ]
         found = [d for d in found if len(d)]
         return np.concatenate(found) if found else np.zeros((0, 3))
 
@@ -203,8 +222,9 @@ def resolve_camera(scene: Scene, event: np.ndarray, beta_cam: np.ndarray, effect
     if aim_names:
         d = directions(aim_names)
         if len(d):
-            out = dataclasses.replace(out, direction=centre_direction(d, np.asarray(cam.up, float)),
-                                      look_at=None)
+            out = dataclasses.replace(
+                out, direction=centre_direction(d, np.asarray(cam.up, float)), look_at=None
+            )
     if fit_names:
         d = directions(fit_names)
         if len(d):
@@ -216,14 +236,26 @@ def _border_directions(camera: Camera, width: int, height: int) -> np.ndarray:
     """Camera-frame directions of points along the image's border."""
     n = BORDER_POINTS // 4
     xs, ys = np.linspace(0.0, width, n), np.linspace(0.0, height, n)
-    pts = np.concatenate([np.stack([xs, np.zeros(n)], 1), np.stack([xs, np.full(n, height)], 1),
-                          np.stack([np.zeros(n), ys], 1), np.stack([np.full(n, width), ys], 1)])
+    pts = np.concatenate(
+        [
+            np.stack([xs, np.zeros(n)], 1),
+            np.stack([xs, np.full(n, height)], 1),
+            np.stack([np.zeros(n), ys], 1),
+            np.stack([np.full(n, width), ys], 1),
+        ]
+    )
     d, valid = cam_mod.scene_directions(camera, width, height, pts, None)
     return d[valid]
 
 
-def _miss(camera: Camera, width: int, height: int, directions: np.ndarray,
-          px: np.ndarray, valid: np.ndarray) -> tuple[float, str]:
+def _miss(
+    camera: Camera,
+    width: int,
+    height: int,
+    directions: np.ndarray,
+    px: np.ndarray,
+    valid: np.ndarray,
+) -> tuple[float, str]:
     """Angle (degrees) from the frame's border to the nearest of ``directions``, and on
     which side of the frame that vertex lies."""
     border = _border_directions(camera, width, height)
@@ -235,14 +267,21 @@ def _miss(camera: Camera, width: int, height: int, directions: np.ndarray,
     if not valid[nearest]:
         return angle, "behind"
     x, y = px[nearest]
-    side = ("left" if x < 0 else "right" if x > width else "")
-    vertical = ("above" if y < 0 else "below" if y > height else "")
+    side = "left" if x < 0 else "right" if x > width else ""
+    vertical = "above" if y < 0 else "below" if y > height else ""
     return angle, " and ".join(s for s in (side, vertical) if s)
 
 
-def sightings(scene: Scene, event: np.ndarray, beta_cam: np.ndarray, effects: Effects,
-              camera: Camera | None = None, frame=None, meshes=None,
-              resolution=None) -> list[Sighting]:
+def sightings(
+    scene: Scene,
+    event: np.ndarray,
+    beta_cam: np.ndarray,
+    effects: Effects,
+    camera: Camera | None = None,
+    frame=None,
+    meshes=None,
+    resolution=None,
+) -> list[Sighting]:
     """Where each body is seen at the exposure ``event`` through ``camera`` (default: the
     scene's, resolved). With a rendered ``frame`` (same camera and resolution) the pixel
     count and the Doppler range come from its body and doppler layers, i.e. from what is
@@ -259,8 +298,12 @@ def sightings(scene: Scene, event: np.ndarray, beta_cam: np.ndarray, effects: Ef
         box, in_frame = None, False
         if np.any(valid):
             p = px[valid]
-            box = (float(p[:, 0].min()), float(p[:, 1].min()),
-                   float(p[:, 0].max()), float(p[:, 1].max()))
+            box = (
+                float(p[:, 0].min()),
+                float(p[:, 1].min()),
+                float(p[:, 0].max()),
+                float(p[:, 1].max()),
+            )
             in_frame = box[0] < width and box[2] > 0 and box[1] < height and box[3] > 0
         pixels = None
         dop = seen.doppler
@@ -270,12 +313,16 @@ def sightings(scene: Scene, event: np.ndarray, beta_cam: np.ndarray, effects: Ef
             in_frame = in_frame or pixels > 0  # e.g. an image that wraps round a panorama
             if pixels:
                 dop = frame.layers["doppler"][mask]
-        miss, side = (0.0, "") if in_frame else _miss(camera, width, height, seen.directions,
-                                                      px, valid)
+        miss, side = (
+            (0.0, "") if in_frame else _miss(camera, width, height, seen.directions, px, valid)
+        )
         dop = dop[np.isfinite(dop)] if len(dop) else dop
         d_range = (float(dop.min()), float(dop.max())) if len(dop) else (math.nan, math.nan)
-        dist = ((float(seen.distance.min()), float(seen.distance.max())) if len(seen.distance)
-                else (math.nan, math.nan))
+        dist = (
+            (float(seen.distance.min()), float(seen.distance.max()))
+            if len(seen.distance)
+            else (math.nan, math.nan)
+        )
         out.append(Sighting(body.name, box, in_frame, miss, side, pixels, d_range, dist))
     return out
 
@@ -286,13 +333,19 @@ def sighting_warnings(found: list[Sighting], min_pixels: int = MIN_PIXELS) -> li
     out = []
     for s in found:
         if not s.in_frame:
-            out.append(f"body {s.body!r} is outside the frame (by {s.miss_deg:.3g} deg"
-                       f"{', ' + s.miss_side if s.miss_side else ''}): aim at it with "
-                       f"[camera] aim_at = \"{s.body}\" or widen fov")
+            out.append(
+                f"body {s.body!r} is outside the frame (by {s.miss_deg:.3g} deg"
+                f"{', ' + s.miss_side if s.miss_side else ''}): aim at it with "
+                f'[camera] aim_at = "{s.body}" or widen fov'
+            )
         elif s.pixels == 0:
-            out.append(f"body {s.body!r} is in the frame but no pixel shows it (hidden behind "
-                       "another body, or smaller than a pixel)")
+            out.append(
+                f"body {s.body!r} is in the frame but no pixel shows it (hidden behind "
+                "another body, or smaller than a pixel)"
+            )
         elif s.pixels is not None and s.pixels < min_pixels:
-            out.append(f"body {s.body!r} covers only {s.pixels} pixel(s): zoom in with "
-                       f"[camera] fit = [\"{s.body}\"] or raise the resolution")
+            out.append(
+                f"body {s.body!r} covers only {s.pixels} pixel(s): zoom in with "
+                f'[camera] fit = ["{s.body}"] or raise the resolution'
+            )
     return out

@@ -75,8 +75,9 @@ def null_from_frame(k_rest: np.ndarray, beta: np.ndarray, relativistic: bool = T
     return k / np.linalg.norm(k, axis=1)[:, None]
 
 
-def reflect_in_rest_frame(k_out: np.ndarray, beta_m: np.ndarray, normals: np.ndarray,
-                          effects: Effects) -> np.ndarray:
+def reflect_in_rest_frame(
+    k_out: np.ndarray, beta_m: np.ndarray, normals: np.ndarray, effects: Effects
+) -> np.ndarray:
     """(N,3) unit S propagation direction k_in of the light that a mirror moving with
     beta_m (N,3), of rest-frame unit normals (N,3), reflects into the unit S direction
     k_out (N,3): k_out boosted into the mirror's rest frame, its spatial part reflected
@@ -92,8 +93,9 @@ def reflect_in_rest_frame(k_out: np.ndarray, beta_m: np.ndarray, normals: np.nda
     return null_from_frame(k_rest, beta_m, rel)
 
 
-def doppler_between(k: np.ndarray, beta_source: np.ndarray, beta_receiver: np.ndarray,
-                    effects: Effects) -> np.ndarray:
+def doppler_between(
+    k: np.ndarray, beta_source: np.ndarray, beta_receiver: np.ndarray, effects: Effects
+) -> np.ndarray:
     """(N,) D = frequency received / frequency sent of light propagating along unit S
     directions k (N,3) from a source moving with beta_source to a receiver moving with
     beta_receiver: gamma_r (1 - beta_r.k) / (gamma_s (1 - beta_s.k)) (Rybicki & Lightman
@@ -102,8 +104,9 @@ def doppler_between(k: np.ndarray, beta_source: np.ndarray, beta_receiver: np.nd
     return null_to_frame(k, beta_receiver, rel)[0] / null_to_frame(k, beta_source, rel)[0]
 
 
-def mirror_directions(body, body_index: int, mesh, hits, sel: np.ndarray, viewer: np.ndarray,
-                      effects: Effects):
+def mirror_directions(
+    body, body_index: int, mesh, hits, sel: np.ndarray, viewer: np.ndarray, effects: Effects
+):
     """(backward S directions (N,3) of the reflected rays, mirror velocities beta_m (N,3))
     at the hits ``sel`` of mirror body ``body_index``, seen by rays that started at the
     ``viewer`` events ((4,) or (N,4): the camera's exposure event, or the previous
@@ -111,8 +114,9 @@ def mirror_directions(body, body_index: int, mesh, hits, sel: np.ndarray, viewer
     along -k_in of :func:`reflect_in_rest_frame`."""
     events = hits.emit_event[sel]
     beta_m = hits.beta_emit[sel]
-    normals = rest_normals(body, body_index, mesh, hits.face[sel], hits.bary[sel], events,
-                           beta_m, effects)
+    normals = rest_normals(
+        body, body_index, mesh, hits.face[sel], hits.bary[sel], events, beta_m, effects
+    )
     k_out = np.asarray(viewer, float)[..., 1:] - events[:, 1:]  # towards the viewer
     k_out /= np.linalg.norm(k_out, axis=1)[:, None]
     return -reflect_in_rest_frame(k_out, beta_m, normals, effects), beta_m
@@ -134,8 +138,10 @@ def lamp_events(lamp: Lamp, events: np.ndarray, effects: Effects):
         beta = np.asarray(beta, float)
         x_now = e0[1:] + np.outer(t - e0[0], beta)  # the lamp at each event's time
         tau = inertial_light_delay(events[:, 1:] - x_now, beta)
-        return (np.column_stack([t - tau, x_now - tau[:, None] * beta]),
-                np.broadcast_to(beta, (n, 3)).copy())
+        return (
+            np.column_stack([t - tau, x_now - tau[:, None] * beta]),
+            np.broadcast_to(beta, (n, 3)).copy(),
+        )
     ev_now, _ = motion.events(origin, t, effects.contraction)
     dist = np.linalg.norm(events[:, 1:] - ev_now[:, 1:], axis=1) + np.abs(ev_now[:, 0] - t)
 
@@ -155,8 +161,9 @@ def lamp_events(lamp: Lamp, events: np.ndarray, effects: Effects):
     return ev, dev[:, 1:] / dev[:, :1]
 
 
-def rest_normals(body, body_index: int, mesh, hits_face, hits_bary, events, beta_s,
-                 effects: Effects) -> np.ndarray:
+def rest_normals(
+    body, body_index: int, mesh, hits_face, hits_bary, events, beta_s, effects: Effects
+) -> np.ndarray:
     """(N,3) unit normals of the hit faces in each surface point's rest frame (axes
     parallel to S's). Inertial bodies: the face normal of the rest-frame mesh. Other
     motions: two short face tangents placed simultaneously in S at the hit time
@@ -179,8 +186,8 @@ def rest_normals(body, body_index: int, mesh, hits_face, hits_bary, events, beta
     m = len(p)
     pts = np.concatenate([p, p + t1, p + t2])
     x, _ = body.motion.state(pts, np.tile(events[:, 0], 3), contraction=effects.contraction)
-    w1 = x[m:2 * m] - x[:m]
-    w2 = x[2 * m:] - x[:m]
+    w1 = x[m : 2 * m] - x[:m]
+    w2 = x[2 * m :] - x[:m]
     if effects.contraction:
         b2 = np.sum(beta_s * beta_s, axis=1)
         g = 1.0 / np.sqrt(1.0 - b2)
@@ -215,14 +222,27 @@ def event_clusters(events: np.ndarray, spread_m: float, max_clusters: int = MAX_
         index, inverse = np.unique(cells, axis=0, return_inverse=True)
         if len(index) <= max_clusters:
             inverse = inverse.reshape(-1)
-            return [((side, tuple(cell)), (cell + 0.5) * side, np.nonzero(inverse == j)[0],
-                     side * root3) for j, cell in enumerate(index)]
+            return [
+                (
+                    (side, tuple(cell)),
+                    (cell + 0.5) * side,
+                    np.nonzero(inverse == j)[0],
+                    side * root3,
+                )
+                for j, cell in enumerate(index)
+            ]
         side *= 2.0
     lo, hi = events.min(axis=0), events.max(axis=0)
     half = 0.5 * (hi - lo)
     centre = 0.5 * (lo + hi)
-    return [(("box", tuple(centre)), centre, np.arange(len(events)),
-             float(half[0] + np.linalg.norm(half[1:])))]
+    return [
+        (
+            ("box", tuple(centre)),
+            centre,
+            np.arange(len(events)),
+            float(half[0] + np.linalg.norm(half[1:])),
+        )
+    ]
 
 
 class RetardedOccluders:
@@ -238,9 +258,18 @@ class RetardedOccluders:
     (measured in tests/test_lamps.py). ``spread`` holds the largest spread of the last
     cast (m). Duck-types Tracer.cast and Tracer.packed."""
 
-    def __init__(self, scene, meshes, other, uniform_groups, exposure_tracer: Tracer,
-                 exposure_event: np.ndarray, tolerance: float | None = None,
-                 cluster_angle: float = CLUSTER_ANGLE, max_clusters: int = MAX_CLUSTERS):
+    def __init__(
+        self,
+        scene,
+        meshes,
+        other,
+        uniform_groups,
+        exposure_tracer: Tracer,
+        exposure_event: np.ndarray,
+        tolerance: float | None = None,
+        cluster_angle: float = CLUSTER_ANGLE,
+        max_clusters: int = MAX_CLUSTERS,
+    ):
         self.scene = scene
         self.meshes = meshes
         self.other = list(other)
@@ -257,8 +286,15 @@ class RetardedOccluders:
     def packed(self):
         return self.exposure_tracer.packed
 
-    def cast(self, ray_origin: np.ndarray, d_scene: np.ndarray, effects: Effects,
-             l_min: float = 1e-9, beta_cam=None, reference=None):
+    def cast(
+        self,
+        ray_origin: np.ndarray,
+        d_scene: np.ndarray,
+        effects: Effects,
+        l_min: float = 1e-9,
+        beta_cam=None,
+        reference=None,
+    ):
         from relview.geometry import lightcone  # loads the snapshot kernels on first use
 
         d_scene = np.asarray(d_scene, float)
@@ -272,24 +308,44 @@ class RetardedOccluders:
         for key, centre, rows, _ in clusters:
             tracer = self._tracers.get(key)
             if tracer is None:  # one snapshot per grid cell and exposure, shared by casts
-                snaps = lightcone.snapshot_groups(self.scene, self.meshes, self.other, centre,
-                                                  effects, self.tolerance, reference=reference)
+                snaps = lightcone.snapshot_groups(
+                    self.scene,
+                    self.meshes,
+                    self.other,
+                    centre,
+                    effects,
+                    self.tolerance,
+                    reference=reference,
+                )
                 tracer = self._tracers[key] = Tracer(self.uniform_groups + snaps)
             hits = tracer.cast(
-                np.ascontiguousarray(starts[rows]), d_scene[rows], effects, l_min, beta_cam,
-                reference)
+                np.ascontiguousarray(starts[rows]),
+                d_scene[rows],
+                effects,
+                l_min,
+                beta_cam,
+                reference,
+            )
             if merged is None:
-                merged = {k: (None if v is None else np.empty((len(d_scene),) + v.shape[1:],
-                                                               v.dtype))
-                          for k, v in vars(hits).items()}
+                merged = {
+                    k: (None if v is None else np.empty((len(d_scene),) + v.shape[1:], v.dtype))
+                    for k, v in vars(hits).items()
+                }
             for k, v in vars(hits).items():
                 if v is not None:
                     merged[k][rows] = v
         return type(hits)(**merged)
 
 
-def _shadow_free(tracer: Tracer, start: np.ndarray, towards: np.ndarray, distance: np.ndarray,
-                 effects: Effects, reference=None, own_body: int = -1) -> np.ndarray:
+def _shadow_free(
+    tracer: Tracer,
+    start: np.ndarray,
+    towards: np.ndarray,
+    distance: np.ndarray,
+    effects: Effects,
+    reference=None,
+    own_body: int = -1,
+) -> np.ndarray:
     """(N,) True where the backward null ray from each start event along unit ``towards``
     meets no body before ``distance`` (m; inf for a distant lamp). ``reference``: the
     exposure's reference event (relview.geometry.trace). ``own_body``: the lamp's own
@@ -314,8 +370,9 @@ def _disc_points(lamp: Lamp, k: np.ndarray) -> np.ndarray:
     a = np.cross(k, helper)
     a /= np.linalg.norm(a, axis=1)[:, None]
     b = np.cross(k, a)
-    return ((r * np.cos(phi))[:, :, None] * a[None] + (r * np.sin(phi))[:, :, None] * b[None]
-            ).reshape(s, n, 3)
+    return (
+        (r * np.cos(phi))[:, :, None] * a[None] + (r * np.sin(phi))[:, :, None] * b[None]
+    ).reshape(s, n, 3)
 
 
 @dataclass
@@ -348,8 +405,15 @@ def _lamp_light(lamp: Lamp, events: np.ndarray, effects: Effects):
     return k, null_to_frame(k, beta_l, rel)[0], ev_l, distance
 
 
-def lamp_term(lamp: Lamp, tracer: Tracer | None, events: np.ndarray, beta_s: np.ndarray,
-              normals: np.ndarray, effects: Effects, reference=None) -> LampTerm:
+def lamp_term(
+    lamp: Lamp,
+    tracer: Tracer | None,
+    events: np.ndarray,
+    beta_s: np.ndarray,
+    normals: np.ndarray,
+    effects: Effects,
+    reference=None,
+) -> LampTerm:
     """The light of ``lamp`` at the surface events (N,4) moving with beta_s (N,3), whose
     rest-frame normals (N,3) face the camera."""
     n = len(events)
@@ -371,8 +435,16 @@ def lamp_term(lamp: Lamp, tracer: Tracer | None, events: np.ndarray, beta_s: np.
     visible = np.zeros(n)
     lit = np.nonzero(cos_in > 0)[0]
     if len(lit):
-        visible[lit] = _unshadowed(lamp, tracer, events[lit], k[lit], distance[lit],
-                                   None if ev_l is None else ev_l[lit], effects, reference)
+        visible[lit] = _unshadowed(
+            lamp,
+            tracer,
+            events[lit],
+            k[lit],
+            distance[lit],
+            None if ev_l is None else ev_l[lit],
+            effects,
+            reference,
+        )
     return LampTerm(d_in, weight, visible, irradiance)
 
 
@@ -387,9 +459,15 @@ def _unshadowed(lamp: Lamp, tracer, events, k, distance, ev_l, effects: Effects,
     target = ev_l[:, 1:][None] + offsets  # (S, M, 3) points of the lamp's disc
     seg = target - events[:, 1:][None]
     dist = np.linalg.norm(seg, axis=2)
-    free = _shadow_free(tracer, np.tile(events, (len(offsets), 1)),
-                        (seg / dist[:, :, None]).reshape(-1, 3), dist.reshape(-1),
-                        effects, reference, own)
+    free = _shadow_free(
+        tracer,
+        np.tile(events, (len(offsets), 1)),
+        (seg / dist[:, :, None]).reshape(-1, 3),
+        dist.reshape(-1),
+        effects,
+        reference,
+        own,
+    )
     return free.reshape(len(offsets), -1).mean(axis=0)
 
 
@@ -406,8 +484,14 @@ class LampSighting:
     lit: bool  # any of its light arrives unshadowed
 
 
-def lamp_sightings(lamps, tracer: Tracer | None, event: np.ndarray, beta: np.ndarray,
-                   effects: Effects, reference=None) -> list[LampSighting]:
+def lamp_sightings(
+    lamps,
+    tracer: Tracer | None,
+    event: np.ndarray,
+    beta: np.ndarray,
+    effects: Effects,
+    reference=None,
+) -> list[LampSighting]:
     """Each lamp's light at one event (4,) of a point moving with ``beta`` (3,): the
     lamp event, the incident direction in the point's rest frame, D_in and the
     unshadowed fraction (shadow rays as for shading; a point inside a body, or on a
@@ -425,9 +509,17 @@ def lamp_sightings(lamps, tracer: Tracer | None, event: np.ndarray, beta: np.nda
         if not effects.aberration:
             k_rest = k
         free = _unshadowed(lamp, tracer, events, k, distance, ev_l, effects, reference)
-        out.append(LampSighting(lamp.name, when, where, tuple(map(float, k_rest[0])),
-                                float(k0_s[0] / k0_lamp[0]), float(free[0]),
-                                bool(free[0] > 0.0)))
+        out.append(
+            LampSighting(
+                lamp.name,
+                when,
+                where,
+                tuple(map(float, k_rest[0])),
+                float(k0_s[0] / k0_lamp[0]),
+                float(free[0]),
+                bool(free[0] > 0.0),
+            )
+        )
     return out
 
 
@@ -449,12 +541,24 @@ def scene_lit(scene) -> bool:
 def takes_lamps(surface) -> bool:
     if getattr(surface, "scene_lit", False):
         return True
-    return any(takes_lamps(getattr(surface, part, None)) for part in ("first", "second")
-               if getattr(surface, part, None) is not None)
+    return any(
+        takes_lamps(getattr(surface, part, None))
+        for part in ("first", "second")
+        if getattr(surface, part, None) is not None
+    )
 
 
-def incident_light(scene, body_index: int, mesh, tracer: Tracer | None, hits, sel: np.ndarray,
-                   camera_event: np.ndarray, effects: Effects, reference=None):
+def incident_light(
+    scene,
+    body_index: int,
+    mesh,
+    tracer: Tracer | None,
+    hits,
+    sel: np.ndarray,
+    camera_event: np.ndarray,
+    effects: Effects,
+    reference=None,
+):
     """(Incident, incident D of the brightest lamp (N,), shadowed fraction (N,)) at the
     hits ``sel`` of body ``body_index``: every lamp's light, for Surface.lit_xyz.
     ``camera_event``: where the rays were received, (4,) or one (N,4) event per hit (a
@@ -462,22 +566,27 @@ def incident_light(scene, body_index: int, mesh, tracer: Tracer | None, hits, se
     body = scene.bodies[body_index]
     events = hits.emit_event[sel]
     beta_s = hits.beta_emit[sel]
-    normals = rest_normals(body, body_index, mesh, hits.face[sel], hits.bary[sel], events,
-                           beta_s, effects)
+    normals = rest_normals(
+        body, body_index, mesh, hits.face[sel], hits.bary[sel], events, beta_s, effects
+    )
     # two-sided: the normal on the camera's side, judged in the surface's rest frame
     out = np.asarray(camera_event, float)[..., 1:] - events[:, 1:]
     out /= np.linalg.norm(out, axis=1)[:, None]
     _, out_rest = null_to_frame(out, beta_s, bool(effects.contraction))
     normals = normals * np.where(np.sum(normals * out_rest, axis=1) < 0, -1.0, 1.0)[:, None]
-    terms = [lamp_term(lamp, tracer, events, beta_s, normals, effects, reference)
-             for lamp in scene.lamps]
+    terms = [
+        lamp_term(lamp, tracer, events, beta_s, normals, effects, reference) for lamp in scene.lamps
+    ]
     d_in = np.stack([t.d_in for t in terms])
     weight = np.stack([t.weight * t.visible for t in terms])
     irr = np.stack([t.irradiance for t in terms])
     total = irr.sum(axis=0)
     with np.errstate(invalid="ignore", divide="ignore"):
-        shadowed = np.where(total > 0, 1.0 - (irr * np.stack([t.visible for t in terms])
-                                              ).sum(axis=0) / total, np.nan)
+        shadowed = np.where(
+            total > 0,
+            1.0 - (irr * np.stack([t.visible for t in terms])).sum(axis=0) / total,
+            np.nan,
+        )
     brightest = np.take_along_axis(d_in, np.argmax(irr, axis=0)[None], 0)[0]
     brightest = np.where(total > 0, brightest, np.nan)
     tables = [lit_table(lamp.spectrum) for lamp in scene.lamps]

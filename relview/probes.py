@@ -73,8 +73,14 @@ class ProbeResult:
 PROBE_TOLERANCE = DEFAULT_TOLERANCE
 
 
-def retarded_events(scene: Scene, body_index: int, points_rest: np.ndarray,
-                    camera_event: np.ndarray, effects: Effects, reference=None):
+def retarded_events(
+    scene: Scene,
+    body_index: int,
+    points_rest: np.ndarray,
+    camera_event: np.ndarray,
+    effects: Effects,
+    reference=None,
+):
     """Emission events (N, 4) and velocities (N, 3) of body points given in body axes.
 
     With ``reference`` = (t s, x m), the camera event's scene time and place, the motion is
@@ -89,8 +95,16 @@ def retarded_events(scene: Scene, body_index: int, points_rest: np.ndarray,
     return motion.retarded(p, cam, delay=effects.delay, contraction=effects.contraction)
 
 
-def clock_data(scene: Scene, body_index: int, points_rest: np.ndarray, emit_ct: np.ndarray,
-               propagation: np.ndarray, beta_cam: np.ndarray, effects: Effects, reference):
+def clock_data(
+    scene: Scene,
+    body_index: int,
+    points_rest: np.ndarray,
+    emit_ct: np.ndarray,
+    propagation: np.ndarray,
+    beta_cam: np.ndarray,
+    effects: Effects,
+    reference,
+):
     """The body clock as the camera sees it (relview.kinematics.clocks), for body points
     (N, 3) in body axes whose light left at scene times ``emit_ct`` (N,) ct m relative to
     the exposure event ``reference`` = (t s, x m), along unit ``propagation`` directions
@@ -101,18 +115,25 @@ def clock_data(scene: Scene, body_index: int, points_rest: np.ndarray, emit_ct: 
     motion = body.motion.shifted(reference[0], reference[1])  # times relative to the exposure
     relativistic = effects.contraction
     s_emit = reference_times(motion, p, emit_ct, relativistic)
-    seen = reading_from_coordinate(body.motion, body.clock,
-                                   clock_coordinate(motion, s_emit, relativistic)[0], relativistic)
+    seen = reading_from_coordinate(
+        body.motion, body.clock, clock_coordinate(motion, s_emit, relativistic)[0], relativistic
+    )
     rate = tick_rates(motion, p, s_emit, propagation, beta_cam, relativistic, effects.delay)
     s_now = reference_times(motion, p, np.zeros(len(p)), relativistic)
-    computed = reading_from_coordinate(body.motion, body.clock,
-                                       clock_coordinate(motion, s_now, relativistic)[0],
-                                       relativistic)
+    computed = reading_from_coordinate(
+        body.motion, body.clock, clock_coordinate(motion, s_now, relativistic)[0], relativistic
+    )
     return seen, rate, computed
 
 
-def probe_many(scene: Scene, body, points, time: float | None = None,
-               effects: Effects | None = None, context=None) -> list[ProbeResult]:
+def probe_many(
+    scene: Scene,
+    body,
+    points,
+    time: float | None = None,
+    effects: Effects | None = None,
+    context=None,
+) -> list[ProbeResult]:
     """Probe several points (N, 3) of one body at one exposure (see :func:`probe`)."""
     effects = effects or scene.render.effects
     bi = body if isinstance(body, (int, np.integer)) else scene.body_index(body)
@@ -129,7 +150,8 @@ def probe_many(scene: Scene, body, points, time: float | None = None,
     d_cam = aberrate_to_camera(d_s, beta_cam) if effects.aberration and np.any(beta_cam) else d_s
     w, h = scene.render.resolution
     px, in_view = cam_mod.directions_to_pixels(
-        framing.resolve_camera(scene, event, beta_cam, effects), w, h, d_cam)  # as rendered
+        framing.resolve_camera(scene, event, beta_cam, effects), w, h, d_cam
+    )  # as rendered
     # visibility: cast the same backward ray and compare the first hit with the point
     if context is None or context.effects != effects:
         context = RenderContext(scene, effects)
@@ -139,33 +161,49 @@ def probe_many(scene: Scene, body, points, time: float | None = None,
     hits = tracer.cast(np.broadcast_to(event, (len(pts), 4)), d_s, effects, reference=reference)
     # visible when the first surface on that ray is not nearer than the point itself; a
     # light-cone snapshot places surfaces only to its measured angular error
-    snap_error = max((g.snapshot.error for g in tracer.groups if hasattr(g, "snapshot")),
-                     default=0.0)
+    snap_error = max(
+        (g.snapshot.error for g in tracer.groups if hasattr(g, "snapshot")), default=0.0
+    )
     tol = np.maximum(1e-6, 2.0 * snap_error) * np.maximum(dist, 1e-3)
     visible = hits.l >= dist - tol
     dop = doppler_along(beta_e, d_s, beta_cam, effects)  # of the point, not of what hides it
-    seen_clock, rate, computed = clock_data(scene, bi, pts, relative[:, 0], -d_s, beta_cam,
-                                            effects, reference)
+    seen_clock, rate, computed = clock_data(
+        scene, bi, pts, relative[:, 0], -d_s, beta_cam, effects, reference
+    )
     cam_clock = camera_reading(scene.camera, t, effects.contraction)
-    lamps = [illumination.lamp_sightings(scene.lamps, tracer, emit[i], beta_e[i], effects,
-                                         reference) for i in range(len(pts))]
+    lamps = [
+        illumination.lamp_sightings(scene.lamps, tracer, emit[i], beta_e[i], effects, reference)
+        for i in range(len(pts))
+    ]
     out = []
     name = scene.bodies[bi].name
     for i in range(len(pts)):
-        out.append(ProbeResult(
-            body=name, point=tuple(map(float, pts[i])), emit_time=float(emit[i, 0] / C),
-            emit_position=tuple(map(float, emit[i, 1:])), direction=tuple(map(float, d_cam[i])),
-            pixel=(float(px[i, 0]), float(px[i, 1])), in_view=bool(in_view[i]),
-            visible=bool(visible[i]), doppler=float(dop[i]),
-            light_delay=float(-relative[i, 0] / C),
-            beta_emit=tuple(map(float, beta_e[i])), proper_time=float(seen_clock[i]),
-            tick_rate=float(rate[i]), computed_proper_time=float(computed[i]),
-            camera_proper_time=cam_clock, lamps=lamps[i]))
+        out.append(
+            ProbeResult(
+                body=name,
+                point=tuple(map(float, pts[i])),
+                emit_time=float(emit[i, 0] / C),
+                emit_position=tuple(map(float, emit[i, 1:])),
+                direction=tuple(map(float, d_cam[i])),
+                pixel=(float(px[i, 0]), float(px[i, 1])),
+                in_view=bool(in_view[i]),
+                visible=bool(visible[i]),
+                doppler=float(dop[i]),
+                light_delay=float(-relative[i, 0] / C),
+                beta_emit=tuple(map(float, beta_e[i])),
+                proper_time=float(seen_clock[i]),
+                tick_rate=float(rate[i]),
+                computed_proper_time=float(computed[i]),
+                camera_proper_time=cam_clock,
+                lamps=lamps[i],
+            )
+        )
     return out
 
 
-def probe(scene: Scene, body, point, time: float | None = None,
-          effects: Effects | None = None) -> ProbeResult:
+def probe(
+    scene: Scene, body, point, time: float | None = None, effects: Effects | None = None
+) -> ProbeResult:
     """Apparent data of one rest-frame point of ``body`` (name or index) at the exposure.
 
     Returns emit_time (s), emit_position (m, S), direction (unit, camera rest frame),

@@ -59,8 +59,9 @@ class Frame:
         registered by extension in relview.imaging.formats.
         """
         path = Path(path)
-        return frame_format(path).write(self, path, bits=bits, tone=tone or self.tone,
-                                        overwrite=overwrite)
+        return frame_format(path).write(
+            self, path, bits=bits, tone=tone or self.tone, overwrite=overwrite
+        )
 
     def _repr_png_(self) -> bytes:
         """The picture as 8-bit sRGB PNG bytes (the scene's tone curve, provenance in text
@@ -71,8 +72,10 @@ class Frame:
         """One line: size, time, white and the scene (the arrays are in .image, .layers)."""
         height, width = self.image.shape[:2]
         scene = Path(self.metadata.get("scene") or "scene").name
-        return (f"<Frame {width}x{height} of {scene} at t = {self.time:.6g} s, "
-                f"white {self.white:.4g} cd/m2, layers: {', '.join(self.layers)}>")
+        return (
+            f"<Frame {width}x{height} of {scene} at t = {self.time:.6g} s, "
+            f"white {self.white:.4g} cd/m2, layers: {', '.join(self.layers)}>"
+        )
 
 
 #: Built scene geometry kept per process, most recently used last (at most this many
@@ -109,8 +112,9 @@ def geometry_key(scene: Scene, effects: Effects) -> str:
 
     def add(*values):
         for v in values:
-            h.update(np.asarray(v, float).tobytes() if isinstance(v, np.ndarray)
-                     else repr(v).encode())
+            h.update(
+                np.asarray(v, float).tobytes() if isinstance(v, np.ndarray) else repr(v).encode()
+            )
             h.update(b"|")
 
     for body in scene.bodies:
@@ -122,8 +126,17 @@ def geometry_key(scene: Scene, effects: Effects) -> str:
                 stamp = (str(Path(file).resolve()), st.st_mtime_ns, st.st_size)
             except OSError:
                 stamp = str(file)  # mesh_data reports the problem
-        add(body.shape, _floats(body.size), body.radius, body.height, body.detail, stamp,
-            float(body.scale), bool(getattr(body, "center", True)), _floats(body.rotation))
+        add(
+            body.shape,
+            _floats(body.size),
+            body.radius,
+            body.height,
+            body.detail,
+            stamp,
+            float(body.scale),
+            bool(getattr(body, "center", True)),
+            _floats(body.rotation),
+        )
         motion = body.motion
         if motion.is_inertial:
             beta, event = motion.inertial_frame()
@@ -161,10 +174,13 @@ def scene_geometry(scene: Scene, effects: Effects) -> SceneGeometry:
     frames = [scene.bodies[i].motion.inertial_frame() for i in solid]
     built.enclosing = (
         np.array(solid, np.int64),
-        np.array([frame_matrix(np.asarray(b, float), effects) for b, _ in frames]).reshape(-1, 4, 4),
+        np.array([frame_matrix(np.asarray(b, float), effects) for b, _ in frames]).reshape(
+            -1, 4, 4
+        ),
         np.array([np.asarray(e, float) for _, e in frames]).reshape(-1, 4),
         np.array([meshes[i][0].min(axis=0) for i in solid]).reshape(-1, 3),
-        np.array([meshes[i][0].max(axis=0) for i in solid]).reshape(-1, 3))
+        np.array([meshes[i][0].max(axis=0) for i in solid]).reshape(-1, 3),
+    )
     _GEOMETRY_CACHE[key] = built
     while len(_GEOMETRY_CACHE) > GEOMETRY_CACHE_SIZE:
         _GEOMETRY_CACHE.popitem(last=False)
@@ -209,8 +225,9 @@ class RenderContext:
             self._centres_size = (width, height)
         return self._centres
 
-    def tracer(self, camera_event: np.ndarray, reference=None,
-               tolerance: float | None = None) -> Tracer:
+    def tracer(
+        self, camera_event: np.ndarray, reference=None, tolerance: float | None = None
+    ) -> Tracer:
         """The tracer for one exposure event (light-cone snapshots join uniform groups).
 
         ``reference`` = (t s, x m), the exposure event the snapshots are centred on (pass
@@ -219,19 +236,33 @@ class RenderContext:
         if not self.other:
             tracer = self._uniform_tracer
         else:
-
-            snap = lightcone.snapshot_groups(self.scene, self.meshes, self.other, camera_event,
-                                             self.effects, tolerance, reference=reference)
+            snap = lightcone.snapshot_groups(
+                self.scene,
+                self.meshes,
+                self.other,
+                camera_event,
+                self.effects,
+                tolerance,
+                reference=reference,
+            )
             tracer = Tracer(self.uniform_groups + snap)
         # the exposure being rendered: shade() casts the lamps' shadow rays and the
         # mirrors' reflected rays through it, bodies on non-inertial worldlines on the
         # light cones of the rays' own start events (illumination.RetardedOccluders)
         secondary = tracer
-        if self.other and (illumination.scene_lit(self.scene) or any(
-                getattr(b.surface, "mirror", False) for b in self.scene.bodies)):
+        if self.other and (
+            illumination.scene_lit(self.scene)
+            or any(getattr(b.surface, "mirror", False) for b in self.scene.bodies)
+        ):
             secondary = illumination.RetardedOccluders(
-                self.scene, self.meshes, self.other, self.uniform_groups, tracer,
-                camera_event, tolerance)
+                self.scene,
+                self.meshes,
+                self.other,
+                self.uniform_groups,
+                tracer,
+                camera_event,
+                tolerance,
+            )
         self.exposure = (np.asarray(camera_event, float), secondary, reference)
         return tracer
 
@@ -255,8 +286,9 @@ def camera_state(scene: Scene, time_s: float) -> tuple[np.ndarray, np.ndarray]:
     return np.concatenate([[C * time_s], x]), beta
 
 
-def doppler_along(beta_emit: np.ndarray, d_scene: np.ndarray, beta_cam: np.ndarray,
-                  effects: Effects) -> np.ndarray:
+def doppler_along(
+    beta_emit: np.ndarray, d_scene: np.ndarray, beta_cam: np.ndarray, effects: Effects
+) -> np.ndarray:
     """D for emitters moving with (N, 3) beta seen along (N, 3) S directions towards them.
 
     n = -d is the propagation direction, emitter -> camera. Relativistic:
@@ -268,8 +300,9 @@ def doppler_along(beta_emit: np.ndarray, d_scene: np.ndarray, beta_cam: np.ndarr
     return lorentz_doppler_along(beta_emit, d_scene, beta_cam, relativistic=effects.contraction)
 
 
-def bodies_around_camera(scene: Scene, context: RenderContext,
-                         camera_event: np.ndarray) -> list[str]:
+def bodies_around_camera(
+    scene: Scene, context: RenderContext, camera_event: np.ndarray
+) -> list[str]:
     """Names of the uniformly moving bodies whose inside holds the exposure event.
 
     The event is mapped into each body's rest frame (the same boost, or Galilean map
@@ -320,9 +353,17 @@ def exposure_times(t: float, shutter: float, samples: int, shutter_samples: int)
     return t + shutter * ((np.arange(n) + 0.5) / n - 0.5)
 
 
-def render(scene: Scene, time: float | None = None, *, resolution=None, samples=None,
-           exposure=None, effects: Effects | None = None, context: RenderContext | None = None,
-           progress: bool = False) -> Frame:
+def render(
+    scene: Scene,
+    time: float | None = None,
+    *,
+    resolution=None,
+    samples=None,
+    exposure=None,
+    effects: Effects | None = None,
+    context: RenderContext | None = None,
+    progress: bool = False,
+) -> Frame:
     """Render one exposure of ``scene`` at scene time ``time`` (default: camera.time)."""
 
     width, height = resolution or scene.render.resolution
@@ -338,10 +379,13 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
     for name in bodies_around_camera(scene, context, event):
         import warnings
 
-
-        warnings.warn(f"{scene.source_path or 'scene'}: the camera is inside body {name!r} "
-                      f"at t = {t:.6g} s (tested in the body's rest frame); every ray starts "
-                      "inside it, so the image shows its inner faces", SceneWarning, stacklevel=2)
+        warnings.warn(
+            f"{scene.source_path or 'scene'}: the camera is inside body {name!r} "
+            f"at t = {t:.6g} s (tested in the body's rest frame); every ray starts "
+            "inside it, so the image shows its inner faces",
+            SceneWarning,
+            stacklevel=2,
+        )
     cam = framing.resolve_camera(scene, event, beta_cam, effects, context.meshes, (width, height))
     rng = np.random.default_rng(scene.render.seed)
     n_pix = width * height
@@ -382,8 +426,9 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
         px = centres[a:b]
         if s > 0 and samples > 1:
             px = px + rng.uniform(-0.5, 0.5, size=px.shape)
-        d_s, valid = cam_mod.scene_directions(cam, width, height, px,
-                                              beta_c if effects.aberration else None)
+        d_s, valid = cam_mod.scene_directions(
+            cam, width, height, px, beta_c if effects.aberration else None
+        )
         hits = tracer.cast(ev, d_s, effects, beta_cam=beta_c, reference=reference)
         if not valid.all():
             hits.body[~valid] = -1
@@ -392,7 +437,9 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
         if s < first_colour:  # the nominal picture of an open shutter: data layers only
             col = None
         else:
-            col = shade(scene, context, hits, dop, effects, slice(a, b) if s == first_colour else None)
+            col = shade(
+                scene, context, hits, dop, effects, slice(a, b) if s == first_colour else None
+            )
         if sky.per_pixel(scene.background):
             miss = (hits.body < 0) & valid
             if np.any(miss) and col is not None:
@@ -400,14 +447,16 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
             if np.any(miss):
                 if s == 0 and layer_temp is not None:
                     layer_temp[a:b][miss] = sky.microwave_temperature(
-                        scene.background, d_s[miss], beta_c, effects)
+                        scene.background, d_s[miss], beta_c, effects
+                    )
         if s == first_colour:
             xyz[a:b] = col
         elif s > first_colour:
             xyz[a:b] += col
         if s == 0:
-            layer_clock[a:b] = body_readings(scene.bodies, hits.body, hits.clock,
-                                             effects.contraction)
+            layer_clock[a:b] = body_readings(
+                scene.bodies, hits.body, hits.clock, effects.contraction
+            )
         if s == 0 and a == 0 and b == n_pix:  # the whole frame in one batch: no copies
             layer_d, layer_body, layer_rest = dop, hits.body, hits.rest_position
             layer_t, layer_pos = hits.emit_event[:, 0].copy(), hits.emit_event[:, 1:]
@@ -425,12 +474,20 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
         xyz /= n_samples
     layer_t /= C  # ct (m) -> s
     xyz_img = xyz.reshape(height, width, 3)
-    stars = sky.star_splat(scene.background, cam, width, height, beta_cam, effects,
-                           occluded=layer_body.reshape(height, width) >= 0)
+    stars = sky.star_splat(
+        scene.background,
+        cam,
+        width,
+        height,
+        beta_cam,
+        effects,
+        occluded=layer_body.reshape(height, width) >= 0,
+    )
     if stars is not None:
         xyz_img = xyz_img + stars
-    region, lamps = metering_masks(scene, xyz_img, layer_body.reshape(height, width),
-                                  layer_rest.reshape(height, width, 3))
+    region, lamps = metering_masks(
+        scene, xyz_img, layer_body.reshape(height, width), layer_rest.reshape(height, width, 3)
+    )
     white = exposure_white(xyz_img, region, exposure, lamps)
     image = expose(xyz_img, white)
     layers = {
@@ -445,14 +502,29 @@ def render(scene: Scene, time: float | None = None, *, resolution=None, samples=
     if layer_temp is not None:
         layers["temperature"] = layer_temp.reshape(height, width)
     layers.update(context.lamp_layers(height, width))
-    meta = provenance(scene, t, width, height, samples, effects, white,
-                      metering=metering_report(scene, exposure, image, region, lamps))
+    meta = provenance(
+        scene,
+        t,
+        width,
+        height,
+        samples,
+        effects,
+        white,
+        metering=metering_report(scene, exposure, image, region, lamps),
+    )
     return Frame(image, layers, white, t, meta, tone=scene.render.tone)
 
 
-def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
-          effects: Effects, layer_rows: slice | None = None, viewer: np.ndarray | None = None,
-          bounce: int = 0) -> np.ndarray:
+def shade(
+    scene: Scene,
+    context: RenderContext,
+    hits: Hits,
+    doppler: np.ndarray,
+    effects: Effects,
+    layer_rows: slice | None = None,
+    viewer: np.ndarray | None = None,
+    bounce: int = 0,
+) -> np.ndarray:
     """(N, 3) observed XYZ of every hit (zeros on misses), one call per body's surface.
 
     Surfaces lit by the scene's lamps get their incident light from
@@ -481,14 +553,25 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
             faces = context.meshes[i][1][hits.face[sel]]
             w = hits.bary[sel]
             uvs = context.uv[i]
-            uv = ((1 - w[:, 0] - w[:, 1])[:, None] * uvs[faces[:, 0]] + w[:, :1] * uvs[faces[:, 1]]
-                  + w[:, 1:] * uvs[faces[:, 2]])
+            uv = (
+                (1 - w[:, 0] - w[:, 1])[:, None] * uvs[faces[:, 0]]
+                + w[:, :1] * uvs[faces[:, 1]]
+                + w[:, 1:] * uvs[faces[:, 2]]
+            )
         if getattr(surface, "mirror", False):
             if bounce < surface.bounces:
                 seen_by = context.exposure[0] if viewer is None else viewer
-                out[sel] = mirror_xyz(scene, context, hits, i, sel, doppler[sel], effects,
-                                      seen_by[sel] if np.ndim(seen_by) == 2 else seen_by,
-                                      bounce)
+                out[sel] = mirror_xyz(
+                    scene,
+                    context,
+                    hits,
+                    i,
+                    sel,
+                    doppler[sel],
+                    effects,
+                    seen_by[sel] if np.ndim(seen_by) == 2 else seen_by,
+                    bounce,
+                )
             continue
         if not (lit_scene and illumination.takes_lamps(surface)):
             if id(surface) not in keys:
@@ -499,13 +582,15 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
         rest = hits.rest_position[sel]
         clock = {}  # the clock reading at emission, for surfaces that show it (clock faces)
         if getattr(surface, "uses_proper_time", False):
-            clock["proper_time"] = reading_from_coordinate(body.motion, body.clock,
-                                                           hits.clock[sel], effects.contraction)
+            clock["proper_time"] = reading_from_coordinate(
+                body.motion, body.clock, hits.clock[sel], effects.contraction
+            )
         camera_event, tracer, reference = context.exposure
         if viewer is not None:  # seen in a mirror: received at the mirror's hit events
             camera_event = viewer[sel] if np.ndim(viewer) == 2 else viewer
         incident, d_in, shadowed = illumination.incident_light(
-            scene, i, context.meshes[i], tracer, hits, sel, camera_event, effects, reference)
+            scene, i, context.meshes[i], tracer, hits, sel, camera_event, effects, reference
+        )
         out[sel] = surface.lit_xyz(doppler[sel], rest, uv, effects, incident, **clock)
         if layer_rows is not None:
             rows = np.arange(layer_rows.start, layer_rows.stop)[sel]
@@ -518,15 +603,24 @@ def shade(scene: Scene, context: RenderContext, hits: Hits, doppler: np.ndarray,
         rest = hits.rest_position[sel] if getattr(surface, "uses_position", True) else None
         clock = {}
         if getattr(surface, "uses_proper_time", False):
-            clock["proper_time"] = body_readings(scene.bodies, hits.body[sel], hits.clock[sel],
-                                                 effects.contraction)
+            clock["proper_time"] = body_readings(
+                scene.bodies, hits.body[sel], hits.clock[sel], effects.contraction
+            )
         out[sel] = surface.observed_xyz(doppler[sel], rest, uv, effects, **clock)
     return out
 
 
-def mirror_xyz(scene: Scene, context: RenderContext, hits: Hits, body_index: int,
-               sel: np.ndarray, doppler: np.ndarray, effects: Effects, viewer: np.ndarray,
-               bounce: int) -> np.ndarray:
+def mirror_xyz(
+    scene: Scene,
+    context: RenderContext,
+    hits: Hits,
+    body_index: int,
+    sel: np.ndarray,
+    doppler: np.ndarray,
+    effects: Effects,
+    viewer: np.ndarray,
+    bounce: int,
+) -> np.ndarray:
     """(N, 3) XYZ a moving mirror shows at its hits ``sel`` (docs/physics.md, "Mirrors").
 
     Each ray is reflected in the mirror's rest frame (relview.illumination) and cast on
@@ -539,15 +633,15 @@ def mirror_xyz(scene: Scene, context: RenderContext, hits: Hits, body_index: int
     surface = scene.bodies[body_index].surface
     _, tracer, reference = context.exposure
     start = hits.emit_event[sel]
-    d_r, beta_m = illumination.mirror_directions(scene.bodies[body_index], body_index,
-                                                 context.meshes[body_index], hits, sel,
-                                                 viewer, effects)
-    seen = tracer.cast(start, d_r, effects, l_min=illumination.SHADOW_OFFSET_M,
-                       reference=reference)
+    d_r, beta_m = illumination.mirror_directions(
+        scene.bodies[body_index], body_index, context.meshes[body_index], hits, sel, viewer, effects
+    )
+    seen = tracer.cast(start, d_r, effects, l_min=illumination.SHADOW_OFFSET_M, reference=reference)
     hit = seen.body >= 0
     d_total = np.full(len(sel), np.nan)
     d_total[hit] = doppler[hit] * illumination.doppler_between(
-        -d_r[hit], seen.beta_emit[hit], beta_m[hit], effects)
+        -d_r[hit], seen.beta_emit[hit], beta_m[hit], effects
+    )
     col = shade(scene, context, seen, d_total, effects, viewer=start, bounce=bounce + 1)
     return surface.reflectivity * col
 
@@ -559,8 +653,11 @@ def _lamp_surface_pixels(surface, rest: np.ndarray) -> np.ndarray:
 
     if hasattr(surface, "second_mask"):  # a pattern of two surfaces
         second = surface.second_mask(rest)
-        return np.where(second, _lamp_surface_pixels(surface.second, rest),
-                        _lamp_surface_pixels(surface.first, rest))
+        return np.where(
+            second,
+            _lamp_surface_pixels(surface.second, rest),
+            _lamp_surface_pixels(surface.first, rest),
+        )
     own = getattr(surface, "self_luminous", isinstance(surface, SpectralSurface))
     return np.full(len(rest), bool(own))
 
@@ -586,8 +683,9 @@ def lamp_pixels(scene: Scene, body_layer: np.ndarray, rest_layer: np.ndarray) ->
     return lamps
 
 
-def metering_masks(scene: Scene, xyz_img: np.ndarray, body_layer: np.ndarray,
-                   rest_layer: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def metering_masks(
+    scene: Scene, xyz_img: np.ndarray, body_layer: np.ndarray, rest_layer: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
     """(region, lamps): the lit pixels of the scene's metering region (render.metering:
     "frame" every lit pixel, sky included; "bodies" those that see a body; "body" those
     of render.metering_body) and the lamp pixels that automatic exposure leaves out."""
@@ -601,8 +699,9 @@ def metering_masks(scene: Scene, xyz_img: np.ndarray, body_layer: np.ndarray,
     return lit, lamp_pixels(scene, body_layer, rest_layer)
 
 
-def metering_report(scene: Scene, exposure, image: np.ndarray, region: np.ndarray,
-                    lamps: np.ndarray) -> dict[str, str]:
+def metering_report(
+    scene: Scene, exposure, image: np.ndarray, region: np.ndarray, lamps: np.ndarray
+) -> dict[str, str]:
     """Provenance entries of the exposure: how it was metered and what clipped."""
     lit = np.any(image > 0, axis=-1)
     if isinstance(exposure, str):  # "auto": what was metered
@@ -620,13 +719,19 @@ def metering_report(scene: Scene, exposure, image: np.ndarray, region: np.ndarra
     }
 
 
-def provenance(scene: Scene, t: float, width: int, height: int, samples: int,
-               effects: Effects, white: float,
-               metering: dict[str, str] | None = None) -> dict[str, str]:
+def provenance(
+    scene: Scene,
+    t: float,
+    width: int,
+    height: int,
+    samples: int,
+    effects: Effects,
+    white: float,
+    metering: dict[str, str] | None = None,
+) -> dict[str, str]:
     """Text that lets a figure be regenerated exactly (stored in PNG chunks / sidecars);
     ``metering``: the entries of :func:`metering_report`."""
     import json
-
 
     return {
         "relview_version": __version__,

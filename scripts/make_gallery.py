@@ -37,8 +37,13 @@ def label_bodies(path: Path, scene, frame) -> None:
     for i, body in enumerate(scene.bodies):
         rows, cols = np.nonzero(bodies == i)
         if rows.size:
-            draw.text((float(cols.mean()), float(rows.max()) + 4), body.name, fill="white",
-                      font=font, anchor="mt")
+            draw.text(
+                (float(cols.mean()), float(rows.max()) + 4),
+                body.name,
+                fill="white",
+                font=font,
+                anchor="mt",
+            )
     from PIL.PngImagePlugin import PngInfo
 
     meta = PngInfo()
@@ -59,8 +64,7 @@ def main() -> None:
         size = (args.width, max(1, round(args.width * h / w)))
         target = OUT / f"{path.stem}.png"
         if scene.background.kind == "cmb":
-            written, _, _ = layer_map(scene, "temperature", target, resolution=size,
-                                      overwrite=True)
+            written, _, _ = layer_map(scene, "temperature", target, resolution=size, overwrite=True)
         else:
             frame = relview.render(scene, resolution=size)
             written = frame.save(target, overwrite=True)

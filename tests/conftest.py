@@ -23,23 +23,53 @@ REPO = Path(__file__).resolve().parents[1]
 # ------------------------------------------------------------------------- scene builders
 
 
-def moving_body(name: str, shape: str, beta=(0.0, 0.0, 0.0), position=(0.0, 0.0, 0.0), *,
-                temperature: float = 5000.0, time: float = 0.0, rotation=(0.0, 0.0, 0.0),
-                size=None, **shape_keys) -> Body:
+def moving_body(
+    name: str,
+    shape: str,
+    beta=(0.0, 0.0, 0.0),
+    position=(0.0, 0.0, 0.0),
+    *,
+    temperature: float = 5000.0,
+    time: float = 0.0,
+    rotation=(0.0, 0.0, 0.0),
+    size=None,
+    **shape_keys,
+) -> Body:
     """A blackbody-surfaced body in uniform motion (``size`` for boxes; ``radius`` etc.)."""
-    return Body(name=name, shape=shape, surface=Blackbody(temperature),
-                size=None if size is None else np.array(size, float),
-                motion=UniformMotion(beta=np.array(beta, float),
-                                     position=np.array(position, float), time=time),
-                rotation=np.array(rotation, float), **shape_keys)
+    return Body(
+        name=name,
+        shape=shape,
+        surface=Blackbody(temperature),
+        size=None if size is None else np.array(size, float),
+        motion=UniformMotion(
+            beta=np.array(beta, float), position=np.array(position, float), time=time
+        ),
+        rotation=np.array(rotation, float),
+        **shape_keys,
+    )
 
 
-def camera_scene(bodies, position=(0.0, -3.0, 0.0), look_at=(0.0, 0.0, 0.0), *, fov=70.0,
-                 beta=(0.0, 0.0, 0.0), time: float = 0.0, resolution=(96, 54), effects=None,
-                 **camera_keys) -> Scene:
+def camera_scene(
+    bodies,
+    position=(0.0, -3.0, 0.0),
+    look_at=(0.0, 0.0, 0.0),
+    *,
+    fov=70.0,
+    beta=(0.0, 0.0, 0.0),
+    time: float = 0.0,
+    resolution=(96, 54),
+    effects=None,
+    **camera_keys,
+) -> Scene:
     """A Scene of ``bodies`` seen by a camera at ``position`` looking at ``look_at``."""
-    cam = Camera(position=np.array(position, float), look_at=np.array(look_at, float), fov=fov,
-                 beta=np.array(beta, float), time=time, **camera_keys)
+    cam = Camera(
+        position=np.array(position, float),
+        look_at=np.array(look_at, float),
+        fov=fov,
+        beta=np.array(beta, float),
+        time=time,
+        **camera_keys,
+    )
     render = RenderSettings(resolution=resolution)
     if effects is not None:
         render = RenderSettings(resolution=resolution, effects=effects)
@@ -47,8 +77,14 @@ def camera_scene(bodies, position=(0.0, -3.0, 0.0), look_at=(0.0, 0.0, 0.0), *, 
 
 
 #: a small resting blackbody ball, for scene dicts that need a body but do not look at it
-DICT_BALL = {"name": "star", "shape": "sphere", "radius": 0.5, "detail": 3,
-             "motion": {"position": [0.0, 40.0, 0.0]}, "surface": {"blackbody": 5000.0}}
+DICT_BALL = {
+    "name": "star",
+    "shape": "sphere",
+    "radius": 0.5,
+    "detail": 3,
+    "motion": {"position": [0.0, 40.0, 0.0]},
+    "surface": {"blackbody": 5000.0},
+}
 
 
 def dict_scene(camera: dict, bodies=None, render=None, background=None) -> Scene:
@@ -100,8 +136,9 @@ def xyz_colour_science_blackbody(t: float):
     c2 = sc.h * sc.c / sc.k  # second radiation constant, m K
     sd = colour.sd_blackbody(t, shape, c1=c1, c2=c2)
     # sd_to_XYZ returns its "Range100" scale: the plain k * sum(...) divided by 100.
-    return 100.0 * colour.sd_to_XYZ(sd, cie_1931_cmfs(), colour.sd_ones(shape), k=683.0,
-                                    method="Integration")
+    return 100.0 * colour.sd_to_XYZ(
+        sd, cie_1931_cmfs(), colour.sd_ones(shape), k=683.0, method="Integration"
+    )
 
 
 def chromaticity(xyz) -> np.ndarray:

@@ -74,8 +74,18 @@ def cast(verts, faces, origins, dirs, packets=False):
     else:
         ray_o = np.column_stack([np.zeros(len(origins)), origins])
     kernel = trace._cast_packets if packets else trace._cast
-    l, tri, u, v = kernel(np.ascontiguousarray(ray_o), np.ascontiguousarray(dirs), 0.0, origin,
-                          matrix, packed.root, packed.nodes, packed.links, packed.tris, 1e-9)
+    l, tri, u, v = kernel(
+        np.ascontiguousarray(ray_o),
+        np.ascontiguousarray(dirs),
+        0.0,
+        origin,
+        matrix,
+        packed.root,
+        packed.nodes,
+        packed.links,
+        packed.tris,
+        1e-9,
+    )
     face = np.where(tri >= 0, packed.tri_face[np.maximum(tri, 0)], -1)
     return l, face, u, v
 
@@ -100,14 +110,14 @@ def test_build_invariants(mesh):
     assert (b.node_count[~leaf] == 0).all()
     covered = np.zeros(len(faces), int)
     for s, c in zip(b.node_start[leaf], b.node_count[leaf]):
-        covered[s:s + c] += 1
+        covered[s : s + c] += 1
     assert (covered == 1).all()
     # a node's box holds its children's boxes and its triangles; each node has one parent
     parents = np.zeros(len(b.node_lo), int)
     depth = np.zeros(len(b.node_lo), int)
     for n in range(len(b.node_lo)):
         if leaf[n]:
-            t = stored[b.node_start[n]:b.node_start[n] + b.node_count[n]].reshape(-1, 3)
+            t = stored[b.node_start[n] : b.node_start[n] + b.node_count[n]].reshape(-1, 3)
             assert (t >= b.node_lo[n] - 1e-12).all() and (t <= b.node_hi[n] + 1e-12).all()
             continue
         for child in (b.node_left[n], b.node_right[n]):
@@ -133,8 +143,9 @@ def test_pack_shifts_indices_of_the_second_hierarchy():
     assert np.array_equal(p.tri_group, np.repeat([0, 1], [20, 30]))
     assert np.array_equal(p.v0[20:], b.v0)
     inner_b = b.node_left >= 0
-    assert np.array_equal(p.node_left[len(a.node_lo):][inner_b],
-                          b.node_left[inner_b] + len(a.node_lo))
+    assert np.array_equal(
+        p.node_left[len(a.node_lo) :][inner_b], b.node_left[inner_b] + len(a.node_lo)
+    )
     # float32 node boxes are rounded outwards: they never cut into the float64 boxes
     assert (p.nodes[:, :3] <= p.node_lo).all() and (p.nodes[:, 3:] >= p.node_hi).all()
 
@@ -165,7 +176,8 @@ def test_first_hit_equals_trimesh_ray_queries(seed):
     mesh = trimesh.Trimesh(verts, faces, process=False)
     origins, dirs = random_rays(seed + 200, n=400)
     locations, index_ray, index_tri = RayMeshIntersector(mesh).intersects_location(
-        origins, dirs, multiple_hits=True)
+        origins, dirs, multiple_hits=True
+    )
     want = np.full(len(origins), np.inf)
     dist = np.einsum("ij,ij->i", locations - origins[index_ray], dirs[index_ray])
     np.minimum.at(want, index_ray, np.where(dist > 1e-9, dist, np.inf))

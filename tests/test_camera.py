@@ -26,8 +26,9 @@ FOV = {"pinhole": 70.0, "panorama": 360.0, "fisheye": 220.0}
 
 def tilted_camera(projection: str, fov: float) -> Camera:
     """A camera looking along an oblique direction, so the image axes mix every scene axis."""
-    return Camera(position=np.zeros(3), look_at=np.array([1.0, 2.0, 0.5]), fov=fov,
-                  projection=projection)
+    return Camera(
+        position=np.zeros(3), look_at=np.array([1.0, 2.0, 0.5]), fov=fov, projection=projection
+    )
 
 
 def test_every_registered_projection_is_tested_here():
@@ -92,8 +93,9 @@ def test_pinhole_solid_angles_sum_to_the_rectangular_pyramid(fov, w, h):
 
 def test_panorama_solid_angles_sum_to_the_full_sphere():
     # the whole sphere is 4 pi steradians (definition of the steradian, SI Brochure)
-    cam = Camera(position=np.zeros(3), direction=np.array([1.0, 0.0, 0.0]), fov=360.0,
-                 projection="panorama")
+    cam = Camera(
+        position=np.zeros(3), direction=np.array([1.0, 0.0, 0.0]), fov=360.0, projection="panorama"
+    )
     om = pixel_solid_angle(cam, 360, 180)
     assert om.sum() == pytest.approx(4.0 * math.pi, rel=1e-4)
     # an equirectangular pixel covers cos(latitude) dlon dlat: the rows at the poles are
@@ -107,8 +109,9 @@ def test_fisheye_solid_angles_sum_to_its_field(fov, want):
     # Omega = 2 pi (1 - cos(F/2)) (cap area, any geometry handbook): a hemisphere at 180 deg,
     # the sphere at 360 deg. Pixels cut by the image circle are counted whole or not at all,
     # an error of about one ring of pixels: O(1/width).
-    cam = Camera(position=np.zeros(3), direction=np.array([1.0, 0.0, 0.0]), fov=fov,
-                 projection="fisheye")
+    cam = Camera(
+        position=np.zeros(3), direction=np.array([1.0, 0.0, 0.0]), fov=fov, projection="fisheye"
+    )
     w = h = 400
     om = pixel_solid_angle(cam, w, h).ravel()
     _, ok = pixels_to_directions(cam, w, h, pixel_grid(w, h))
@@ -116,13 +119,15 @@ def test_fisheye_solid_angles_sum_to_its_field(fov, want):
     assert (om[ok] > 0).all()
 
 
-@pytest.mark.parametrize("projection,fov", [("pinhole", 70.0), ("panorama", 360.0),
-                                            ("fisheye", 220.0)])
+@pytest.mark.parametrize(
+    "projection,fov", [("pinhole", 70.0), ("panorama", 360.0), ("fisheye", 220.0)]
+)
 def test_fused_camera_rays_match_projection_then_aberration(projection, fov):
     # The compiled ray generator must equal the reference path: projection, then the
     # aberration formula checked above (Einstein 1905).
-    cam = Camera(position=np.zeros(3), look_at=np.array([1.0, 2.0, 0.5]), fov=fov,
-                 projection=projection)
+    cam = Camera(
+        position=np.zeros(3), look_at=np.array([1.0, 2.0, 0.5]), fov=fov, projection=projection
+    )
     px = pixel_grid(40, 24) + 0.123
     beta = np.array([0.5, -0.3, 0.6])
     d_cam, ok = pixels_to_directions(cam, 40, 24, px)
@@ -199,18 +204,24 @@ def test_register_refuses_a_taken_name_or_code():
 def test_unknown_code_gives_no_direction_rather_than_another_projection():
     cam = tilted_camera("pinhole", 60.0)
     px = pixel_grid(4, 3)
-    d, ok = cam_mod._scene_directions(px, 4.0, 3.0, cam.basis(), len(PROJECTIONS), 1.0,
-                                      np.eye(4), False)
+    d, ok = cam_mod._scene_directions(
+        px, 4.0, 3.0, cam.basis(), len(PROJECTIONS), 1.0, np.eye(4), False
+    )
     assert not ok.any() and np.isnan(d).all()
 
 
 def _camera_from_reader(projection, fov=None):
-    camera = {"position": [0.0, 0.0, 0.0], "direction": [1.0, 0.0, 0.0],
-              "projection": projection}
+    camera = {"position": [0.0, 0.0, 0.0], "direction": [1.0, 0.0, 0.0], "projection": projection}
     if fov is not None:
         camera["fov"] = fov
-    body = {"name": "dot", "shape": "sphere", "radius": 0.1, "detail": 0,
-            "motion": {"position": [5.0, 0.0, 0.0]}, "surface": {"blackbody": 5000.0}}
+    body = {
+        "name": "dot",
+        "shape": "sphere",
+        "radius": 0.1,
+        "detail": 0,
+        "motion": {"position": [5.0, 0.0, 0.0]},
+        "surface": {"blackbody": 5000.0},
+    }
     return scene_from_dict({"camera": camera, "body": [body]}).camera
 
 

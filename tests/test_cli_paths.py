@@ -40,13 +40,35 @@ def test_probe_point_with_negative_x_after_a_space(capsys):
 
 
 def test_negative_time_and_time_range_after_a_space(capsys):
-    code, out, err = run(capsys, "probe", SCENE, "--body", "ball", "--point", "-1,0,0",
-                         "--point", "1,-0.5,0", "--time", "-1e-9", "--json")
+    code, out, err = run(
+        capsys,
+        "probe",
+        SCENE,
+        "--body",
+        "ball",
+        "--point",
+        "-1,0,0",
+        "--point",
+        "1,-0.5,0",
+        "--time",
+        "-1e-9",
+        "--json",
+    )
     assert code == 0, err
     records = json.loads(out)
     assert [r["point"] for r in records] == [[-1.0, 0.0, 0.0], [1.0, -0.5, 0.0]]
-    code, out, err = run(capsys, "probe", SCENE, "--body", "ball", "--point", "1,0,0",
-                         "--times", "-2e-8:2e-8:3", "--json")
+    code, out, err = run(
+        capsys,
+        "probe",
+        SCENE,
+        "--body",
+        "ball",
+        "--point",
+        "1,0,0",
+        "--times",
+        "-2e-8:2e-8:3",
+        "--json",
+    )
     assert code == 0, err
 
 
@@ -55,7 +77,16 @@ def test_attach_negative_values_leaves_other_words_alone():
     argv = ["probe", "s.toml", "--body", "-b", "--point", "-5,0,0", "--json", "--", "--time", "-1"]
     # --body -b is not a number: left for argparse to report; after '--' nothing changes
     assert attach_negative_values(parser, argv) == [
-        "probe", "s.toml", "--body", "-b", "--point=-5,0,0", "--json", "--", "--time", "-1"]
+        "probe",
+        "s.toml",
+        "--body",
+        "-b",
+        "--point=-5,0,0",
+        "--json",
+        "--",
+        "--time",
+        "-1",
+    ]
     # a flag without a value (--json) does not swallow a following word
     assert attach_negative_values(parser, ["probe", "--json", "-5"]) == ["probe", "--json", "-5"]
 
@@ -111,7 +142,19 @@ def test_compare_refuses_an_existing_sidecar(tmp_path, capsys):
 def test_probe_refuses_existing_table_files(tmp_path, capsys, flag, name):
     target = tmp_path / name
     target.write_text("earlier")
-    code, _, err = run(capsys, "probe", SCENE, "--body", "ball", "--point", "1,0,0",
-                       "--times", "-1e-8:1e-8:3", flag, target, "--quiet")
+    code, _, err = run(
+        capsys,
+        "probe",
+        SCENE,
+        "--body",
+        "ball",
+        "--point",
+        "1,0,0",
+        "--times",
+        "-1e-8:1e-8:3",
+        flag,
+        target,
+        "--quiet",
+    )
     assert code == 2 and name in err and flag in err and "--overwrite" in err
     assert target.read_text() == "earlier"

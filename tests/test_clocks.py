@@ -20,8 +20,13 @@ from relview.scene.model import scene_from_dict
 def _scene(motion, *, camera=None, clock=None, resolution=(64, 36), effects=None, size=0.8):
     cam = {"position": [0.0, 0.0, 0.0], "look_at": [0.0, 1.0, 0.0], "time": 0.0, "fov": 60.0}
     cam.update(camera or {})
-    body = {"name": "clock", "shape": "box", "size": [size] * 3, "motion": motion,
-            "surface": {"blackbody": 5000.0}}
+    body = {
+        "name": "clock",
+        "shape": "box",
+        "size": [size] * 3,
+        "motion": motion,
+        "surface": {"blackbody": 5000.0},
+    }
     if clock is not None:
         body["clock"] = clock
     render_table = {"resolution": list(resolution)}
@@ -87,9 +92,11 @@ def test_clock_seen_at_right_angles_runs_slow_by_gamma():
 def test_clock_setting_and_camera_clock():
     # the settable reading: the clock reads `reading` at the reference point's event at
     # scene time `time`; the camera's clock likewise (scene-file keys of our own)
-    scene = _scene({"kind": "uniform", "beta": [0.0, -0.6, 0.0], "position": [0.0, 50.0, 0.0]},
-                   clock={"reading": 5.0, "time": 1e-8},
-                   camera={"time": 1e-8, "clock": {"reading": -2.0, "time": 0.0}})
+    scene = _scene(
+        {"kind": "uniform", "beta": [0.0, -0.6, 0.0], "position": [0.0, 50.0, 0.0]},
+        clock={"reading": 5.0, "time": 1e-8},
+        camera={"time": 1e-8, "clock": {"reading": -2.0, "time": 0.0}},
+    )
     r = probe(scene, "clock", [0.0, 0.0, 0.0])
     assert r.computed_proper_time == 5.0
     assert r.camera_proper_time == pytest.approx(-2.0 + 1e-8, rel=1e-15)
@@ -108,8 +115,10 @@ def test_galilean_clocks_keep_scene_time():
     # contraction off (Galilean kinematics): no time dilation, the clock advances with
     # scene time; the seen rate is the classical Doppler factor 1/(1 - b) = 5 (common
     # practice: the pre-relativistic moving-source formula)
-    scene = _scene({"kind": "uniform", "beta": [0.0, -0.8, 0.0], "position": [0.0, 300.0, 0.0]},
-                   effects={"contraction": False})
+    scene = _scene(
+        {"kind": "uniform", "beta": [0.0, -0.8, 0.0], "position": [0.0, 300.0, 0.0]},
+        effects={"contraction": False},
+    )
     r = probe(scene, "clock", [0.0, 0.0, 0.0], time=1e-7)
     assert r.proper_time == pytest.approx(r.emit_time, rel=1e-12)
     assert r.tick_rate == pytest.approx(5.0, rel=1e-12)
@@ -122,13 +131,15 @@ def test_hyperbolic_proper_time_and_seen_reading():
     # Rindler 2006, section 3.8: a body at rest at t = 0 with proper acceleration a has
     # proper time tau = (c/a) asinh(a t / c) and x = (c^2/a)(sqrt(1 + (a t/c)^2) - 1)
     acc = 1e16  # m/s^2: c^2/a = 9 m
-    scene = _scene({"kind": "hyperbolic", "acceleration": [acc, 0.0, 0.0],
-                    "position": [0.0, 6.0, 0.0]})
+    scene = _scene(
+        {"kind": "hyperbolic", "acceleration": [acc, 0.0, 0.0], "position": [0.0, 6.0, 0.0]}
+    )
     length = C * C / acc
     for t in (-1e-8, 1e-8, 4e-8):  # the camera inside the past horizon, ct > -c^2/a
         r = probe(scene, "clock", [0.0, 0.0, 0.0], time=t)
-        assert r.computed_proper_time == pytest.approx(C / acc * math.asinh(acc * t / C),
-                                                       rel=1e-12, abs=1e-22)
+        assert r.computed_proper_time == pytest.approx(
+            C / acc * math.asinh(acc * t / C), rel=1e-12, abs=1e-22
+        )
 
         # our own retarded solve with scipy's brentq: the camera at rest at the origin
         def light_cone(te, tc=t):
@@ -143,8 +154,9 @@ def test_hyperbolic_proper_time_and_seen_reading():
 
         te = solve(t)
         assert r.emit_time == pytest.approx(te, rel=1e-12, abs=1e-22)
-        assert r.proper_time == pytest.approx(C / acc * math.asinh(acc * te / C),
-                                              rel=1e-10, abs=1e-21)
+        assert r.proper_time == pytest.approx(
+            C / acc * math.asinh(acc * te / C), rel=1e-10, abs=1e-21
+        )
         # the seen tick rate against the derivative of that reading (central difference)
         h = 1e-12
 
@@ -160,8 +172,9 @@ def test_circular_orbit_proper_time_and_transverse_rate():
     # the seen rate is 1/gamma too (Einstein 1905, section 7 at phi = 90 deg)
     beta = 0.6
     radius = 30.0
-    scene = _scene({"kind": "orbit", "center": [0.0, 0.0, 0.0], "radius": radius, "beta": beta},
-                   size=0.01)
+    scene = _scene(
+        {"kind": "orbit", "center": [0.0, 0.0, 0.0], "radius": radius, "beta": beta}, size=0.01
+    )
     gamma = 1.0 / math.sqrt(1.0 - beta * beta)
     for t in (0.0, 1e-7, 3.3e-7):
         r = probe(scene, "clock", [0.0, 0.0, 0.0], time=t)
@@ -174,15 +187,28 @@ def test_circular_orbit_proper_time_and_transverse_rate():
 
 KINDS = {
     "uniform": {"kind": "uniform", "beta": [0.6, 0.0, 0.0], "position": [2.0, 6.0, 0.0]},
-    "hyperbolic": {"kind": "hyperbolic", "acceleration": [1e16, 0.0, 0.0],
-                   "position": [0.0, 6.0, 0.0]},
+    "hyperbolic": {
+        "kind": "hyperbolic",
+        "acceleration": [1e16, 0.0, 0.0],
+        "position": [0.0, 6.0, 0.0],
+    },
     "orbit": {"kind": "orbit", "center": [0.0, 6.0, 0.0], "radius": 2.0, "beta": 0.5},
-    "path": {"kind": "path", "times": [-3e-8, 0.0, 3e-8],
-             "positions": [[-2.0, 6.0, 0.0], [0.0, 6.5, 0.0], [2.0, 6.0, 0.0]]},
-    "spin": {"kind": "spin", "angular_velocity": 5e7,
-             "base": {"kind": "uniform", "beta": [0.3, 0.0, 0.0], "position": [0.0, 6.0, 0.0]}},
-    "rolling": {"kind": "rolling", "radius": 0.5, "beta": [0.5, 0.0, 0.0],
-                "position": [0.0, 6.0, 0.0]},
+    "path": {
+        "kind": "path",
+        "times": [-3e-8, 0.0, 3e-8],
+        "positions": [[-2.0, 6.0, 0.0], [0.0, 6.5, 0.0], [2.0, 6.0, 0.0]],
+    },
+    "spin": {
+        "kind": "spin",
+        "angular_velocity": 5e7,
+        "base": {"kind": "uniform", "beta": [0.3, 0.0, 0.0], "position": [0.0, 6.0, 0.0]},
+    },
+    "rolling": {
+        "kind": "rolling",
+        "radius": 0.5,
+        "beta": [0.5, 0.0, 0.0],
+        "position": [0.0, 6.0, 0.0],
+    },
 }
 
 
@@ -219,8 +245,15 @@ def _decode_digits(face, reading, n_cells):
 
     pitch, width = 0.21, 0.16
     left = -0.5 * (n_cells * pitch - (pitch - width))
-    mids = [(0.5, 1.95), (0.95, 1.5), (0.95, 0.5), (0.5, 0.05), (0.05, 0.5), (0.05, 1.5),
-            (0.5, 1.0)]
+    mids = [
+        (0.5, 1.95),
+        (0.95, 1.5),
+        (0.95, 0.5),
+        (0.5, 0.05),
+        (0.05, 0.5),
+        (0.05, 1.5),
+        (0.5, 1.0),
+    ]
     shown = []
     for cell in range(n_cells):
         pts = []
@@ -253,17 +286,40 @@ def test_clock_face_hand_and_digits():
 
 def test_clock_face_keys_are_checked():
     motion = {"kind": "uniform"}
-    scene = scene_from_dict({"camera": {"position": [0, 0, 0], "look_at": [0, 1, 0]},
-                             "body": [{"name": "c", "shape": "box", "size": [1, 1, 1],
-                                       "motion": motion,
-                                       "surface": {"clock_face": {"period": 2e-8}}}]})
+    scene = scene_from_dict(
+        {
+            "camera": {"position": [0, 0, 0], "look_at": [0, 1, 0]},
+            "body": [
+                {
+                    "name": "c",
+                    "shape": "box",
+                    "size": [1, 1, 1],
+                    "motion": motion,
+                    "surface": {"clock_face": {"period": 2e-8}},
+                }
+            ],
+        }
+    )
     assert scene.bodies[0].surface.period == 2e-8
-    for bad, key in (({"period": -1.0}, "period"), ({"axes": [1, 1]}, "axes"),
-                     ({"hand": 1.0}, "hand")):
+    for bad, key in (
+        ({"period": -1.0}, "period"),
+        ({"axes": [1, 1]}, "axes"),
+        ({"hand": 1.0}, "hand"),
+    ):
         with pytest.raises(SceneError, match=key):
-            scene_from_dict({"camera": {"position": [0, 0, 0], "look_at": [0, 1, 0]},
-                             "body": [{"name": "c", "shape": "box", "size": [1, 1, 1],
-                                       "surface": {"clock_face": bad}}]})
+            scene_from_dict(
+                {
+                    "camera": {"position": [0, 0, 0], "look_at": [0, 1, 0]},
+                    "body": [
+                        {
+                            "name": "c",
+                            "shape": "box",
+                            "size": [1, 1, 1],
+                            "surface": {"clock_face": bad},
+                        }
+                    ],
+                }
+            )
 
 
 def test_rendered_clock_face_runs_three_times_fast_head_on():
@@ -273,13 +329,29 @@ def test_rendered_clock_face_runs_three_times_fast_head_on():
     from relview.light.materials import ClockFace
 
     motion = {"kind": "uniform", "beta": [0.0, -0.8, 0.0], "position": [0.0, 40.0, 0.0]}
-    scene = scene_from_dict({
-        "camera": {"position": [0, 0, 0], "look_at": [0, 1, 0], "fov": 0.5},
-        "body": [{"name": "c", "shape": "box", "size": [1.0, 0.05, 1.0], "motion": motion,
-                  "surface": {"clock_face": {"period": 4e-8, "radius": 0.5, "axes": [0, 2],
-                                             "face": {"blackbody": 5000.0},
-                                             "ink": {"blackbody": 5000.0, "scale": 0.01}}}}],
-        "render": {"resolution": [64, 64], "exposure": 1e9}})
+    scene = scene_from_dict(
+        {
+            "camera": {"position": [0, 0, 0], "look_at": [0, 1, 0], "fov": 0.5},
+            "body": [
+                {
+                    "name": "c",
+                    "shape": "box",
+                    "size": [1.0, 0.05, 1.0],
+                    "motion": motion,
+                    "surface": {
+                        "clock_face": {
+                            "period": 4e-8,
+                            "radius": 0.5,
+                            "axes": [0, 2],
+                            "face": {"blackbody": 5000.0},
+                            "ink": {"blackbody": 5000.0, "scale": 0.01},
+                        }
+                    },
+                }
+            ],
+            "render": {"resolution": [64, 64], "exposure": 1e9},
+        }
+    )
     frames = [render(scene, time=t) for t in (0.0, 1e-8)]
     means = []
     for f in frames:
@@ -309,8 +381,9 @@ def test_clock_sheet_of_the_demo_prints_computed_and_seen_readings():
     from relview.scene.model import load_scene
 
     scene = load_scene(Path(__file__).parent.parent / "scenes" / "clock-crossing.toml")
-    sheet = render_panels(scene, None, "clock-computed,clock-photograph", resolution=(96, 54),
-                          framing="scene")
+    sheet = render_panels(
+        scene, None, "clock-computed,clock-photograph", resolution=(96, 54), framing="scene"
+    )
     for panel in sheet.panels:  # both clocks in view in both panels
         body = panel.frame.layers["body"]
         assert (body == 0).sum() > 20 and (body == 1).sum() > 20
@@ -334,10 +407,24 @@ def test_clock_sheet_of_the_demo_prints_computed_and_seen_readings():
 def test_camera_on_an_orbit_keeps_its_proper_time():
     # the camera's own clock on any worldline: on a circular orbit tau = t / gamma
     # (Einstein 1905, section 4)
-    scene = scene_from_dict({
-        "camera": {"look_at": [0.0, 0.0, 10.0], "time": 2e-7, "clock": {"reading": 1.0},
-                   "motion": {"kind": "orbit", "radius": 5.0, "beta": 0.8}},
-        "body": [{"name": "b", "shape": "sphere", "radius": 1.0, "surface": {"blackbody": 5e3},
-                  "motion": {"position": [0.0, 0.0, 10.0]}}]})
+    scene = scene_from_dict(
+        {
+            "camera": {
+                "look_at": [0.0, 0.0, 10.0],
+                "time": 2e-7,
+                "clock": {"reading": 1.0},
+                "motion": {"kind": "orbit", "radius": 5.0, "beta": 0.8},
+            },
+            "body": [
+                {
+                    "name": "b",
+                    "shape": "sphere",
+                    "radius": 1.0,
+                    "surface": {"blackbody": 5e3},
+                    "motion": {"position": [0.0, 0.0, 10.0]},
+                }
+            ],
+        }
+    )
     r = probe(scene, "b", (0.0, 0.0, 0.0))
     assert r.camera_proper_time == pytest.approx(1.0 + 2e-7 * 0.6, rel=1e-15)

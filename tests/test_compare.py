@@ -57,7 +57,9 @@ def width_px(frame, body=0) -> int:
 
 @pytest.fixture(scope="module")
 def sheet_now():
-    return compare.compare_sheet(box_scene(), time=0.0, panels=("rest", "measured", "photograph"), framing="scene")
+    return compare.compare_sheet(
+        box_scene(), time=0.0, panels=("rest", "measured", "photograph"), framing="scene"
+    )
 
 
 def test_measured_panel_is_lorentz_contracted(sheet_now):
@@ -86,7 +88,9 @@ def test_photograph_differs_and_shows_the_retarded_box(sheet_now):
     # x = 0, t = 0): the box is then seen at right angles at emission, and Terrell (1959,
     # Phys. Rev. 116, 1041) gives a rotated look: its side face L / gamma wide plus its
     # trailing face beta * depth wide.
-    later = compare.compare_sheet(box_scene(), time=DIST / C, panels="photograph,measured", framing="scene")
+    later = compare.compare_sheet(
+        box_scene(), time=DIST / C, panels="photograph,measured", framing="scene"
+    )
     seen = width_px(later.panel("photograph").frame)
     assert abs(seen - (LENGTH / GAMMA + BETA * DEPTH) / M_PER_PX) <= 1.5
     assert (later.panel("measured").frame.layers["body"] == 0).sum() == 0  # 800 m ahead now
@@ -147,7 +151,9 @@ def test_held_exposure_and_each():
     # held exposure is fixed by rest-frame brightness, even when every panel is beamed
     beamed = compare.render_panels(scene, 0.0, "photograph,classical", framing="scene")
     assert beamed.white == pytest.approx(held.panel("rest").frame.white, rel=1e-12)
-    each = compare.render_panels(scene, DIST / C, "photograph,beaming-only", exposure="each", framing="scene")
+    each = compare.render_panels(
+        scene, DIST / C, "photograph,beaming-only", exposure="each", framing="scene"
+    )
     assert each.white is None
     assert all(p.exposure == "each" for p in each.panels)
 

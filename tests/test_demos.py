@@ -56,8 +56,11 @@ def test_every_demo_is_exposed_to_read(name):
     # our own standard for the demos: at most 1 % of the lit non-lamp pixels clip (the
     # highlight guard of automatic exposure) and their median is at least 5 % of white
     scene = load_scene(SCENES / f"{name}.toml")
-    frame = relview.render(scene, resolution=(240, 135) if scene.camera.projection != "panorama"
-                           else (240, 120), samples=1)
+    frame = relview.render(
+        scene,
+        resolution=(240, 135) if scene.camera.projection != "panorama" else (240, 120),
+        samples=1,
+    )
     clipped, median = exposure_figures(scene, frame)
     assert clipped <= 0.01 + 1e-9, f"{name}: {clipped:.2%} clipped"
     assert median >= 0.05, f"{name}: median {median:.2%} of white"
@@ -151,8 +154,9 @@ def test_orchard_cruise_aberration_and_doppler():
     # straight ahead D = sqrt((1 + beta)/(1 - beta)) = 3
     scene = load_scene(SCENES / "orchard-cruise.toml")
     probe = relview.probe(scene, "posts", [0.0, 6.0, 2.0])
-    assert math.degrees(math.atan2(abs(probe.direction[1]), probe.direction[0])) == \
-        pytest.approx(math.degrees(math.acos(0.8)), abs=0.3)
+    assert math.degrees(math.atan2(abs(probe.direction[1]), probe.direction[0])) == pytest.approx(
+        math.degrees(math.acos(0.8)), abs=0.3
+    )
     frame = relview.render(scene, resolution=(160, 90), samples=1)
     assert np.nanmax(frame.layers["doppler"]) == pytest.approx(3.0, abs=0.02)
 

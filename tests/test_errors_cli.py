@@ -105,43 +105,151 @@ def write_cube(path: Path, extents=(1.0, 1.0, 1.0)) -> Path:
 # (id, old line, new line, key as the message writes it, value as it appears, words)
 SCENE_MISTAKES = [
     ("unknown-key", "fov = 60.0", "fvo = 60.0", "[camera] fvo", "60.0", 'did you mean "fov"'),
-    ("unknown-body-key", "radius = 1.0", "raduis = 1.0", '[body] raduis (body "ball")', "1.0",
-     'did you mean "radius"'),
-    ("unknown-section", "[render]", "[rendr]", "rendr", "resolution = [16, 9]",
-     'did you mean "render"'),
-    ("wrong-type", "fov = 60.0", 'fov = "wide"', "[camera] fov", '"wide"',
-     "expected a number, got a string"),
-    ("unit-in-string", "radius = 1.0", 'radius = "2 m"', '[body] radius (body "ball")', '"2 m"',
-     "expected a number"),
-    ("scalar-for-vector", "position = [0.0, -6.0, 0.0]", "position = 6.0", "[camera] position",
-     "6.0", "expected a list of 3 numbers"),
-    ("short-vector", "look_at = [0.0, 0.0, 0.0]", "look_at = [0.0, 0.0]", "[camera] look_at",
-     "[0.0, 0.0]", "got 2"),
-    ("body-faster-than-light", "beta = [0.5, 0.0, 0.0]", "beta = [0.8, 0.7, 0.0]",
-     '[body.motion] beta (body "ball")', "[0.8, 0.7, 0.0]", "at or above c"),
-    ("body-at-light-speed", "beta = [0.5, 0.0, 0.0]", "beta = [0.6, 0.8, 0.0]",
-     '[body.motion] beta (body "ball")', "[0.6, 0.8, 0.0]", "|beta| = 1 is at or above c"),
-    ("camera-at-light-speed", "beta = [0.0, 0.0, 0.0]", "beta = [0.0, -1.0, 0.0]",
-     "[camera] beta", "[0.0, -1.0, 0.0]", "at or above c"),
-    ("nan", "radius = 1.0", "radius = nan", '[body] radius (body "ball")', "nan",
-     "must be a finite number"),
-    ("infinity", "position = [0.0, 0.0, 0.0]", "position = [inf, 0.0, 0.0]",
-     '[body.motion] position (body "ball")', "[inf, 0.0, 0.0]", "finite"),
-    ("negative-radius", "radius = 1.0", "radius = -2.0", '[body] radius (body "ball")', "-2.0",
-     "must be > 0 m"),
-    ("zero-radius", "radius = 1.0", "radius = 0", '[body] radius (body "ball")', "= 0",
-     "must be > 0 m"),
-    ("negative-box-size", SPHERE, 'shape = "box"\nsize = [1.0, -2.0, 1.0]',
-     '[body] size (body "ball")', "[1.0, -2.0, 1.0]", "every entry must be > 0 m"),
-    ("zero-resolution", "resolution = [16, 9]", "resolution = [0, 9]", "[render] resolution",
-     "[0, 9]", "must be >= 1"),
-    ("huge-radius", "radius = 1.0", "radius = 1e308", '[body] radius (body "ball")', "1e+308",
-     "too large"),
+    (
+        "unknown-body-key",
+        "radius = 1.0",
+        "raduis = 1.0",
+        '[body] raduis (body "ball")',
+        "1.0",
+        'did you mean "radius"',
+    ),
+    (
+        "unknown-section",
+        "[render]",
+        "[rendr]",
+        "rendr",
+        "resolution = [16, 9]",
+        'did you mean "render"',
+    ),
+    (
+        "wrong-type",
+        "fov = 60.0",
+        'fov = "wide"',
+        "[camera] fov",
+        '"wide"',
+        "expected a number, got a string",
+    ),
+    (
+        "unit-in-string",
+        "radius = 1.0",
+        'radius = "2 m"',
+        '[body] radius (body "ball")',
+        '"2 m"',
+        "expected a number",
+    ),
+    (
+        "scalar-for-vector",
+        "position = [0.0, -6.0, 0.0]",
+        "position = 6.0",
+        "[camera] position",
+        "6.0",
+        "expected a list of 3 numbers",
+    ),
+    (
+        "short-vector",
+        "look_at = [0.0, 0.0, 0.0]",
+        "look_at = [0.0, 0.0]",
+        "[camera] look_at",
+        "[0.0, 0.0]",
+        "got 2",
+    ),
+    (
+        "body-faster-than-light",
+        "beta = [0.5, 0.0, 0.0]",
+        "beta = [0.8, 0.7, 0.0]",
+        '[body.motion] beta (body "ball")',
+        "[0.8, 0.7, 0.0]",
+        "at or above c",
+    ),
+    (
+        "body-at-light-speed",
+        "beta = [0.5, 0.0, 0.0]",
+        "beta = [0.6, 0.8, 0.0]",
+        '[body.motion] beta (body "ball")',
+        "[0.6, 0.8, 0.0]",
+        "|beta| = 1 is at or above c",
+    ),
+    (
+        "camera-at-light-speed",
+        "beta = [0.0, 0.0, 0.0]",
+        "beta = [0.0, -1.0, 0.0]",
+        "[camera] beta",
+        "[0.0, -1.0, 0.0]",
+        "at or above c",
+    ),
+    (
+        "nan",
+        "radius = 1.0",
+        "radius = nan",
+        '[body] radius (body "ball")',
+        "nan",
+        "must be a finite number",
+    ),
+    (
+        "infinity",
+        "position = [0.0, 0.0, 0.0]",
+        "position = [inf, 0.0, 0.0]",
+        '[body.motion] position (body "ball")',
+        "[inf, 0.0, 0.0]",
+        "finite",
+    ),
+    (
+        "negative-radius",
+        "radius = 1.0",
+        "radius = -2.0",
+        '[body] radius (body "ball")',
+        "-2.0",
+        "must be > 0 m",
+    ),
+    (
+        "zero-radius",
+        "radius = 1.0",
+        "radius = 0",
+        '[body] radius (body "ball")',
+        "= 0",
+        "must be > 0 m",
+    ),
+    (
+        "negative-box-size",
+        SPHERE,
+        'shape = "box"\nsize = [1.0, -2.0, 1.0]',
+        '[body] size (body "ball")',
+        "[1.0, -2.0, 1.0]",
+        "every entry must be > 0 m",
+    ),
+    (
+        "zero-resolution",
+        "resolution = [16, 9]",
+        "resolution = [0, 9]",
+        "[render] resolution",
+        "[0, 9]",
+        "must be >= 1",
+    ),
+    (
+        "huge-radius",
+        "radius = 1.0",
+        "radius = 1e308",
+        '[body] radius (body "ball")',
+        "1e+308",
+        "too large",
+    ),
     ("fov-out-of-range", "fov = 60.0", "fov = 180.0", "[camera] fov", "180.0", "out of range"),
-    ("unknown-shape", SPHERE, 'shape = "sphear"', '[body] shape (body "ball")', '"sphear"',
-     'did you mean "sphere"'),
-    ("look-at-is-position", "look_at = [0.0, 0.0, 0.0]", "look_at = [0.0, -6.0, 0.0]",
-     "[camera] look_at", "[0.0, -6.0, 0.0]", "equals the camera position"),
+    (
+        "unknown-shape",
+        SPHERE,
+        'shape = "sphear"',
+        '[body] shape (body "ball")',
+        '"sphear"',
+        'did you mean "sphere"',
+    ),
+    (
+        "look-at-is-position",
+        "look_at = [0.0, 0.0, 0.0]",
+        "look_at = [0.0, -6.0, 0.0]",
+        "[camera] look_at",
+        "[0.0, -6.0, 0.0]",
+        "equals the camera position",
+    ),
 ]
 
 
@@ -175,8 +283,10 @@ def test_unclosed_string_is_a_syntax_error_on_its_line(tmp_path, capsys):
         (lambda p: p.mkdir(), "is a directory, not a scene file"),
         (lambda p: p.write_bytes(b""), "the scene file is empty"),
         (lambda p: p.write_text("# only a comment\n"), "holds only comments"),
-        (lambda p: p.write_bytes(SCENE.encode().replace(b"catalogue", b"catalogu\xe9")),
-         "not UTF-8 text (byte 0xe9)"),
+        (
+            lambda p: p.write_bytes(SCENE.encode().replace(b"catalogue", b"catalogu\xe9")),
+            "not UTF-8 text (byte 0xe9)",
+        ),
     ],
     ids=["missing", "directory", "empty", "comments-only", "not-utf8"],
 )
@@ -188,22 +298,30 @@ def test_scene_file_itself_unusable(tmp_path, capsys, make, words):
 
 
 def test_wrong_value_in_second_body_names_that_body_and_its_line(tmp_path, capsys):
-    second = '\n[[body]]\nname = "rod"\nshape = "box"\nsize = [4.0, 0.1, 0.1]\n' \
-             '[body.motion]\nbeta = [0.0, 0.0, 1.5]\n[body.surface]\nblackbody = 3000.0\n'
+    second = (
+        '\n[[body]]\nname = "rod"\nshape = "box"\nsize = [4.0, 0.1, 0.1]\n'
+        "[body.motion]\nbeta = [0.0, 0.0, 1.5]\n[body.surface]\nblackbody = 3000.0\n"
+    )
     text = SCENE + second
     path = write_text(tmp_path, text)
     code, _, err = run(capsys, "check", path)
     line = line_of(text, "beta = [0.0, 0.0, 1.5]")
-    assert_user_error(code, err, f'{path}:{line}: [body.motion] beta (body "rod")',
-                      "|beta| = 1.5 is at or above c")
+    assert_user_error(
+        code,
+        err,
+        f'{path}:{line}: [body.motion] beta (body "rod")',
+        "|beta| = 1.5 is at or above c",
+    )
 
 
 # ============================================================================ mesh files
 
 
 def _junk_ply(p: Path) -> None:
-    p.write_bytes(b"ply\nformat binary_little_endian 1.0\nelement vertex 9\n"
-                  b"property float x\nend_header\n\x00")
+    p.write_bytes(
+        b"ply\nformat binary_little_endian 1.0\nelement vertex 9\n"
+        b"property float x\nend_header\n\x00"
+    )
 
 
 @pytest.mark.parametrize(
@@ -212,17 +330,34 @@ def _junk_ply(p: Path) -> None:
         ("missing.obj", None, "mesh file not found"),
         ("empty.obj", lambda p: p.write_bytes(b""), "mesh file is empty (0 bytes)"),
         ("broken.ply", _junk_ply, "cannot read mesh file (corrupt or not a valid .ply file?)"),
-        ("latin1.obj", lambda p: p.write_bytes(b"v 0 0 0\nv 1 0 0\nv 0 1 0\n# caf\xe9\nf 1 2 3\n"),
-         "line 4 is not UTF-8 text (byte 0xe9)"),
-        ("points.ply", lambda p: p.write_bytes(
-            b"ply\nformat ascii 1.0\nelement vertex 2\nproperty float x\nproperty float y\n"
-            b"property float z\nend_header\n0 0 0\n1 1 1\n"), "contains no triangles"),
-        ("flat.obj", lambda p: p.write_text("v 0 0 0\nv 0 0 0\nv 0 0 0\nf 1 2 3\n"),
-         "only degenerate (zero-area) triangles"),
-        ("nan.obj", lambda p: p.write_text("v 0 0 0\nv 1 0 0\nv nan 1 0\nf 1 2 3\n"),
-         "non-finite (NaN or infinite) vertex coordinates"),
-        ("huge.obj", lambda p: p.write_text("v 1e300 0 0\nv 0 1 0\nv 0 0 1\nf 1 2 3\n"),
-         "vertex coordinates up to 1e+300 m"),
+        (
+            "latin1.obj",
+            lambda p: p.write_bytes(b"v 0 0 0\nv 1 0 0\nv 0 1 0\n# caf\xe9\nf 1 2 3\n"),
+            "line 4 is not UTF-8 text (byte 0xe9)",
+        ),
+        (
+            "points.ply",
+            lambda p: p.write_bytes(
+                b"ply\nformat ascii 1.0\nelement vertex 2\nproperty float x\nproperty float y\n"
+                b"property float z\nend_header\n0 0 0\n1 1 1\n"
+            ),
+            "contains no triangles",
+        ),
+        (
+            "flat.obj",
+            lambda p: p.write_text("v 0 0 0\nv 0 0 0\nv 0 0 0\nf 1 2 3\n"),
+            "only degenerate (zero-area) triangles",
+        ),
+        (
+            "nan.obj",
+            lambda p: p.write_text("v 0 0 0\nv 1 0 0\nv nan 1 0\nf 1 2 3\n"),
+            "non-finite (NaN or infinite) vertex coordinates",
+        ),
+        (
+            "huge.obj",
+            lambda p: p.write_text("v 1e300 0 0\nv 0 1 0\nv 0 0 1\nf 1 2 3\n"),
+            "vertex coordinates up to 1e+300 m",
+        ),
         ("model.blend", lambda p: p.write_bytes(b"BLENDER"), "unsupported mesh format '.blend'"),
     ],
     ids=lambda v: v if isinstance(v, str) and "." in v else None,
@@ -234,8 +369,7 @@ def test_bad_mesh_file_names_scene_key_value_and_mesh(tmp_path, capsys, name, ma
     path = write_text(tmp_path, text)
     code, _, err = run(capsys, "check", path)
     line = line_of(text, f'file = "{name}"')
-    assert_user_error(code, err, f'{path}:{line}: [body] file (body "ball")', f'"{name}"',
-                      words)
+    assert_user_error(code, err, f'{path}:{line}: [body] file (body "ball")', f'"{name}"', words)
     if make is not None:
         assert str(tmp_path / name) in err  # the resolved mesh path too
 
@@ -254,22 +388,27 @@ def test_unreadable_mesh_file(tmp_path, capsys, monkeypatch):
     monkeypatch.setattr(relview.scene.table, "open", refusing_open, raising=False)
     path = write_text(tmp_path, mesh_scene("locked.obj"))
     code, _, err = run(capsys, "check", path)
-    assert_user_error(code, err, f'{path}:16: [body] file (body "ball")', '"locked.obj"',
-                      "Permission denied")
+    assert_user_error(
+        code, err, f'{path}:16: [body] file (body "ball")', '"locked.obj"', "Permission denied"
+    )
 
 
 @pytest.mark.parametrize(
     "name, content, words",
     [
-        ("open.obj", "v 0 0 0\nv 1 0 0\nv 0 1 0\nv 0 0 1\nf 1 3 2\nf 1 2 4\nf 1 4 3\n",
-         "mesh is not closed (has open edges)"),
-        ("degenerate.obj",
-         "v 0 0 0\nv 1 0 0\nv 0 1 0\nv 0 0 1\nf 1 3 2\nf 1 2 4\nf 1 4 3\nf 2 3 4\nf 1 2 2\n",
-         "removed 1 degenerate (zero-area) triangle(s) of 5"),
+        (
+            "open.obj",
+            "v 0 0 0\nv 1 0 0\nv 0 1 0\nv 0 0 1\nf 1 3 2\nf 1 2 4\nf 1 4 3\n",
+            "mesh is not closed (has open edges)",
+        ),
+        (
+            "degenerate.obj",
+            "v 0 0 0\nv 1 0 0\nv 0 1 0\nv 0 0 1\nf 1 3 2\nf 1 2 4\nf 1 4 3\nf 2 3 4\nf 1 2 2\n",
+            "removed 1 degenerate (zero-area) triangle(s) of 5",
+        ),
     ],
 )
-def test_repairable_mesh_warns_naming_the_file_and_renders(tmp_path, capsys, name, content,
-                                                            words):
+def test_repairable_mesh_warns_naming_the_file_and_renders(tmp_path, capsys, name, content, words):
     from relview.geometry import shapes
 
     shapes.clear_cache()  # the warning is given when the file is read
@@ -314,16 +453,18 @@ def test_camera_beside_a_contracted_body_does_not_warn(tmp_path, capsys):
     assert code == 0, err
     assert "inside body" not in err
     # With contraction switched off (Galilean kinematics) the same point is inside.
-    code, _, err = run(capsys, "render", path, "-o", tmp_path / "gal.png", "--quiet",
-                       "--no-contraction")
+    code, _, err = run(
+        capsys, "render", path, "-o", tmp_path / "gal.png", "--quiet", "--no-contraction"
+    )
     assert code == 0 and "the camera is inside body 'ball'" in err
 
 
 def test_camera_inside_depends_on_the_exposure_time(tmp_path, capsys):
     # 10 ns later the ball centre is 0.9 * c * 1e-8 = 2.7 m further along x.
     path = write_text(tmp_path, _inside_scene(0.2))
-    code, _, err = run(capsys, "render", path, "--time", "1e-8", "-o", tmp_path / "o.png",
-                       "--quiet")
+    code, _, err = run(
+        capsys, "render", path, "--time", "1e-8", "-o", tmp_path / "o.png", "--quiet"
+    )
     assert code == 0 and "inside body" not in err
 
 
@@ -338,8 +479,13 @@ def test_huge_resolution_option_refused_before_any_work(tmp_path, capsys, monkey
     monkeypatch.chdir(tmp_path)
     path = write_text(tmp_path, SCENE)
     code, _, err = run(capsys, "render", path, "--resolution", "100000x100000")
-    assert_user_error(code, err, "--resolution = [100000, 100000]: a frame needs about",
-                      "GiB but only", "lower the resolution")
+    assert_user_error(
+        code,
+        err,
+        "--resolution = [100000, 100000]: a frame needs about",
+        "GiB but only",
+        "lower the resolution",
+    )
     assert not (tmp_path / "outputs").exists()
 
 
@@ -351,11 +497,13 @@ def test_huge_resolution_in_scene_file_refused(tmp_path, capsys, monkeypatch, co
     code, _, err = run(capsys, command, path)
     # 100000**2 pixels * 144 bytes: 1341.2 GiB (estimate_bytes, frame_memory.BYTES_PER_PIXEL)
     need = relview.frame_memory.estimate_bytes(100000, 100000) / 2**30
-    assert_user_error(code, err, f"{path}: render.resolution = [100000, 100000]",
-                      f"about {need:.1f} GiB")
+    assert_user_error(
+        code, err, f"{path}: render.resolution = [100000, 100000]", f"about {need:.1f} GiB"
+    )
 
 
 # ============================================================================ command line
+
 
 @pytest.mark.parametrize(
     "argv, words",
@@ -380,10 +528,14 @@ def test_huge_resolution_in_scene_file_refused(tmp_path, capsys, monkeypatch, co
         (["render", "{scene}", "--samples", "0"], "--samples must be >= 1 and <= 65536, got 0"),
         (["render", "{scene}", "--samples", "1000000000"], "--samples must be >= 1 and <= 65536"),
         (["render", "{scene}", "--bits", "12"], "invalid choice: 12"),
-        (["probe", "{scene}", "--body", "bal", "--point", "0,0,0"],
-         "--body 'bal': no such body; did you mean 'ball'?"),
-        (["probe", "{scene}", "--body", "zzz", "--point", "0,0,0"],
-         "--body 'zzz': no such body; bodies: ball"),
+        (
+            ["probe", "{scene}", "--body", "bal", "--point", "0,0,0"],
+            "--body 'bal': no such body; did you mean 'ball'?",
+        ),
+        (
+            ["probe", "{scene}", "--body", "zzz", "--point", "0,0,0"],
+            "--body 'zzz': no such body; bodies: ball",
+        ),
     ],
     ids=lambda v: " ".join(v) if isinstance(v, list) else None,
 )
@@ -453,17 +605,30 @@ def test_overwrite_replaces(tmp_path, capsys):
 @pytest.mark.parametrize(
     "patched, exc, words, overwrite",
     [
-        ("link", OSError(errno.ENOSPC, "No space left on device"),
-         "no space left on device (disk full) [ENOSPC]", False),
-        ("replace", PermissionError(errno.EACCES, "Permission denied"),
-         "permission denied [EACCES]", True),
-        ("replace", OSError(errno.EROFS, "Read-only file system"),
-         "read-only file system [EROFS]", True),
+        (
+            "link",
+            OSError(errno.ENOSPC, "No space left on device"),
+            "no space left on device (disk full) [ENOSPC]",
+            False,
+        ),
+        (
+            "replace",
+            PermissionError(errno.EACCES, "Permission denied"),
+            "permission denied [EACCES]",
+            True,
+        ),
+        (
+            "replace",
+            OSError(errno.EROFS, "Read-only file system"),
+            "read-only file system [EROFS]",
+            True,
+        ),
     ],
     ids=["disk-full", "permission-denied", "read-only"],
 )
-def test_failed_write_is_clear_and_leaves_no_partial_file(tmp_path, capsys, monkeypatch,
-                                                          patched, exc, words, overwrite):
+def test_failed_write_is_clear_and_leaves_no_partial_file(
+    tmp_path, capsys, monkeypatch, patched, exc, words, overwrite
+):
     scene = write_text(tmp_path, SCENE)
     out_dir = tmp_path / "out"
     out_dir.mkdir()
@@ -496,8 +661,9 @@ def test_unwritable_directory_is_clear(tmp_path, capsys, monkeypatch):
     monkeypatch.setattr(relview.imaging.files, "open", refusing_open, raising=False)
     scene = write_text(tmp_path, SCENE)
     code, _, err = _render(capsys, scene, tmp_path / "o.png")
-    assert_user_error(code, err, f"{tmp_path / 'o.png'}: cannot write the output file: "
-                                 "permission denied [EACCES]")
+    assert_user_error(
+        code, err, f"{tmp_path / 'o.png'}: cannot write the output file: permission denied [EACCES]"
+    )
     assert not (tmp_path / "o.png").exists()
 
 
@@ -511,8 +677,11 @@ def test_output_parent_is_a_file(tmp_path, capsys, no_rendering):
     scene = write_text(tmp_path, SCENE)
     before = scene.read_bytes()
     code, _, err = _render(capsys, scene, scene / "image.png")
-    assert_user_error(code, err, f"{scene / 'image.png'}: cannot create the directory: "
-                                 f"{scene} is a file, not a directory")
+    assert_user_error(
+        code,
+        err,
+        f"{scene / 'image.png'}: cannot create the directory: {scene} is a file, not a directory",
+    )
     assert scene.read_bytes() == before
 
 
@@ -522,8 +691,9 @@ def test_output_is_a_directory_or_unknown_type(tmp_path, capsys, no_rendering):
     assert_user_error(code, err, f"{tmp_path}: unknown", "type ''", ".png")
     (tmp_path / "dir.png").mkdir()
     code, _, err = _render(capsys, scene, tmp_path / "dir.png")
-    assert_user_error(code, err, f"{tmp_path / 'dir.png'}: cannot write the output file: "
-                                 "is a directory")
+    assert_user_error(
+        code, err, f"{tmp_path / 'dir.png'}: cannot write the output file: is a directory"
+    )
     code, _, err = _render(capsys, scene, tmp_path / "image.txt")
     assert_user_error(code, err, "image.txt: unknown", "type '.txt'; use .png", ".npz")
 
@@ -535,7 +705,7 @@ def test_code_in_strings_stays_data(tmp_path, capsys, monkeypatch):
     monkeypatch.chdir(tmp_path)
     payload = "__import__('os').system('touch pwned')"
     text = edit('title = "error catalogue"', f'title = "{payload}"')
-    text = edit("name = \"ball\"", 'name = "$(touch pwned2)"', text)
+    text = edit('name = "ball"', 'name = "$(touch pwned2)"', text)
     path = write_text(tmp_path, text)
     scene = load_scene(path)
     assert scene.title == payload and scene.bodies[0].name == "$(touch pwned2)"
@@ -558,14 +728,16 @@ def test_python_file_as_mesh_is_refused_not_run(tmp_path, capsys):
 
 
 def test_mesh_path_with_dotdot_resolves_from_the_scene_file_and_is_only_read(
-        tmp_path, capsys, monkeypatch):
+    tmp_path, capsys, monkeypatch
+):
     # project/scenes/scene.toml names ../meshes/cube.obj = project/meshes/cube.obj (2 m).
     # The working directory holds a different meshes/cube.obj (1 m), which must not be used.
     mesh = write_cube(tmp_path / "project" / "meshes" / "cube.obj", extents=(2.0, 2.0, 2.0))
     write_cube(tmp_path / "elsewhere" / "meshes" / "cube.obj", extents=(1.0, 1.0, 1.0))
     (tmp_path / "elsewhere" / "scenes").mkdir()
-    scene_path = write_text(tmp_path / "project" / "scenes",
-                       mesh_scene("../meshes/cube.obj").replace("-6.0", "-8.0"))
+    scene_path = write_text(
+        tmp_path / "project" / "scenes", mesh_scene("../meshes/cube.obj").replace("-6.0", "-8.0")
+    )
     monkeypatch.chdir(tmp_path / "elsewhere" / "scenes")
     before = (mesh.read_bytes(), mesh.stat().st_mtime_ns)
     scene = load_scene(scene_path)
@@ -593,8 +765,7 @@ def test_mesh_path_with_dotdot_resolves_from_the_scene_file_and_is_only_read(
 def test_path_values_that_crashed_the_loader(tmp_path, capsys, value, words):
     # Found by tests/test_fuzz_loader.py: RuntimeError from Path.expanduser and
     # OSError(ENAMETOOLONG) from Path.exists escaped as internal errors.
-    for text in (mesh_scene(value),
-                 edit("blackbody = 5000.0", f'spectrum = "{value}"')):
+    for text in (mesh_scene(value), edit("blackbody = 5000.0", f'spectrum = "{value}"')):
         path = write_text(tmp_path, text)
         code, _, err = run(capsys, "check", path)
         assert_user_error(code, err, str(path), f'"{value}"', words)
@@ -604,7 +775,9 @@ def test_huge_camera_coordinates_are_not_taken_for_look_at_equals_position(tmp_p
     # |position|^2 overflowed to inf and the camera check called the two points equal.
     # Positions beyond what float64 resolves to a metre are now refused as such (the
     # picture depends only on differences), naming the position, never look_at.
-    path = write_text(tmp_path, edit("position = [0.0, -6.0, 0.0]", "position = [0.0, -1e300, 0.0]"))
+    path = write_text(
+        tmp_path, edit("position = [0.0, -6.0, 0.0]", "position = [0.0, -1e300, 0.0]")
+    )
     code, out, err = run(capsys, "check", path)
     assert_user_error(code, err, str(path), "[camera] position", "too large to compute with")
     assert "look_at" not in err and "equals the camera position" not in err
@@ -617,10 +790,16 @@ def test_huge_camera_coordinates_are_not_taken_for_look_at_equals_position(tmp_p
 @pytest.mark.parametrize(
     "extra, key, words",
     [
-        ('\n[background]\nkind = "stars"\ncount = 100000000000\n', "[background] count",
-         "count = 100000000000; must be >= 0 and <= 1000000"),
-        ("\n[animation]\nend = 1.0\nframes = 1000000000000\n", "[animation] frames",
-         "frames = 1000000000000; must be >= 1 and <= 1000000"),
+        (
+            '\n[background]\nkind = "stars"\ncount = 100000000000\n',
+            "[background] count",
+            "count = 100000000000; must be >= 0 and <= 1000000",
+        ),
+        (
+            "\n[animation]\nend = 1.0\nframes = 1000000000000\n",
+            "[animation] frames",
+            "frames = 1000000000000; must be >= 1 and <= 1000000",
+        ),
     ],
     ids=["stars", "frames"],
 )
@@ -635,20 +814,28 @@ def test_counts_that_would_exhaust_memory_are_refused(tmp_path, capsys, extra, k
 
 
 def test_samples_in_scene_file_bounded(tmp_path, capsys):
-    path = write_text(tmp_path, edit("resolution = [16, 9]",
-                                "resolution = [16, 9]\nsamples = 1000000000"))
+    path = write_text(
+        tmp_path, edit("resolution = [16, 9]", "resolution = [16, 9]\nsamples = 1000000000")
+    )
     code, _, err = run(capsys, "check", path)
-    assert_user_error(code, err, f"{path}:6: [render] samples",
-                      "samples = 1000000000; must be >= 1 and <= 65536")
+    assert_user_error(
+        code, err, f"{path}:6: [render] samples", "samples = 1000000000; must be >= 1 and <= 65536"
+    )
 
 
 @pytest.mark.parametrize(
     "surface, key, words",
     [
-        ("color = [0.5, 0.5, 0.5]\nlamp = 5.5e-297", "[body.surface] lamp",
-         "out of range: lamp = 5.5e-297; must be >= 100.0 and <= 1000000000000.0 K"),
-        ("blackbody = 1e300", "[body.surface] blackbody",
-         "out of range: blackbody = 1e+300; must be <= 1000000000000.0 K"),
+        (
+            "color = [0.5, 0.5, 0.5]\nlamp = 5.5e-297",
+            "[body.surface] lamp",
+            "out of range: lamp = 5.5e-297; must be >= 100.0 and <= 1000000000000.0 K",
+        ),
+        (
+            "blackbody = 1e300",
+            "[body.surface] blackbody",
+            "out of range: blackbody = 1e+300; must be <= 1000000000000.0 K",
+        ),
     ],
     ids=["cold-lamp", "hot-blackbody"],
 )
@@ -665,11 +852,17 @@ def test_temperatures_outside_float64_planck_range(tmp_path, capsys, surface, ke
 
 def test_huge_mesh_scale_is_refused(tmp_path, capsys):
     write_cube(tmp_path / "cube.obj")
-    path = write_text(tmp_path, mesh_scene("cube.obj").replace('file = "cube.obj"',
-                                                          'file = "cube.obj"\nscale = 1e300'))
+    path = write_text(
+        tmp_path,
+        mesh_scene("cube.obj").replace('file = "cube.obj"', 'file = "cube.obj"\nscale = 1e300'),
+    )
     code, _, err = run(capsys, "check", path)
-    assert_user_error(code, err, '[body] file (body "ball")', "scale = 1e+300 gives vertex "
-                      "coordinates up to 5e+299 m; the largest usable is 1e+150 m")
+    assert_user_error(
+        code,
+        err,
+        '[body] file (body "ball")',
+        "scale = 1e+300 gives vertex coordinates up to 5e+299 m; the largest usable is 1e+150 m",
+    )
 
 
 # ============================================================================ real processes
@@ -691,7 +884,11 @@ def test_subprocess_shows_only_the_message_and_exits_2(tmp_path, argv, text, wor
     scene = write_text(tmp_path, text)
     proc = subprocess.run(
         [sys.executable, "-m", "relview.cli", *[a.format(scene=scene) for a in argv]],
-        capture_output=True, text=True, cwd=tmp_path, timeout=120, check=False,
+        capture_output=True,
+        text=True,
+        cwd=tmp_path,
+        timeout=120,
+        check=False,
     )
     assert proc.returncode == 2, proc.stderr
     assert "Traceback" not in proc.stderr
@@ -702,16 +899,25 @@ def test_subprocess_shows_only_the_message_and_exits_2(tmp_path, argv, text, wor
 
 def test_subprocess_warning_is_one_line_and_render_succeeds(tmp_path):
     (tmp_path / "open.obj").write_text(
-        "v 0 0 0\nv 1 0 0\nv 0 1 0\nv 0 0 1\nf 1 3 2\nf 1 2 4\nf 1 4 3\n")
-    scene = write_text(tmp_path, mesh_scene("open.obj").replace("[0.0, -6.0, 0.0]", "[0.3, -3, 0.2]"))
+        "v 0 0 0\nv 1 0 0\nv 0 1 0\nv 0 0 1\nf 1 3 2\nf 1 2 4\nf 1 4 3\n"
+    )
+    scene = write_text(
+        tmp_path, mesh_scene("open.obj").replace("[0.0, -6.0, 0.0]", "[0.3, -3, 0.2]")
+    )
     proc = subprocess.run(
         [sys.executable, "-m", "relview.cli", "render", str(scene), "-o", "o.png", "--quiet"],
-        capture_output=True, text=True, cwd=tmp_path, timeout=120, check=False,
+        capture_output=True,
+        text=True,
+        cwd=tmp_path,
+        timeout=120,
+        check=False,
     )
     assert proc.returncode == 0, proc.stderr
     assert proc.stderr.strip().splitlines() == [
-        (f"relview: warning: {tmp_path / 'open.obj'}: mesh is not closed (has open edges); "
-         "it is rendered as a surface seen from both sides")
+        (
+            f"relview: warning: {tmp_path / 'open.obj'}: mesh is not closed (has open edges); "
+            "it is rendered as a surface seen from both sides"
+        )
     ]
     assert (tmp_path / "o.png").exists()
 
@@ -725,8 +931,13 @@ ANIMATED = SCENE + "\n[animation]\nstart = 0.0\nend = 1.0e-8\nframes = 4\nfps = 
 @pytest.mark.parametrize(
     "frames, words",
     [
-        ("5:2", ("--frames '5:2': the range is reversed (A:B is half-open, A < B; the "
-                 "animation has frames 0..3)")),
+        (
+            "5:2",
+            (
+                "--frames '5:2': the range is reversed (A:B is half-open, A < B; the "
+                "animation has frames 0..3)"
+            ),
+        ),
         ("2:2", "--frames '2:2': the range is empty"),
         ("7:9", "--frames '7:9': the animation has 4 frame(s), indices 0..3"),
         ("x:y", "--frames 'x:y': A and B must be whole frame indices"),
@@ -736,8 +947,9 @@ ANIMATED = SCENE + "\n[animation]\nstart = 0.0\nend = 1.0e-8\nframes = 4\nfps = 
 def test_animate_bad_frame_ranges(tmp_path, capsys, frames, words):
     scene = write_text(tmp_path, ANIMATED)
     out_dir = tmp_path / "frames"
-    code, _, err = run(capsys, "animate", scene, f"--frames={frames}", "-o", out_dir,
-                       "--quiet", "--workers", "1")
+    code, _, err = run(
+        capsys, "animate", scene, f"--frames={frames}", "-o", out_dir, "--quiet", "--workers", "1"
+    )
     assert_user_error(code, err, words)
     assert not list(out_dir.glob("frame-*.png")) if out_dir.exists() else True
 
@@ -780,15 +992,25 @@ def test_animate_never_replaces_finished_frames_without_overwrite(tmp_path, caps
 
 def test_probe_times_count_that_cannot_fit(tmp_path, capsys):
     scene = write_text(tmp_path, SCENE)
-    code, _, err = run(capsys, "probe", scene, "--body", "ball", "--point", "0,0,0",
-                       "--times", "0:1e-8:100000000000")
+    code, _, err = run(
+        capsys,
+        "probe",
+        scene,
+        "--body",
+        "ball",
+        "--point",
+        "0,0,0",
+        "--times",
+        "0:1e-8:100000000000",
+    )
     assert_user_error(code, err, "--times")
 
 
 def test_compare_time_nan(tmp_path, capsys):
     scene = write_text(tmp_path, SCENE)
-    code, _, err = run(capsys, "compare", scene, "--time", "nan", "-o", tmp_path / "c.png",
-                       "--quiet")
+    code, _, err = run(
+        capsys, "compare", scene, "--time", "nan", "-o", tmp_path / "c.png", "--quiet"
+    )
     assert_user_error(code, err, "--time")
 
 
@@ -801,8 +1023,10 @@ def test_compare_refuses_unwritable_output_before_rendering(tmp_path, capsys, no
 def test_accelerating_body_seen_from_far_away_renders(tmp_path, capsys):
     # At t = 0 the light reaching a camera 1e5 m away left about 3.3e-4 s earlier; the
     # body (1e16 m/s^2, at rest at t = 0) was then approaching at gamma ~ 1e4.
-    text = edit('kind = "uniform"\nbeta = [0.5, 0.0, 0.0]',
-                'kind = "hyperbolic"\nacceleration = [1.0e16, 0.0, 0.0]')
+    text = edit(
+        'kind = "uniform"\nbeta = [0.5, 0.0, 0.0]',
+        'kind = "hyperbolic"\nacceleration = [1.0e16, 0.0, 0.0]',
+    )
     text = edit("position = [0.0, -6.0, 0.0]", "position = [0.0, -1.0e5, 0.0]", text)
     path = write_text(tmp_path, text)
     code, _, err = run(capsys, "render", path, "-o", tmp_path / "far.png", "--quiet")
@@ -811,8 +1035,10 @@ def test_accelerating_body_seen_from_far_away_renders(tmp_path, capsys):
 
 def test_orbit_with_vanishing_speed(tmp_path, capsys):
     # Found by the slow render fuzz (tests/test_fuzz_loader.py).
-    text = edit('kind = "uniform"\nbeta = [0.5, 0.0, 0.0]\nposition = [0.0, 0.0, 0.0]',
-                'kind = "orbit"\nradius = 3.0\nbeta = 6e-301')
+    text = edit(
+        'kind = "uniform"\nbeta = [0.5, 0.0, 0.0]\nposition = [0.0, 0.0, 0.0]',
+        'kind = "orbit"\nradius = 3.0\nbeta = 6e-301',
+    )
     path = write_text(tmp_path, text)
     code, _, err = run(capsys, "render", path, "-o", tmp_path / "o.png", "--quiet")
     assert code in (0, 2) and "Traceback" not in err, err

@@ -80,8 +80,9 @@ def test_cluster_run_resumes(local_frames, scheduler, tmp_path, monkeypatch):
     with open(out / "frame-00003.png", "ab") as fh:
         fh.write(b"edited")
     # the edited frame is replaced only when asked (the missing one needs no permission)
-    summary = batch.animate(load_scene(scene_file), out, cluster=scheduler, progress=False,
-                           overwrite=True)
+    summary = batch.animate(
+        load_scene(scene_file), out, cluster=scheduler, progress=False, overwrite=True
+    )
     assert summary.rendered == [1, 3] and summary.skipped == [0, 2]
     after = stamps(out)
     assert after["frame-00000.png"] == before["frame-00000.png"]

@@ -163,9 +163,15 @@ def test_auto_white_is_scale_invariant_over_twenty_decades():
 
 def test_auto_white_fallbacks():
     zeros = np.zeros((4, 4, 3))
-    assert exposure.exposure_white(zeros, np.ones((4, 4), bool), "auto") == exposure.FALLBACK_WHITE_CD_M2
+    assert (
+        exposure.exposure_white(zeros, np.ones((4, 4), bool), "auto")
+        == exposure.FALLBACK_WHITE_CD_M2
+    )
     bright = np.full((4, 4, 3), 5.0)
-    assert exposure.exposure_white(bright, np.zeros((4, 4), bool), "auto") == exposure.FALLBACK_WHITE_CD_M2
+    assert (
+        exposure.exposure_white(bright, np.zeros((4, 4), bool), "auto")
+        == exposure.FALLBACK_WHITE_CD_M2
+    )
     # uniform Y = 5: the log-average 5 sits at the key 0.18 (Reinhard et al. 2002)
     assert exposure.exposure_white(bright, None, "AUTO") == pytest.approx(5.0 / 0.18)
 

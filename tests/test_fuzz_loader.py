@@ -51,41 +51,161 @@ EXAMPLES = int(os.environ.get("RELVIEW_FUZZ_EXAMPLES", "200"))
 FUZZ_SETTINGS = settings(
     max_examples=EXAMPLES,
     deadline=None,
-    suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large,
-                           HealthCheck.function_scoped_fixture],
+    suppress_health_check=[
+        HealthCheck.too_slow,
+        HealthCheck.data_too_large,
+        HealthCheck.function_scoped_fixture,
+    ],
     derandomize=False,
 )
 
 # Every key the scene format knows (docs/scene-format.md), so random tables often hit
 # real keys with wrong values instead of being rejected at the first unknown key.
 KNOWN_KEYS = [
-    "scene", "render", "camera", "body", "background", "animation",
-    "title", "format", "resolution", "samples", "exposure", "seed", "effects",
-    "delay", "contraction", "aberration", "doppler", "beaming",
-    "position", "look_at", "direction", "up", "fov", "time", "beta", "projection",
-    "name", "shape", "rotation", "motion", "surface", "size", "radius", "height",
-    "detail", "file", "scale", "center", "kind", "count", "temperature", "luminance",
-    "spacing", "width", "start", "end", "frames", "fps",
-    "blackbody", "line", "lines", "spectrum", "color", "pattern", "lamp", "texture",
-    "nm", "width_nm", "radiance", "period", "line_width", "axes", "first", "second",
+    "scene",
+    "render",
+    "camera",
+    "body",
+    "background",
+    "animation",
+    "title",
+    "format",
+    "resolution",
+    "samples",
+    "exposure",
+    "seed",
+    "effects",
+    "delay",
+    "contraction",
+    "aberration",
+    "doppler",
+    "beaming",
+    "position",
+    "look_at",
+    "direction",
+    "up",
+    "fov",
+    "time",
+    "beta",
+    "projection",
+    "name",
+    "shape",
+    "rotation",
+    "motion",
+    "surface",
+    "size",
+    "radius",
+    "height",
+    "detail",
+    "file",
+    "scale",
+    "center",
+    "kind",
+    "count",
+    "temperature",
+    "luminance",
+    "spacing",
+    "width",
+    "start",
+    "end",
+    "frames",
+    "fps",
+    "blackbody",
+    "line",
+    "lines",
+    "spectrum",
+    "color",
+    "pattern",
+    "lamp",
+    "texture",
+    "nm",
+    "width_nm",
+    "radiance",
+    "period",
+    "line_width",
+    "axes",
+    "first",
+    "second",
     # motion kinds registered by relview.kinematics.motion
-    "acceleration", "axis", "period", "phase", "times", "positions", "base",
-    "angular_velocity", "center_offset", "shutter", "shutter_samples",
+    "acceleration",
+    "axis",
+    "period",
+    "phase",
+    "times",
+    "positions",
+    "base",
+    "angular_velocity",
+    "center_offset",
+    "shutter",
+    "shutter_samples",
 ]
 KNOWN_STRINGS = [
-    "box", "sphere", "cylinder", "plane", "mesh", "pinhole", "panorama", "fisheye",
-    "black", "stars", "graticule", "uniform", "hyperbolic", "orbit", "path", "spin",
-    "rolling", "checks", "grid", "auto", "D65", "cube.obj", "missing.obj", "empty.obj",
-    "junk.obj", "../outside.obj", "spectrum.csv", "", " ", "\x00", "~", "/",
-    "__import__('os').system('touch pwned')", "${HOME}", "nan", "1e309",
-    "~no-such-user-relview/cube.obj", "n" * 300 + ".obj", "/dev/zero", "/proc/self/mem",
-    "a\x00b.obj", "\udc80.obj", "spectra/../cube.obj",
+    "box",
+    "sphere",
+    "cylinder",
+    "plane",
+    "mesh",
+    "pinhole",
+    "panorama",
+    "fisheye",
+    "black",
+    "stars",
+    "graticule",
+    "uniform",
+    "hyperbolic",
+    "orbit",
+    "path",
+    "spin",
+    "rolling",
+    "checks",
+    "grid",
+    "auto",
+    "D65",
+    "cube.obj",
+    "missing.obj",
+    "empty.obj",
+    "junk.obj",
+    "../outside.obj",
+    "spectrum.csv",
+    "",
+    " ",
+    "\x00",
+    "~",
+    "/",
+    "__import__('os').system('touch pwned')",
+    "${HOME}",
+    "nan",
+    "1e309",
+    "~no-such-user-relview/cube.obj",
+    "n" * 300 + ".obj",
+    "/dev/zero",
+    "/proc/self/mem",
+    "a\x00b.obj",
+    "\udc80.obj",
+    "spectra/../cube.obj",
 ]
 
 FLOATS = st.one_of(
     st.floats(allow_nan=True, allow_infinity=True),
-    st.sampled_from([0.0, -0.0, 1.0, -1.0, 0.5, 0.9999999999, 1.0000001, 1e308, -1e308,
-                     5e-324, 1e-300, 3.0e8, math.nan, math.inf, -math.inf]),
+    st.sampled_from(
+        [
+            0.0,
+            -0.0,
+            1.0,
+            -1.0,
+            0.5,
+            0.9999999999,
+            1.0000001,
+            1e308,
+            -1e308,
+            5e-324,
+            1e-300,
+            3.0e8,
+            math.nan,
+            math.inf,
+            -math.inf,
+        ]
+    ),
 )
 INTS = st.one_of(
     st.integers(min_value=-(2**63), max_value=2**63 - 1),
@@ -113,7 +233,9 @@ NUMERIC_LISTS = st.lists(st.one_of(INTS, FLOATS), min_size=0, max_size=4)
 # checks and the loader goes on to the next one (or accepts the scene).
 SMALL = st.one_of(st.floats(-2.0, 2.0), st.integers(0, 64), st.sampled_from([0.5, 0.99, 5000.0]))
 PLAUSIBLE = st.one_of(
-    SMALL, st.booleans(), st.sampled_from(KNOWN_STRINGS),
+    SMALL,
+    st.booleans(),
+    st.sampled_from(KNOWN_STRINGS),
     st.lists(SMALL, min_size=2, max_size=3),
     st.lists(st.lists(SMALL, min_size=3, max_size=3), min_size=1, max_size=4),
     st.dictionaries(st.sampled_from(KNOWN_KEYS), SMALL, max_size=3),
@@ -159,6 +281,7 @@ def _accepts_or_user_error(load):
 
 # ------------------------------------------------------------------ random structures
 
+
 @FUZZ_SETTINGS
 @given(data=st.dictionaries(KEYS, ANY_VALUE, max_size=6))
 def test_random_structures_load_or_raise_user_error(base_dir, data):
@@ -168,30 +291,88 @@ def test_random_structures_load_or_raise_user_error(base_dir, data):
 # A valid skeleton with random values put into the sections the loader reads.
 SECTION_KEYS = {
     "scene": ["title", "format"],
-    "render": ["resolution", "samples", "exposure", "seed", "effects", "shutter",
-               "shutter_samples"],
-    "camera": ["position", "look_at", "direction", "up", "fov", "time", "beta", "projection",
-               "motion"],
+    "render": [
+        "resolution",
+        "samples",
+        "exposure",
+        "seed",
+        "effects",
+        "shutter",
+        "shutter_samples",
+    ],
+    "camera": [
+        "position",
+        "look_at",
+        "direction",
+        "up",
+        "fov",
+        "time",
+        "beta",
+        "projection",
+        "motion",
+    ],
     "background": ["kind", "count", "seed", "temperature", "luminance", "spacing", "width"],
     "animation": ["start", "end", "frames", "fps"],
 }
-BODY_KEYS = ["name", "shape", "rotation", "size", "radius", "height", "detail", "file",
-             "scale", "center"]
-MOTION_KEYS = ["kind", "beta", "position", "time", "acceleration", "center", "radius",
-               "period", "axis", "phase", "times", "positions", "base", "angular_velocity",
-               "center_offset"]
-SURFACE_KEYS = ["blackbody", "scale", "line", "lines", "spectrum", "color", "lamp",
-                "luminance", "texture", "pattern"]
+BODY_KEYS = [
+    "name",
+    "shape",
+    "rotation",
+    "size",
+    "radius",
+    "height",
+    "detail",
+    "file",
+    "scale",
+    "center",
+]
+MOTION_KEYS = [
+    "kind",
+    "beta",
+    "position",
+    "time",
+    "acceleration",
+    "center",
+    "radius",
+    "period",
+    "axis",
+    "phase",
+    "times",
+    "positions",
+    "base",
+    "angular_velocity",
+    "center_offset",
+]
+SURFACE_KEYS = [
+    "blackbody",
+    "scale",
+    "line",
+    "lines",
+    "spectrum",
+    "color",
+    "lamp",
+    "luminance",
+    "texture",
+    "pattern",
+]
 
 
 def _skeleton(mesh: bool = False):
-    shape = ({"shape": "mesh", "file": "cube.obj"} if mesh
-             else {"shape": "sphere", "radius": 1.0, "detail": 1})
+    shape = (
+        {"shape": "mesh", "file": "cube.obj"}
+        if mesh
+        else {"shape": "sphere", "radius": 1.0, "detail": 1}
+    )
     return {
         "camera": {"position": [0.0, -5.0, 0.0], "look_at": [0.0, 0.0, 0.0]},
-        "body": [{"name": "b", **shape,
-                  "motion": {"kind": "uniform", "beta": [0.5, 0.0, 0.0]},
-                  "surface": {"blackbody": 5000.0}}],
+        "body": [
+            {
+                "name": "b",
+                **shape,
+                "motion": {"kind": "uniform", "beta": [0.5, 0.0, 0.0]},
+                "surface": {"blackbody": 5000.0},
+            }
+        ],
     }
 
 
@@ -210,8 +391,7 @@ def skeleton_edits(draw):
         else:
             scene["body"][0]["surface"] = draw(FILE_SURFACES)
     for _ in range(draw(st.integers(1, 4))):
-        where = draw(st.sampled_from(["section", "body", "motion", "camera-motion",
-                                      "surface"]))
+        where = draw(st.sampled_from(["section", "body", "motion", "camera-motion", "surface"]))
         if where == "section":
             section = draw(st.sampled_from(sorted(SECTION_KEYS)))
             key = draw(st.sampled_from(SECTION_KEYS[section]))
@@ -225,8 +405,13 @@ def skeleton_edits(draw):
             camera.pop("position", None)
             motion = camera.get("motion")
             if not isinstance(motion, dict):  # absent, or a random value from "section"
-                motion = camera["motion"] = {"kind": draw(st.sampled_from(
-                    ["uniform", "hyperbolic", "orbit", "path", "spin", "rolling"]))}
+                motion = camera["motion"] = {
+                    "kind": draw(
+                        st.sampled_from(
+                            ["uniform", "hyperbolic", "orbit", "path", "spin", "rolling"]
+                        )
+                    )
+                }
             motion[draw(st.sampled_from(MOTION_KEYS))] = draw(ANY_VALUE)
         else:
             surface = {draw(st.sampled_from(SURFACE_KEYS)): draw(ANY_VALUE)}
@@ -241,6 +426,7 @@ def test_random_values_in_known_keys_load_or_raise_user_error(base_dir, data):
 
 
 # ------------------------------------------------------------------ demo scene mutations
+
 
 def _demo_dicts():
     return [tomllib.loads(p.read_text()) for p in DEMO_SCENES]
@@ -293,8 +479,10 @@ def test_mutated_demo_scenes_load_or_raise_user_error(base_dir, data):
 
 # ------------------------------------------------------------------ text mutations
 
-TOML_CHARS = st.sampled_from(list('[]{}=".,\'#\n\\ 0123456789-+eE_abcxyz') + ["nan", "inf",
-                             "true", "\ufeff", "\x00", "\xff", '"""', "[[body]]", "1e999"])
+TOML_CHARS = st.sampled_from(
+    list("[]{}=\".,'#\n\\ 0123456789-+eE_abcxyz")
+    + ["nan", "inf", "true", "\ufeff", "\x00", "\xff", '"""', "[[body]]", "1e999"]
+)
 
 
 @st.composite
@@ -328,19 +516,21 @@ def test_truncated_or_binary_scene_files_raise_user_error(base_dir, raw, cut):
 
 # ------------------------------------------------------------------ long run
 
+
 @pytest.mark.slow
-@settings(max_examples=max(EXAMPLES, 5000), deadline=None,
-          suppress_health_check=list(HealthCheck))
-@given(data=st.one_of(demo_mutations(), skeleton_edits(),
-                      st.dictionaries(KEYS, ANY_VALUE, max_size=6)))
+@settings(max_examples=max(EXAMPLES, 5000), deadline=None, suppress_health_check=list(HealthCheck))
+@given(
+    data=st.one_of(demo_mutations(), skeleton_edits(), st.dictionaries(KEYS, ANY_VALUE, max_size=6))
+)
 def test_long_fuzz_run(base_dir, data):
     _accepts_or_user_error(lambda: scene_from_dict(data, base_dir=base_dir, source="fuzz.toml"))
 
 
 # ------------------------------------------------------------------ whole renders (slow)
 
-NUMERIC_FACTORS = st.sampled_from([-1.0, 0.0, 1e-300, 1e-9, 0.5, 0.999, 1.001, 2.0, 10.0,
-                                   1e6, 1e100, 1e300])
+NUMERIC_FACTORS = st.sampled_from(
+    [-1.0, 0.0, 1e-300, 1e-9, 0.5, 0.999, 1.001, 2.0, 10.0, 1e6, 1e100, 1e300]
+)
 
 
 def _numeric_leaves(node, path=()):
@@ -377,8 +567,7 @@ def scaled_demo_scenes(draw):
 
 @pytest.mark.slow
 @pytest.mark.skipif(not DEMO_SCENES, reason="no demo scenes in scenes/")
-@settings(max_examples=max(EXAMPLES, 1000), deadline=None,
-          suppress_health_check=list(HealthCheck))
+@settings(max_examples=max(EXAMPLES, 1000), deadline=None, suppress_health_check=list(HealthCheck))
 @given(case=scaled_demo_scenes())
 def test_scaled_demo_scenes_render_or_raise_user_error(case):
     """Past the loader: a scene that loads must render (tiny) or raise UserError."""
@@ -452,9 +641,16 @@ def test_deeply_nested_dicts_load_or_raise_user_error(base_dir, depth, key):
 _SHIFT_SCENE = {
     "render": {"resolution": [16, 9], "exposure": 5.0e6},
     "camera": {"position": [0.0, -3.0, 0.0], "look_at": [0.0, 0.0, 0.0], "fov": 90.0},
-    "body": [{"name": "ball", "shape": "sphere", "radius": 1.0, "detail": 2,
-              "motion": {"beta": [0.9, 0.0, 0.0], "position": [1.0, 0.0, 0.0]},
-              "surface": {"blackbody": 4500.0}}],
+    "body": [
+        {
+            "name": "ball",
+            "shape": "sphere",
+            "radius": 1.0,
+            "detail": 2,
+            "motion": {"beta": [0.9, 0.0, 0.0], "position": [1.0, 0.0, 0.0]},
+            "surface": {"blackbody": 4500.0},
+        }
+    ],
 }
 
 
@@ -469,16 +665,20 @@ def _shifted(dt: float, dx: tuple) -> dict:
 
 
 @settings(FUZZ_SETTINGS, max_examples=min(EXAMPLES, 25))  # each example renders twice
-@given(dt=st.one_of(st.floats(-1e300, 1e300, allow_nan=False),
-                    st.integers(-60, 60).map(lambda k: float(2.0**k))),
-       dx=st.tuples(*[st.integers(-60, 60).map(lambda k: float(2.0**k))] * 3))
+@given(
+    dt=st.one_of(
+        st.floats(-1e300, 1e300, allow_nan=False), st.integers(-60, 60).map(lambda k: float(2.0**k))
+    ),
+    dx=st.tuples(*[st.integers(-60, 60).map(lambda k: float(2.0**k))] * 3),
+)
 def test_time_and_space_shifts_render_the_same_or_raise_user_error(base_dir, dt, dx):
     """A shifted scene either renders exactly the unshifted picture (power-of-two position
     shifts keep every coordinate exact in float64) or, beyond what float64 resolves,
     is refused as a user error; it never renders a different picture."""
     reference = relview.render(scene_from_dict(_SHIFT_SCENE, base_dir=base_dir))
     scene = _accepts_or_user_error(
-        lambda: scene_from_dict(_shifted(dt, dx), base_dir=base_dir, source="fuzz.toml"))
+        lambda: scene_from_dict(_shifted(dt, dx), base_dir=base_dir, source="fuzz.toml")
+    )
     if scene is None:
         return
     frame = relview.render(scene)

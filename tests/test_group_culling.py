@@ -31,10 +31,16 @@ def random_bodies(rng, n):
         beta = speed * direction / np.linalg.norm(direction)
         position = rng.uniform(-4.0, 4.0, size=3)
         shape = ("sphere", "box")[k % 2]
-        keys = ({"radius": rng.uniform(0.05, 0.8), "detail": 1} if shape == "sphere"
-                else {"size": rng.uniform(0.05, 1.5, size=3), "rotation": rng.uniform(0, 90, 3)})
-        bodies.append(moving_body(f"b{k}", shape, beta=beta, position=position,
-                                  time=rng.uniform(-1e-8, 1e-8), **keys))
+        keys = (
+            {"radius": rng.uniform(0.05, 0.8), "detail": 1}
+            if shape == "sphere"
+            else {"size": rng.uniform(0.05, 1.5, size=3), "rotation": rng.uniform(0, 90, 3)}
+        )
+        bodies.append(
+            moving_body(
+                f"b{k}", shape, beta=beta, position=position, time=rng.uniform(-1e-8, 1e-8), **keys
+            )
+        )
     return bodies
 
 
@@ -50,16 +56,37 @@ def unit(v):
 def full_loop(tracer, event, d, k_time):
     """The kernel walking every group (no culling tree)."""
     p = tracer.packed
-    return trace._cast_packets(event[None], d, k_time, tracer.g_origin, tracer.g_matrix,
-                               p.root, p.nodes, p.links, p.tris, 1e-9)
+    return trace._cast_packets(
+        event[None],
+        d,
+        k_time,
+        tracer.g_origin,
+        tracer.g_matrix,
+        p.root,
+        p.nodes,
+        p.links,
+        p.tris,
+        1e-9,
+    )
 
 
 def culled(tracer, event, d, k_time):
     p = tracer.packed
     tree = tracer._group_culling(event, d, k_time, tracer.g_origin)
     assert tree is not None  # the tree is in use
-    out = trace._cast_packets(event[None], d, k_time, tracer.g_origin, tracer.g_matrix, p.root,
-                              p.nodes, p.links, p.tris, 1e-9, tree)
+    out = trace._cast_packets(
+        event[None],
+        d,
+        k_time,
+        tracer.g_origin,
+        tracer.g_matrix,
+        p.root,
+        p.nodes,
+        p.links,
+        p.tris,
+        1e-9,
+        tree,
+    )
     return out, tree[3]
 
 
@@ -88,8 +115,9 @@ def camera_directions(rng, n_side, towards):
     b = np.cross(axis, a)
     s = np.linspace(-1.2, 1.2, n_side)
     grid = axis + s[:, None, None] * a + s[None, :, None] * b
-    return np.ascontiguousarray(np.concatenate([unit(grid.reshape(-1, 3)),
-                                                unit(rng.normal(size=(4096, 3)))]))
+    return np.ascontiguousarray(
+        np.concatenate([unit(grid.reshape(-1, 3)), unit(rng.normal(size=(4096, 3)))])
+    )
 
 
 @pytest.mark.parametrize("delay", [True, False])
@@ -112,8 +140,9 @@ def test_culled_cast_equals_the_loop_over_every_group(seed, delay, contraction):
         lo, hi = boxes[group, :3], boxes[group, 3:]
         assert np.all((d[hit] >= lo) & (d[hit] <= hi))  # every hit inside its group's box
         # and the boxes cull: a ray lies in few of the 60 groups' boxes
-        inside = np.all((d[:, None] >= boxes[None, :, :3]) & (d[:, None] <= boxes[None, :, 3:]),
-                        axis=2)
+        inside = np.all(
+            (d[:, None] >= boxes[None, :, :3]) & (d[:, None] <= boxes[None, :, 3:]), axis=2
+        )
         assert inside.mean() < 0.25
 
 
@@ -121,9 +150,16 @@ def test_fast_bodies_seen_edge_on_and_a_camera_inside_a_group_ball():
     """Bodies at 0.99c passing close to the start event (apparent images stretched over
     large angles), and one whose bounding ball holds the event (its box is the sphere)."""
     rng = np.random.default_rng(7)
-    bodies = [moving_body(f"f{k}", "box", beta=0.99 * unit(rng.normal(size=(1, 3)))[0],
-                          position=rng.uniform(-1.0, 1.0, size=3), size=(0.3, 2.0, 0.3))
-              for k in range(20)]
+    bodies = [
+        moving_body(
+            f"f{k}",
+            "box",
+            beta=0.99 * unit(rng.normal(size=(1, 3)))[0],
+            position=rng.uniform(-1.0, 1.0, size=3),
+            size=(0.3, 2.0, 0.3),
+        )
+        for k in range(20)
+    ]
     bodies.append(moving_body("around", "box", size=(3.0, 3.0, 3.0), position=(0.5, 0.0, 0.0)))
     tracer = tracer_for(bodies, Effects())
     event = np.array([0.0, 0.2, -0.1, 0.3])
@@ -156,11 +192,20 @@ def test_many_body_render_is_unchanged_by_culling(monkeypatch):
     rng = np.random.default_rng(11)
     bodies = random_bodies(rng, 40)
     mesh_body = bodies[0]
-    bodies.append(Body(name="rocket", shape="sphere", radius=0.5, detail=2,
-                       surface=mesh_body.surface,
-                       motion=HyperbolicMotion(acceleration=np.array([3e16, 0.0, 0.0]),
-                                               position=np.array([-2.0, 4.0, 0.0]),
-                                               time=-2e-8)))
+    bodies.append(
+        Body(
+            name="rocket",
+            shape="sphere",
+            radius=0.5,
+            detail=2,
+            surface=mesh_body.surface,
+            motion=HyperbolicMotion(
+                acceleration=np.array([3e16, 0.0, 0.0]),
+                position=np.array([-2.0, 4.0, 0.0]),
+                time=-2e-8,
+            ),
+        )
+    )
     s = camera_scene(bodies, position=(0.0, -12.0, 0.0), fov=80.0, resolution=(96, 54))
     with_culling = render(s)
     monkeypatch.setattr(trace, "CULL_MIN_GROUPS", 10**9)

@@ -55,7 +55,9 @@ def _shifted_flyby(tmp_path: Path, time_s: float, offset=(0.0, 0.0, 0.0)) -> Pat
     text = text.replace("[camera]\n", f"[camera]\ntime = {time_s!r}\n")
     text = text.replace("[body.motion]\n", f"[body.motion]\ntime = {time_s!r}\n")
     ox, oy, oz = offset
-    text = text.replace("position = [0.0, -3.0, 0.0]", f"position = [{ox!r}, {-3.0 + oy!r}, {oz!r}]")
+    text = text.replace(
+        "position = [0.0, -3.0, 0.0]", f"position = [{ox!r}, {-3.0 + oy!r}, {oz!r}]"
+    )
     text = text.replace("look_at = [0.0, 0.0, 0.0]", f"look_at = [{ox!r}, {oy!r}, {oz!r}]")
     text = text.replace("position = [2.0, 0.0, 0.0]", f"position = [{2.0 + ox!r}, {oy!r}, {oz!r}]")
     return write_text(tmp_path, text, f"flyby_{time_s!r}_{ox!r}.toml")
@@ -72,9 +74,12 @@ def test_shifting_every_time_leaves_the_picture_and_layers_unchanged(tmp_path):
         # the emission times themselves move with the shift; each is t_E - l/c, rounded
         # once at the size of t_E, so it matches to a few ulp of the shifted time
         hit = reference.layers["body"] >= 0
-        np.testing.assert_allclose(frame.layers["emit_time"][hit] - shift,
-                                   reference.layers["emit_time"][hit],
-                                   rtol=0, atol=4 * np.spacing(shift))
+        np.testing.assert_allclose(
+            frame.layers["emit_time"][hit] - shift,
+            reference.layers["emit_time"][hit],
+            rtol=0,
+            atol=4 * np.spacing(shift),
+        )
 
 
 def test_shifting_every_position_leaves_the_picture_unchanged(tmp_path):
@@ -92,29 +97,50 @@ def test_a_time_float64_cannot_resolve_is_a_clear_error(tmp_path):
         load_scene(path)
     # a fresh process, so that any NumPy warning would reach its stderr
     command = "import sys; from relview.cli.app import main; sys.exit(main(sys.argv[1:]))"
-    run = subprocess.run([sys.executable, "-c", command, "render", str(path), "-o",
-                          str(tmp_path / "out.png"), "--quiet"], capture_output=True, text=True)
+    run = subprocess.run(
+        [
+            sys.executable,
+            "-c",
+            command,
+            "render",
+            str(path),
+            "-o",
+            str(tmp_path / "out.png"),
+            "--quiet",
+        ],
+        capture_output=True,
+        text=True,
+    )
     assert run.returncode == 2
     assert "too large to compute with" in run.stderr
     assert "Warning" not in run.stderr and "Traceback" not in run.stderr
     assert not (tmp_path / "out.png").exists()
 
 
-@pytest.mark.parametrize("motion, key", [
-    ('kind = "uniform"\nbeta = [0.5, 0.0, 0.0]\ntime = 1e17', "time"),
-    ('kind = "uniform"\nbeta = [0.5, 0.0, 0.0]\nposition = [0.0, 1e16, 0.0]', "position"),
-    ('kind = "hyperbolic"\nacceleration = [1e3, 0.0, 0.0]\ntime = -1e20', "time"),
-    ('kind = "orbit"\nradius = 5.0\nbeta = 0.1\ncenter = [1e18, 0.0, 0.0]', "center"),
-    ('kind = "path"\ntimes = [0.0, 1e16]\npositions = [[0.0, 0.0, 0.0], [1.0, 0.0, 0.0]]',
-     "times"),
-    ('kind = "spin"\nangular_velocity = 1.0\ntime = 1e16', "time"),
-    ('kind = "rolling"\nradius = 1.0\nbeta = [0.5, 0.0, 0.0]\nposition = [0.0, 0.0, -1e17]',
-     "position"),
-])
+@pytest.mark.parametrize(
+    "motion, key",
+    [
+        ('kind = "uniform"\nbeta = [0.5, 0.0, 0.0]\ntime = 1e17', "time"),
+        ('kind = "uniform"\nbeta = [0.5, 0.0, 0.0]\nposition = [0.0, 1e16, 0.0]', "position"),
+        ('kind = "hyperbolic"\nacceleration = [1e3, 0.0, 0.0]\ntime = -1e20', "time"),
+        ('kind = "orbit"\nradius = 5.0\nbeta = 0.1\ncenter = [1e18, 0.0, 0.0]', "center"),
+        (
+            'kind = "path"\ntimes = [0.0, 1e16]\npositions = [[0.0, 0.0, 0.0], [1.0, 0.0, 0.0]]',
+            "times",
+        ),
+        ('kind = "spin"\nangular_velocity = 1.0\ntime = 1e16', "time"),
+        (
+            'kind = "rolling"\nradius = 1.0\nbeta = [0.5, 0.0, 0.0]\nposition = [0.0, 0.0, -1e17]',
+            "position",
+        ),
+    ],
+)
 def test_each_motion_kind_refuses_unresolvable_times_and_positions(tmp_path, motion, key):
-    text = ('[camera]\nposition = [0.0, -10.0, 0.0]\nlook_at = [0.0, 0.0, 0.0]\n'
-            '[[body]]\nname = "b"\nshape = "sphere"\nradius = 1.0\n'
-            f'[body.motion]\n{motion}\n[body.surface]\nblackbody = 5000.0\n')
+    text = (
+        "[camera]\nposition = [0.0, -10.0, 0.0]\nlook_at = [0.0, 0.0, 0.0]\n"
+        '[[body]]\nname = "b"\nshape = "sphere"\nradius = 1.0\n'
+        f"[body.motion]\n{motion}\n[body.surface]\nblackbody = 5000.0\n"
+    )
     with pytest.raises(SceneError, match=rf"\[body.motion\] {key}.*too large to compute with"):
         load_scene(write_text(tmp_path, text))
 

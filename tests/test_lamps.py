@@ -32,18 +32,33 @@ def grey(value: float = 0.5) -> Reflective:
     return s
 
 
-def plate(name="plate", size=(8.0, 8.0), beta=(0.0, 0.0, 0.0), position=(0.0, 0.0, 0.0),
-          surface=None, time=0.0) -> Body:
-    return Body(name=name, shape="plane", size=np.array(size, float),
-                surface=surface or grey(),
-                motion=UniformMotion(beta=np.array(beta, float), position=np.array(position, float),
-                                     time=time))
+def plate(
+    name="plate",
+    size=(8.0, 8.0),
+    beta=(0.0, 0.0, 0.0),
+    position=(0.0, 0.0, 0.0),
+    surface=None,
+    time=0.0,
+) -> Body:
+    return Body(
+        name=name,
+        shape="plane",
+        size=np.array(size, float),
+        surface=surface or grey(),
+        motion=UniformMotion(
+            beta=np.array(beta, float), position=np.array(position, float), time=time
+        ),
+    )
 
 
 def point_lamp(position, power=500.0, temperature=3000.0, beta=(0.0, 0.0, 0.0), **keys) -> Lamp:
-    return Lamp(name="lamp", spectrum=LampSpectrum.blackbody(temperature), power=power,
-                motion=UniformMotion(beta=np.array(beta, float), position=np.array(position, float)),
-                **keys)
+    return Lamp(
+        name="lamp",
+        spectrum=LampSpectrum.blackbody(temperature),
+        power=power,
+        motion=UniformMotion(beta=np.array(beta, float), position=np.array(position, float)),
+        **keys,
+    )
 
 
 def luminous_efficacy_colour_science(temperature: float) -> float:
@@ -82,7 +97,9 @@ def test_lamp_sections_are_read(tmp_path):
     from relview.scene.model import load_scene
 
     path = tmp_path / "s.toml"
-    path.write_text(SCENE + """
+    path.write_text(
+        SCENE
+        + """
 [[lamp]]
 name = "mast"
 blackbody = 3000.0
@@ -99,7 +116,8 @@ illuminant = "D65"
 direction = [0.0, -1.0, 1.0]
 irradiance = 800.0
 frame_beta = [0.0, 0.0, 0.0]
-""")
+"""
+    )
     scene = load_scene(path)
     mast, sun = scene.lamps
     assert mast.power == 500.0 and mast.radius == 0.2 and not mast.distant
@@ -108,14 +126,19 @@ frame_beta = [0.0, 0.0, 0.0]
     assert scene.bodies[0].surface.scene_lit
 
 
-@pytest.mark.parametrize("extra, message", [
-    ('name = "a"\nblackbody = 3000.0\npowr = 1.0\n', "powr"),
-    ('name = "a"\nblackbody = 3000.0\ndirection = [0.0, 0.0, 1.0]\nirradiance = 5.0\npower = 1.0\n',
-     "distant lamp"),
-    ('name = "a"\npower = 1.0\n', "exactly one spectrum key"),
-    ('name = "a"\nblackbody = 3000.0\nblackbody_k = 1\npower = 1.0\n', "blackbody_k"),
-    ('name = "a"\nblackbody = 3000.0\npower = -1.0\n', "> 0"),
-])
+@pytest.mark.parametrize(
+    "extra, message",
+    [
+        ('name = "a"\nblackbody = 3000.0\npowr = 1.0\n', "powr"),
+        (
+            'name = "a"\nblackbody = 3000.0\ndirection = [0.0, 0.0, 1.0]\nirradiance = 5.0\npower = 1.0\n',
+            "distant lamp",
+        ),
+        ('name = "a"\npower = 1.0\n', "exactly one spectrum key"),
+        ('name = "a"\nblackbody = 3000.0\nblackbody_k = 1\npower = 1.0\n', "blackbody_k"),
+        ('name = "a"\nblackbody = 3000.0\npower = -1.0\n', "> 0"),
+    ],
+)
 def test_bad_lamp_keys_are_named(tmp_path, extra, message):
     from relview.errors import SceneError
     from relview.scene.model import load_scene
@@ -146,8 +169,12 @@ def test_lambert_and_inverse_square_at_rest():
     of the 3000 K Planckian lamp, per CIE 15 from colour-science's tables)."""
     rho, power, temp = 0.5, 500.0, 3000.0
     lamp_at = np.array([0.7, -0.4, 2.0])
-    scene = camera_scene([plate(surface=grey(rho))], position=(0.0, -4.0, 3.0),
-                         look_at=(0.0, 0.0, 0.0), resolution=(40, 30))
+    scene = camera_scene(
+        [plate(surface=grey(rho))],
+        position=(0.0, -4.0, 3.0),
+        look_at=(0.0, 0.0, 0.0),
+        resolution=(40, 30),
+    )
     frame = render(scene.replace(lamps=[point_lamp(lamp_at, power, temp)]))
     hit = frame.layers["body"] == 0
     x = frame.layers["emit_position"][hit]
@@ -168,10 +195,13 @@ def test_distant_lamp_at_rest():
     (Lambert; K of CIE D65 from colour-science, CIE 15)."""
     colour = _colour()
     rho, e0 = 0.4, 600.0
-    sun = Lamp(name="sun", spectrum=LampSpectrum.illuminant("D65"),
-               direction=np.array([0.0, 1.0, 1.0]) / math.sqrt(2), irradiance=e0)
-    scene = camera_scene([plate(surface=grey(rho))], position=(0.0, -4.0, 3.0),
-                         resolution=(20, 12))
+    sun = Lamp(
+        name="sun",
+        spectrum=LampSpectrum.illuminant("D65"),
+        direction=np.array([0.0, 1.0, 1.0]) / math.sqrt(2),
+        irradiance=e0,
+    )
+    scene = camera_scene([plate(surface=grey(rho))], position=(0.0, -4.0, 3.0), resolution=(20, 12))
     frame = render(scene.replace(lamps=[sun]))
     hit = frame.layers["body"] == 0
     cmfs = colour.MSDS_CMFS["CIE 1931 2 Degree Standard Observer"]
@@ -199,8 +229,9 @@ def test_grey_body_shows_lamp_spectrum_shifted_by_d_in_times_d_out():
     temp = 4000.0
     wall = plate(beta=(0.0, 0.5, 0.0), position=(0.0, 3.0, 0.0), size=(30.0, 30.0))
     wall.rotation = np.array([90.0, 0.0, 0.0])  # facing the camera and the lamp (along y)
-    scene = camera_scene([wall], position=(0.0, -3.0, 0.0), look_at=(0.0, 10.0, 0.0),
-                         resolution=(16, 12), fov=20.0)
+    scene = camera_scene(
+        [wall], position=(0.0, -3.0, 0.0), look_at=(0.0, 10.0, 0.0), resolution=(16, 12), fov=20.0
+    )
     frame = render(scene.replace(lamps=[point_lamp((0.0, -2.0, 0.5), 5e4, temp)]))
     hit = frame.layers["body"] == 0
     assert hit.sum() > 50
@@ -213,8 +244,9 @@ def test_grey_body_shows_lamp_spectrum_shifted_by_d_in_times_d_out():
     xyz = frame.layers["xyz"][hit]
     got = xyz[:, :2] / xyz.sum(axis=1)[:, None]
     for g, dt in zip(got[::7], d_tot[::7], strict=False):
-        ref = colour.XYZ_to_xy(colour.sd_to_XYZ(colour.sd_blackbody(temp * dt, cmfs.shape),
-                                                cmfs, method="Integration"))
+        ref = colour.XYZ_to_xy(
+            colour.sd_to_XYZ(colour.sd_blackbody(temp * dt, cmfs.shape), cmfs, method="Integration")
+        )
         assert np.max(np.abs(g - ref)) < 2e-3  # grey basis and 1-nm bins (measured 1e-3)
 
 
@@ -248,9 +280,14 @@ def test_narrow_line_lamp_keeps_its_power():
 
 def test_lamp_events_of_an_accelerated_lamp_match_the_retarded_solve():
     # vectorised over receiving events, against RigidKinematics.retarded one event at a time
-    lamp = Lamp(name="l", spectrum=LampSpectrum.blackbody(3000.0), power=1.0,
-                motion=HyperbolicMotion(acceleration=np.array([3e15, 0.0, 0.0]),
-                                        position=np.array([0.0, 2.0, 1.0])))
+    lamp = Lamp(
+        name="l",
+        spectrum=LampSpectrum.blackbody(3000.0),
+        power=1.0,
+        motion=HyperbolicMotion(
+            acceleration=np.array([3e15, 0.0, 0.0]), position=np.array([0.0, 2.0, 1.0])
+        ),
+    )
     rng = np.random.default_rng(3)
     events = np.column_stack([rng.uniform(0, 10, 6), rng.uniform(-3, 3, (6, 3))])
     ev, beta = illumination.lamp_events(lamp, events, Effects())
@@ -274,8 +311,13 @@ def test_shadow_of_a_moving_bar_on_a_wall_at_rest():
 
     big_h, h, length, beta = 4.0, 2.0, 1.0, 0.8
     gamma = 1.0 / math.sqrt(1 - beta**2)
-    bar = Body(name="bar", shape="box", size=np.array([length, 0.4, 1e-4]), surface=grey(),
-               motion=UniformMotion(beta=np.array([beta, 0, 0]), position=np.array([0, 0, h])))
+    bar = Body(
+        name="bar",
+        shape="box",
+        size=np.array([length, 0.4, 1e-4]),
+        surface=grey(),
+        motion=UniformMotion(beta=np.array([beta, 0, 0]), position=np.array([0, 0, h])),
+    )
     meshes = [(np.array(v), np.array(f)) for v, f in [_box_mesh(bar)]]
     tracer = Tracer(uniform_groups([bar], meshes, Effects()))
     lamp = point_lamp((0.0, 0.0, big_h))
@@ -288,8 +330,13 @@ def test_shadow_of_a_moving_bar_on_a_wall_at_rest():
     f = (big_h - h) / big_h
 
     def edge(sign):
-        return brentq(lambda x: f * x - beta * (t - (1 - f) * math.hypot(x, big_h))
-                      - sign * length / (2 * gamma), -5.0, 10.0)
+        return brentq(
+            lambda x: (
+                f * x - beta * (t - (1 - f) * math.hypot(x, big_h)) - sign * length / (2 * gamma)
+            ),
+            -5.0,
+            10.0,
+        )
 
     step = xs[1] - xs[0]
     assert abs(dark.min() - edge(-1)) < 2 * step
@@ -316,9 +363,15 @@ def test_shadow_of_an_accelerating_bar_on_a_wall_at_rest():
     from relview.kinematics.lorentz import C
 
     big_h, h, length, rindler = 4.0, 2.0, 1.0, 2.0
-    bar = Body(name="bar", shape="box", size=np.array([length, 0.4, 1e-4]), surface=grey(),
-               motion=HyperbolicMotion(acceleration=np.array([C**2 / rindler, 0, 0]),
-                                       position=np.array([0.0, 0.0, h])))
+    bar = Body(
+        name="bar",
+        shape="box",
+        size=np.array([length, 0.4, 1e-4]),
+        surface=grey(),
+        motion=HyperbolicMotion(
+            acceleration=np.array([C**2 / rindler, 0, 0]), position=np.array([0.0, 0.0, h])
+        ),
+    )
     meshes = [tuple(np.array(a) for a in _box_mesh(bar))]
     scene = SimpleNamespace(bodies=[bar])
     lamp = point_lamp((0.0, 0.0, big_h))
@@ -329,21 +382,30 @@ def test_shadow_of_an_accelerating_bar_on_a_wall_at_rest():
         return -rindler + math.sqrt((rindler + p) ** 2 + ct * ct)
 
     def edge(sign):
-        return brentq(lambda x: f * x - end(sign * length / 2, t - (1 - f) * math.hypot(x, big_h)),
-                      -5.0, 10.0)
+        return brentq(
+            lambda x: f * x - end(sign * length / 2, t - (1 - f) * math.hypot(x, big_h)), -5.0, 10.0
+        )
 
     camera = np.array([t + 6.0, 1.0, -6.0, 1.0])  # ct, x: an exposure event seeing the floor
-    exposure_tracer = Tracer(lightcone.snapshot_groups(scene, meshes, [0], camera, Effects(),
-                                                       1e-5))
-    occluders = illumination.RetardedOccluders(scene, meshes, [0], [], exposure_tracer, camera,
-                                               tolerance=1e-5, cluster_angle=2e-4,
-                                               max_clusters=32)
+    exposure_tracer = Tracer(lightcone.snapshot_groups(scene, meshes, [0], camera, Effects(), 1e-5))
+    occluders = illumination.RetardedOccluders(
+        scene,
+        meshes,
+        [0],
+        [],
+        exposure_tracer,
+        camera,
+        tolerance=1e-5,
+        cluster_angle=2e-4,
+        max_clusters=32,
+    )
 
     def dark_edges(tracer, lo, hi, n=401):
         xs = np.linspace(lo, hi, n)
         events = np.column_stack([np.full(n, t), xs, np.zeros(n), np.zeros(n)])
-        term = illumination.lamp_term(lamp, tracer, events, np.zeros((n, 3)),
-                                      np.tile([0.0, 0.0, 1.0], (n, 1)), Effects())
+        term = illumination.lamp_term(
+            lamp, tracer, events, np.zeros((n, 3)), np.tile([0.0, 0.0, 1.0], (n, 1)), Effects()
+        )
         return xs[term.visible == 0], xs[1] - xs[0]
 
     beta_max = t / math.hypot(rindler + length / 2, t)  # the front end, the fastest point
@@ -353,8 +415,10 @@ def test_shadow_of_an_accelerating_bar_on_a_wall_at_rest():
         got = dark.min() if sign < 0 else dark.max()
         bound = 2 * step + beta_max * occluders.spread / f
         # measured: errors 2.2e-3 and 1.0e-3 m, spread 5.3e-3 m, bound 8.0e-3 m
-        print(f"edge {sign:+d}: error {got - ref:.2e} m, spread {occluders.spread:.2e} m, "
-              f"bound {bound:.2e} m")
+        print(
+            f"edge {sign:+d}: error {got - ref:.2e} m, spread {occluders.spread:.2e} m, "
+            f"bound {bound:.2e} m"
+        )
         assert abs(got - ref) <= bound, (sign, got, ref, bound)
         old, _ = dark_edges(exposure_tracer, -2.0, 6.0, 401)
         old_edge = old.min() if sign < 0 else old.max()
@@ -378,11 +442,17 @@ def test_direct_lighting_at_rest_matches_a_classical_ray_tracer():
 
     rho, power, temp = 0.6, 2000.0, 3500.0
     floor = plate(size=(10.0, 10.0), surface=grey(rho))
-    cube = Body(name="cube", shape="box", size=np.array([1.0, 1.0, 1.0]), surface=grey(rho),
-                motion=UniformMotion(position=np.array([0.3, 0.5, 0.5])))
+    cube = Body(
+        name="cube",
+        shape="box",
+        size=np.array([1.0, 1.0, 1.0]),
+        surface=grey(rho),
+        motion=UniformMotion(position=np.array([0.3, 0.5, 0.5])),
+    )
     lamp_at = np.array([-1.5, -0.5, 3.0])
-    scene = camera_scene([floor, cube], position=(2.0, -5.0, 3.0), look_at=(0.0, 0.5, 0.3),
-                         resolution=(64, 40))
+    scene = camera_scene(
+        [floor, cube], position=(2.0, -5.0, 3.0), look_at=(0.0, 0.5, 0.3), resolution=(64, 40)
+    )
     frame = render(scene.replace(lamps=[point_lamp(lamp_at, power, temp)]))
     meshes = []
     for b in (floor, cube):
@@ -414,14 +484,25 @@ def test_direct_lighting_at_rest_matches_a_classical_ray_tracer():
 
 
 def test_sphere_lamp_gives_a_soft_penumbra():
-    bar = Body(name="bar", shape="box", size=np.array([0.5, 4.0, 1e-3]), surface=grey(),
-               motion=UniformMotion(position=np.array([0.0, 0.0, 1.0])))
+    bar = Body(
+        name="bar",
+        shape="box",
+        size=np.array([0.5, 4.0, 1e-3]),
+        surface=grey(),
+        motion=UniformMotion(position=np.array([0.0, 0.0, 1.0])),
+    )
     tracer = Tracer(uniform_groups([bar], [_box_mesh(bar)], Effects()))
     lamp = point_lamp((0.0, 0.0, 3.0), radius=0.3, shadow_samples=64)
     xs = np.linspace(-1.5, 1.5, 301)
     events = np.column_stack([np.zeros(xs.size), xs, np.zeros(xs.size), np.zeros(xs.size)])
-    term = illumination.lamp_term(lamp, tracer, events, np.zeros((xs.size, 3)),
-                                  np.tile([0.0, 0.0, 1.0], (xs.size, 1)), Effects(delay=False))
+    term = illumination.lamp_term(
+        lamp,
+        tracer,
+        events,
+        np.zeros((xs.size, 3)),
+        np.tile([0.0, 0.0, 1.0], (xs.size, 1)),
+        Effects(delay=False),
+    )
     v = term.visible
     assert v[np.abs(xs) < 0.1].max() == 0.0 and v[np.abs(xs) > 1.0].min() == 1.0
     partial = (v > 0) & (v < 1)
@@ -463,8 +544,13 @@ def test_probe_reports_each_lamps_event_direction_doppler_and_shadow():
     assert seen.lit and seen.lit_fraction == 1.0
     # a box at rest across the light path (halfway, where the path is then)
     mid = 0.5 * (lamp_at + event)
-    box = Body(name="box", shape="box", size=np.array([0.6, 0.6, 0.6]), surface=grey(),
-               motion=UniformMotion(position=mid))
+    box = Body(
+        name="box",
+        shape="box",
+        size=np.array([0.6, 0.6, 0.6]),
+        surface=grey(),
+        motion=UniformMotion(position=mid),
+    )
     shaded = probe(scene.replace(bodies=[moving, box]), "plate", (0.0, 0.0, 0.0))
     assert not shaded.lamps[0].lit and shaded.lamps[0].lit_fraction == 0.0
 
@@ -473,8 +559,10 @@ def test_probe_command_prints_the_lamp_rows(tmp_path, capsys):
     from relview.cli.app import main
 
     path = tmp_path / "s.toml"
-    path.write_text(SCENE + '[[lamp]]\nname = "mast"\nblackbody = 3000.0\npower = 500.0\n'
-                    "[lamp.motion]\nposition = [0.0, 1.0, 3.0]\n")
+    path.write_text(
+        SCENE + '[[lamp]]\nname = "mast"\nblackbody = 3000.0\npower = 500.0\n'
+        "[lamp.motion]\nposition = [0.0, 1.0, 3.0]\n"
+    )
     assert main(["probe", str(path), "--body", "floor", "--point", "0,0,0"]) == 0
     out = capsys.readouterr().out
     assert "lamp mast: D_in" in out and "lamp mast: lit" in out and "yes" in out
@@ -528,8 +616,13 @@ def test_sphere_lamp_is_seen_as_a_glowing_sphere_of_its_power(beta):
     worst_xy = worst_y = 0.0
     for i in range(0, len(xyz), max(1, len(xyz) // 10)):
         sd = colour.sd_blackbody(temperature * doppler[i], cmfs.shape)  # W/(sr m2 nm)
-        ref = (683.0 * radiance * math.pi / (sigma * temperature**4)
-               * colour.sd_to_XYZ(sd, cmfs, method="Integration", k=1.0))
+        ref = (
+            683.0
+            * radiance
+            * math.pi
+            / (sigma * temperature**4)
+            * colour.sd_to_XYZ(sd, cmfs, method="Integration", k=1.0)
+        )
         worst_xy = max(worst_xy, np.max(np.abs(xyz[i, :2] / xyz[i].sum() - ref[:2] / ref.sum())))
         worst_y = max(worst_y, abs(xyz[i, 1] / ref[1] - 1.0))
     if beta == 0.0:

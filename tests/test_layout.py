@@ -21,7 +21,13 @@ LAYERS = [
     ("relview.geometry", "relview.light"),
     ("relview.imaging",),
     ("relview.scene",),
-    ("relview.frame_memory", "relview.renderer", "relview.probes", "relview.illumination", "relview.framing"),
+    (
+        "relview.frame_memory",
+        "relview.renderer",
+        "relview.probes",
+        "relview.illumination",
+        "relview.framing",
+    ),
     ("relview.figures", "relview.animation"),
     ("relview.cli",),
 ]
@@ -52,8 +58,9 @@ def _imports(name: str, path: Path, known: set[str]) -> set[str]:
                 anchor = package.split(".")[: len(package.split(".")) - node.level + 1]
                 base = ".".join(anchor + ([base] if base else []))
             # `from pkg import mod` imports the submodule pkg.mod when there is one
-            targets = [f"{base}.{a.name}" if f"{base}.{a.name}" in known else base
-                       for a in node.names]
+            targets = [
+                f"{base}.{a.name}" if f"{base}.{a.name}" in known else base for a in node.names
+            ]
         else:
             continue
         for t in targets:
@@ -137,6 +144,9 @@ def test_imports_point_down_the_layers(module):
 
 def test_command_line_is_imported_by_nothing_else():
     graph = import_graph()
-    users = [m for m, targets in graph.items()
-             if not m.startswith("relview.cli") and any(t.startswith("relview.cli") for t in targets)]
+    users = [
+        m
+        for m, targets in graph.items()
+        if not m.startswith("relview.cli") and any(t.startswith("relview.cli") for t in targets)
+    ]
     assert users == []

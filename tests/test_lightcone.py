@@ -35,7 +35,9 @@ def rays_covering(camera_event, targets, n=41):
     up = np.cross(right, fwd)
     x = (to @ right) / (to @ fwd)
     y = (to @ up) / (to @ fwd)
-    a, b = np.meshgrid(np.linspace(x.min() * 1.1, x.max() * 1.1, n), np.linspace(y.min() * 1.1, y.max() * 1.1, n))
+    a, b = np.meshgrid(
+        np.linspace(x.min() * 1.1, x.max() * 1.1, n), np.linspace(y.min() * 1.1, y.max() * 1.1, n)
+    )
     d = fwd + a.reshape(-1, 1) * right + b.reshape(-1, 1) * up
     return d / np.linalg.norm(d, axis=1)[:, None]
 
@@ -48,8 +50,12 @@ def cast(groups, camera_event, d, effects):
 @pytest.mark.parametrize("effects", [Effects(), Effects(delay=False), Effects(contraction=False)])
 def test_snapshot_converges_to_exact_uniform_method(effects):
     verts, faces = box_mesh()
-    motion = UniformMotion(beta=np.array([0.8, 0.2, 0.0]), position=np.array([0.0, 0.0, 0.0]), time=0.0)
-    body = Body(name="box", shape="mesh", surface=None, motion=motion, rotation=np.array([0.0, 0.0, 25.0]))
+    motion = UniformMotion(
+        beta=np.array([0.8, 0.2, 0.0]), position=np.array([0.0, 0.0, 0.0]), time=0.0
+    )
+    body = Body(
+        name="box", shape="mesh", surface=None, motion=motion, rotation=np.array([0.0, 0.0, 25.0])
+    )
     rot = body.rotation_matrix()
     meshes = [(verts @ rot.T, faces)]
     cam = np.array([0.0, 0.5, -2.5, 0.2])
@@ -75,7 +81,9 @@ def test_snapshot_converges_to_exact_uniform_method(effects):
         # against the exact caster: depth errors grow as 1/cos(incidence) near grazing rays,
         # so bound the 99th percentile and require the maximum to shrink with the tolerance
         dl = np.abs(hits.l[both] - ref.l[both]) / ref.l[both]
-        drest = np.linalg.norm(hits.rest_position[both] - ref.rest_position[both], axis=1) / ref.l[both]
+        drest = (
+            np.linalg.norm(hits.rest_position[both] - ref.rest_position[both], axis=1) / ref.l[both]
+        )
         assert np.quantile(dl, 0.99) <= 4 * tol and np.quantile(drest, 0.99) <= 4 * tol
         worst = max(dl.max(), drest.max())
         assert worst < previous or worst < 1e-12
@@ -86,7 +94,9 @@ def test_snapshot_converges_to_exact_uniform_method(effects):
 
 def test_snapshot_vertices_are_retarded_points_and_bary_maps_to_parent_face():
     verts, faces = box_mesh()
-    motion = RollingMotion(radius=0.5, beta=np.array([0.6, 0.0, 0.0]), position=np.array([0.0, 0.0, 0.5]))
+    motion = RollingMotion(
+        radius=0.5, beta=np.array([0.6, 0.0, 0.0]), position=np.array([0.0, 0.0, 0.5])
+    )
     cam = np.array([1.0, 0.3, -3.0, 0.4])
     snap = snapshot(motion, verts, faces, cam, Effects(), segments=3)
     ev, beta = motion.retarded(snap.body_coords, cam)
@@ -97,7 +107,11 @@ def test_snapshot_vertices_are_retarded_points_and_bary_maps_to_parent_face():
     for corner in range(3):
         v_idx = snap.faces[:, corner]
         u, v = snap.bary[v_idx, 0], snap.bary[v_idx, 1]
-        p = (1 - u - v)[:, None] * verts[f[:, 0]] + u[:, None] * verts[f[:, 1]] + v[:, None] * verts[f[:, 2]]
+        p = (
+            (1 - u - v)[:, None] * verts[f[:, 0]]
+            + u[:, None] * verts[f[:, 1]]
+            + v[:, None] * verts[f[:, 2]]
+        )
         np.testing.assert_allclose(p, snap.body_coords[v_idx], atol=1e-15)
     assert_watertight(snap)
     # the adaptive (red-green) mesh too, and its vertices are retarded points as well
@@ -108,7 +122,11 @@ def test_snapshot_vertices_are_retarded_points_and_bary_maps_to_parent_face():
     np.testing.assert_array_equal(adaptive.vertices, ev[:, 1:])
     f = faces[adaptive.parent_face]
     u, v = adaptive.bary[adaptive.faces[:, 0], 0], adaptive.bary[adaptive.faces[:, 0], 1]
-    p = (1 - u - v)[:, None] * verts[f[:, 0]] + u[:, None] * verts[f[:, 1]] + v[:, None] * verts[f[:, 2]]
+    p = (
+        (1 - u - v)[:, None] * verts[f[:, 0]]
+        + u[:, None] * verts[f[:, 1]]
+        + v[:, None] * verts[f[:, 2]]
+    )
     np.testing.assert_allclose(p, adaptive.body_coords[adaptive.faces[:, 0]], atol=1e-15)
 
 
@@ -130,7 +148,9 @@ def test_rolling_wheel_contact_point_seen_at_rest():
     wheel = trimesh.creation.cylinder(radius=0.5, height=0.2, sections=32)
     wheel.apply_transform(trimesh.transformations.rotation_matrix(np.pi / 2, [1, 0, 0]))
     verts, faces = np.asarray(wheel.vertices, float), np.asarray(wheel.faces, np.int64)
-    motion = RollingMotion(radius=0.5, beta=np.array([0.7, 0.0, 0.0]), position=np.array([0.0, 0.0, 0.5]))
+    motion = RollingMotion(
+        radius=0.5, beta=np.array([0.7, 0.0, 0.0]), position=np.array([0.0, 0.0, 0.5])
+    )
     contact = motion.contact_point() + np.array([0.0, -0.0999, 0.0])  # on the near face
     x0, _ = motion.state(contact[None], 0.0)  # touching the ground at t = 0
     d = np.array([0.2, 0.95, -0.25])
@@ -140,7 +160,9 @@ def test_rolling_wheel_contact_point_seen_at_rest():
     assert ev[0, 0] == pytest.approx(0.0, abs=1e-12) and np.linalg.norm(beta) < 1e-14
     body = Body(name="wheel", shape="mesh", surface=None, motion=motion)
     tol = 2e-3
-    (group,) = snapshot_groups(SimpleNamespace(bodies=[body]), [(verts, faces)], [0], cam, Effects(), tolerance=tol)
+    (group,) = snapshot_groups(
+        SimpleNamespace(bodies=[body]), [(verts, faces)], [0], cam, Effects(), tolerance=tol
+    )
     hits = cast([group], cam, d[None], Effects())
     assert hits.hit[0]
     np.testing.assert_allclose(hits.beta_emit[0], beta[0], atol=2 * tol)
@@ -155,10 +177,16 @@ def test_body_too_large_for_its_motion_is_a_scene_error():
     from relview.kinematics.orbit import OrbitMotion
 
     verts, faces = box_mesh()
-    body = Body(name="crate", shape="mesh", surface=None,
-                motion=OrbitMotion(center=np.zeros(3), radius=1.0, beta=0.9))
+    body = Body(
+        name="crate",
+        shape="mesh",
+        surface=None,
+        motion=OrbitMotion(center=np.zeros(3), radius=1.0, beta=0.9),
+    )
     with pytest.raises(SceneError, match=r'body "crate".*cannot follow this orbit'):
-        snapshot_groups(SimpleNamespace(bodies=[body]), [(verts * 3, faces)], [0], np.zeros(4), Effects())
+        snapshot_groups(
+            SimpleNamespace(bodies=[body]), [(verts * 3, faces)], [0], np.zeros(4), Effects()
+        )
 
 
 def test_rolling_wheel_snapshot_error_within_tolerance():
@@ -168,17 +196,25 @@ def test_rolling_wheel_snapshot_error_within_tolerance():
     wheel = trimesh.creation.cylinder(radius=0.5, height=0.2, sections=24)
     wheel.apply_transform(trimesh.transformations.rotation_matrix(np.pi / 2, [1, 0, 0]))
     verts, faces = np.asarray(wheel.vertices, float), np.asarray(wheel.faces, np.int64)
-    motion = RollingMotion(radius=0.5, beta=np.array([0.8, 0.0, 0.0]), position=np.array([0.0, 0.0, 0.5]))
+    motion = RollingMotion(
+        radius=0.5, beta=np.array([0.8, 0.0, 0.0]), position=np.array([0.0, 0.0, 0.5])
+    )
     cam = np.array([3.0, 1.0, -3.0, 1.2])
     body = Body(name="wheel", shape="mesh", surface=None, motion=motion)
     for tol in (1e-2, 1e-3):
-        (group,) = snapshot_groups(SimpleNamespace(bodies=[body]), [(verts, faces)], [0], cam, Effects(), tolerance=tol)
+        (group,) = snapshot_groups(
+            SimpleNamespace(bodies=[body]), [(verts, faces)], [0], cam, Effects(), tolerance=tol
+        )
         d = rays_covering(cam, group.vertices, n=61)
         hits = cast([group], cam, d, Effects())
         assert hits.hit.sum() > 800
         exact, beta = motion.retarded(hits.rest_position[hits.hit], cam)
-        miss = np.linalg.norm(exact[:, 1:] - hits.emit_event[hits.hit, 1:], axis=1) / hits.l[hits.hit]
-        assert miss.max() <= 1.5 * tol  # edges are tested at midpoints; interiors may exceed a little
+        miss = (
+            np.linalg.norm(exact[:, 1:] - hits.emit_event[hits.hit, 1:], axis=1) / hits.l[hits.hit]
+        )
+        assert (
+            miss.max() <= 1.5 * tol
+        )  # edges are tested at midpoints; interiors may exceed a little
         assert np.linalg.norm(beta - hits.beta_emit[hits.hit], axis=1).max() <= 1.5 * tol
 
 
@@ -195,16 +231,33 @@ def test_rendered_pixels_match_exact_probes_of_the_points_they_show():
     from relview.probes import probe_many
     from relview.scene.model import scene_from_dict
 
-    scene = scene_from_dict({
-        "render": {"resolution": [160, 90]},
-        "camera": {"position": [0.0, -4.0, 0.5], "look_at": [0.0, 0.0, 0.5], "time": 1.2e-8,
-                   "beta": [0.0, 0.3, 0.0]},
-        "body": [{"name": "wheel", "shape": "cylinder", "radius": 0.5, "height": 0.2,
-                  "rotation": [90.0, 0.0, 0.0],
-                  "motion": {"kind": "rolling", "radius": 0.5, "beta": [0.7, 0.0, 0.0],
-                             "position": [0.0, 0.0, 0.5]},
-                  "surface": {"blackbody": 5800.0}}],
-    })
+    scene = scene_from_dict(
+        {
+            "render": {"resolution": [160, 90]},
+            "camera": {
+                "position": [0.0, -4.0, 0.5],
+                "look_at": [0.0, 0.0, 0.5],
+                "time": 1.2e-8,
+                "beta": [0.0, 0.3, 0.0],
+            },
+            "body": [
+                {
+                    "name": "wheel",
+                    "shape": "cylinder",
+                    "radius": 0.5,
+                    "height": 0.2,
+                    "rotation": [90.0, 0.0, 0.0],
+                    "motion": {
+                        "kind": "rolling",
+                        "radius": 0.5,
+                        "beta": [0.7, 0.0, 0.0],
+                        "position": [0.0, 0.0, 0.5],
+                    },
+                    "surface": {"blackbody": 5800.0},
+                }
+            ],
+        }
+    )
     frame = relview.render(scene)
     shown = np.argwhere(frame.layers["body"] == 0)
     assert len(shown) > 300

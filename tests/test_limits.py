@@ -102,15 +102,20 @@ def test_symlink_loop_scene_file_is_named_a_loop(tmp_path):
 
 def _mesh_scene(tmp_path: Path, file: str) -> Path:
     path = write_scene(tmp_path / "mesh.toml")
-    path.write_text(path.read_text().replace(
-        'shape = "box"\nsize  = [1.0, 0.6, 0.6]', f'shape = "mesh"\nfile  = "{file}"'))
+    path.write_text(
+        path.read_text().replace(
+            'shape = "box"\nsize  = [1.0, 0.6, 0.6]', f'shape = "mesh"\nfile  = "{file}"'
+        )
+    )
     return path
 
 
 def test_symlink_loop_mesh_is_named_a_loop_not_missing(tmp_path):
     (tmp_path / "a.obj").symlink_to(tmp_path / "b.obj")
     (tmp_path / "b.obj").symlink_to(tmp_path / "a.obj")
-    with pytest.raises(SceneError, match='mesh file path is a loop of symbolic links: file = "a.obj"'):
+    with pytest.raises(
+        SceneError, match='mesh file path is a loop of symbolic links: file = "a.obj"'
+    ):
         load_scene(_mesh_scene(tmp_path, "a.obj"))
 
 
@@ -195,8 +200,17 @@ def test_huge_frame_range_is_a_user_error_not_an_overflow():
 
 def test_huge_frame_range_on_the_command_line(tmp_path, capsys):
     scene = write_scene(tmp_path / "brick.toml")
-    code = main(["animate", str(scene), "-o", str(tmp_path / "o"),
-                 "--frames", "0:99999999999999999999", "--quiet"])
+    code = main(
+        [
+            "animate",
+            str(scene),
+            "-o",
+            str(tmp_path / "o"),
+            "--frames",
+            "0:99999999999999999999",
+            "--quiet",
+        ]
+    )
     err = capsys.readouterr().err
     assert code == 2 and "the animation has 5 frame(s), indices 0..4" in err
 
@@ -210,8 +224,10 @@ def test_unknown_cluster_scheme_is_a_user_error(address):
 def test_more_workers_than_cores_are_refused(tmp_path, monkeypatch):
     monkeypatch.setattr(workers, "usable_cores", lambda: 2)
     scene = load_scene(write_scene(tmp_path / "brick.toml"))
-    for kw, option in (({"workers": 3}, "--workers 3"),
-                       ({"cluster": "local:100000"}, "--cluster local:100000")):
+    for kw, option in (
+        ({"workers": 3}, "--workers 3"),
+        ({"cluster": "local:100000"}, "--cluster local:100000"),
+    ):
         with pytest.raises(UserError, match=f"{option}: .* has 2 core"):
             batch.animate(scene, tmp_path / "o", progress=False, **kw)
     assert not (tmp_path / "o").exists()  # refused before any output

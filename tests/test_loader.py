@@ -454,8 +454,9 @@ def test_registered_surface_kind_is_used(tmp_path):
     class Glow(Blackbody):
         @classmethod
         def from_table(cls, table):
-            return cls(table.number("test-glow", positive=True, unit="K"),
-                       scale=table.number("gain", 1.0))
+            return cls(
+                table.number("test-glow", positive=True, unit="K"), scale=table.number("gain", 1.0)
+            )
 
     register_surface("test-glow", Glow.from_table, extras=("gain",))
     try:
@@ -464,12 +465,17 @@ def test_registered_surface_kind_is_used(tmp_path):
         assert type(surface) is Glow and (surface.temperature_k, surface.scale) == (4000.0, 0.25)
         # the table's own checks name the key and line
         err = error_of(tmp_path, replace(text, "test-glow = 4000.0", "test-glow = -4000.0"))
-        assert_names(err, '[body.surface] test-glow (body "rod")', "-4000.0",
-                     line_of(text, "test-glow"))
+        assert_names(
+            err, '[body.surface] test-glow (body "rod")', "-4000.0", line_of(text, "test-glow")
+        )
         # a constructor's ValueError is reported at the kind key, with its value
         err = error_of(tmp_path, replace(text, "gain = 0.25", "gain = -1.0"))
-        assert_names(err, '[body.surface] test-glow (body "rod")', "test-glow = 4000.0",
-                     line_of(text, "test-glow"))
+        assert_names(
+            err,
+            '[body.surface] test-glow (body "rod")',
+            "test-glow = 4000.0",
+            line_of(text, "test-glow"),
+        )
         assert "blackbody scale must be finite and >= 0" in str(err)
         # its extra key belongs to it alone
         text = replace(VALID, "blackbody = 5800.0", "blackbody = 5800.0\ngain = 2")
@@ -477,8 +483,12 @@ def test_registered_surface_kind_is_used(tmp_path):
         assert_names(err, '[body.surface] gain (body "rod")', "gain = 2", line_of(text, "gain"))
         assert "applies only to test-glow surfaces, not blackbody" in str(err)
         # and it can fill a pattern
-        text = replace(VALID, "blackbody = 5800.0", 'pattern = { kind = "checks", '
-                       'first = { test-glow = 3000 }, second = { blackbody = 2000 } }')
+        text = replace(
+            VALID,
+            "blackbody = 5800.0",
+            'pattern = { kind = "checks", '
+            "first = { test-glow = 3000 }, second = { blackbody = 2000 } }",
+        )
         assert type(load_text(tmp_path, text).bodies[0].surface.first) is Glow
     finally:
         SURFACE_KINDS.pop("test-glow")

@@ -40,8 +40,8 @@ def test_boost_preserves_interval_and_inverts():
     beta = np.array([0.3, -0.5, 0.6])
     ev = rng.normal(size=(50, 4))
     out = boost_event(beta, ev)
-    s = -ev[:, 0] ** 2 + np.sum(ev[:, 1:] ** 2, 1)
-    s2 = -out[:, 0] ** 2 + np.sum(out[:, 1:] ** 2, 1)
+    s = -(ev[:, 0] ** 2) + np.sum(ev[:, 1:] ** 2, 1)
+    s2 = -(out[:, 0] ** 2) + np.sum(out[:, 1:] ** 2, 1)
     assert s2 == pytest.approx(s, rel=1e-12, abs=1e-12)
     assert boost_matrix(-beta) @ boost_matrix(beta) == pytest.approx(np.eye(4), abs=1e-12)
 
@@ -97,8 +97,9 @@ def test_general_composition_gamma_identity():
     u = np.array([0.4, 0.3, 0.0])
     v = np.array([0.1, -0.5, 0.6])
     w = compose_velocities(u, v)
-    assert lorentz_factor(w) == pytest.approx(lorentz_factor(u) * lorentz_factor(v)
-                                              * (1 + u @ v), rel=1e-12)
+    assert lorentz_factor(w) == pytest.approx(
+        lorentz_factor(u) * lorentz_factor(v) * (1 + u @ v), rel=1e-12
+    )
 
 
 def test_length_contraction_along_motion_only():

@@ -254,7 +254,9 @@ def test_reflective_under_blackbody_lamp_shifts_like_a_blackbody():
 def test_d65_lamp_extension_is_continuous_and_positive():
     w_end = spectrum.D65_WAVELENGTHS_NM[[0, -1]]
     inside = spectrum.cie_d65_relative_spd(w_end)
-    np.testing.assert_allclose(spectrum.cie_d65_relative_spd(w_end + [-1e-9, 1e-9]), inside, rtol=1e-6)
+    np.testing.assert_allclose(
+        spectrum.cie_d65_relative_spd(w_end + [-1e-9, 1e-9]), inside, rtol=1e-6
+    )
     far = spectrum.cie_d65_relative_spd(np.array([50.0, 2000.0, 1e5]))
     assert np.all(far > 0) and np.all(np.isfinite(far))
 
@@ -286,7 +288,9 @@ def test_texture_is_sampled_at_uv_with_wrap(tmp_path):
     rgb = surf.colour_at(uv, 4)
     np.testing.assert_allclose(rgb, [[1, 0, 0], [0, 1, 0], [0, 0, 1], [1, 1, 1]], atol=1e-12)
     # halfway between red and green (bilinear)
-    np.testing.assert_allclose(sample_texture(surf._texels, np.array([[0.5, 0.75]])), [[0.5, 0.5, 0]])
+    np.testing.assert_allclose(
+        sample_texture(surf._texels, np.array([[0.5, 0.75]])), [[0.5, 0.5, 0]]
+    )
     # the shaded texel equals an untextured surface of the same colour
     xyz = surf.observed_xyz(np.array([1.3, 1.3]), np.zeros((2, 3)), uv[:2], ALL_ON)
     np.testing.assert_allclose(xyz[0], shade(Reflective((1, 0, 0)), [1.3])[0], rtol=1e-12)
@@ -314,8 +318,16 @@ def test_checks_pattern_cells():
     hot, cold = Blackbody(6000.0), Blackbody(3000.0)
     pat = Pattern("checks", period=0.1, first=hot, second=cold)
     # cells centred on multiples of the period: origin in cell 0 (first)
-    pos = np.array([[0.0, 0.0, 0.0], [0.07, 0.0, 0.0], [0.07, 0.07, 0.0], [-0.07, 0.0, 0.0],
-                    [0.04, 0.04, 0.04], [0.5, 0.0, 0.0]])
+    pos = np.array(
+        [
+            [0.0, 0.0, 0.0],
+            [0.07, 0.0, 0.0],
+            [0.07, 0.07, 0.0],
+            [-0.07, 0.0, 0.0],
+            [0.04, 0.04, 0.04],
+            [0.5, 0.0, 0.0],
+        ]
+    )
     np.testing.assert_array_equal(pat.second_mask(pos), [False, True, False, True, False, True])
     xyz = pat.observed_xyz(np.full(6, 1.2), pos, None, ALL_ON)
     np.testing.assert_allclose(xyz[0], shade(hot, [1.2])[0])

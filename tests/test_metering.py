@@ -108,11 +108,21 @@ def test_clipped_fraction_counts_channels_above_one():
 # ------------------------------------------------------------------ in a rendered scene
 
 CAMERA = {"position": [0.0, 0.0, 0.0], "look_at": [0.0, 10.0, 0.0], "fov": 60.0}
-WALL = {"name": "wall", "shape": "plane", "size": [30.0, 30.0], "rotation": [90.0, 0.0, 0.0],
-        "motion": {"position": [0.0, 10.0, 0.0]},
-        "surface": {"color": [0.5, 0.5, 0.5], "lamp": "D65", "luminance": 100.0}}
-BULB = {"name": "bulb", "shape": "sphere", "radius": 0.7,
-        "motion": {"position": [0.0, 5.0, 0.0]}, "surface": {"blackbody": 6000.0}}
+WALL = {
+    "name": "wall",
+    "shape": "plane",
+    "size": [30.0, 30.0],
+    "rotation": [90.0, 0.0, 0.0],
+    "motion": {"position": [0.0, 10.0, 0.0]},
+    "surface": {"color": [0.5, 0.5, 0.5], "lamp": "D65", "luminance": 100.0},
+}
+BULB = {
+    "name": "bulb",
+    "shape": "sphere",
+    "radius": 0.7,
+    "motion": {"position": [0.0, 5.0, 0.0]},
+    "surface": {"blackbody": 6000.0},
+}
 
 
 def lamp_scene(**render):
@@ -149,8 +159,11 @@ def test_metering_one_named_body_and_fixed_exposure():
 @pytest.mark.parametrize(
     "render_table, match",
     [
-        ({"metering": "spot"}, r'\[render\] metering.*did you mean|Choose one of: frame, bodies, body'),
-        ({"metering": "body"}, r'needs metering_body'),
+        (
+            {"metering": "spot"},
+            r"\[render\] metering.*did you mean|Choose one of: frame, bodies, body",
+        ),
+        ({"metering": "body"}, r"needs metering_body"),
         ({"metering": "body", "metering_body": "bulbb"}, r'metering_body.*did you mean "bulb"'),
         ({"metering_body": "bulb"}, r'goes with metering = "body"'),
         ({"metering": 3}, r"expected a string"),

@@ -28,8 +28,13 @@ W, H = 96, 48
 def panorama_scene(background: dict, beta=(0.0, 0.0, 0.0)) -> dict:
     return {
         "render": {"resolution": [W, H]},
-        "camera": {"position": [0.0, 0.0, 0.0], "direction": [1.0, 0.0, 0.0],
-                   "up": [0.0, 0.0, 1.0], "projection": "panorama", "beta": list(beta)},
+        "camera": {
+            "position": [0.0, 0.0, 0.0],
+            "direction": [1.0, 0.0, 0.0],
+            "up": [0.0, 0.0, 1.0],
+            "projection": "panorama",
+            "beta": list(beta),
+        },
         "background": {"kind": "cmb", **background},
     }
 
@@ -48,8 +53,9 @@ def panorama_cos_theta() -> tuple[np.ndarray, np.ndarray]:
 
 
 def test_camera_speed_gives_the_published_dipole_in_every_pixel():
-    scene = scene_from_dict(panorama_scene({"camera_speed": 369.82,
-                                            "camera_direction": [1.0, 0.0, 0.0]}))
+    scene = scene_from_dict(
+        panorama_scene({"camera_speed": 369.82, "camera_direction": [1.0, 0.0, 0.0]})
+    )
     frame = relview.render(scene)
     t = frame.layers["temperature"]
     beta = 369.82 / C_KM_S
@@ -80,8 +86,11 @@ def test_sky_frame_given_by_its_own_velocity():
     # frame_beta = -u with a camera at rest is the same sky as camera_speed u
     beta = 0.2
     a = relview.render(scene_from_dict(panorama_scene({"frame_beta": [-beta, 0.0, 0.0]})))
-    b = relview.render(scene_from_dict(panorama_scene(
-        {"camera_speed": beta * C_KM_S, "camera_direction": [2.0, 0.0, 0.0]})))
+    b = relview.render(
+        scene_from_dict(
+            panorama_scene({"camera_speed": beta * C_KM_S, "camera_direction": [2.0, 0.0, 0.0]})
+        )
+    )
     np.testing.assert_allclose(a.layers["temperature"], b.layers["temperature"], rtol=1e-13)
 
 
@@ -94,8 +103,15 @@ def test_doppler_switch_off_gives_the_rest_temperature():
 
 def test_bodies_hide_the_sky_in_the_temperature_layer():
     data = panorama_scene({})
-    data["body"] = [{"name": "ball", "shape": "sphere", "radius": 1.0,
-                     "motion": {"position": [5.0, 0.0, 0.0]}, "surface": {"blackbody": 3000.0}}]
+    data["body"] = [
+        {
+            "name": "ball",
+            "shape": "sphere",
+            "radius": 1.0,
+            "motion": {"position": [5.0, 0.0, 0.0]},
+            "surface": {"blackbody": 3000.0},
+        }
+    ]
     frame = relview.render(scene_from_dict(data))
     seen = frame.layers["body"] >= 0
     assert seen.any() and np.all(np.isnan(frame.layers["temperature"][seen]))
@@ -104,8 +120,11 @@ def test_bodies_hide_the_sky_in_the_temperature_layer():
 
 def test_microwave_sky_keys_are_checked():
     with pytest.raises(SceneError, match="not both") as err:
-        scene_from_dict(panorama_scene({"frame_beta": [0.1, 0, 0], "camera_speed": 10.0,
-                                        "camera_direction": [1, 0, 0]}))
+        scene_from_dict(
+            panorama_scene(
+                {"frame_beta": [0.1, 0, 0], "camera_speed": 10.0, "camera_direction": [1, 0, 0]}
+            )
+        )
     assert "frame_beta" in err.value.key
     with pytest.raises(SceneError, match="at or above c") as err:
         scene_from_dict(panorama_scene({"camera_speed": 4e5, "camera_direction": [1, 0, 0]}))

@@ -39,8 +39,9 @@ def reflect(k_in, beta_axis, beta: float):
     b = beta * n
     k_out = illumination.reflect_in_rest_frame(k_in, b, n, Effects())
     still = np.zeros_like(k_in)
-    ratio = (illumination.doppler_between(k_in, still, b, Effects())
-             * illumination.doppler_between(k_out, b, still, Effects()))
+    ratio = illumination.doppler_between(k_in, still, b, Effects()) * illumination.doppler_between(
+        k_out, b, still, Effects()
+    )
     return k_out, ratio
 
 
@@ -86,15 +87,27 @@ def test_head_on_approach_quadruples_the_frequency_at_0_6c():
     assert abs(ratio[0] - 4.0) < 1e-12
 
 
-def _mirror_scene(beta: float, camera, source: Body, resolution=(64, 36), fov=40.0,
-                  reflectivity=0.8, look_at=(0.0, 0.0, 0.0)):
+def _mirror_scene(
+    beta: float,
+    camera,
+    source: Body,
+    resolution=(64, 36),
+    fov=40.0,
+    reflectivity=0.8,
+    look_at=(0.0, 0.0, 0.0),
+):
     """A floor mirror (normal and motion along z) under a camera at rest at ``camera``
     looking at the origin, with ``source`` at rest above it."""
-    mirror = Body(name="mirror", shape="plane", size=np.array([2000.0, 2000.0]),
-                  surface=Mirror(reflectivity),
-                  motion=UniformMotion(beta=np.array([0.0, 0.0, beta]), position=np.zeros(3)))
-    return camera_scene([mirror, source], position=camera, look_at=look_at, fov=fov,
-                        resolution=resolution)
+    mirror = Body(
+        name="mirror",
+        shape="plane",
+        size=np.array([2000.0, 2000.0]),
+        surface=Mirror(reflectivity),
+        motion=UniformMotion(beta=np.array([0.0, 0.0, beta]), position=np.zeros(3)),
+    )
+    return camera_scene(
+        [mirror, source], position=camera, look_at=look_at, fov=fov, resolution=resolution
+    )
 
 
 def _solve_cos_phi(beta: float, cos_r: float) -> float:
@@ -102,13 +115,20 @@ def _solve_cos_phi(beta: float, cos_r: float) -> float:
     (scipy's brentq over phi in [0, pi], where cos phi_r is monotonic)."""
     from scipy.optimize import brentq
 
-    return math.cos(brentq(lambda p: einstein_cos_reflected(beta, math.cos(p)) - cos_r,
-                           0.0, math.pi))
+    return math.cos(
+        brentq(lambda p: einstein_cos_reflected(beta, math.cos(p)) - cos_r, 0.0, math.pi)
+    )
 
 
-@pytest.mark.parametrize("beta, camera", [(0.5, (0.0, -20.0, 12.0)), (0.5, (0.0, -12.0, 20.0)),
-                                          (-0.3, (0.0, -20.0, 12.0)),
-                                          (-0.3, (0.0, -12.0, 20.0))])
+@pytest.mark.parametrize(
+    "beta, camera",
+    [
+        (0.5, (0.0, -20.0, 12.0)),
+        (0.5, (0.0, -12.0, 20.0)),
+        (-0.3, (0.0, -20.0, 12.0)),
+        (-0.3, (0.0, -12.0, 20.0)),
+    ],
+)
 def test_blackbody_seen_in_a_moving_mirror_is_a_blackbody_at_t_times_the_ratio(beta, camera):
     """A blackbody wall at rest at T, seen in a floor mirror moving along its normal:
     each mirror pixel records R times a blackbody at T nu_r/nu_i, chromaticity and
@@ -118,8 +138,13 @@ def test_blackbody_seen_in_a_moving_mirror_is_a_blackbody_at_t_times_the_ratio(b
     import colour
 
     temp, reflectivity = 4000.0, 0.8
-    wall = Body(name="wall", shape="plane", size=np.array([400.0, 400.0]),
-                surface=Blackbody(temp), motion=UniformMotion(position=np.array([0.0, 40.0, 0.0])))
+    wall = Body(
+        name="wall",
+        shape="plane",
+        size=np.array([400.0, 400.0]),
+        surface=Blackbody(temp),
+        motion=UniformMotion(position=np.array([0.0, 40.0, 0.0])),
+    )
     wall.rotation = np.array([90.0, 0.0, 0.0])
     frame = render(_mirror_scene(beta, camera, wall, reflectivity=reflectivity))
     xyz = frame.layers["xyz"]
@@ -134,10 +159,8 @@ def test_blackbody_seen_in_a_moving_mirror_is_a_blackbody_at_t_times_the_ratio(b
     for i in range(0, len(got), max(1, len(got) // 12)):
         ratio = einstein_ratio(beta, _solve_cos_phi(beta, k_out[i, 2]))
         sd = colour.sd_blackbody(temp * ratio, cmfs.shape)  # W/(sr m2 nm)
-        ref = 683.0 * reflectivity * colour.sd_to_XYZ(sd, cmfs, method="Integration",
-                                                      k=1.0)
-        worst_xy = max(worst_xy, np.max(np.abs(got[i, :2] / got[i].sum()
-                                               - ref[:2] / ref.sum())))
+        ref = 683.0 * reflectivity * colour.sd_to_XYZ(sd, cmfs, method="Integration", k=1.0)
+        worst_xy = max(worst_xy, np.max(np.abs(got[i, :2] / got[i].sum() - ref[:2] / ref.sum())))
         worst_y = max(worst_y, abs(got[i, 1] / ref[1] - 1.0))
     # the blackbody Doppler table's interpolation; measured 3.4e-6 in xy and 1.6e-4 in Y
     # (the bounds leave room for the table's documented accuracy)
@@ -153,11 +176,17 @@ def test_small_source_is_seen_at_einsteins_reflection_angle(beta, look_at):
     measured in S from the rendered hit events)."""
     ball_at = np.array([0.0, 30.0, 18.0])
     radius = 1.0
-    ball = Body(name="ball", shape="sphere", radius=radius, surface=Blackbody(5000.0),
-                motion=UniformMotion(position=ball_at))
+    ball = Body(
+        name="ball",
+        shape="sphere",
+        radius=radius,
+        surface=Blackbody(5000.0),
+        motion=UniformMotion(position=ball_at),
+    )
     camera = np.array([0.0, -20.0, 12.0])
-    frame = render(_mirror_scene(beta, tuple(camera), ball, resolution=(160, 90), fov=40.0,
-                                 look_at=look_at))
+    frame = render(
+        _mirror_scene(beta, tuple(camera), ball, resolution=(160, 90), fov=40.0, look_at=look_at)
+    )
     sees = (frame.layers["body"] == 0) & (frame.layers["xyz"][..., 1] > 0)
     assert sees.sum() >= 4
     hit = frame.layers["emit_position"][sees]
@@ -168,7 +197,9 @@ def test_small_source_is_seen_at_einsteins_reflection_angle(beta, look_at):
     err = np.abs(k_out[:, 2] - einstein_cos_reflected(beta, k_in[:, 2]))
     # the ball's angular radius seen from the mirror bounds the spread of k_in, and
     # |d cos phi_r / d cos phi| <= (1 + beta)^2 / (1 - beta)^2 (from the formula)
-    spread = radius / np.linalg.norm(hit - ball_at, axis=1) * ((1 + abs(beta)) / (1 - abs(beta)))**2
+    spread = (
+        radius / np.linalg.norm(hit - ball_at, axis=1) * ((1 + abs(beta)) / (1 - abs(beta))) ** 2
+    )
     assert np.all(err < spread)
 
 
@@ -176,14 +207,19 @@ def test_mirror_keys_are_read_and_checked(tmp_path):
     from relview.errors import SceneError
     from relview.scene.model import load_scene
 
-    base = ('[camera]\nposition = [0.0, -5.0, 1.0]\nlook_at = [0.0, 0.0, 0.0]\n'
-            '[[body]]\nname = "glass"\nshape = "box"\nsize = [2.0, 0.1, 2.0]\n[body.surface]\n')
+    base = (
+        "[camera]\nposition = [0.0, -5.0, 1.0]\nlook_at = [0.0, 0.0, 0.0]\n"
+        '[[body]]\nname = "glass"\nshape = "box"\nsize = [2.0, 0.1, 2.0]\n[body.surface]\n'
+    )
     path = tmp_path / "m.toml"
     path.write_text(base + "mirror = 0.9\nbounces = 3\n")
     surface = load_scene(path).bodies[0].surface
     assert surface.reflectivity == 0.9 and surface.bounces == 3
-    for bad, key in (("mirror = 1.5\n", "mirror"), ("mirror = 0.5\nbounces = 0\n", "bounces"),
-                     ("color = [0.5, 0.5, 0.5]\nbounces = 2\n", "bounces")):
+    for bad, key in (
+        ("mirror = 1.5\n", "mirror"),
+        ("mirror = 0.5\nbounces = 0\n", "bounces"),
+        ("color = [0.5, 0.5, 0.5]\nbounces = 2\n", "bounces"),
+    ):
         path.write_text(base + bad)
         with pytest.raises(SceneError, match=key) as info:
             load_scene(path)

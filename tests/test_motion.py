@@ -75,7 +75,9 @@ def assert_on_light_cone(ev, camera_event, rtol=1e-11):
 
 
 def test_uniform_closed_form_matches_generic_solver_and_brentq():
-    kin = UniformMotion(beta=np.array([0.6, -0.5, 0.3]), position=np.array([1.0, 2.0, -1.0]), time=3e-9)
+    kin = UniformMotion(
+        beta=np.array([0.6, -0.5, 0.3]), position=np.array([1.0, 2.0, -1.0]), time=3e-9
+    )
     pts = RNG.normal(size=(40, 3))
     cam = np.array([2.0, 4.0, -3.0, 1.5])
     ev, beta = kin.retarded(pts, cam)
@@ -129,7 +131,9 @@ def test_delay_off_gives_camera_time_and_galilean_positions():
 def test_hyperbolic_origin_follows_rindler_hyperbola():
     # Rindler 2006, §3.8: x(t) = sqrt(c^4/a^2 + c^2 t^2) - c^2/a from rest at t = 0.
     a = 3.0e15  # m/s^2, L = c^2/a ~ 30 m
-    mot = HyperbolicMotion(acceleration=np.array([0.0, a, 0.0]), position=np.array([1.0, 2.0, 3.0]), time=1e-7)
+    mot = HyperbolicMotion(
+        acceleration=np.array([0.0, a, 0.0]), position=np.array([1.0, 2.0, 3.0]), time=1e-7
+    )
     t = 1e-7 + np.array([-4e-7, -1e-8, 0.0, 3e-9, 2e-7])  # s
     x, beta = mot.state(np.zeros((1, 3)), t * C)
     dt = t - 1e-7
@@ -137,7 +141,9 @@ def test_hyperbolic_origin_follows_rindler_hyperbola():
     np.testing.assert_allclose(x[:, 1] - 2.0, rindler, rtol=1e-12, atol=1e-9)
     np.testing.assert_allclose(x[:, [0, 2]], np.tile([1.0, 3.0], (5, 1)), atol=0)
     # velocity: dx/dt = c^2 t / sqrt(c^4/a^2 + c^2 t^2)
-    np.testing.assert_allclose(beta[:, 1], C * dt / np.sqrt(C**4 / a**2 + C**2 * dt**2), rtol=1e-12, atol=1e-15)
+    np.testing.assert_allclose(
+        beta[:, 1], C * dt / np.sqrt(C**4 / a**2 + C**2 * dt**2), rtol=1e-12, atol=1e-15
+    )
     # a gentle 9.81 m/s^2 over one year (no cancellation: compare with the series-free formula)
     g = HyperbolicMotion(acceleration=np.array([9.81, 0.0, 0.0]))
     year = 3.15576e7
@@ -148,13 +154,15 @@ def test_hyperbolic_origin_follows_rindler_hyperbola():
 
 @pytest.mark.parametrize("accel", [[2.0e16, 0.0, 0.0], [0.0, -5.0e15, 5.0e15], [9.81, 0.0, 0.0]])
 def test_hyperbolic_retarded_origin_matches_closed_form(accel):
-    mot = HyperbolicMotion(acceleration=np.array(accel), position=np.array([0.5, -1.0, 0.0]), time=2e-8)
+    mot = HyperbolicMotion(
+        acceleration=np.array(accel), position=np.array([0.5, -1.0, 0.0]), time=2e-8
+    )
     L = mot.length
     cams = [
         np.array([2e-8 * C + 5.0, 3.0, 4.0, -1.0]),
         np.array([2e-8 * C - 2.0, -6.0, 0.5, 2.0]),
         np.array([2e-8 * C + 40.0, 10.0, -30.0, 5.0]),
-        np.array([2e-8 * C + 0.1, 0.5 + 2 * L / 3 ** 0.5, -1.0, 0.0]),
+        np.array([2e-8 * C + 0.1, 0.5 + 2 * L / 3**0.5, -1.0, 0.0]),
     ]
     seen = 0
     for cam in cams:
@@ -169,7 +177,9 @@ def test_hyperbolic_retarded_origin_matches_closed_form(accel):
         seen += 1
         # apparent position and emission time: numeric solver vs the closed form
         scale = cam[0] - closed[0] + 1.0
-        np.testing.assert_allclose(ev[0], closed, rtol=0, atol=2e-12 * scale + 8e-16 * np.abs(closed).max())
+        np.testing.assert_allclose(
+            ev[0], closed, rtol=0, atol=2e-12 * scale + 8e-16 * np.abs(closed).max()
+        )
         assert_on_light_cone(closed[None], cam, rtol=1e-11)
         t_ref = brentq_emission(mot, np.zeros(3), cam)  # scipy, independent
         assert abs(t_ref - closed[0]) <= 1e-11 * scale
@@ -210,7 +220,9 @@ def test_hyperbolic_born_rigid_proper_acceleration():
 
 
 def test_hyperbolic_points_match_brentq():
-    mot = HyperbolicMotion(acceleration=np.array([1.0e16, 3.0e15, 0.0]), position=np.zeros(3), time=0.0)
+    mot = HyperbolicMotion(
+        acceleration=np.array([1.0e16, 3.0e15, 0.0]), position=np.zeros(3), time=0.0
+    )
     pts = RNG.uniform(-2, 2, size=(12, 3))
     cam = np.array([3.0, -4.0, 5.0, 1.0])
     check_retarded_against_brentq(mot, pts, cam, every=3)  # scipy brentq, independent
@@ -230,8 +242,14 @@ def test_orbit_transverse_doppler():
     # Velocity perpendicular to the line of sight at emission: D = 1/gamma (transverse
     # Doppler shift; physics.md, Rybicki & Lightman 1979, ch. 4 with beta.n = 0).
     beta = 0.8
-    mot = OrbitMotion(center=np.array([1.0, 2.0, 0.0]), radius=5.0, beta=beta, axis=np.array([0.0, 0.0, 1.0]),
-                      phase=30.0, time=0.0)
+    mot = OrbitMotion(
+        center=np.array([1.0, 2.0, 0.0]),
+        radius=5.0,
+        beta=beta,
+        axis=np.array([0.0, 0.0, 1.0]),
+        phase=30.0,
+        time=0.0,
+    )
     gamma = 1 / math.sqrt(1 - beta**2)
     # camera at rest on the axis, 7 m above the centre: every line of sight is perpendicular
     cam = np.array([11.0, 1.0, 2.0, 7.0])
@@ -252,7 +270,12 @@ def test_orbit_transverse_doppler():
 
 
 def test_orbit_camera_state_and_brentq():
-    mot = OrbitMotion(center=np.zeros(3), radius=2.0, period=2 * math.pi * 2.0 / (0.6 * C), axis=np.array([1.0, 1.0, 1.0]))
+    mot = OrbitMotion(
+        center=np.zeros(3),
+        radius=2.0,
+        period=2 * math.pi * 2.0 / (0.6 * C),
+        axis=np.array([1.0, 1.0, 1.0]),
+    )
     for t in (0.0, 1.0, 7.0):
         x, b = origin_state(mot, t)
         assert np.linalg.norm(x) == pytest.approx(2.0, rel=1e-14)
@@ -276,9 +299,15 @@ def test_orbit_rejects_superluminal():
     # the closed form against the sampled speed of the outward point just inside/outside
     inside = mot.events(np.array([[limit * 0.999, 0.0, 0.0]]), 0.0)[1]
     outside = mot.events(np.array([[limit * 1.001, 0.0, 0.0]]), 0.0)[1]
-    assert np.linalg.norm(inside[0, 1:]) / inside[0, 0] < 1 < np.linalg.norm(outside[0, 1:]) / outside[0, 0]
+    assert (
+        np.linalg.norm(inside[0, 1:]) / inside[0, 0]
+        < 1
+        < np.linalg.norm(outside[0, 1:]) / outside[0, 0]
+    )
     mot.validate(0.1)
-    with pytest.raises(ValueError, match="extent 0.2 m cannot follow this orbit.*must stay below 0.14"):
+    with pytest.raises(
+        ValueError, match="extent 0.2 m cannot follow this orbit.*must stay below 0.14"
+    ):
         mot.validate(0.2)
     # small beta: the limit approaches c^2/a = r/beta^2 (Rindler horizon of the acceleration)
     slow = OrbitMotion(center=np.zeros(3), radius=1.0, beta=1e-3)
@@ -320,8 +349,11 @@ def test_path_proper_time_matches_quad():
         return math.sqrt(1 - b[0] @ b[0])
 
     for si, ti in zip(s, tau):
-        ref = sum(quad(inv_gamma, a, min(bnd, si), epsabs=1e-13, epsrel=1e-13)[0]
-                  for a, bnd in ((0.0, 1e-8 * C), (1e-8 * C, 3e-8 * C), (3e-8 * C, np.inf)) if si > a)
+        ref = sum(
+            quad(inv_gamma, a, min(bnd, si), epsabs=1e-13, epsrel=1e-13)[0]
+            for a, bnd in ((0.0, 1e-8 * C), (1e-8 * C, 3e-8 * C), (3e-8 * C, np.inf))
+            if si > a
+        )
         assert ti == pytest.approx(ref, rel=1e-11)
 
 
@@ -329,14 +361,19 @@ def test_path_rejects_superluminal_segment():
     # 4 m in 1e-8 s (1.33 c on the straight line) between the 4th and 5th points
     times = np.arange(7) * 1e-8
     xs = np.array([0.0, 1.0, 2.0, 3.0, 7.0, 8.0, 9.0])
-    with pytest.raises(ValueError, match=r"segment 3 \(t = 3e-08 s to 4e-08 s\) reaches \|beta\| = ([\d.]+)") as err:
+    with pytest.raises(
+        ValueError, match=r"segment 3 \(t = 3e-08 s to 4e-08 s\) reaches \|beta\| = ([\d.]+)"
+    ) as err:
         PathMotion(times=times, positions=np.stack([xs, 0 * xs, 0 * xs], 1))
     # the reported peak speed against a dense sampling of scipy's own natural spline
     reported = float(str(err.value).split("|beta| = ")[1].split()[0])
     dense = np.linspace(3e-8, 4e-8, 200001)
     spline_speed = np.abs(CubicSpline(times, xs, bc_type="natural")(dense, 1)) / C
     assert reported == pytest.approx(spline_speed.max(), rel=1e-5)
-    assert np.abs(CubicSpline(times, xs, bc_type="natural")(np.linspace(0, 3e-8, 3001), 1)).max() / C < 1
+    assert (
+        np.abs(CubicSpline(times, xs, bc_type="natural")(np.linspace(0, 3e-8, 3001), 1)).max() / C
+        < 1
+    )
     with pytest.raises(ValueError, match="increase strictly"):
         PathMotion(times=[0.0, 1.0, 1.0], positions=np.zeros((3, 3)))
 
@@ -344,10 +381,15 @@ def test_path_rejects_superluminal_segment():
 def test_path_rejects_body_too_large_for_its_turns():
     # A subluminal path whose sharp turns would drive the far side of a 0.6 m body past c
     # (rigid in the origin's rest frame); the message names the segment and its times.
-    mot = PathMotion(times=[0, 1e-8, 2e-8, 3e-8], positions=[[0, 0, 0], [2.3, 0, 0], [2.3, 2.3, 0], [0, 2.3, 0]])
+    mot = PathMotion(
+        times=[0, 1e-8, 2e-8, 3e-8], positions=[[0, 0, 0], [2.3, 0, 0], [2.3, 2.3, 0], [0, 2.3, 0]]
+    )
     assert mot.max_speed(0.0) < 1
     mot.validate(0.1)
-    with pytest.raises(ValueError, match=r"\|beta\| = [\d.]+ >= 1 at t = .* s \(path segment \d, t = .* s to .* s\)"):
+    with pytest.raises(
+        ValueError,
+        match=r"\|beta\| = [\d.]+ >= 1 at t = .* s \(path segment \d, t = .* s to .* s\)",
+    ):
         mot.validate(0.6)
 
 
@@ -359,7 +401,9 @@ def test_spin_rim_velocity_is_composed_with_base():
     # composed relativistically with the base velocity (Rindler 2006, §3.6).
     base_beta = np.array([0.5, 0.3, 0.0])
     omega = 0.4 * C  # rad/s: rim speed 0.4 c at 1 m
-    mot = SpinMotion(base=UniformMotion(beta=base_beta), axis=np.array([0.0, 0.0, 1.0]), angular_velocity=omega)
+    mot = SpinMotion(
+        base=UniformMotion(beta=base_beta), axis=np.array([0.0, 0.0, 1.0]), angular_velocity=omega
+    )
     pts = np.array([[1.0, 0.0, 0.0], [0.0, -0.7, 0.2], [0.3, 0.3, -1.0]])
     ev, dev = mot.events(pts, np.zeros(3))  # events tied to the base origin at s = 0: angle 0
     beta = dev[:, 1:] / dev[:, :1]
@@ -374,8 +418,12 @@ def test_spin_rim_velocity_is_composed_with_base():
 
 def test_spin_matches_brentq_and_galilean_mode():
     base = OrbitMotion(center=np.zeros(3), radius=4.0, beta=0.3)
-    mot = SpinMotion(base=base, axis=np.array([1.0, 0.0, 1.0]), angular_velocity=0.5 * C,
-                     center_offset=np.array([0.1, 0.0, 0.0]))
+    mot = SpinMotion(
+        base=base,
+        axis=np.array([1.0, 0.0, 1.0]),
+        angular_velocity=0.5 * C,
+        center_offset=np.array([0.1, 0.0, 0.0]),
+    )
     mot.validate(1.0)
     pts = RNG.uniform(-0.8, 0.8, size=(8, 3))
     cam = np.array([6.0, 2.0, -7.0, 3.0])
@@ -388,28 +436,43 @@ def test_spin_matches_brentq_and_galilean_mode():
     ax = np.array([1.0, 0.0, 1.0]) / math.sqrt(2)
     c = np.array([0.1, 0.0, 0.0])
     rel = pts - c
-    rot = (rel * math.cos(ang) + np.cross(ax, rel) * math.sin(ang)
-           + np.outer(rel @ ax, ax) * (1 - math.cos(ang)))  # Rodrigues' formula
+    rot = (
+        rel * math.cos(ang)
+        + np.cross(ax, rel) * math.sin(ang)
+        + np.outer(rel @ ax, ax) * (1 - math.cos(ang))
+    )  # Rodrigues' formula
     np.testing.assert_allclose(x, x0 + c + rot, atol=1e-13)
 
 
 def test_spin_on_path_matches_brentq():
-    base = PathMotion(times=[0.0, 1e-8, 2e-8], positions=[[0, 0, 0], [1.5, 0.5, 0], [2.0, 2.0, 0.5]])
-    mot = SpinMotion(base=base, axis=np.array([0.0, 0.0, 1.0]), angular_velocity=0.3 * C, time=0.5e-8, phase=20.0)
+    base = PathMotion(
+        times=[0.0, 1e-8, 2e-8], positions=[[0, 0, 0], [1.5, 0.5, 0], [2.0, 2.0, 0.5]]
+    )
+    mot = SpinMotion(
+        base=base, axis=np.array([0.0, 0.0, 1.0]), angular_velocity=0.3 * C, time=0.5e-8, phase=20.0
+    )
     pts = RNG.uniform(-0.5, 0.5, size=(6, 3))
-    check_retarded_against_brentq(mot, pts, np.array([4.0, 1.0, -3.0, 0.5]))  # scipy brentq, independent
+    check_retarded_against_brentq(
+        mot, pts, np.array([4.0, 1.0, -3.0, 0.5])
+    )  # scipy brentq, independent
 
 
 def test_spin_on_hyperbolic_matches_brentq():
-    base = HyperbolicMotion(acceleration=np.array([0.0, 2.0e16, 0.0]), position=np.array([0.0, 1.0, 0.0]), time=0.0)
+    base = HyperbolicMotion(
+        acceleration=np.array([0.0, 2.0e16, 0.0]), position=np.array([0.0, 1.0, 0.0]), time=0.0
+    )
     mot = SpinMotion(base=base, axis=np.array([0.0, 1.0, 0.0]), angular_velocity=0.6 * C)
     mot.validate(1.0)
     pts = RNG.uniform(-0.6, 0.6, size=(6, 3))
-    check_retarded_against_brentq(mot, pts, np.array([3.0, 2.0, -2.0, 0.5]))  # scipy brentq, independent
+    check_retarded_against_brentq(
+        mot, pts, np.array([3.0, 2.0, -2.0, 0.5])
+    )  # scipy brentq, independent
 
 
 def test_spin_rejects_rim_at_light_speed():
-    mot = SpinMotion(base=UniformMotion(beta=np.array([0.5, 0, 0])), angular_velocity=0.5 * C)  # 0.5 c at 1 m
+    mot = SpinMotion(
+        base=UniformMotion(beta=np.array([0.5, 0, 0])), angular_velocity=0.5 * C
+    )  # 0.5 c at 1 m
     mot.validate(1.9)
     with pytest.raises(ValueError, match=r"rim speed omega r / c = 1 >= 1"):
         mot.validate(2.0)
@@ -417,7 +480,9 @@ def test_spin_rejects_rim_at_light_speed():
 
 @pytest.mark.parametrize("v", [0.5, 0.9])
 def test_rolling_wheel_contact_at_rest_and_top_speed(v):
-    mot = RollingMotion(radius=0.35, beta=np.array([0.0, v, 0.0]), position=np.array([0.0, 0.0, 0.35]), time=1e-9)
+    mot = RollingMotion(
+        radius=0.35, beta=np.array([0.0, v, 0.0]), position=np.array([0.0, 0.0, 0.35]), time=1e-9
+    )
     t0 = 1e-9 * C
     contact = mot.contact_point()
     np.testing.assert_allclose(contact, [0.0, 0.0, -0.35], atol=1e-15)
@@ -430,7 +495,9 @@ def test_rolling_wheel_contact_at_rest_and_top_speed(v):
     # later: the point at the bottom when the axle has turned by omega tau, tau = dt/gamma
     dt = 0.8
     angle = (v / 0.35) * dt * math.sqrt(1 - v * v)
-    rot_x = np.array([[1, 0, 0], [0, math.cos(angle), -math.sin(angle)], [0, math.sin(angle), math.cos(angle)]])
+    rot_x = np.array(
+        [[1, 0, 0], [0, math.cos(angle), -math.sin(angle)], [0, math.sin(angle), math.cos(angle)]]
+    )
     p_bottom = rot_x @ contact  # the spin axis is z x y = -x: undo the turn by turning about +x
     xb, bb = mot.state(p_bottom[None], t0 + dt)
     assert np.linalg.norm(bb[0]) < 1e-13
@@ -444,7 +511,9 @@ def test_rolling_wheel_contact_at_rest_and_top_speed(v):
 def test_rolling_contact_point_doppler_from_camera_alone():
     # A photon leaving the momentarily resting contact point: its Doppler factor is that
     # of a source at rest, D = gamma_cam (1 - beta_cam.n) (physics.md Doppler factor).
-    mot = RollingMotion(radius=0.5, beta=np.array([0.7, 0.0, 0.0]), position=np.array([0.0, 0.0, 0.5]))
+    mot = RollingMotion(
+        radius=0.5, beta=np.array([0.7, 0.0, 0.0]), position=np.array([0.0, 0.0, 0.5])
+    )
     contact = mot.contact_point()
     d = np.array([0.3, -0.9, 0.3])
     d /= np.linalg.norm(d)
@@ -505,8 +574,15 @@ def test_only_uniform_motion_is_inertial():
 def _scene_with(motion):
     return {
         "camera": {"position": [0.0, -5.0, 0.0], "look_at": [0.0, 0.0, 0.0]},
-        "body": [{"name": "probe", "shape": "sphere", "radius": 0.1, "motion": motion,
-                  "surface": {"blackbody": 5800.0}}],
+        "body": [
+            {
+                "name": "probe",
+                "shape": "sphere",
+                "radius": 0.1,
+                "motion": motion,
+                "surface": {"blackbody": 5800.0},
+            }
+        ],
     }
 
 
@@ -524,8 +600,13 @@ def motion_error(motion) -> SceneError:
 def test_motion_tables():
     m = read_motion({"kind": "orbit", "center": [0, 0, 1], "radius": 2.0, "beta": 0.5})
     assert isinstance(m, OrbitMotion) and m.speed == 0.5
-    m = read_motion({"kind": "spin", "angular_velocity": 10.0,
-                     "base": {"kind": "hyperbolic", "acceleration": [9.81, 0, 0]}})
+    m = read_motion(
+        {
+            "kind": "spin",
+            "angular_velocity": 10.0,
+            "base": {"kind": "hyperbolic", "acceleration": [9.81, 0, 0]},
+        }
+    )
     assert isinstance(m, SpinMotion) and isinstance(m.base, HyperbolicMotion)
     m = read_motion({"kind": "rolling", "radius": 0.3, "beta": [0.2, 0, 0]})
     assert isinstance(m, RollingMotion)
@@ -555,8 +636,15 @@ def test_loader_builds_registered_kinds_and_names_bad_keys():
     assert {"hyperbolic", "orbit", "path", "spin", "rolling"} <= set(MOTION_KINDS)
     s = scene_from_dict(_scene_with({"kind": "rolling", "radius": 0.3, "beta": [0.5, 0.0, 0.0]}))
     assert isinstance(s.bodies[0].motion, RollingMotion)
-    s = scene_from_dict(_scene_with({"kind": "spin", "angular_velocity": 1e6,
-                                     "base": {"kind": "hyperbolic", "acceleration": [0.0, 0.0, 9.81]}}))
+    s = scene_from_dict(
+        _scene_with(
+            {
+                "kind": "spin",
+                "angular_velocity": 1e6,
+                "base": {"kind": "hyperbolic", "acceleration": [0.0, 0.0, 9.81]},
+            }
+        )
+    )
     assert isinstance(s.bodies[0].motion.base, HyperbolicMotion)
     with pytest.raises(SceneError, match=r"period.*-2.*must be > 0|must be > 0.*period = -2"):
         scene_from_dict(_scene_with({"kind": "orbit", "radius": 1.0, "period": -2.0}))

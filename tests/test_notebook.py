@@ -27,8 +27,11 @@ def test_tutorial_notebook_runs(tmp_path):
     client.execute()  # raises CellExecutionError on the first failing cell
     outputs = [o for cell in nb.cells if cell.cell_type == "code" for o in cell.outputs]
     assert not [o for o in outputs if o.output_type == "error"]
-    pictures = [base64.b64decode(o.data["image/png"]) for o in outputs
-                if o.output_type in ("execute_result", "display_data") and "image/png" in o.data]
+    pictures = [
+        base64.b64decode(o.data["image/png"])
+        for o in outputs
+        if o.output_type in ("execute_result", "display_data") and "image/png" in o.data
+    ]
     # the frame, the comparison sheet and the probe plot
     assert len(pictures) >= 3 and all(p.startswith(PNG_SIGNATURE) for p in pictures)
     texts = [o.get("text", "") for o in outputs if o.output_type == "stream"]

@@ -19,9 +19,13 @@ def test_a_fast_receding_point_is_seen_where_the_exact_light_cone_puts_it():
     # The root (b.w + sqrt(...)) / (1 - b^2) cancels here and gave x_e = 5000.397 m.
     beta = 1.0 - 1e-12
     camera = {"position": [0.0, 0.0, 0.0], "look_at": [1.0, 0.0, 0.0], "fov": 60.0}
-    dot = {"name": "dot", "shape": "sphere", "radius": 0.01,
-           "motion": {"beta": [beta, 0.0, 0.0], "position": [10_000.0, 0.0, 0.0]},
-           "surface": {"blackbody": 5000.0}}
+    dot = {
+        "name": "dot",
+        "shape": "sphere",
+        "radius": 0.01,
+        "motion": {"beta": [beta, 0.0, 0.0], "position": [10_000.0, 0.0, 0.0]},
+        "surface": {"blackbody": 5000.0},
+    }
     r = relview.probe(dict_scene(camera, [dot]), "dot", [0.0, 0.0, 0.0])
     exact_x = Fraction(10_000) / (1 + Fraction(beta))  # beta exactly as the float holds it
     assert r.emit_position[0] == pytest.approx(float(exact_x), rel=1e-13)
@@ -32,10 +36,19 @@ def _spinning_ball(resolution):
     """A 5 m ball 100 m ahead of the camera spinning at 2e7 rad/s (rim at 0.33 c; not
     inertial, so it is traced as a light-cone snapshot), seen at 90 degrees."""
     camera = {"position": [0.0, 0.0, 0.0], "look_at": [0.0, 1.0, 0.0], "fov": 90.0}
-    ball = {"name": "ball", "shape": "sphere", "radius": 5.0, "detail": 1,
-            "motion": {"kind": "spin", "angular_velocity": 2e7, "axis": [0.0, 0.0, 1.0],
-                       "base": {"position": [0.0, 100.0, 0.0]}},
-            "surface": {"blackbody": 5000.0}}
+    ball = {
+        "name": "ball",
+        "shape": "sphere",
+        "radius": 5.0,
+        "detail": 1,
+        "motion": {
+            "kind": "spin",
+            "angular_velocity": 2e7,
+            "axis": [0.0, 0.0, 1.0],
+            "base": {"position": [0.0, 100.0, 0.0]},
+        },
+        "surface": {"blackbody": 5000.0},
+    }
     return dict_scene(camera, [ball], {"resolution": list(resolution)})
 
 

@@ -1,6 +1,5 @@
 """relview.probe against independent root finding, the renderer's own layers and textbook values."""
 
-
 import numpy as np
 import pytest
 from conftest import camera_scene, moving_body
@@ -81,8 +80,9 @@ def test_effect_switches_change_the_probe_as_documented():
     no_delay = relview.probe(scene, "b", [0, 0, 0], effects=Effects(delay=False))
     assert no_delay.emit_time == 0.0  # light instantaneous: emission at the camera time
     assert np.array(no_delay.emit_position) == pytest.approx([0, 0, 0])
-    galilean = relview.probe(scene, "b", [0.1, 0, 0], effects=Effects(contraction=False,
-                                                                      delay=False))
+    galilean = relview.probe(
+        scene, "b", [0.1, 0, 0], effects=Effects(contraction=False, delay=False)
+    )
     assert galilean.emit_position[0] == pytest.approx(0.1)  # no contraction
     lorentz = relview.probe(scene, "b", [0.1, 0, 0], effects=Effects(delay=False))
     assert lorentz.emit_position[0] == pytest.approx(0.1 * np.sqrt(1 - 0.81))

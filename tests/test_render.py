@@ -19,13 +19,21 @@ SCENES = sorted((ROOT / "scenes").glob("*.toml"))
 
 def two_body_scene(effects=Effects(), cam_beta=(0.3, 0.0, 0.0), res=(80, 45)):
     bodies = [
-        moving_body("a", "box", [0.8, 0, 0], [0.5, 0, 0], size=[1.0, 0.6, 0.6],
-                    temperature=6000.0),
-        moving_body("b", "sphere", [-0.5, 0, 0.1], [-1.0, 1.0, 0.3], radius=0.4,
-                    temperature=3000.0),
+        moving_body("a", "box", [0.8, 0, 0], [0.5, 0, 0], size=[1.0, 0.6, 0.6], temperature=6000.0),
+        moving_body(
+            "b", "sphere", [-0.5, 0, 0.1], [-1.0, 1.0, 0.3], radius=0.4, temperature=3000.0
+        ),
     ]
-    return camera_scene(bodies, (0.0, -4.0, 0.5), (0.0, 0.0, 0.0), fov=80.0, beta=cam_beta,
-                        time=1e-9, resolution=res, effects=effects)
+    return camera_scene(
+        bodies,
+        (0.0, -4.0, 0.5),
+        (0.0, 0.0, 0.0),
+        fov=80.0,
+        beta=cam_beta,
+        time=1e-9,
+        resolution=res,
+        effects=effects,
+    )
 
 
 def test_layers_are_consistent_with_null_rays_and_doppler_formula():
@@ -46,8 +54,7 @@ def test_all_switches_off_equals_plain_render_of_the_same_instant():
     # With every effect off the picture must be the non-relativistic one: each body drawn
     # where it is at the camera time (Galilean, light instantaneous), rest-frame colour,
     # camera motion ignored. Compare with a scene of the same bodies at rest there.
-    off = Effects(delay=False, contraction=False, aberration=False, doppler=False,
-                  beaming=False)
+    off = Effects(delay=False, contraction=False, aberration=False, doppler=False, beaming=False)
     moving = two_body_scene(off)
     t = moving.camera.time
     still = []
@@ -55,8 +62,12 @@ def test_all_switches_off_equals_plain_render_of_the_same_instant():
         m = b.motion
         pos = m.position + m.beta * C * (t - m.time)
         still.append(dataclasses.replace(b, motion=UniformMotion(position=pos)))
-    plain = dataclasses.replace(moving, bodies=still, camera=dataclasses.replace(
-        moving.camera, beta=np.zeros(3)), render=RenderSettings(resolution=(80, 45)))
+    plain = dataclasses.replace(
+        moving,
+        bodies=still,
+        camera=dataclasses.replace(moving.camera, beta=np.zeros(3)),
+        render=RenderSettings(resolution=(80, 45)),
+    )
     a = relview.render(moving)
     b = relview.render(plain)
     assert np.array_equal(a.layers["body"], b.layers["body"])
@@ -90,8 +101,7 @@ def test_cli_render_writes_png_and_layers_without_overwriting(tmp_path, monkeypa
     assert first.read_bytes() == before
     assert (tmp_path / "outputs" / "sphere-flyby-1.png").exists()
     npz = np.load(tmp_path / "outputs" / "sphere-flyby.npz")
-    for key in ("xyz", "doppler", "emit_time", "emit_position", "rest_position", "body",
-                "image"):
+    for key in ("xyz", "doppler", "emit_time", "emit_position", "rest_position", "body", "image"):
         assert key in npz.files
 
 
@@ -101,8 +111,7 @@ def test_cli_probe_json(capsys):
     scene = ROOT / "scenes" / "capsule-flyby.toml"
     assert main(["probe", str(scene), "--body", "capsule", "--point", "5,0,0", "--json"]) == 0
     data = json.loads(capsys.readouterr().out)
-    assert set(data) >= {"emit_time", "emit_position", "direction", "pixel", "visible",
-                         "doppler"}
+    assert set(data) >= {"emit_time", "emit_position", "direction", "pixel", "visible", "doppler"}
 
 
 def test_cli_user_errors_exit_2(tmp_path, capsys):
@@ -115,11 +124,23 @@ def test_cli_user_errors_exit_2(tmp_path, capsys):
 
 
 def test_camera_riding_uniform_motion_equals_camera_beta():
-    a = dict_scene({"position": [0, 0, 0], "direction": [1, 1, 0], "beta": [0.6, 0, 0],
-                    "time": 2e-8, "fov": 90.0})
-    b = dict_scene({"direction": [1, 1, 0], "time": 2e-8, "fov": 90.0,
-                    "motion": {"kind": "uniform", "beta": [0.6, 0, 0],
-                               "position": [0, 0, 0], "time": 2e-8}})
+    a = dict_scene(
+        {
+            "position": [0, 0, 0],
+            "direction": [1, 1, 0],
+            "beta": [0.6, 0, 0],
+            "time": 2e-8,
+            "fov": 90.0,
+        }
+    )
+    b = dict_scene(
+        {
+            "direction": [1, 1, 0],
+            "time": 2e-8,
+            "fov": 90.0,
+            "motion": {"kind": "uniform", "beta": [0.6, 0, 0], "position": [0, 0, 0], "time": 2e-8},
+        }
+    )
     fa = relview.render(a, resolution=(48, 27))
     fb = relview.render(b, resolution=(48, 27))
     assert np.array_equal(fa.layers["body"], fb.layers["body"])
@@ -133,16 +154,27 @@ def test_accelerating_camera_aberrates_with_its_velocity_at_the_exposure():
     a = 9.81e8  # m/s2
     t = 0.5  # s
     beta = a * t / np.sqrt(C**2 + (a * t) ** 2)
-    sc = dict_scene({"direction": [1, 0, 0], "time": t, "fov": 120.0,
-                     "motion": {"kind": "hyperbolic", "acceleration": [a, 0, 0],
-                                "position": [0, 0, 0], "time": 0.0}})
+    sc = dict_scene(
+        {
+            "direction": [1, 0, 0],
+            "time": t,
+            "fov": 120.0,
+            "motion": {
+                "kind": "hyperbolic",
+                "acceleration": [a, 0, 0],
+                "position": [0, 0, 0],
+                "time": 0.0,
+            },
+        }
+    )
     x_cam = C**2 / a * (np.sqrt(1 + (a * t / C) ** 2) - 1)
     # a point-like source abeam of the camera's position at the exposure (90 deg in S)
     sc.bodies[0].motion.position = np.array([x_cam, 40.0, 0.0])
     r = relview.probe(sc, "star", [0.0, -0.5, 0.0])
     assert r.emit_position[0] == pytest.approx(x_cam, abs=1e-6)
-    assert np.degrees(np.arccos(r.direction[0])) == pytest.approx(np.degrees(np.arccos(beta)),
-                                                                  abs=1e-6)
+    assert np.degrees(np.arccos(r.direction[0])) == pytest.approx(
+        np.degrees(np.arccos(beta)), abs=1e-6
+    )
 
 
 def test_open_shutter_integrates_the_exposure_events():
@@ -150,9 +182,13 @@ def test_open_shutter_integrates_the_exposure_events():
     from relview.renderer import exposure_times
 
     cam = {"position": [0, -5, 0], "look_at": [0, 0, 0], "fov": 60.0}
-    body = {"name": "b", "shape": "box", "size": [1, 1, 1],
-            "motion": {"beta": [0.9, 0, 0], "position": [4.0, 0, 0]},
-            "surface": {"blackbody": 6000.0}}
+    body = {
+        "name": "b",
+        "shape": "box",
+        "size": [1, 1, 1],
+        "motion": {"beta": [0.9, 0, 0], "position": [4.0, 0, 0]},
+        "surface": {"blackbody": 6000.0},
+    }
     sh = 4e-9
     blur = dict_scene(cam, [body], {"shutter": sh, "shutter_samples": 4, "exposure": 1e6})
     times = exposure_times(0.0, sh, 1, 4)
@@ -164,18 +200,21 @@ def test_open_shutter_integrates_the_exposure_events():
     assert (mean[..., 1] > 0).any()
     assert f.layers["xyz"] == pytest.approx(mean, rel=1e-9, abs=1e-6)
     # the streak is wider than the instant picture
-    assert (f.layers["xyz"][..., 1] > 0).sum() > (relview.render(inst, resolution=(64, 36))
-                                                  .layers["xyz"][..., 1] > 0).sum()
+    assert (f.layers["xyz"][..., 1] > 0).sum() > (
+        relview.render(inst, resolution=(64, 36)).layers["xyz"][..., 1] > 0
+    ).sum()
 
 
 def test_check_rejects_a_body_whose_points_would_reach_c(tmp_path, capsys):
     # A rigid body of extent e on a circular orbit of radius r at speed beta has points at
     # up to r + e from the centre; their speed reaches c first (message from relview.kinematics.motion).
     bad = tmp_path / "orbit.toml"
-    bad.write_text('[camera]\nposition = [0, -12, 0]\nlook_at = [0, 0, 0]\n'
-                   '[[body]]\nname = "big"\nshape = "box"\nsize = [2, 2, 2]\n'
-                   '[body.motion]\nkind = "orbit"\nradius = 1.0\nbeta = 0.9\n'
-                   '[body.surface]\nblackbody = 5000.0\n')
+    bad.write_text(
+        "[camera]\nposition = [0, -12, 0]\nlook_at = [0, 0, 0]\n"
+        '[[body]]\nname = "big"\nshape = "box"\nsize = [2, 2, 2]\n'
+        '[body.motion]\nkind = "orbit"\nradius = 1.0\nbeta = 0.9\n'
+        "[body.surface]\nblackbody = 5000.0\n"
+    )
     assert main(["check", str(bad)]) == 2
     err = capsys.readouterr().err
     assert "big" in err and "reach c" in err and "Traceback" not in err
@@ -187,8 +226,9 @@ def test_tone_setting_reaches_the_png(tmp_path):
     # 2 (1 + 2/16)/3 = 0.75 of full scale by "reinhard".
     from PIL import Image
 
-    scene = dict_scene({"position": [0, -3, 0], "look_at": [0, 40, 0], "fov": 20.0},
-                       render={"tone": "reinhard"})
+    scene = dict_scene(
+        {"position": [0, -3, 0], "look_at": [0, 40, 0], "fov": 20.0}, render={"tone": "reinhard"}
+    )
     probe_frame = relview.render(scene, resolution=(16, 9))
     hit = probe_frame.layers["body"] >= 0
     assert hit.any()

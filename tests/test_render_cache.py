@@ -22,10 +22,20 @@ from relview.scene.parts import Effects
 
 
 def scene():
-    return camera_scene([moving_body("ball", "sphere", beta=(0.6, 0.0, 0.0), radius=0.6, detail=3),
-                         moving_body("crate", "box", beta=(0.0, 0.3, 0.0), size=(0.5, 0.5, 0.5),
-                                     position=(1.2, 0.5, 0.0), rotation=(0.0, 0.0, 20.0))],
-                        resolution=(64, 36))
+    return camera_scene(
+        [
+            moving_body("ball", "sphere", beta=(0.6, 0.0, 0.0), radius=0.6, detail=3),
+            moving_body(
+                "crate",
+                "box",
+                beta=(0.0, 0.3, 0.0),
+                size=(0.5, 0.5, 0.5),
+                position=(1.2, 0.5, 0.0),
+                rotation=(0.0, 0.0, 20.0),
+            ),
+        ],
+        resolution=(64, 36),
+    )
 
 
 def same_frames(a, b) -> None:
@@ -52,8 +62,9 @@ def test_second_render_reuses_the_built_geometry_and_equals_a_fresh_build():
     same_frames(first, second)
 
 
-@pytest.mark.parametrize("edit", ["radius", "detail", "rotation", "beta", "position", "add body",
-                                  "motion object"])
+@pytest.mark.parametrize(
+    "edit", ["radius", "detail", "rotation", "beta", "position", "add body", "motion object"]
+)
 def test_an_edit_of_what_the_geometry_depends_on_builds_it_again(edit):
     s = scene()
     before = fresh(s)
@@ -66,13 +77,15 @@ def test_an_edit_of_what_the_geometry_depends_on_builds_it_again(edit):
     elif edit == "rotation":
         crate.rotation = np.array([0.0, 0.0, 45.0])
     elif edit == "beta":
-        crate.motion = UniformMotion(beta=np.array([0.0, -0.3, 0.0]),
-                                     position=np.array([1.2, 0.5, 0.0]), time=0.0)
+        crate.motion = UniformMotion(
+            beta=np.array([0.0, -0.3, 0.0]), position=np.array([1.2, 0.5, 0.0]), time=0.0
+        )
     elif edit == "position":
         ball.motion.position[0] = -0.5  # an in-place edit of an array
     elif edit == "add body":
-        s.bodies.append(moving_body("far", "sphere", position=(-1.5, 1.0, 0.0), radius=0.3,
-                                    detail=2))
+        s.bodies.append(
+            moving_body("far", "sphere", position=(-1.5, 1.0, 0.0), radius=0.3, detail=2)
+        )
     elif edit == "motion object":
         ball.motion = copy.deepcopy(ball.motion)  # same content: the same key
     edited = render(s)
@@ -92,8 +105,9 @@ def test_effect_switches_key_the_geometry():
     a = fresh(s, effects=galilean)
     render(s)  # relativistic geometry built and cached beside it
     same_frames(a, render(s, effects=galilean))
-    assert not np.array_equal(a.layers["rest_position"], render(s).layers["rest_position"],
-                              equal_nan=True)
+    assert not np.array_equal(
+        a.layers["rest_position"], render(s).layers["rest_position"], equal_nan=True
+    )
 
 
 def test_a_rewritten_mesh_file_is_read_again(tmp_path):

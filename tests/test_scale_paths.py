@@ -29,9 +29,13 @@ def test_readings_of_many_bodies_in_one_pass_follow_time_dilation():
     # rows (-1) NaN; the clock coordinate handed in is the proper time c tau at the
     # reference time c t of each hit.
     betas = [0.0, 0.6, 0.8, 0.99]
-    bodies = [SimpleNamespace(motion=UniformMotion(beta=[b, 0.0, 0.0], time=0.25 * k),
-                              clock=Clock(reading=10.0 * k - 3.0, time=0.5 + k))
-              for k, b in enumerate(betas)]
+    bodies = [
+        SimpleNamespace(
+            motion=UniformMotion(beta=[b, 0.0, 0.0], time=0.25 * k),
+            clock=Clock(reading=10.0 * k - 3.0, time=0.5 + k),
+        )
+        for k, b in enumerate(betas)
+    ]
     rng = np.random.default_rng(1)
     index = rng.integers(-1, len(bodies), 400)
     t = rng.uniform(-5.0, 5.0, 400)  # s
@@ -52,13 +56,26 @@ def _three_bodies():
     # two balls with equal surfaces (separate objects, the same key) and a third with
     # another temperature, each with its own velocity (a demo-style scene of our own)
     def ball(name, x, beta, kelvin):
-        return {"name": name, "shape": "sphere", "radius": 0.25,
-                "motion": {"kind": "uniform", "beta": [beta, 0.0, 0.0], "position": [x, 4.0, 0.0]},
-                "surface": {"blackbody": kelvin}}
+        return {
+            "name": name,
+            "shape": "sphere",
+            "radius": 0.25,
+            "motion": {"kind": "uniform", "beta": [beta, 0.0, 0.0], "position": [x, 4.0, 0.0]},
+            "surface": {"blackbody": kelvin},
+        }
+
     cam = {"position": [0.0, 0.0, 0.0], "look_at": [0.0, 1.0, 0.0], "time": 0.0, "fov": 70.0}
-    return scene_from_dict({"camera": cam, "render": {"resolution": [48, 27]},
-                            "body": [ball("a", 1.0, 0.5, 4000.0), ball("b", -0.6, -0.3, 4000.0),
-                                     ball("c", 0.4, 0.2, 6500.0)]})
+    return scene_from_dict(
+        {
+            "camera": cam,
+            "render": {"resolution": [48, 27]},
+            "body": [
+                ball("a", 1.0, 0.5, 4000.0),
+                ball("b", -0.6, -0.3, 4000.0),
+                ball("c", 0.4, 0.2, 6500.0),
+            ],
+        }
+    )
 
 
 def test_bodies_sharing_a_surface_shade_as_each_body_alone():
@@ -106,8 +123,11 @@ def test_snapshot_solves_each_distinct_point_once():
     # copies (per-face barycentrics), but no point is solved twice, neither across rounds
     # nor for its clock, and the copies carry exactly what solving each would give.
     verts, faces = box_mesh_for_scale()
-    motion = _CountingMotion(RollingMotion(radius=0.5, beta=np.array([0.6, 0.0, 0.0]),
-                                           position=np.array([0.0, 0.0, 0.5])))
+    motion = _CountingMotion(
+        RollingMotion(
+            radius=0.5, beta=np.array([0.6, 0.0, 0.0]), position=np.array([0.0, 0.0, 0.5])
+        )
+    )
     cam = np.array([1.0, 0.3, -3.0, 0.4])
     snap = snapshot(motion, verts, faces, cam, Effects(), tolerance=1e-3)
     assert len(snap.faces) > 4 * len(faces)  # refined
@@ -120,8 +140,9 @@ def test_snapshot_solves_each_distinct_point_once():
     ev, beta = motion.inner.retarded(snap.body_coords, cam)
     np.testing.assert_array_equal(snap.emit_event, ev)
     np.testing.assert_array_equal(snap.beta, beta)
-    np.testing.assert_array_equal(snap.clock, _vertex_clock(motion.inner, snap.body_coords, ev,
-                                                            Effects()))
+    np.testing.assert_array_equal(
+        snap.clock, _vertex_clock(motion.inner, snap.body_coords, ev, Effects())
+    )
 
 
 def box_mesh_for_scale():

@@ -34,11 +34,20 @@ def _plate_scene(covered: float, shutter: float, shutter_samples: int = 8):
     # leading edge x_centre + WIDTH/(2 gamma) = 0 at t_emit; centre at x0 + BETA c t
     x0 = -WIDTH / (2 * gamma) - BETA * C * t_emit
     camera = {"position": [0.0, 0.0, 0.0], "look_at": [0.0, 1.0, 0.0], "fov": 10.0}
-    plate = {"name": "plate", "shape": "box", "size": [WIDTH, 0.2, 100.0],
-             "motion": {"beta": [BETA, 0.0, 0.0], "position": [x0, DISTANCE + 0.1, 0.0]},
-             "surface": {"blackbody": 6000.0}}
-    render = {"resolution": [5, 5], "samples": 1, "exposure": 1e6, "shutter": shutter,
-              "shutter_samples": shutter_samples}
+    plate = {
+        "name": "plate",
+        "shape": "box",
+        "size": [WIDTH, 0.2, 100.0],
+        "motion": {"beta": [BETA, 0.0, 0.0], "position": [x0, DISTANCE + 0.1, 0.0]},
+        "surface": {"blackbody": 6000.0},
+    }
+    render = {
+        "resolution": [5, 5],
+        "samples": 1,
+        "exposure": 1e6,
+        "shutter": shutter,
+        "shutter_samples": shutter_samples,
+    }
     return dict_scene(camera, [plate], render)
 
 
@@ -56,7 +65,8 @@ def test_exposure_events_are_equal_strata_without_a_repeated_nominal_time():
 
 @pytest.mark.parametrize("covered, shutter_samples", [(0.5, 8), (0.25, 8), (0.75, 16)])
 def test_a_pixel_covered_for_a_fraction_of_the_exposure_records_that_fraction(
-        covered, shutter_samples):
+    covered, shutter_samples
+):
     full = _centre_luminance(_plate_scene(covered, 0.0), time=SHUTTER)  # covered, instant
     empty = _centre_luminance(_plate_scene(covered, 0.0), time=-SHUTTER)
     assert full > 0 and empty == 0  # the plate is in and out of that ray

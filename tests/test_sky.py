@@ -25,13 +25,18 @@ def source_at_rest_doppler(d_scene, beta_cam, relativistic=True):
 
 
 def one_star(temperature=4000.0, seed=11):
-    return Background(kind="stars", count=1, seed=seed, temperature=(temperature, temperature),
-                      luminance=1.0)
+    return Background(
+        kind="stars", count=1, seed=seed, temperature=(temperature, temperature), luminance=1.0
+    )
 
 
 def star_camera(direction, beta_cam):
-    return Camera(position=np.zeros(3), direction=np.asarray(direction, float), fov=40.0,
-                  beta=np.asarray(beta_cam, float))
+    return Camera(
+        position=np.zeros(3),
+        direction=np.asarray(direction, float),
+        fov=40.0,
+        beta=np.asarray(beta_cam, float),
+    )
 
 
 def splat_one_star(bg, beta_cam, effects=Effects(), w=61, h=61):
@@ -83,8 +88,9 @@ def test_star_flux_with_beaming_alone_scales_as_d_squared():
 
 
 def graticule(luminance=2.0, temperature=5000.0, spacing=30.0, width=3.0):
-    return Background(kind="graticule", luminance=luminance, temperature=temperature,
-                      spacing=spacing, width=width)
+    return Background(
+        kind="graticule", luminance=luminance, temperature=temperature, spacing=spacing, width=width
+    )
 
 
 def test_graticule_line_at_rest_has_its_stated_luminance_and_colour():
@@ -95,10 +101,10 @@ def test_graticule_line_at_rest_has_its_stated_luminance_and_colour():
     xyz = sky.sky_xyz(bg, on_equator, np.zeros(3), Effects())[0]
     assert xyz[1] == pytest.approx(3.5, rel=1e-9)
     assert chromaticity(xyz) == pytest.approx(
-        chromaticity(xyz_colour_science_blackbody(5000.0)), abs=1e-3)
+        chromaticity(xyz_colour_science_blackbody(5000.0)), abs=1e-3
+    )
     a = math.radians(15.0)  # latitude and longitude 15 deg: midway between lines
-    between_lines = np.array([[math.cos(a) * math.cos(a), math.cos(a) * math.sin(a),
-                               math.sin(a)]])
+    between_lines = np.array([[math.cos(a) * math.cos(a), math.cos(a) * math.sin(a), math.sin(a)]])
     assert sky.sky_xyz(bg, between_lines, np.zeros(3), Effects())[0] == pytest.approx(0.0)
 
 
@@ -110,8 +116,9 @@ def test_graticule_luminance_ratio_follows_the_shifted_planck_spectrum():
     d = np.array([[1.0, 0.0, 0.0]])
     beta = np.array([0.4, 0.0, 0.0])
     dop = source_at_rest_doppler(d[0], beta)
-    got = sky.sky_xyz(bg, d, beta, Effects())[0, 1] / sky.sky_xyz(bg, d, np.zeros(3),
-                                                                  Effects())[0, 1]
+    got = (
+        sky.sky_xyz(bg, d, beta, Effects())[0, 1] / sky.sky_xyz(bg, d, np.zeros(3), Effects())[0, 1]
+    )
     cmfs = cie_1931_cmfs()
     lam = cmfs.wavelengths
     ybar = cmfs.values[:, 1]
@@ -120,8 +127,9 @@ def test_graticule_luminance_ratio_follows_the_shifted_planck_spectrum():
     assert got == pytest.approx(moving / rest, rel=2e-3)
 
 
-@pytest.mark.parametrize("doppler,beaming", [(True, True), (True, False), (False, True),
-                                             (False, False)])
+@pytest.mark.parametrize(
+    "doppler,beaming", [(True, True), (True, False), (False, True), (False, False)]
+)
 def test_graticule_doppler_and_beaming_switches_behave_as_documented(doppler, beaming):
     # scene-format.md (effect switches) and spectrum.apply_effects: doppler shifts the
     # colour, beaming multiplies by the bolometric D^4 (Rybicki & Lightman eq. 4.97)
@@ -158,11 +166,19 @@ def test_graticule_without_contraction_uses_the_classical_doppler_factor():
 def graticule_panorama(beta_z, aberration=True):
     """A panorama (rows = camera-frame latitude) of a bodiless graticule sky, the camera
     flying along the graticule's pole (scene z) at beta_z."""
-    cam = Camera(position=np.zeros(3), direction=np.array([1.0, 0.0, 0.0]), fov=360.0,
-                 projection="panorama", beta=np.array([0.0, 0.0, beta_z]))
-    scene = Scene(camera=cam, bodies=[], background=graticule(spacing=30.0, width=3.0),
-                  render=RenderSettings(resolution=(720, 360),
-                                        effects=Effects(aberration=aberration)))
+    cam = Camera(
+        position=np.zeros(3),
+        direction=np.array([1.0, 0.0, 0.0]),
+        fov=360.0,
+        projection="panorama",
+        beta=np.array([0.0, 0.0, beta_z]),
+    )
+    scene = Scene(
+        camera=cam,
+        bodies=[],
+        background=graticule(spacing=30.0, width=3.0),
+        render=RenderSettings(resolution=(720, 360), effects=Effects(aberration=aberration)),
+    )
     return relview.render(scene).layers["xyz"][..., 1] > 0
 
 
@@ -199,7 +215,8 @@ def test_moving_camera_sees_the_graticule_aberrated_as_einstein_predicts():
         assert not col[int(h / 2.0 - lat / 180.0 * h)]
     # at rest the same column shows the lines where they are
     assert line_rows(graticule_panorama(0.0)) == pytest.approx(
-        np.sort(h / 2.0 - lats / np.pi * h), abs=1.0)
+        np.sort(h / 2.0 - lats / np.pi * h), abs=1.0
+    )
 
 
 def test_graticule_with_aberration_off_stays_where_it_is_at_rest():

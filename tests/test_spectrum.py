@@ -49,7 +49,10 @@ def test_planck_integrates_to_stefan_boltzmann(t):
     peak_nm = 2.897771955e-3 / t * 1e9  # Wien's displacement law (b from CODATA 2018)
     value, _ = integrate.quad(
         lambda u: planck_spectral_radiance(math.exp(u), t) * math.exp(u),
-        math.log(peak_nm) - 8, math.log(peak_nm) + 12, limit=400, epsabs=0,
+        math.log(peak_nm) - 8,
+        math.log(peak_nm) + 12,
+        limit=400,
+        epsabs=0,
     )
     assert value == pytest.approx(sc.Stefan_Boltzmann * t**4 / math.pi, rel=1e-8)
 
@@ -60,7 +63,9 @@ def test_planck_matches_colour_science():
     w = np.arange(360.0, 831.0, 10.0)
     shape = colour.SpectralShape(360, 830, 10)
     ours = planck_spectral_radiance(w, 5800.0)
-    np.testing.assert_allclose(ours, colour.sd_blackbody(5800.0, shape, c1=C1, c2=C2).values, rtol=1e-12)
+    np.testing.assert_allclose(
+        ours, colour.sd_blackbody(5800.0, shape, c1=C1, c2=C2).values, rtol=1e-12
+    )
     np.testing.assert_allclose(ours, colour.sd_blackbody(5800.0, shape).values, rtol=2e-4)
 
 
@@ -97,7 +102,9 @@ def test_lnu_over_nu_cubed_is_invariant(d):
     emitted = planck(6000.0)
     nu_obs = np.geomspace(1e13, 1e16, 40)  # Hz
     lam_obs_nm = sc.c / nu_obs * 1e9
-    l_nu_obs = doppler_shifted_radiance(emitted, lam_obs_nm, d) * 1e9 * (lam_obs_nm * 1e-9) ** 2 / sc.c
+    l_nu_obs = (
+        doppler_shifted_radiance(emitted, lam_obs_nm, d) * 1e9 * (lam_obs_nm * 1e-9) ** 2 / sc.c
+    )
     nu_emit = nu_obs / d
     lam_emit_nm = sc.c / nu_emit * 1e9
     l_nu_emit = emitted(lam_emit_nm) * 1e9 * (lam_emit_nm * 1e-9) ** 2 / sc.c
@@ -112,7 +119,10 @@ def test_bolometric_radiance_scales_as_d4(d):
     peak = 2.897771955e-3 / (d * t) * 1e9
     total, _ = integrate.quad(
         lambda u: doppler_shifted_radiance(planck(t), math.exp(u), d) * math.exp(u),
-        math.log(peak) - 8, math.log(peak) + 12, limit=400, epsabs=0,
+        math.log(peak) - 8,
+        math.log(peak) + 12,
+        limit=400,
+        epsabs=0,
     )
     assert total == pytest.approx(d**4 * sc.Stefan_Boltzmann * t**4 / math.pi, rel=1e-8)
 
@@ -340,7 +350,9 @@ def test_apply_effects_switch_rule():
     np.testing.assert_allclose(got, full / d[:, None] ** 4, rtol=2e-3)
     np.testing.assert_allclose(xyz_to_xy(got), xyz_to_xy(full), atol=1e-5)
     # both off: the rest-frame XYZ everywhere
-    np.testing.assert_allclose(apply_effects(table, d, False, False), np.repeat(rest, 3, 0), rtol=2e-3)
+    np.testing.assert_allclose(
+        apply_effects(table, d, False, False), np.repeat(rest, 3, 0), rtol=2e-3
+    )
 
 
 def test_beaming_off_keeps_bolometric_radiance_of_a_blackbody():

@@ -14,8 +14,14 @@ def tracer_for(meshes, betas, positions=None, effects=Effects()):
     bodies = []
     for i, b in enumerate(betas):
         pos = np.zeros(3) if positions is None else np.asarray(positions[i], float)
-        bodies.append(Body(name=f"b{i}", shape="mesh", surface=None,
-                           motion=UniformMotion(beta=np.asarray(b, float), position=pos)))
+        bodies.append(
+            Body(
+                name=f"b{i}",
+                shape="mesh",
+                surface=None,
+                motion=UniformMotion(beta=np.asarray(b, float), position=pos),
+            )
+        )
     arrays = [(m.vertices, m.faces) for m in meshes]
     return Tracer(uniform_groups(bodies, arrays, effects))
 
@@ -44,8 +50,7 @@ def test_beta_zero_matches_trimesh_ray_queries():
     ev = np.tile(np.concatenate([[0.0], origin]), (n, 1))
     hits = tr.cast(ev, d, Effects())
     ref = trimesh.ray.ray_triangle.RayMeshIntersector(both)
-    loc, idx_ray, idx_tri = ref.intersects_location(np.tile(origin, (n, 1)), d,
-                                                    multiple_hits=True)
+    loc, idx_ray, idx_tri = ref.intersects_location(np.tile(origin, (n, 1)), d, multiple_hits=True)
     ref_l = np.full(n, np.inf)
     dist = np.linalg.norm(loc - origin, axis=1)
     np.minimum.at(ref_l, idx_ray, dist)
@@ -266,8 +271,9 @@ def test_occlusion_between_different_velocities_is_by_path_length():
         meshes = [front, back]
         betas = [[0.5, 0, 0], [-0.7, 0, 0]]
         pos = [[0, 1.0, 0], [0, 2.0, 0]]
-        tr = tracer_for([meshes[i] for i in order], [betas[i] for i in order],
-                        positions=[pos[i] for i in order])
+        tr = tracer_for(
+            [meshes[i] for i in order], [betas[i] for i in order], positions=[pos[i] for i in order]
+        )
         h = tr.cast(ev, d, Effects())
         front_index = order.index(0)
         got_front = h.body == front_index
@@ -286,9 +292,14 @@ def test_co_moving_bodies_share_a_frame_and_keep_their_own_axes():
     half = np.array([[0.5, 0.3, 0.2], [0.25, 0.4, 0.3]])
     bodies, meshes = [], []
     for i, (rot, pos) in enumerate((((10, 20, 30), (-0.8, 0, 0)), ((-40, 5, 70), (0.9, 0.3, 0)))):
-        b = Body(name=f"b{i}", shape="box", size=2 * half[i], surface=None,
-                 rotation=np.array(rot, float),
-                 motion=UniformMotion(beta=np.array([0.7, 0.1, 0.0]), position=np.array(pos)))
+        b = Body(
+            name=f"b{i}",
+            shape="box",
+            size=2 * half[i],
+            surface=None,
+            rotation=np.array(rot, float),
+            motion=UniformMotion(beta=np.array([0.7, 0.1, 0.0]), position=np.array(pos)),
+        )
         m = trimesh.creation.box(2 * half[i])
         bodies.append(b)
         meshes.append((m.vertices @ b.rotation_matrix().T, m.faces))
@@ -313,10 +324,16 @@ def test_packet_kernel_equals_single_ray_kernel():
     # last packet).
     from relview.geometry import bvh
 
-    meshes = [trimesh.creation.icosphere(subdivisions=2, radius=0.5),
-              trimesh.creation.box([0.8, 0.3, 0.4]), trimesh.creation.box([3.0, 0.1, 3.0])]
-    tr = tracer_for(meshes, [[0.6, 0, 0], [-0.3, 0.2, 0], [0, 0, 0]],
-                    positions=[[0, 0, 0], [0.5, -0.2, 0.1], [0, 1.5, 0]])
+    meshes = [
+        trimesh.creation.icosphere(subdivisions=2, radius=0.5),
+        trimesh.creation.box([0.8, 0.3, 0.4]),
+        trimesh.creation.box([3.0, 0.1, 3.0]),
+    ]
+    tr = tracer_for(
+        meshes,
+        [[0.6, 0, 0], [-0.3, 0.2, 0], [0, 0, 0]],
+        positions=[[0, 0, 0], [0.5, -0.2, 0.1], [0, 1.5, 0]],
+    )
     rng = np.random.default_rng(11)
     n = 40 * bvh.PACKET + 7
     d = rng.normal(size=(n, 3)) * [0.5, 0.0, 0.5] + [0, 1.0, 0]

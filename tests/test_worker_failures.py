@@ -72,8 +72,12 @@ def test_worker_that_keeps_dying_stops_the_run_and_keeps_finished_frames(tmp_pat
     done = json.loads((out / "manifest.json").read_text())["frames"]
     assert sorted(done) == ["00000", "00001", "00002"]
     monkeypatch.setattr(batch, "FrameRenderer", workers.FrameRenderer)
-    summary = batch.animate(load_scene(write_scene(tmp_path / "brick.toml", frames=FRAMES)),
-                            out, progress=False, workers=1)
+    summary = batch.animate(
+        load_scene(write_scene(tmp_path / "brick.toml", frames=FRAMES)),
+        out,
+        progress=False,
+        workers=1,
+    )
     assert summary.rendered == [3] and summary.skipped == [0, 1, 2]  # a rerun resumes
 
 
@@ -116,7 +120,10 @@ def test_scheduler_lost_every_time_is_a_user_error_naming_the_missing_frames(mon
 
     session = _Session("tcp://127.0.0.1:8786").open()
     monkeypatch.setattr(farm, "_farm_pass", always_lost)
-    with pytest.raises(WorkersLost, match=r"2 frame\(s\) \(frames 0, 1\) could not be rendered: "
-                       r"workers of the Dask cluster were lost 3 time\(s\) \(CommClosedError"):
+    with pytest.raises(
+        WorkersLost,
+        match=r"2 frame\(s\) \(frames 0, 1\) could not be rendered: "
+        r"workers of the Dask cluster were lost 3 time\(s\) \(CommClosedError",
+    ):
         list(farm.render_frames(None, [(0, 0.0), (1, 0.0)], session))
     assert session.opened == 1 + workers.MAX_RETRIES

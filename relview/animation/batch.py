@@ -137,8 +137,9 @@ def decide_exposure(scene, times: np.ndarray, unlock: bool, context=None) -> dic
         xyz = frame.layers["xyz"]
         images.append(xyz)
         # the renderer's own metering: the scene's region, lamps left out
-        region, lamp = metering_masks(scene, xyz, frame.layers["body"],
-                                      frame.layers["rest_position"])
+        region, lamp = metering_masks(
+            scene, xyz, frame.layers["body"], frame.layers["rest_position"]
+        )
         masks.append(region)
         lamps.append(lamp)
     lock = ExposureLock("auto")

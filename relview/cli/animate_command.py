@@ -52,8 +52,6 @@ def register(subparsers) -> None:
     p.set_defaults(func=cmd_animate)
 
 
-
-
 def cmd_animate(args) -> int:
     scene = scene_with_overrides(args)
     if scene.animation is None:

@@ -100,15 +100,25 @@ def cmd_probe(args) -> int:
             ("camera clock", f"{r.camera_proper_time:.9g} s"),
         ]
         for lamp in r.lamps:  # the light of each lamp at the emission event
-            event = ("distant (plane wave)" if lamp.event_time != lamp.event_time else
-                     "t = %.9g s at (%.6g, %.6g, %.6g) m" % (lamp.event_time, *lamp.event_position))
+            event = (
+                "distant (plane wave)"
+                if lamp.event_time != lamp.event_time
+                else "t = %.9g s at (%.6g, %.6g, %.6g) m" % (lamp.event_time, *lamp.event_position)
+            )
             rows += [
                 (f"lamp {lamp.lamp}: event", event),
                 (f"lamp {lamp.lamp}: incident (rest)", "(%.6f, %.6f, %.6f)" % lamp.direction_rest),
                 (f"lamp {lamp.lamp}: D_in", f"{lamp.doppler_in:.6g}"),
-                (f"lamp {lamp.lamp}: lit", ("yes" if lamp.lit_fraction == 1.0 else
-                                            f"{lamp.lit_fraction:.3g} of it" if lamp.lit
-                                            else "no (shadowed)")),
+                (
+                    f"lamp {lamp.lamp}: lit",
+                    (
+                        "yes"
+                        if lamp.lit_fraction == 1.0
+                        else f"{lamp.lit_fraction:.3g} of it"
+                        if lamp.lit
+                        else "no (shadowed)"
+                    ),
+                ),
             ]
         width = max(len(k) for k, _ in rows)
         if i:
@@ -128,8 +138,7 @@ def _probe_over_time(scene, args) -> int:
         times = timeline.parse_times(args.times)
     else:
         times = np.array([scene.camera.time if args.time is None else args.time])
-    table = timeline.probe_table(scene, args.body, args.point, times,
-                                 progress=not args.quiet)
+    table = timeline.probe_table(scene, args.body, args.point, times, progress=not args.quiet)
     if args.csv:
         for path in timeline.write_csv(table, args.csv, overwrite=args.overwrite):
             print(f"wrote {path}", file=sys.stderr)
@@ -160,8 +169,10 @@ def named_outputs(args) -> list[tuple[str, Path]]:
             if len(args.point) == 2:
                 named.append(("--csv (its length table)", length_csv_path(args.csv)))
         if args.plot:
-            named += [("--plot", Path(args.plot)), ("--plot (its sidecar)",
-                                                     sidecar_path(Path(args.plot)))]
+            named += [
+                ("--plot", Path(args.plot)),
+                ("--plot (its sidecar)", sidecar_path(Path(args.plot))),
+            ]
     return named
 
 
@@ -176,8 +187,10 @@ def cmd_check(args) -> int:
         # every point of a body on a non-uniform worldline must stay below c
         if not body.motion.is_inertial:
             lightcone.check_body_speed(scene, i, shapes.mesh_data(body).vertices)
-    print(f"{args.scene}: ok  ({len(scene.bodies)} bodies, {w}x{h}, "
-          f"about {estimate_bytes(w, h) / 2**20:.0f} MiB per frame)")
+    print(
+        f"{args.scene}: ok  ({len(scene.bodies)} bodies, {w}x{h}, "
+        f"about {estimate_bytes(w, h) / 2**20:.0f} MiB per frame)"
+    )
     _report_sightings(args.scene, scene)
     return 0
 
@@ -207,38 +220,57 @@ def _report_sightings(source, scene) -> None:
 
 def build_parser() -> argparse.ArgumentParser:
 
-    parser = _Parser(prog="relview", description="Apparent images of relativistically "
-                     "moving bodies: light delay, aberration, Doppler shift and beaming.")
+    parser = _Parser(
+        prog="relview",
+        description="Apparent images of relativistically "
+        "moving bodies: light delay, aberration, Doppler shift and beaming.",
+    )
     parser.add_argument("--version", action="version", version=f"relview {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True
 
     p = sub.add_parser("render", help="render one exposure to PNG (and float layers)")
     p.add_argument("scene", metavar="SCENE")
-    p.add_argument("-o", "--output", metavar="FILE",
-                   help="output image (.png, .npz or .exr); default outputs/SCENE.png")
+    p.add_argument(
+        "-o",
+        "--output",
+        metavar="FILE",
+        help="output image (.png, .npz or .exr); default outputs/SCENE.png",
+    )
     p.add_argument("--time", type=finite_time, metavar="S", help="exposure time (s), scene frame")
     p.add_argument("--layers", action="store_true", help="also write the float layers as .npz")
     p.add_argument("--bits", type=int, choices=(8, 16), default=8, help="PNG bit depth")
     add_frame_options(p)
     p.set_defaults(func=cmd_render)
 
-    p = sub.add_parser("probe", help="where, when and how body points are seen, at one "
-                       "time or over a time range")
+    p = sub.add_parser(
+        "probe", help="where, when and how body points are seen, at one time or over a time range"
+    )
     p.add_argument("scene", metavar="SCENE")
     p.add_argument("--body", required=True, metavar="NAME")
-    p.add_argument("--point", required=True, type=point_text, action="append", metavar="X,Y,Z",
-                   help="point in the body's rest frame, metres (repeat for more points; "
-                   "two points add the photographed length between them; negative "
-                   "coordinates as in --point -5,0,0)")
+    p.add_argument(
+        "--point",
+        required=True,
+        type=point_text,
+        action="append",
+        metavar="X,Y,Z",
+        help="point in the body's rest frame, metres (repeat for more points; "
+        "two points add the photographed length between them; negative "
+        "coordinates as in --point -5,0,0)",
+    )
     p.add_argument("--time", type=finite_time, metavar="S", help="exposure time (s), scene frame")
-    p.add_argument("--times", metavar="A:B:N",
-                   help="N exposure times from A to B seconds: a probe table over time")
+    p.add_argument(
+        "--times",
+        metavar="A:B:N",
+        help="N exposure times from A to B seconds: a probe table over time",
+    )
     p.add_argument("--json", action="store_true", help="print JSON instead of a table")
-    p.add_argument("--csv", metavar="FILE",
-                   help="write the probe table as CSV (commented provenance header)")
-    p.add_argument("--plot", metavar="FILE",
-                   help="plot the probe table against time (.png, .pdf or .svg)")
+    p.add_argument(
+        "--csv", metavar="FILE", help="write the probe table as CSV (commented provenance header)"
+    )
+    p.add_argument(
+        "--plot", metavar="FILE", help="plot the probe table against time (.png, .pdf or .svg)"
+    )
     add_frame_options(p)
     p.set_defaults(func=cmd_probe)
 
@@ -279,8 +311,10 @@ def compile_notice() -> str | None:
         return None  # numba caches elsewhere; nothing reliable to look at
     if cache.is_dir() and any(cache.glob("trace._cast-*.nbi")):
         return None
-    return ("relview: first run on this installation: compiling the ray-casting kernels "
-            "(once, about 20-40 s; later runs start in about a second)")
+    return (
+        "relview: first run on this installation: compiling the ray-casting kernels "
+        "(once, about 20-40 s; later runs start in about a second)"
+    )
 
 
 def main(argv=None) -> int:
@@ -288,8 +322,9 @@ def main(argv=None) -> int:
         with warnings.catch_warnings():
             warnings.showwarning = _show_warning
             parser = build_parser()
-            args = parser.parse_args(attach_negative_values(
-                parser, sys.argv[1:] if argv is None else argv))
+            args = parser.parse_args(
+                attach_negative_values(parser, sys.argv[1:] if argv is None else argv)
+            )
             refuse_existing(named_outputs(args), getattr(args, "overwrite", False))
             # a person at a terminal is told why the first run waits; logs and pipes,
             # whose stderr carries only errors and warnings, are not
@@ -308,8 +343,11 @@ def main(argv=None) -> int:
         return int(e.code or 0) if isinstance(e.code, int) else 0
     except Exception:
         traceback.print_exc()
-        print("relview: internal error (a bug in relview, not in your input); please report "
-              "it with the traceback above and the scene file", file=sys.stderr)
+        print(
+            "relview: internal error (a bug in relview, not in your input); please report "
+            "it with the traceback above and the scene file",
+            file=sys.stderr,
+        )
         return 1
 
 

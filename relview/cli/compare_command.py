@@ -67,8 +67,10 @@ def cmd_compare(args) -> int:
             if math.isfinite(p.metres_per_pixel)
             else "no scale"
         )
-        print(f"  {p.kind.name:<16} white {p.frame.white:.4g} cd/m2  {scale}"
-              + (f"  ({p.out_of_view})" if p.out_of_view else ""))
+        print(
+            f"  {p.kind.name:<16} white {p.frame.white:.4g} cd/m2  {scale}"
+            + (f"  ({p.out_of_view})" if p.out_of_view else "")
+        )
     print(f"wrote {sheet.path}\nwrote {sheet.sidecar}")
     return 0
 

@@ -29,7 +29,8 @@ def resolution_text(text: str) -> tuple[int, int]:
         w, h = (int(v) for v in text.lower().split("x"))
     except ValueError:
         raise argparse.ArgumentTypeError(
-            f"expected WIDTHxHEIGHT such as 960x540, got {text!r}") from None
+            f"expected WIDTHxHEIGHT such as 960x540, got {text!r}"
+        ) from None
     if w < 1 or h < 1:
         raise argparse.ArgumentTypeError(f"resolution must be positive, got {text!r}")
     return w, h
@@ -42,7 +43,8 @@ def exposure_text(text: str):
         v = float(text)
     except ValueError:
         raise argparse.ArgumentTypeError(
-            f"expected 'auto' or a luminance in cd/m2, got {text!r}") from None
+            f"expected 'auto' or a luminance in cd/m2, got {text!r}"
+        ) from None
     if not v > 0 or v == float("inf"):
         raise argparse.ArgumentTypeError(f"exposure luminance must be > 0 and finite, got {text!r}")
     return v
@@ -72,20 +74,34 @@ def finite_time(text: str) -> float:
 
 def add_frame_options(p: argparse.ArgumentParser) -> None:
     """Options shared by every command that renders (render, animate, compare)."""
-    p.add_argument("--resolution", type=resolution_text, metavar="WxH",
-                   help="override render.resolution, e.g. 480x270")
+    p.add_argument(
+        "--resolution",
+        type=resolution_text,
+        metavar="WxH",
+        help="override render.resolution, e.g. 480x270",
+    )
     p.add_argument("--samples", type=int, metavar="N", help="override render.samples")
-    p.add_argument("--exposure", type=exposure_text, metavar="auto|CD_M2",
-                   help="override render.exposure")
+    p.add_argument(
+        "--exposure", type=exposure_text, metavar="auto|CD_M2", help="override render.exposure"
+    )
     for name in EFFECTS:
-        p.add_argument(f"--no-{name}", action="store_true",
-                       help=f"switch the {name} effect off (docs/scene-format.md)")
-    p.add_argument("--tone", choices=("none", "reinhard"),
-                   help="display curve for PNGs: none (clip, default) or reinhard (Reinhard et al. "
-                   "2002, on luminance)")
-    p.add_argument("--overwrite", action="store_true",
-                   help="replace existing output files (default: an existing file named with "
-                   "-o, --csv or --plot is an error; default names get a numbered new name)")
+        p.add_argument(
+            f"--no-{name}",
+            action="store_true",
+            help=f"switch the {name} effect off (docs/scene-format.md)",
+        )
+    p.add_argument(
+        "--tone",
+        choices=("none", "reinhard"),
+        help="display curve for PNGs: none (clip, default) or reinhard (Reinhard et al. "
+        "2002, on luminance)",
+    )
+    p.add_argument(
+        "--overwrite",
+        action="store_true",
+        help="replace existing output files (default: an existing file named with "
+        "-o, --csv or --plot is an error; default names get a numbered new name)",
+    )
     p.add_argument("--quiet", action="store_true", help="no progress bar")
 
 
@@ -104,13 +120,15 @@ def scene_with_overrides(args):
     if getattr(args, "tone", None):
         settings = dataclasses.replace(settings, tone=args.tone)
     # Refuse a frame that cannot fit before any work, naming where the size came from.
-    source = ("--resolution" if getattr(args, "resolution", None)
-              else f"{args.scene}: render.resolution")
+    source = (
+        "--resolution" if getattr(args, "resolution", None) else f"{args.scene}: render.resolution"
+    )
     check_memory(*settings.resolution, source=source)
     off = {n: False for n in EFFECTS if getattr(args, f"no_{n}", False)}
     if off:
-        settings = dataclasses.replace(settings,
-                                       effects=dataclasses.replace(settings.effects, **off))
+        settings = dataclasses.replace(
+            settings, effects=dataclasses.replace(settings.effects, **off)
+        )
     return dataclasses.replace(scene, render=settings)
 
 
@@ -139,8 +157,13 @@ SIGNED_OPTIONS = frozenset({"--point", "--time", "--times"})
 
 def _signed_options(parser: argparse.ArgumentParser) -> set[str]:
     """The :data:`SIGNED_OPTIONS` that ``parser`` has, taking exactly one value each."""
-    return {s for a in parser._actions if a.option_strings and a.nargs is None
-            for s in a.option_strings if s in SIGNED_OPTIONS}
+    return {
+        s
+        for a in parser._actions
+        if a.option_strings and a.nargs is None
+        for s in a.option_strings
+        if s in SIGNED_OPTIONS
+    }
 
 
 def attach_negative_values(parser: argparse.ArgumentParser, argv: Iterable[str]) -> list[str]:
@@ -163,8 +186,7 @@ def attach_negative_values(parser: argparse.ArgumentParser, argv: Iterable[str])
             break
         if word in commands and not any(w in commands for w in out):
             takes_value = takes_value | _signed_options(commands[word])
-        if (word in takes_value and i + 1 < len(argv)
-                and _NEGATIVE_VALUE.match(argv[i + 1])):
+        if word in takes_value and i + 1 < len(argv) and _NEGATIVE_VALUE.match(argv[i + 1]):
             out.append(f"{word}={argv[i + 1]}")
             i += 2
             continue
@@ -188,4 +210,6 @@ def refuse_existing(outputs: Iterable[tuple[str, Path]], overwrite: bool) -> Non
         if os.path.lexists(path) and not Path(path).is_dir():
             raise OutputError(
                 f"{flag}: the file exists; pass --overwrite to replace it, or name another "
-                "file (relview never replaces a file you named unless asked)", file=path)
+                "file (relview never replaces a file you named unless asked)",
+                file=path,
+            )

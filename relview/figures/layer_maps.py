@@ -72,7 +72,7 @@ LAYERS: dict[str, LayerView] = {
         "K",
         False,
         "coolwarm",
-        "blackbody temperature of the microwave sky ([background] kind = \"cmb\") the camera "
+        'blackbody temperature of the microwave sky ([background] kind = "cmb") the camera '
         "records; hotter (red) towards its motion through the sky's frame",
     ),
 }
@@ -97,8 +97,10 @@ def layer_values(frame, layer: str, camera_position: np.ndarray) -> np.ndarray:
         return np.where(y > 0, y, np.nan)
     if layer == "temperature":
         if "temperature" not in L:
-            raise UserError('--layer temperature: only a scene whose [background] kind = "cmb" '
-                            "has a temperature layer")
+            raise UserError(
+                '--layer temperature: only a scene whose [background] kind = "cmb" '
+                "has a temperature layer"
+            )
         return np.asarray(L["temperature"], float)
     raise UserError(f"--layer {layer!r}: unknown layer; choose from: {', '.join(LAYERS)}")
 

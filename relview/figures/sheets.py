@@ -349,8 +349,14 @@ def _drawn_centre(scene: Scene, index: int, time_s: float, effects: Effects, con
 FRAMINGS = ("auto", "scene", "common", "each")
 
 
-def _framed_scenes(scenes: list[Scene], kinds: list[PanelKind], index: int | None,
-                   time_s: float, resolution, framing_mode: str) -> tuple[list[Scene], str]:
+def _framed_scenes(
+    scenes: list[Scene],
+    kinds: list[PanelKind],
+    index: int | None,
+    time_s: float,
+    resolution,
+    framing_mode: str,
+) -> tuple[list[Scene], str]:
     """The panels' scenes with the sheet's framing applied, and the framing used."""
     # imported here: it loads the numba kernels, which command start-up does not need
     from relview import framing
@@ -362,8 +368,12 @@ def _framed_scenes(scenes: list[Scene], kinds: list[PanelKind], index: int | Non
         return scenes, "scene"
     name = scenes[0].bodies[index].name
     if framing_mode == "each":
-        return [dataclasses.replace(s, camera=dataclasses.replace(
-            s.camera, aim_at=(name,), fit=(name,))) for s in scenes], "each"
+        return [
+            dataclasses.replace(
+                s, camera=dataclasses.replace(s.camera, aim_at=(name,), fit=(name,))
+            )
+            for s in scenes
+        ], "each"
     seen, cameras = [], []
     for s, kind in zip(scenes, kinds):
         event, beta = camera_state(s, time_s)
@@ -376,12 +386,27 @@ def _framed_scenes(scenes: list[Scene], kinds: list[PanelKind], index: int | Non
             return scenes, "scene"
     directions = np.concatenate(seen)
     base = scenes[0].camera
-    aimed = dataclasses.replace(base, direction=framing.centre_direction(
-        directions, np.asarray(base.up, float)), look_at=None, aim_at=(), fit=())
+    aimed = dataclasses.replace(
+        base,
+        direction=framing.centre_direction(directions, np.asarray(base.up, float)),
+        look_at=None,
+        aim_at=(),
+        fit=(),
+    )
     aimed.fov = framing.fitted_fov(aimed, *resolution, directions, base.margin)
-    return [dataclasses.replace(s, camera=dataclasses.replace(
-        aimed, position=s.camera.position, time=s.camera.time, beta=s.camera.beta,
-        motion=s.camera.motion)) for s in scenes], "common"
+    return [
+        dataclasses.replace(
+            s,
+            camera=dataclasses.replace(
+                aimed,
+                position=s.camera.position,
+                time=s.camera.time,
+                beta=s.camera.beta,
+                motion=s.camera.motion,
+            ),
+        )
+        for s in scenes
+    ], "common"
 
 
 def render_panels(
@@ -426,8 +451,9 @@ def render_panels(
     bi = main_body_index(scene, body, t)
     if overlay and bi is None:
         raise UserError("an outline overlay needs a body in the scene")
-    scenes, framing_used = _framed_scenes([panel_scene(scene, k, t) for k in kinds], kinds, bi, t,
-                                          res, framing)
+    scenes, framing_used = _framed_scenes(
+        [panel_scene(scene, k, t) for k in kinds], kinds, bi, t, res, framing
+    )
     beta = body_state(scene, bi, t)[1] if bi is not None else np.zeros(3)
     white = None
     # Held exposure is set by rest-frame brightness: the first panel without Doppler colour
@@ -470,19 +496,32 @@ def render_panels(
             dist = scale_distance(camera, event[1:], centre)
             mpp = metres_per_pixel(camera, res[0], dist)
             if not np.any(frame.layers["body"] == bi):
-                sight = framing_mod.sightings(s, event, beta_cam, kind.effects, camera, frame,
-                                              context.meshes, res)[bi]
-                missing = (f"{sight.body} hidden behind another body" if sight.in_frame else
-                           f"{sight.body} out of view: {sight.miss_deg:.3g} deg outside the frame"
-                           + (f" ({sight.miss_side})" if sight.miss_side else ""))
+                sight = framing_mod.sightings(
+                    s, event, beta_cam, kind.effects, camera, frame, context.meshes, res
+                )[bi]
+                missing = (
+                    f"{sight.body} hidden behind another body"
+                    if sight.in_frame
+                    else f"{sight.body} out of view: {sight.miss_deg:.3g} deg outside the frame"
+                    + (f" ({sight.miss_side})" if sight.miss_side else "")
+                )
         out[i] = Panel(kind, frame, mpp, dist, exposure, camera, missing)
         if bar is not None:
             bar.update(1)
     if bar is not None:
         bar.close()
     name = scene.bodies[bi].name if bi is not None else None
-    sheet = Sheet(scene, t, out, name, beta, float(lorentz_factor(beta)), white,
-                  framing=framing_used, overlay=overlay)
+    sheet = Sheet(
+        scene,
+        t,
+        out,
+        name,
+        beta,
+        float(lorentz_factor(beta)),
+        white,
+        framing=framing_used,
+        overlay=overlay,
+    )
     sheet.metadata = sheet_provenance(sheet)
     return sheet
 
@@ -550,9 +589,17 @@ def _draw_scale_bar(ax, mpp: float, width: int, height: int) -> None:
 
 def _draw_notice(ax, text: str, width: int, height: int) -> None:
     """A panel's notice (e.g. the main body out of view), across its middle."""
-    ax.text(width / 2, height / 2, text, color="white", ha="center", va="center",
-            fontsize="medium", wrap=True,
-            bbox={"facecolor": "0.25", "edgecolor": "white", "lw": 0.8, "pad": 4.0})
+    ax.text(
+        width / 2,
+        height / 2,
+        text,
+        color="white",
+        ha="center",
+        va="center",
+        fontsize="medium",
+        wrap=True,
+        bbox={"facecolor": "0.25", "edgecolor": "white", "lw": 0.8, "pad": 4.0},
+    )
 
 
 #: Line styles of the outline overlay: (panel, colour, line style, what it is).
@@ -578,17 +625,30 @@ def _draw_overlay(ax, sheet: Sheet, width: int, height: int) -> None:
         handles.append((colour, style, label + ("" if mask.any() else ": out of view")))
     from matplotlib.lines import Line2D  # local: matplotlib loads only when drawing
 
-    ax.legend([Line2D([], [], color=c, ls=s, lw=1.6) for c, s, _ in handles],
-              [lab for _, _, lab in handles], loc="upper right", fontsize="x-small",
-              facecolor="0.15", labelcolor="white", edgecolor="0.5")
+    ax.legend(
+        [Line2D([], [], color=c, ls=s, lw=1.6) for c, s, _ in handles],
+        [lab for _, _, lab in handles],
+        loc="upper right",
+        fontsize="x-small",
+        facecolor="0.15",
+        labelcolor="white",
+        edgecolor="0.5",
+    )
     photo = sheet.panel("photograph")
     if math.isfinite(photo.metres_per_pixel):
         _draw_scale_bar(ax, photo.metres_per_pixel, width, height)
     ax.set_title("measured vs photographed", fontsize="large", fontweight="bold")
     same = "one camera" if sheet.framing != "each" else "each panel framed by itself"
-    ax.text(0.0, -0.02, f"outlines of {sheet.main_body}; {same}\n{time_text(sheet.time)}\n"
-            "scale bar at the photographed centre", transform=ax.transAxes,
-            fontsize="x-small", ha="left", va="top")
+    ax.text(
+        0.0,
+        -0.02,
+        f"outlines of {sheet.main_body}; {same}\n{time_text(sheet.time)}\n"
+        "scale bar at the photographed centre",
+        transform=ax.transAxes,
+        fontsize="x-small",
+        ha="left",
+        va="top",
+    )
 
 
 def time_text(t: float) -> str:
@@ -715,8 +775,15 @@ def compare_sheet(
     if out is not None:
         figure_format(Path(out))  # refuse a bad extension before rendering
     sheet = render_panels(
-        scene, time, panels, resolution=resolution, exposure=exposure, body=body,
-        progress=progress, framing=framing, overlay=overlay,
+        scene,
+        time,
+        panels,
+        resolution=resolution,
+        exposure=exposure,
+        body=body,
+        progress=progress,
+        framing=framing,
+        overlay=overlay,
     )
     if out is not None:
         fig = draw_sheet(sheet)

@@ -112,8 +112,10 @@ def parse_times(text: str) -> np.ndarray:
     if n < 1:
         raise UserError(f"--times {text!r}: COUNT must be >= 1, got {n}")
     if n > MAX_TIMES:
-        raise UserError(f"--times {text!r}: COUNT = {n} is more than {MAX_TIMES} exposures; "
-                        "split the range into several runs")
+        raise UserError(
+            f"--times {text!r}: COUNT = {n} is more than {MAX_TIMES} exposures; "
+            "split the range into several runs"
+        )
     if b < a:
         raise UserError(f"--times {text!r}: END ({b}) is before START ({a})")
     if n == 1 and b != a:
@@ -489,13 +491,28 @@ def _draw_clocks(ax, table: ProbeTable, f: float, unit: str) -> None:
     for k in table.points:
         t = table.column("time_s", k) / f
         colour = f"C{k % 10}"
-        ax.plot(t, table.column("proper_time_s", k).astype(float) / f, "-", color=colour,
-                label=f"point {k} seen")
-        ax.plot(t, table.column("computed_proper_time_s", k).astype(float) / f, "--",
-                color=colour, label=f"point {k} computed (one instant)")
+        ax.plot(
+            t,
+            table.column("proper_time_s", k).astype(float) / f,
+            "-",
+            color=colour,
+            label=f"point {k} seen",
+        )
+        ax.plot(
+            t,
+            table.column("computed_proper_time_s", k).astype(float) / f,
+            "--",
+            color=colour,
+            label=f"point {k} computed (one instant)",
+        )
     t = table.column("time_s", table.points[0]) / f
-    ax.plot(t, table.column("camera_proper_time_s", table.points[0]).astype(float) / f, ":",
-            color="0.3", label="camera clock")
+    ax.plot(
+        t,
+        table.column("camera_proper_time_s", table.points[0]).astype(float) / f,
+        ":",
+        color="0.3",
+        label="camera clock",
+    )
     ax.set_ylabel(f"clock reading ({unit})")
     ax.legend(fontsize="x-small", ncol=2)
 
@@ -514,8 +531,21 @@ def write_plot(table: ProbeTable, path, overwrite: bool = False) -> tuple[Path, 
 
 def format_rows(table: ProbeTable) -> str:
     """A compact text table for the terminal."""
-    head = ("time_s", "pt", "emit_time_s", "az_deg", "el_deg", "pixel_x", "pixel_y", "seen", "D",
-            "clock_seen_s", "tick_rate", "clock_comp_s", "camera_s")
+    head = (
+        "time_s",
+        "pt",
+        "emit_time_s",
+        "az_deg",
+        "el_deg",
+        "pixel_x",
+        "pixel_y",
+        "seen",
+        "D",
+        "clock_seen_s",
+        "tick_rate",
+        "clock_comp_s",
+        "camera_s",
+    )
     lines = ["  ".join(f"{h:>12}" for h in head)]
     for r in table.rows:
         seen = "yes" if (r["visible"] and r["in_view"]) else "no"

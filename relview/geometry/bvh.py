@@ -27,8 +27,23 @@ MAX_DEPTH = 100  # keeps the traversal stack (STACK_SIZE) from overflowing
 
 
 @njit(cache=True)
-def _sah_split(order, start, count, axis, c_lo, scale, centroid, tri_lo, tri_hi, n_bins,
-               bin_lo, bin_hi, bin_n, right_area, right_n):
+def _sah_split(
+    order,
+    start,
+    count,
+    axis,
+    c_lo,
+    scale,
+    centroid,
+    tri_lo,
+    tri_hi,
+    n_bins,
+    bin_lo,
+    bin_hi,
+    bin_n,
+    right_area,
+    right_n,
+):
     """Cheapest binned-SAH split of order[start:start+count] along ``axis``:
     (cost = sum over both sides of triangles x surface area, last bin of the left side)."""
     for b in range(n_bins):
@@ -144,9 +159,23 @@ def _build(tri_lo, tri_hi, centroid, max_leaf, n_bins):
             for ax in range(3):
                 if ext[ax] <= 0.0:
                     continue
-                cost, b = _sah_split(order, start, count, ax, clo[ax], n_bins / ext[ax],
-                                     centroid, tri_lo, tri_hi, n_bins, bin_lo, bin_hi, bin_n,
-                                     right_area, right_n)
+                cost, b = _sah_split(
+                    order,
+                    start,
+                    count,
+                    ax,
+                    clo[ax],
+                    n_bins / ext[ax],
+                    centroid,
+                    tri_lo,
+                    tri_hi,
+                    n_bins,
+                    bin_lo,
+                    bin_hi,
+                    bin_n,
+                    right_area,
+                    right_n,
+                )
                 if cost < best_cost:
                     best_cost = cost
                     best_b = b
@@ -227,8 +256,18 @@ def build_bvh(vertices: np.ndarray, faces: np.ndarray) -> BVH:
     centroid = tri.mean(axis=1)
     lo, hi, left, right, start, count, order = _build(tri_lo, tri_hi, centroid, MAX_LEAF, N_BINS)
     t = tri[order]
-    return BVH(lo, hi, left, right, start, count, t[:, 0].copy(), (t[:, 1] - t[:, 0]).copy(),
-               (t[:, 2] - t[:, 0]).copy(), order.astype(np.int64))
+    return BVH(
+        lo,
+        hi,
+        left,
+        right,
+        start,
+        count,
+        t[:, 0].copy(),
+        (t[:, 1] - t[:, 0]).copy(),
+        (t[:, 2] - t[:, 0]).copy(),
+        order.astype(np.int64),
+    )
 
 
 @dataclass
@@ -277,15 +316,28 @@ def pack(bvhs: list[BVH]) -> BVHSet:
         n_off += len(b.node_lo)
         t_off += len(b.v0)
     cat = np.concatenate
-    out = BVHSet(np.array(roots, np.int64), cat(lo), cat(hi), cat(left), cat(right), cat(start),
-                 cat(count), cat(v0), cat(e1), cat(e2), cat(grp), cat(face),
-                 np.array(toff, np.int64))
+    out = BVHSet(
+        np.array(roots, np.int64),
+        cat(lo),
+        cat(hi),
+        cat(left),
+        cat(right),
+        cat(start),
+        cat(count),
+        cat(v0),
+        cat(e1),
+        cat(e2),
+        cat(grp),
+        cat(face),
+        np.array(toff, np.int64),
+    )
     # Node boxes in float32, rounded outwards so that no float64 hit is ever culled.
     lo32 = np.nextafter(out.node_lo.astype(np.float32), np.float32(-np.inf))
     hi32 = np.nextafter(out.node_hi.astype(np.float32), np.float32(np.inf))
     out.nodes = np.ascontiguousarray(np.concatenate([lo32, hi32], axis=1))
-    out.links = np.ascontiguousarray(np.stack([out.node_left, out.node_right, out.node_start,
-                                               out.node_count], axis=1))
+    out.links = np.ascontiguousarray(
+        np.stack([out.node_left, out.node_right, out.node_start, out.node_count], axis=1)
+    )
     out.tris = np.ascontiguousarray(np.concatenate([out.v0, out.e1, out.e2], axis=1))
     return out
 
@@ -414,8 +466,9 @@ PACKET = 16
 
 
 @njit(cache=True, inline="always")
-def packet_first_hits(ox, oy, oz, dx, dy, dz, l_min, best, best_tri, best_u, best_v, root,
-                      nodes, links, tris, stack):
+def packet_first_hits(
+    ox, oy, oz, dx, dy, dz, l_min, best, best_tri, best_u, best_v, root, nodes, links, tris, stack
+):
     """Nearest hits of PACKET rays sharing one origin (ox, oy, oz); directions dx, dy, dz
     (PACKET,) each. ``best`` etc. (PACKET,) hold each ray's nearest hit so far and are
     updated in place (so several hierarchies can be walked one after the other).
@@ -487,8 +540,14 @@ def packet_first_hits(ox, oy, oz, dx, dy, dz, l_min, best, best_tri, best_u, bes
                     u = (tx * px + ty * py + tz * pz) * inv
                     v = (dx[r] * qx + dy[r] * qy + dz[r] * qz) * inv
                     t = tq * inv
-                    if ((det != 0.0) & (u >= 0.0) & (v >= 0.0) & (u + v <= 1.0) & (t > l_min)
-                            & (t < best[r])):
+                    if (
+                        (det != 0.0)
+                        & (u >= 0.0)
+                        & (v >= 0.0)
+                        & (u + v <= 1.0)
+                        & (t > l_min)
+                        & (t < best[r])
+                    ):
                         best[r] = t
                         best_tri[r] = k
                         best_u[r] = u
@@ -496,10 +555,16 @@ def packet_first_hits(ox, oy, oz, dx, dy, dz, l_min, best, best_tri, best_u, bes
         else:
             a = links[node, 0]
             b = links[node, 1]
-            ca = ((nodes[a, 0] + nodes[a, 3]) * dx[0] + (nodes[a, 1] + nodes[a, 4]) * dy[0]
-                  + (nodes[a, 2] + nodes[a, 5]) * dz[0])
-            cb = ((nodes[b, 0] + nodes[b, 3]) * dx[0] + (nodes[b, 1] + nodes[b, 4]) * dy[0]
-                  + (nodes[b, 2] + nodes[b, 5]) * dz[0])
+            ca = (
+                (nodes[a, 0] + nodes[a, 3]) * dx[0]
+                + (nodes[a, 1] + nodes[a, 4]) * dy[0]
+                + (nodes[a, 2] + nodes[a, 5]) * dz[0]
+            )
+            cb = (
+                (nodes[b, 0] + nodes[b, 3]) * dx[0]
+                + (nodes[b, 1] + nodes[b, 4]) * dy[0]
+                + (nodes[b, 2] + nodes[b, 5]) * dz[0]
+            )
             if ca <= cb:  # nearer child on top of the stack
                 stack[sp] = b
                 stack[sp + 1] = a
@@ -519,8 +584,7 @@ def box_tree(lo: np.ndarray, hi: np.ndarray):
     triangle hierarchies, on the boxes' centres."""
     lo = np.ascontiguousarray(lo, dtype=np.float64)
     hi = np.ascontiguousarray(hi, dtype=np.float64)
-    n_lo, n_hi, left, right, start, count, order = _build(lo, hi, 0.5 * (lo + hi), MAX_LEAF,
-                                                         N_BINS)
+    n_lo, n_hi, left, right, start, count, order = _build(lo, hi, 0.5 * (lo + hi), MAX_LEAF, N_BINS)
     nodes = np.ascontiguousarray(np.concatenate([n_lo, n_hi], axis=1))
     links = np.ascontiguousarray(np.stack([left, right, start, count], axis=1))
     return nodes, links, order.astype(np.int64)
@@ -538,16 +602,28 @@ def boxes_overlapping(qlx, qly, qlz, qhx, qhy, qhz, nodes, links, order, items, 
     while sp > 0:
         sp -= 1
         node = stack[sp]
-        if (nodes[node, 0] > qhx or nodes[node, 3] < qlx or nodes[node, 1] > qhy
-                or nodes[node, 4] < qly or nodes[node, 2] > qhz or nodes[node, 5] < qlz):
+        if (
+            nodes[node, 0] > qhx
+            or nodes[node, 3] < qlx
+            or nodes[node, 1] > qhy
+            or nodes[node, 4] < qly
+            or nodes[node, 2] > qhz
+            or nodes[node, 5] < qlz
+        ):
             continue
         cnt = links[node, 3]
         if cnt > 0:
             s = links[node, 2]
             for j in range(s, s + cnt):
                 i = order[j]
-                if (items[i, 0] > qhx or items[i, 3] < qlx or items[i, 1] > qhy
-                        or items[i, 4] < qly or items[i, 2] > qhz or items[i, 5] < qlz):
+                if (
+                    items[i, 0] > qhx
+                    or items[i, 3] < qlx
+                    or items[i, 1] > qhy
+                    or items[i, 4] < qly
+                    or items[i, 2] > qhz
+                    or items[i, 5] < qlz
+                ):
                     continue
                 out[k] = i
                 k += 1

@@ -66,8 +66,10 @@ PROJECTIONS: dict[str, type[Projection]] = {}
 def register(cls: type[Projection]) -> type[Projection]:
     """Add a projection class to :data:`PROJECTIONS` (its code must be the next free one)."""
     if cls.code != len(PROJECTIONS) or cls.name in PROJECTIONS:
-        raise ValueError(f"projection {cls.name!r}: code {cls.code} is not the next free "
-                         f"one ({len(PROJECTIONS)}) or the name is taken")
+        raise ValueError(
+            f"projection {cls.name!r}: code {cls.code} is not the next free "
+            f"one ({len(PROJECTIONS)}) or the name is taken"
+        )
     PROJECTIONS[cls.name] = cls
     return cls
 
@@ -256,8 +258,12 @@ def _solid_angle(code, x, y, p):
 
 def _constants(camera: Camera, width: int, height: int):
     """(code, width, height, fov in radians) as the kernels take them."""
-    return (projection(camera.projection).code, float(width), float(height),
-            float(np.radians(camera.fov)))
+    return (
+        projection(camera.projection).code,
+        float(width),
+        float(height),
+        float(np.radians(camera.fov)),
+    )
 
 
 def pixel_grid(width: int, height: int, jitter: np.ndarray | None = None) -> np.ndarray:
@@ -339,8 +345,7 @@ def _scene_directions(px, width, height, basis, code, fov_rad, to_scene, aberrat
     return out, valid
 
 
-def scene_directions(camera: Camera, width: int, height: int, pixels: np.ndarray,
-                     beta_cam=None):
+def scene_directions(camera: Camera, width: int, height: int, pixels: np.ndarray, beta_cam=None):
     """(N, 2) pixel positions -> ((N, 3) unit S directions towards the source, (N,) valid).
 
     The same as :func:`pixels_to_directions` followed by
@@ -351,5 +356,13 @@ def scene_directions(camera: Camera, width: int, height: int, pixels: np.ndarray
     aberrate = bool(np.any(beta))
     to_scene = boost_matrix(-beta)
     code, w, h, fov_rad = _constants(camera, width, height)
-    return _scene_directions(np.ascontiguousarray(pixels, dtype=np.float64), w, h,
-                             camera.basis(), code, fov_rad, to_scene, aberrate)
+    return _scene_directions(
+        np.ascontiguousarray(pixels, dtype=np.float64),
+        w,
+        h,
+        camera.basis(),
+        code,
+        fov_rad,
+        to_scene,
+        aberrate,
+    )

@@ -114,7 +114,10 @@ def _split_faces(vertices: np.ndarray, faces: np.ndarray, n: int):
     k = jk[:, 1].astype(float)
     i = n - j - k
     a, b, c = (vertices[faces[:, m]] for m in range(3))  # (F, 3) each
-    pts = ((i[None, :, None] * a[:, None] + j[None, :, None] * b[:, None]) + k[None, :, None] * c[:, None]) / n
+    pts = (
+        (i[None, :, None] * a[:, None] + j[None, :, None] * b[:, None])
+        + k[None, :, None] * c[:, None]
+    ) / n
     per_face = jk.shape[0]
     f = faces.shape[0]
     points = pts.reshape(f * per_face, 3)
@@ -141,7 +144,9 @@ def _unique_rows(points):
 def _solve_unique(kin, points, camera_event, effects):
     """Retarded events and velocities of points, solving each distinct point once."""
     uniq, inverse = _unique_rows(points)
-    ev, beta = kin.retarded(uniq, camera_event, delay=effects.delay, contraction=effects.contraction)
+    ev, beta = kin.retarded(
+        uniq, camera_event, delay=effects.delay, contraction=effects.contraction
+    )
     return ev[inverse], beta[inverse]
 
 
@@ -153,8 +158,9 @@ def _chord_errors(kin, points, ev, beta, a, b, camera_event, effects, solve=True
     if solve:
         ev_mid, beta_mid = _solve_unique(kin, mid, camera_event, effects)
     else:
-        ev_mid, beta_mid = kin.retarded(mid, camera_event, delay=effects.delay,
-                                        contraction=effects.contraction)
+        ev_mid, beta_mid = kin.retarded(
+            mid, camera_event, delay=effects.delay, contraction=effects.contraction
+        )
     chord = 0.5 * (ev[a, 1:] + ev[b, 1:])
     dist = np.linalg.norm(ev_mid[:, 1:] - camera_event[1:], axis=1)
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -169,7 +175,9 @@ def _uniform_error(kin, points, ev, beta, faces, camera_event, effects, rng) -> 
     edges = np.unique(np.sort(edges, axis=1), axis=0)
     if edges.shape[0] > MAX_CHECKED_EDGES:
         edges = edges[rng.choice(edges.shape[0], MAX_CHECKED_EDGES, replace=False)]
-    err, _, _, _ = _chord_errors(kin, points, ev, beta, edges[:, 0], edges[:, 1], camera_event, effects)
+    err, _, _, _ = _chord_errors(
+        kin, points, ev, beta, edges[:, 0], edges[:, 1], camera_event, effects
+    )
     err = err[np.isfinite(err)]
     return float(err.max()) if err.size else 0.0
 
@@ -244,13 +252,16 @@ def _adaptive(kin, vertices, faces, cam, effects, tolerance, max_triangles, max_
     ev_d = np.full((len(vertices), 4), np.nan)
     beta_d = np.full((len(vertices), 3), np.nan)
     used = np.unique(vid)
-    ev_d[used], beta_d[used] = kin.retarded(vertices[used], cam, delay=effects.delay,
-                                            contraction=effects.contraction)
+    ev_d[used], beta_d[used] = kin.retarded(
+        vertices[used], cam, delay=effects.delay, contraction=effects.contraction
+    )
     good = np.empty(0, np.int64)  # keys of (per-face) edges measured within tolerance
     error = 0.0
     for _ in range(max_rounds):
         ends = np.stack([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [2, 0]]], axis=1)  # (F, 3, 2)
-        key = np.minimum(ends[..., 0], ends[..., 1]) * (1 << 32) + np.maximum(ends[..., 0], ends[..., 1])
+        key = np.minimum(ends[..., 0], ends[..., 1]) * (1 << 32) + np.maximum(
+            ends[..., 0], ends[..., 1]
+        )
         ukey, inverse = np.unique(key.ravel(), return_inverse=True)
         todo = np.nonzero(~np.isin(ukey, good, assume_unique=True))[0]
         if todo.size == 0:
@@ -258,7 +269,8 @@ def _adaptive(kin, vertices, faces, cam, effects, tolerance, max_triangles, max_
         a, b = ukey[todo] >> 32, ukey[todo] & 0xFFFFFFFF
         first, edge_of = _distinct_edges(vid, a, b)
         err_d, mid_d, ev_mid_d, beta_mid_d = _chord_errors(
-            kin, points, ev_d[vid], beta_d[vid], a[first], b[first], cam, effects, solve=False)
+            kin, points, ev_d[vid], beta_d[vid], a[first], b[first], cam, effects, solve=False
+        )
         err = err_d[edge_of]
         bad = np.isfinite(err) & (err > tolerance)
         ok = ~bad
@@ -288,8 +300,16 @@ def _adaptive(kin, vertices, faces, cam, effects, tolerance, max_triangles, max_
     return points, tri, parent, bary, vid, (distinct, ev_d, beta_d), error
 
 
-def snapshot(motion, vertices, faces, camera_event, effects, tolerance: float = DEFAULT_TOLERANCE,
-             max_triangles: int = DEFAULT_MAX_TRIANGLES, segments: int | None = None) -> Snapshot:
+def snapshot(
+    motion,
+    vertices,
+    faces,
+    camera_event,
+    effects,
+    tolerance: float = DEFAULT_TOLERANCE,
+    max_triangles: int = DEFAULT_MAX_TRIANGLES,
+    segments: int | None = None,
+) -> Snapshot:
     """The mesh (rest-frame vertices (V,3) m, faces (F,3)) of a body moving with ``motion``,
     placed on the past light cone of ``camera_event`` (4,) [ct, x, y, z] m.
 
@@ -305,7 +325,8 @@ def snapshot(motion, vertices, faces, camera_event, effects, tolerance: float = 
     cam = np.asarray(camera_event, float).reshape(4)
     if segments is None:
         pts, sub, parent, bary, vid, (distinct, ev_d, beta_d), err = _adaptive(
-            kin, vertices, faces, cam, effects, tolerance, max_triangles)
+            kin, vertices, faces, cam, effects, tolerance, max_triangles
+        )
         ev, beta = ev_d[vid], beta_d[vid]
         n = 0
     else:
@@ -328,7 +349,11 @@ def check_body_speed(scene, index: int, vertices) -> None:
     (:meth:`relview.kinematics.worldline.RigidKinematics.validate` over the mesh's radius), as a
     SceneError naming the scene file and the body."""
     body = scene.bodies[index]
-    extent = float(np.sqrt((np.asarray(vertices, float) ** 2).sum(axis=1).max())) if len(vertices) else 0.0
+    extent = (
+        float(np.sqrt((np.asarray(vertices, float) ** 2).sum(axis=1).max()))
+        if len(vertices)
+        else 0.0
+    )
     kin = body.motion
     if getattr(kin, "_validated_extent", -1.0) >= extent:  # done for an earlier frame
         return
@@ -351,9 +376,16 @@ def pixel_tolerance(scene) -> float:
     return PIXEL_FRACTION * math.radians(fov) / width
 
 
-def snapshot_groups(scene, meshes, indices, camera_event, effects, tolerance: float | None = None,
-                    max_triangles: int = DEFAULT_MAX_TRIANGLES,
-                    reference=None) -> list[FrameGroup]:
+def snapshot_groups(
+    scene,
+    meshes,
+    indices,
+    camera_event,
+    effects,
+    tolerance: float | None = None,
+    max_triangles: int = DEFAULT_MAX_TRIANGLES,
+    reference=None,
+) -> list[FrameGroup]:
     """Frame groups (one per body in ``indices``) of light-cone snapshots, for
     :class:`relview.geometry.trace.Tracer`. ``meshes[i]`` is body i's rest-frame mesh (vertices
     along the rest-frame axes, rotation applied). ``tolerance`` (rad and beta) defaults to
@@ -368,8 +400,11 @@ def snapshot_groups(scene, meshes, indices, camera_event, effects, tolerance: fl
     if tolerance is None:
         tolerance = pixel_tolerance(scene)
     groups = []
-    t_ref, x_ref = (0.0, np.zeros(3)) if reference is None else (
-        float(reference[0]), np.asarray(reference[1], float).reshape(3))
+    t_ref, x_ref = (
+        (0.0, np.zeros(3))
+        if reference is None
+        else (float(reference[0]), np.asarray(reference[1], float).reshape(3))
+    )
     ref_event = np.concatenate([[C * t_ref], x_ref])
     cam = np.asarray(camera_event, float).reshape(4) - ref_event
     for i in indices:

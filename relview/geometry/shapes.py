@@ -118,27 +118,69 @@ def _box(sx: float, sy: float, sz: float) -> MeshData:
     hx, hy, hz = sx / 2.0, sy / 2.0, sz / 2.0
     corners = np.array([[x, y, z] for x in (-hx, hx) for y in (-hy, hy) for z in (-hz, hz)])
     # two counter-clockwise triangles (seen from outside) per face; corner i has bits x y z
-    faces = np.array([
-        [0, 1, 3], [0, 3, 2],  # -x
-        [4, 6, 7], [4, 7, 5],  # +x
-        [0, 4, 5], [0, 5, 1],  # -y
-        [2, 3, 7], [2, 7, 6],  # +y
-        [0, 2, 6], [0, 6, 4],  # -z
-        [1, 5, 7], [1, 7, 3],  # +z
-    ])
+    faces = np.array(
+        [
+            [0, 1, 3],
+            [0, 3, 2],  # -x
+            [4, 6, 7],
+            [4, 7, 5],  # +x
+            [0, 4, 5],
+            [0, 5, 1],  # -y
+            [2, 3, 7],
+            [2, 7, 6],  # +y
+            [0, 2, 6],
+            [0, 6, 4],  # -z
+            [1, 5, 7],
+            [1, 7, 3],  # +z
+        ]
+    )
     return _mesh(corners, faces, source=f"box {sx} x {sy} x {sz} m")
 
 
 def _icosahedron() -> tuple[np.ndarray, np.ndarray]:
     """Unit icosahedron: 12 vertices (cyclic permutations of (0, +-1, +-phi)), 20 faces."""
     t = (1.0 + 5.0**0.5) / 2.0
-    v = np.array([[-1, t, 0], [1, t, 0], [-1, -t, 0], [1, -t, 0], [0, -1, t], [0, 1, t],
-                  [0, -1, -t], [0, 1, -t], [t, 0, -1], [t, 0, 1], [-t, 0, -1], [-t, 0, 1]],
-                 float)
-    f = np.array([[0, 11, 5], [0, 5, 1], [0, 1, 7], [0, 7, 10], [0, 10, 11], [1, 5, 9],
-                  [5, 11, 4], [11, 10, 2], [10, 7, 6], [7, 1, 8], [3, 9, 4], [3, 4, 2],
-                  [3, 2, 6], [3, 6, 8], [3, 8, 9], [4, 9, 5], [2, 4, 11], [6, 2, 10],
-                  [8, 6, 7], [9, 8, 1]])
+    v = np.array(
+        [
+            [-1, t, 0],
+            [1, t, 0],
+            [-1, -t, 0],
+            [1, -t, 0],
+            [0, -1, t],
+            [0, 1, t],
+            [0, -1, -t],
+            [0, 1, -t],
+            [t, 0, -1],
+            [t, 0, 1],
+            [-t, 0, -1],
+            [-t, 0, 1],
+        ],
+        float,
+    )
+    f = np.array(
+        [
+            [0, 11, 5],
+            [0, 5, 1],
+            [0, 1, 7],
+            [0, 7, 10],
+            [0, 10, 11],
+            [1, 5, 9],
+            [5, 11, 4],
+            [11, 10, 2],
+            [10, 7, 6],
+            [7, 1, 8],
+            [3, 9, 4],
+            [3, 4, 2],
+            [3, 2, 6],
+            [3, 6, 8],
+            [3, 8, 9],
+            [4, 9, 5],
+            [2, 4, 11],
+            [6, 2, 10],
+            [8, 6, 7],
+            [9, 8, 1],
+        ]
+    )
     return v / np.linalg.norm(v, axis=1, keepdims=True), f
 
 
@@ -151,8 +193,14 @@ def _subdivide_to_sphere(v: np.ndarray, f: np.ndarray) -> tuple[np.ndarray, np.n
     m = inverse.reshape(3, -1).T + len(v)  # midpoint of edges (0-1), (1-2), (2-0) per face
     a, b, c = f[:, 0], f[:, 1], f[:, 2]
     ab, bc, ca = m[:, 0], m[:, 1], m[:, 2]
-    faces = np.concatenate([np.stack([a, ab, ca], 1), np.stack([b, bc, ab], 1),
-                            np.stack([c, ca, bc], 1), np.stack([ab, bc, ca], 1)])
+    faces = np.concatenate(
+        [
+            np.stack([a, ab, ca], 1),
+            np.stack([b, bc, ab], 1),
+            np.stack([c, ca, bc], 1),
+            np.stack([ab, bc, ca], 1),
+        ]
+    )
     return np.concatenate([v, mid]), faces
 
 
@@ -176,11 +224,14 @@ def _cylinder(radius: float, height: float, detail: int) -> MeshData:
     i = np.arange(n)
     j = (i + 1) % n
     cb, ct = 2 * n, 2 * n + 1  # cap centres
-    faces = np.concatenate([
-        np.stack([i, j, n + j], 1), np.stack([i, n + j, n + i], 1),  # side, outward
-        np.stack([np.full(n, cb), j, i], 1),  # bottom cap, normal -z
-        np.stack([np.full(n, ct), n + i, n + j], 1),  # top cap, normal +z
-    ])
+    faces = np.concatenate(
+        [
+            np.stack([i, j, n + j], 1),
+            np.stack([i, n + j, n + i], 1),  # side, outward
+            np.stack([np.full(n, cb), j, i], 1),  # bottom cap, normal -z
+            np.stack([np.full(n, ct), n + i, n + j], 1),  # top cap, normal +z
+        ]
+    )
     return _mesh(v, faces, source=f"cylinder r = {radius} m, h = {height} m")
 
 
@@ -235,8 +286,7 @@ def _unreadable(path: Path, ext: str, exc: Exception) -> str:
                 f"(byte 0x{raw[bad.start]:02x}); save the file as UTF-8"
             )
     return (
-        f"cannot read mesh file (corrupt or not a valid .{ext} file?): "
-        f"{type(exc).__name__}: {exc}"
+        f"cannot read mesh file (corrupt or not a valid .{ext} file?): {type(exc).__name__}: {exc}"
     )
 
 
@@ -286,10 +336,16 @@ def _face_count_from_header(path: Path, ext: str) -> int | None:
                         return None
                 return None
             if ext == "off":  # "OFF" then "vertices faces edges", or all on one line
-                lines = [w.split() for w in fh.read(65536).split(b"\n")
-                         if w.strip() and not w.lstrip().startswith(b"#")]
-                counts = lines[0][1:] if lines and len(lines[0]) > 1 else (
-                    lines[1] if len(lines) > 1 else [])
+                lines = [
+                    w.split()
+                    for w in fh.read(65536).split(b"\n")
+                    if w.strip() and not w.lstrip().startswith(b"#")
+                ]
+                counts = (
+                    lines[0][1:]
+                    if lines and len(lines[0]) > 1
+                    else (lines[1] if len(lines) > 1 else [])
+                )
                 return int(counts[1]) if len(counts) >= 2 else None
             if ext == "obj":
                 # chunks overlap by 2 bytes so a "\nf " across a boundary counts once

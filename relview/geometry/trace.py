@@ -118,19 +118,27 @@ def frame_matrix(beta: np.ndarray, effects: Effects) -> np.ndarray:
 #: IEEE-safe fast-math: fused multiply-add and reassociation, but NaN/inf kept exact
 _FAST = {"contract", "arcp", "nsz", "reassoc"}
 
+
 @njit(cache=True, inline="always")
 def _spatial(m, c0, c1, c2, c3):
     """Spatial rows of the 4x4 frame map m applied to the 4-vector (c0, c1, c2, c3)."""
-    return (m[1, 0] * c0 + m[1, 1] * c1 + m[1, 2] * c2 + m[1, 3] * c3,
-            m[2, 0] * c0 + m[2, 1] * c1 + m[2, 2] * c2 + m[2, 3] * c3,
-            m[3, 0] * c0 + m[3, 1] * c1 + m[3, 2] * c2 + m[3, 3] * c3)
+    return (
+        m[1, 0] * c0 + m[1, 1] * c1 + m[1, 2] * c2 + m[1, 3] * c3,
+        m[2, 0] * c0 + m[2, 1] * c1 + m[2, 2] * c2 + m[2, 3] * c3,
+        m[3, 0] * c0 + m[3, 1] * c1 + m[3, 2] * c2 + m[3, 3] * c3,
+    )
 
 
 @njit(cache=True, inline="always")
 def _frame_origin(m, origin, ray_o, io):
     """o' = M (E - e0): a ray's start event ray_o[io] in a frame group's rest frame."""
-    return _spatial(m, ray_o[io, 0] - origin[0], ray_o[io, 1] - origin[1],
-                    ray_o[io, 2] - origin[2], ray_o[io, 3] - origin[3])
+    return _spatial(
+        m,
+        ray_o[io, 0] - origin[0],
+        ray_o[io, 1] - origin[1],
+        ray_o[io, 2] - origin[2],
+        ray_o[io, 3] - origin[3],
+    )
 
 
 #: rays handled together by one thread: neighbouring pixels share traversal paths
@@ -168,8 +176,22 @@ def _cast(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links, tris, l
                 m = g_matrix[g]
                 ox, oy, oz = _frame_origin(m, g_origin[g], ray_o, i * o_step)
                 dx, dy, dz = _spatial(m, k_time, ray_d[i, 0], ray_d[i, 1], ray_d[i, 2])
-                l, tri, u, v = bvh_mod.first_hit(ox, oy, oz, dx, dy, dz, l_min, best, roots[g],
-                                                 nodes, links, tris, stack, stack_t)
+                l, tri, u, v = bvh_mod.first_hit(
+                    ox,
+                    oy,
+                    oz,
+                    dx,
+                    dy,
+                    dz,
+                    l_min,
+                    best,
+                    roots[g],
+                    nodes,
+                    links,
+                    tris,
+                    stack,
+                    stack_t,
+                )
                 if tri >= 0:
                     best = l
                     best_tri = tri
@@ -189,8 +211,9 @@ CULL_SLACK = 1e-7
 
 
 @njit(cache=True, inline="always")
-def _packet_groups(ray_d, base, m_rays, cull_nodes, cull_links, cull_order, cull_boxes,
-                   candidates, stack):
+def _packet_groups(
+    ray_d, base, m_rays, cull_nodes, cull_links, cull_order, cull_boxes, candidates, stack
+):
     """Groups whose direction box overlaps the box of the packet's directions, sorted
     ascending into ``candidates``; returns how many."""
     lx = ly = lz = np.inf
@@ -203,8 +226,9 @@ def _packet_groups(ray_d, base, m_rays, cull_nodes, cull_links, cull_order, cull
         hx = max(hx, ray_d[i, 0])
         hy = max(hy, ray_d[i, 1])
         hz = max(hz, ray_d[i, 2])
-    k = bvh_mod.boxes_overlapping(lx, ly, lz, hx, hy, hz, cull_nodes, cull_links, cull_order,
-                                  cull_boxes, candidates, stack)
+    k = bvh_mod.boxes_overlapping(
+        lx, ly, lz, hx, hy, hz, cull_nodes, cull_links, cull_order, cull_boxes, candidates, stack
+    )
     for a in range(1, k):  # insertion sort: few groups per packet
         g = candidates[a]
         b = a - 1
@@ -253,8 +277,10 @@ def group_direction_boxes(event, k_time, g_origin, g_matrix, root_lo, root_hi):
         def cap_range(cos_to_axis):
             """Range of cos(angle to a fixed vector) over the cap, given the cap axis'."""
             theta = np.arccos(np.clip(cos_to_axis, -1.0, 1.0))
-            return (np.cos(np.minimum(np.pi, theta + alpha)),
-                    np.cos(np.maximum(0.0, theta - alpha)))
+            return (
+                np.cos(np.minimum(np.pi, theta + alpha)),
+                np.cos(np.maximum(0.0, theta - alpha)),
+            )
 
         u_lo, u_hi = cap_range(axis.T)  # (3, G) each: the components of u
         b = np.linalg.norm(beta, axis=1)
@@ -272,8 +298,9 @@ def group_direction_boxes(event, k_time, g_origin, g_matrix, root_lo, root_hi):
 
 
 @njit(parallel=True, cache=True, fastmath=_FAST)
-def _cast_packets(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links, tris, l_min,
-                  cull=None):
+def _cast_packets(
+    ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links, tris, l_min, cull=None
+):
     """:func:`_cast` for rays from one shared start event ray_o (1, 4), traversed in packets
     of bvh.PACKET neighbouring rays (camera rays are coherent): same results, faster.
 
@@ -303,8 +330,9 @@ def _cast_packets(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links,
         m_rays = min(P, n - base)
         n_cand = n_groups
         if cull is not None:
-            n_cand = _packet_groups(ray_d, base, m_rays, cull[0], cull[1], cull[2], cull[3],
-                                    candidates, stack)
+            n_cand = _packet_groups(
+                ray_d, base, m_rays, cull[0], cull[1], cull[2], cull[3], candidates, stack
+            )
         for c in range(n_cand):
             g = candidates[c]
             m = g_matrix[g]
@@ -312,8 +340,24 @@ def _cast_packets(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links,
             for r in range(P):
                 i = base + (r if r < m_rays else 0)  # a short last packet repeats its first ray
                 dx[r], dy[r], dz[r] = _spatial(m, k_time, ray_d[i, 0], ray_d[i, 1], ray_d[i, 2])
-            bvh_mod.packet_first_hits(ox, oy, oz, dx, dy, dz, l_min, best, best_tri, best_u,
-                                      best_v, roots[g], nodes, links, tris, stack)
+            bvh_mod.packet_first_hits(
+                ox,
+                oy,
+                oz,
+                dx,
+                dy,
+                dz,
+                l_min,
+                best,
+                best_tri,
+                best_u,
+                best_v,
+                roots[g],
+                nodes,
+                links,
+                tris,
+                stack,
+            )
         for r in range(m_rays):
             out_l[base + r] = best[r]
             out_tri[base + r] = best_tri[r]
@@ -323,8 +367,25 @@ def _cast_packets(ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links,
 
 
 @njit(parallel=True, cache=True)
-def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_slot, g_origin,
-             g_matrix, g_beta, slot_offset, slot_rotation, slot_clock, beta_cam, relativistic):
+def _resolve(
+    ray_o,
+    ray_d,
+    k_time,
+    l,
+    tri,
+    tri_group,
+    tri_body,
+    tri_local,
+    tri_slot,
+    g_origin,
+    g_matrix,
+    g_beta,
+    slot_offset,
+    slot_rotation,
+    slot_clock,
+    beta_cam,
+    relativistic,
+):
     """Per ray: body, face, emission event, body-frame hit point, emitter velocity and the
     body clock's coordinate at emission.
 
@@ -382,15 +443,22 @@ def _resolve(ray_o, ray_d, k_time, l, tri, tri_group, tri_body, tri_local, tri_s
         # relative to the body's origin there
         fx, fy, fz = _frame_origin(g_matrix[g], g_origin[g], emit, i)
         m = g_matrix[g]
-        clock[i] = (m[0, 0] * (emit[i, 0] - g_origin[g, 0]) + m[0, 1] * (emit[i, 1] - g_origin[g, 1])
-                    + m[0, 2] * (emit[i, 2] - g_origin[g, 2])
-                    + m[0, 3] * (emit[i, 3] - g_origin[g, 3]) - slot_clock[s])
+        clock[i] = (
+            m[0, 0] * (emit[i, 0] - g_origin[g, 0])
+            + m[0, 1] * (emit[i, 1] - g_origin[g, 1])
+            + m[0, 2] * (emit[i, 2] - g_origin[g, 2])
+            + m[0, 3] * (emit[i, 3] - g_origin[g, 3])
+            - slot_clock[s]
+        )
         rx = fx - slot_offset[s, 0]
         ry = fy - slot_offset[s, 1]
         rz = fz - slot_offset[s, 2]
         for a in range(3):  # R^T rel: frame axes -> body axes
-            rest[i, a] = (slot_rotation[s, 0, a] * rx + slot_rotation[s, 1, a] * ry
-                          + slot_rotation[s, 2, a] * rz)
+            rest[i, a] = (
+                slot_rotation[s, 0, a] * rx
+                + slot_rotation[s, 1, a] * ry
+                + slot_rotation[s, 2, a] * rz
+            )
     return body, face, group, emit, rest, beta, doppler, clock
 
 
@@ -427,8 +495,9 @@ class Tracer:
             lookup = {b: first + j for j, b in enumerate(g.bodies)}
             offs.extend(g.body_offset)
             rots.extend(g.body_rotation)
-            clocks.extend(g.body_clock_offset if g.body_clock_offset is not None
-                          else [np.nan] * len(g.bodies))
+            clocks.extend(
+                g.body_clock_offset if g.body_clock_offset is not None else [np.nan] * len(g.bodies)
+            )
             slot.append(np.array([lookup[b] for b in g.face_body[gface]], np.int64))
         self.tri_body = np.concatenate(body)
         self.tri_local = np.concatenate(local)
@@ -437,14 +506,22 @@ class Tracer:
         self.slot_rotation = np.array(rots, float).reshape(-1, 3, 3)
         self.slot_clock = np.array(clocks, float).reshape(-1)
         self.g_origin = np.stack([np.asarray(g.origin_event, float) for g in groups])
-        self.g_time = np.array([np.nan if g.origin_time is None else float(g.origin_time)
-                                for g in groups])
+        self.g_time = np.array(
+            [np.nan if g.origin_time is None else float(g.origin_time) for g in groups]
+        )
         self.g_matrix = np.stack([g.matrix for g in groups])
         self.g_beta = np.stack([np.asarray(g.beta, float) for g in groups])
         assert len(self.tri_body) == len(p.v0)
 
-    def cast(self, ray_origin: np.ndarray, d_scene: np.ndarray, effects: Effects,
-             l_min: float = 1e-9, beta_cam=None, reference=None) -> Hits:
+    def cast(
+        self,
+        ray_origin: np.ndarray,
+        d_scene: np.ndarray,
+        effects: Effects,
+        l_min: float = 1e-9,
+        beta_cam=None,
+        reference=None,
+    ) -> Hits:
         """Cast backward null rays along (N, 3) unit S directions from (N, 4) start events,
         or from one shared (4,) event. With ``beta_cam`` the hits carry their Doppler
         factor as seen by a camera of that velocity. ``reference`` = (t_R s, x_R (3,) m)
@@ -459,17 +536,52 @@ class Tracer:
         ray_d = np.ascontiguousarray(d_scene, dtype=np.float64)
         k_time = -1.0 if effects.delay else 0.0
         if len(ray_o) == 1:
-            l, tri, u, v = _cast_packets(ray_o, ray_d, k_time, g_origin, self.g_matrix, p.root,
-                                         p.nodes, p.links, p.tris, l_min,
-                                         self._group_culling(ray_o[0], ray_d, k_time, g_origin))
+            l, tri, u, v = _cast_packets(
+                ray_o,
+                ray_d,
+                k_time,
+                g_origin,
+                self.g_matrix,
+                p.root,
+                p.nodes,
+                p.links,
+                p.tris,
+                l_min,
+                self._group_culling(ray_o[0], ray_d, k_time, g_origin),
+            )
         else:
-            l, tri, u, v = _cast(ray_o, ray_d, k_time, g_origin, self.g_matrix, p.root,
-                                 p.nodes, p.links, p.tris, l_min)
+            l, tri, u, v = _cast(
+                ray_o,
+                ray_d,
+                k_time,
+                g_origin,
+                self.g_matrix,
+                p.root,
+                p.nodes,
+                p.links,
+                p.tris,
+                l_min,
+            )
         bc = np.zeros(3) if beta_cam is None else np.asarray(beta_cam, np.float64).reshape(3)
         body, face, group, emit, rest, beta, doppler, clock = _resolve(
-            ray_o, ray_d, k_time, l, tri, p.tri_group, self.tri_body, self.tri_local,
-            self.tri_slot, g_origin, self.g_matrix, self.g_beta, self.slot_offset,
-            self.slot_rotation, self.slot_clock, bc, bool(effects.contraction))
+            ray_o,
+            ray_d,
+            k_time,
+            l,
+            tri,
+            p.tri_group,
+            self.tri_body,
+            self.tri_local,
+            self.tri_slot,
+            g_origin,
+            self.g_matrix,
+            self.g_beta,
+            self.slot_offset,
+            self.slot_rotation,
+            self.slot_clock,
+            bc,
+            bool(effects.contraction),
+        )
         # the snapshots' clocks take the emission times relative to the reference event
         t_rel = emit[:, 0].copy() if any(g.vertex_clock is not None for g in self.groups) else None
         emit += ref  # back to scene-frame events for the caller
@@ -492,9 +604,18 @@ class Tracer:
             if g.vertex_bary is not None:  # (u, v) in the original face, for UV lookups
                 face_uv = _interpolate(w, tri_v, g.vertex_bary)
                 u[sel], v[sel] = face_uv[:, 0], face_uv[:, 1]
-        return Hits(body, face, np.stack([u, v], -1), l, emit, rest, beta, group,
-                    doppler if beta_cam is not None else None, clock)
-
+        return Hits(
+            body,
+            face,
+            np.stack([u, v], -1),
+            l,
+            emit,
+            rest,
+            beta,
+            group,
+            doppler if beta_cam is not None else None,
+            clock,
+        )
 
     def _group_culling(self, event, ray_d, k_time, g_origin):
         """The direction-box tree over the frame groups for rays from one start event
@@ -507,8 +628,9 @@ class Tracer:
             if np.all(np.abs(norm2 - 1.0) <= 1e-12):
                 p = self.packed
                 roots = p.root
-                boxes = group_direction_boxes(event, k_time, g_origin, self.g_matrix,
-                                              p.node_lo[roots], p.node_hi[roots])
+                boxes = group_direction_boxes(
+                    event, k_time, g_origin, self.g_matrix, p.node_lo[roots], p.node_hi[roots]
+                )
                 nodes, links, order = bvh_mod.box_tree(boxes[:, :3], boxes[:, 3:])
                 return nodes, links, order, np.ascontiguousarray(boxes)
         return None
@@ -534,10 +656,18 @@ def _interpolate(weights: np.ndarray, tri_vertices: np.ndarray, values: np.ndarr
 
 
 def _empty_hits(n: int) -> Hits:
-    return Hits(np.full(n, -1, np.int64), np.full(n, -1, np.int64), np.zeros((n, 2)),
-                np.full(n, np.inf), np.full((n, 4), np.nan), np.full((n, 3), np.nan),
-                np.full((n, 3), np.nan), np.full(n, -1, np.int64), np.full(n, np.nan),
-                np.full(n, np.nan))
+    return Hits(
+        np.full(n, -1, np.int64),
+        np.full(n, -1, np.int64),
+        np.zeros((n, 2)),
+        np.full(n, np.inf),
+        np.full((n, 4), np.nan),
+        np.full((n, 3), np.nan),
+        np.full((n, 3), np.nan),
+        np.full(n, -1, np.int64),
+        np.full(n, np.nan),
+        np.full(n, np.nan),
+    )
 
 
 def uniform_groups(bodies, meshes, effects: Effects, indices=None) -> list[FrameGroup]:
@@ -578,9 +708,19 @@ def uniform_groups(bodies, meshes, effects: Effects, indices=None) -> list[Frame
             zero = clock_coordinate(bodies[i].motion, eb[0], effects.contraction)[0][0]
             clocks.append(float(placed[0] - zero))
             nv += len(v)
-        group = FrameGroup(beta, e0, m, members, offs, rots, np.concatenate(fbody),
-                           np.concatenate(flocal), np.concatenate(verts),
-                           np.concatenate(faces), body_clock_offset=clocks)
+        group = FrameGroup(
+            beta,
+            e0,
+            m,
+            members,
+            offs,
+            rots,
+            np.concatenate(fbody),
+            np.concatenate(flocal),
+            np.concatenate(verts),
+            np.concatenate(faces),
+            body_clock_offset=clocks,
+        )
         t0 = getattr(bodies[members[0]].motion, "time", None)  # s, when e0 is at that time
         group.origin_time = float(t0) if t0 is not None and C * float(t0) == e0[0] else None
         groups.append(group)

@@ -170,8 +170,9 @@ def auto_white(luminance: Any, peak: Any = None) -> float:
     return max(key_white, guard)
 
 
-def exposure_white(xyz_image: Any, mask: Any = None, setting: float | str = "auto",
-                   lamps: Any = None) -> float:
+def exposure_white(
+    xyz_image: Any, mask: Any = None, setting: float | str = "auto", lamps: Any = None
+) -> float:
     """The luminance in cd/m2 that maps to white.
 
     Parameters
@@ -258,8 +259,12 @@ class ExposureLock:
         self.source = source
         return self.white
 
-    def lock_from(self, xyz_images: Iterable[Any], masks: Iterable[Any] | None = None,
-                  lamps: Iterable[Any] | None = None) -> float:
+    def lock_from(
+        self,
+        xyz_images: Iterable[Any],
+        masks: Iterable[Any] | None = None,
+        lamps: Iterable[Any] | None = None,
+    ) -> float:
         """Lock from probe frames: the automatic statistic over all their metered pixels
         pooled.
 
@@ -280,24 +285,27 @@ class ExposureLock:
             )
         lamp_list = [None] * len(images) if lamps is None else list(lamps)
         if len(lamp_list) != len(images):
-            raise ValueError(f"exposure lock: {len(images)} probe frames but {len(lamp_list)} "
-                             "lamp masks")
+            raise ValueError(
+                f"exposure lock: {len(images)} probe frames but {len(lamp_list)} lamp masks"
+            )
         chosen = [metered_pixels(m, lamp) for m, lamp in zip(mask_list, lamp_list)]
         if any(what == "non-lamp" for _, what in chosen):
             # meter the other surfaces wherever a frame has any; lamps only in none
-            chosen = [(m if what == "non-lamp" else np.zeros(np.shape(im)[:-1], bool), what)
-                      for im, (m, what) in zip(images, chosen)]
+            chosen = [
+                (m if what == "non-lamp" else np.zeros(np.shape(im)[:-1], bool), what)
+                for im, (m, what) in zip(images, chosen)
+            ]
         parts = [_metered(im, m) for im, (m, _) in zip(images, chosen)]
         pooled_y = np.concatenate([y for y, _ in parts])
         pooled_peak = np.concatenate([p for _, p in parts])
-        return self.set(auto_white(pooled_y, pooled_peak),
-                        f"auto over {len(images)} probe frame(s)")
+        return self.set(
+            auto_white(pooled_y, pooled_peak), f"auto over {len(images)} probe frame(s)"
+        )
 
     def white_for(self, xyz_image: Any, mask: Any = None, lamps: Any = None) -> float:
         """The locked white (cd/m2); locks it from this frame if nothing did before."""
         if self.white is None:
-            return self.set(exposure_white(xyz_image, mask, "auto", lamps),
-                            "auto from first frame")
+            return self.set(exposure_white(xyz_image, mask, "auto", lamps), "auto from first frame")
         return self.white
 
     def to_dict(self) -> dict[str, Any]:

@@ -33,8 +33,10 @@ def figure_metadata(fmt: str, metadata: Mapping[str, Any] | None) -> dict[str, s
         return None
     fmt = fmt.lower()
     if fmt == "png":
-        return {str(k): v if isinstance(v, str) else json.dumps(v, default=json_default)
-                for k, v in metadata.items()}
+        return {
+            str(k): v if isinstance(v, str) else json.dumps(v, default=json_default)
+            for k, v in metadata.items()
+        }
     record = metadata_json(metadata)
     title = str(metadata.get("title") or metadata.get("scene") or "relview figure")
     creator = f"relview {metadata.get('relview_version', '')}".strip()

@@ -148,7 +148,7 @@ def _remove_stale_parts(directory: Path, name: str) -> None:
     :data:`STALE_PART_AGE_S`); errors are ignored (another process may clean up too)."""
     now = time.time()
     for old in directory.glob(f".{glob.escape(name)}.*.part"):
-        rest = old.name[len(name) + 2: -len(".part")]
+        rest = old.name[len(name) + 2 : -len(".part")]
         if len(rest) != 8 or any(c not in "0123456789abcdef" for c in rest):
             continue  # not one of ours
         try:

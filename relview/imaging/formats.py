@@ -103,30 +103,34 @@ def register_figure_format(fmt: FigureFormat) -> None:
 # --------------------------------------------------------------------------- frame writers
 
 
-def _write_png_frame(frame: SavedFrame, path: Path, *, bits: int, tone: str,
-                     overwrite: bool) -> Path:
-    return write_png(path, frame.image, bits=bits, metadata=frame.metadata, tone=tone,
-                     overwrite=overwrite)
+def _write_png_frame(
+    frame: SavedFrame, path: Path, *, bits: int, tone: str, overwrite: bool
+) -> Path:
+    return write_png(
+        path, frame.image, bits=bits, metadata=frame.metadata, tone=tone, overwrite=overwrite
+    )
 
 
 # The layer files keep the linear floats as they are, so bits and tone do not apply.
-def _write_npz_frame(frame: SavedFrame, path: Path, *, bits: int, tone: str,
-                     overwrite: bool) -> Path:
+def _write_npz_frame(
+    frame: SavedFrame, path: Path, *, bits: int, tone: str, overwrite: bool
+) -> Path:
     layers = dict(frame.layers)
     layers["image"] = frame.image
     return write_layers_npz(path, layers, metadata=frame.metadata, overwrite=overwrite)
 
 
-def _write_exr_frame(frame: SavedFrame, path: Path, *, bits: int, tone: str,
-                     overwrite: bool) -> Path:
-    return write_exr(path, frame.image, frame.layers, metadata=frame.metadata,
-                     overwrite=overwrite)
+def _write_exr_frame(
+    frame: SavedFrame, path: Path, *, bits: int, tone: str, overwrite: bool
+) -> Path:
+    return write_exr(path, frame.image, frame.layers, metadata=frame.metadata, overwrite=overwrite)
 
 
 register_frame_format(FrameFormat(".png", _write_png_frame))
 register_frame_format(FrameFormat(".npz", _write_npz_frame))
-register_frame_format(FrameFormat(".exr", _write_exr_frame, exr_available,
-                                  "no OpenEXR writer is installed"))
+register_frame_format(
+    FrameFormat(".exr", _write_exr_frame, exr_available, "no OpenEXR writer is installed")
+)
 
 register_figure_format(FigureFormat(".png", "slides"))
 register_figure_format(FigureFormat(".pdf", "papers"))
@@ -176,8 +180,9 @@ def figure_format(path: Path) -> str:
     return fmt.name
 
 
-def check_output_path(path: Path, formats: Mapping[str, FrameFormat | FigureFormat]
-                      = FRAME_FORMATS) -> None:
+def check_output_path(
+    path: Path, formats: Mapping[str, FrameFormat | FigureFormat] = FRAME_FORMATS
+) -> None:
     """Refuse, before any rendering, an output path that could never be written.
 
     ``formats``: :data:`FRAME_FORMATS` (default) or :data:`FIGURE_FORMATS`. The same
@@ -189,12 +194,12 @@ def check_output_path(path: Path, formats: Mapping[str, FrameFormat | FigureForm
     fmt = formats[ext]
     if not fmt.available():
         usable = [e for e, f in formats.items() if f.available()]
-        raise OutputError(f"cannot write {ext}: {fmt.missing}; "
-                          f"use {_one_of(usable)}", file=path)
+        raise OutputError(f"cannot write {ext}: {fmt.missing}; use {_one_of(usable)}", file=path)
     safe_output_path(path)  # raises when the path is a directory
     for parent in path.absolute().parents:
         if parent.exists():
             if not parent.is_dir():
-                raise OutputError(f"cannot create the directory: {parent} is a file, not a "
-                                  "directory", file=path)
+                raise OutputError(
+                    f"cannot create the directory: {parent} is a file, not a directory", file=path
+                )
             break

@@ -99,8 +99,9 @@ def reference_times(motion, points, t_ct, contraction: bool = True) -> np.ndarra
     return motion._reference_time(points, t_ct, contraction)
 
 
-def tick_rates(motion, points, s_ct, propagation, beta_cam, relativistic: bool = True,
-               delay: bool = True):
+def tick_rates(
+    motion, points, s_ct, propagation, beta_cam, relativistic: bool = True, delay: bool = True
+):
     """d reading / d tau_cam (N,) of body ``points`` (N, 3) emitting at reference times
     ``s_ct`` (N,) along unit ``propagation`` directions (N, 3) (emitter -> camera, S)
     towards a camera moving with ``beta_cam`` (3,) (module docstring). ``delay`` off:
@@ -122,8 +123,11 @@ def camera_motion(camera):
     ``time`` with ``beta`` (relview.scene.parts.Camera)."""
     if getattr(camera, "motion", None) is not None:
         return camera.motion
-    return UniformMotion(beta=np.asarray(camera.beta, float),
-                         position=np.asarray(camera.position, float), time=float(camera.time))
+    return UniformMotion(
+        beta=np.asarray(camera.beta, float),
+        position=np.asarray(camera.position, float),
+        time=float(camera.time),
+    )
 
 
 def camera_reading(camera, t_s: float, relativistic: bool = True) -> float:

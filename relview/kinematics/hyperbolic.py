@@ -36,14 +36,17 @@ class HyperbolicMotion(RigidKinematics):
         self.position = _vec3(self.position, "position")
         big = float(np.abs(self.acceleration).max())
         if big == 0.0:
-            raise ValueError("hyperbolic motion: acceleration must not be zero (use uniform motion)")
+            raise ValueError(
+                "hyperbolic motion: acceleration must not be zero (use uniform motion)"
+            )
         a = big * float(np.linalg.norm(self.acceleration / big))  # no underflow of squares
         # L = c^2/a is squared in the worldline (sqrt(L^2 + c^2 t^2)): beyond 1e150 m that
         # overflows float64, and the motion is uniform to far better than float precision
         if C * C / a > MAX_HORIZON_M:
             raise ValueError(
                 f"hyperbolic motion: acceleration |a| = {a:.6g} m/s^2 is too small to compute "
-                f"with (c^2/a = {C * C / a:.3g} m exceeds {MAX_HORIZON_M:.0e} m); use uniform motion")
+                f"with (c^2/a = {C * C / a:.3g} m exceeds {MAX_HORIZON_M:.0e} m); use uniform motion"
+            )
         self.direction = self.acceleration / a
         self.length = C * C / a  # L = c^2/a, m: distance from the origin to its horizon
         self.s0 = float(self.time) * C
@@ -75,7 +78,9 @@ class HyperbolicMotion(RigidKinematics):
 
     def _proper_time(self, s):
         d = s - self.s0
-        return self.length * np.arcsinh(d / self.length), self.length / np.sqrt(self.length**2 + d * d)
+        return self.length * np.arcsinh(d / self.length), self.length / np.sqrt(
+            self.length**2 + d * d
+        )
 
     def _sample_times(self):
         return self.s0 + self.length * np.sinh(np.linspace(-3.0, 3.0, 13))
@@ -140,5 +145,3 @@ def hyperbolic_origin_retarded(motion: HyperbolicMotion, camera_event) -> np.nda
         return np.full(4, np.nan)
     x, _, _ = motion._origin(np.array([motion.s0 + best]))
     return np.concatenate([[motion.s0 + best], x[0]])
-
-

@@ -110,9 +110,11 @@ def doppler_factor(beta_emit, beta_cam, n) -> np.ndarray:
     (ratio of k.u for the two 4-velocities; Rybicki & Lightman 1979, eq. 4.11).
     Broadcasts over leading axes; computed by :func:`doppler_at`, the one compiled source.
     """
-    beta_emit, beta_cam, n = np.broadcast_arrays(np.asarray(beta_emit, dtype=float),
-                                                 np.asarray(beta_cam, dtype=float),
-                                                 np.asarray(n, dtype=float))
+    beta_emit, beta_cam, n = np.broadcast_arrays(
+        np.asarray(beta_emit, dtype=float),
+        np.asarray(beta_cam, dtype=float),
+        np.asarray(n, dtype=float),
+    )
     lorentz_factor(beta_cam)  # ValueError at or above c, as for the emitter below
     lorentz_factor(beta_emit)
     shape = n.shape[:-1]
@@ -154,13 +156,18 @@ def doppler_at(g_cam, beta_cam, beta_emit, e, d_scene, i, relativistic):
     n = -d (Rybicki & Lightman 1979, eq. 4.11); ``relativistic=False`` drops the gammas
     (Galilean kinematics: the classical Doppler factor of light moving at c in S).
     """
-    num = 1.0 + (beta_cam[0] * d_scene[i, 0] + beta_cam[1] * d_scene[i, 1]
-                 + beta_cam[2] * d_scene[i, 2])
-    den = 1.0 + (beta_emit[e, 0] * d_scene[i, 0] + beta_emit[e, 1] * d_scene[i, 1]
-                 + beta_emit[e, 2] * d_scene[i, 2])
+    num = 1.0 + (
+        beta_cam[0] * d_scene[i, 0] + beta_cam[1] * d_scene[i, 1] + beta_cam[2] * d_scene[i, 2]
+    )
+    den = 1.0 + (
+        beta_emit[e, 0] * d_scene[i, 0]
+        + beta_emit[e, 1] * d_scene[i, 1]
+        + beta_emit[e, 2] * d_scene[i, 2]
+    )
     if relativistic:
-        den = den / np.sqrt(1.0 - (beta_emit[e, 0] ** 2 + beta_emit[e, 1] ** 2
-                                   + beta_emit[e, 2] ** 2))
+        den = den / np.sqrt(
+            1.0 - (beta_emit[e, 0] ** 2 + beta_emit[e, 1] ** 2 + beta_emit[e, 2] ** 2)
+        )
     return g_cam * num / den
 
 
@@ -177,8 +184,9 @@ def _doppler_along(beta_emit, d_scene, beta_cam, relativistic):
     else:
         for i in prange(n):
             bc = beta_cam[i]
-            out[i] = doppler_at(camera_gamma(bc, relativistic), bc, beta_emit, i, d_scene, i,
-                                relativistic)
+            out[i] = doppler_at(
+                camera_gamma(bc, relativistic), bc, beta_emit, i, d_scene, i, relativistic
+            )
     return out
 
 
@@ -189,6 +197,9 @@ def doppler_along(beta_emit, d_scene, beta_cam, relativistic: bool = True) -> np
     gamma factors (classical Doppler factor of light moving at c in S). Compiled loop.
     """
     be = np.ascontiguousarray(np.broadcast_to(beta_emit, np.shape(d_scene)), dtype=np.float64)
-    return _doppler_along(be, np.ascontiguousarray(d_scene, dtype=np.float64),
-                          np.asarray(beta_cam, dtype=np.float64).reshape(1, 3),
-                          bool(relativistic))
+    return _doppler_along(
+        be,
+        np.ascontiguousarray(d_scene, dtype=np.float64),
+        np.asarray(beta_cam, dtype=np.float64).reshape(1, 3),
+        bool(relativistic),
+    )

@@ -42,7 +42,8 @@ def refuse_unresolvable(table, key: str, values, unit: str) -> None:
             f"{MAX_RESOLVED:.4g} {unit} float64 cannot resolve one {one} (its spacing there is "
             f"{np.spacing(worst):.3g} {unit}); the picture depends only on differences, so "
             f"subtract the same amount from every {what} in the scene",
-            value)
+            value,
+        )
 
 
 def read_time(table, key: str = "time", default: float = 0.0) -> float:
@@ -63,6 +64,8 @@ def read_position(table, key: str = "position", default=(0.0, 0.0, 0.0)) -> np.n
 def check_time(time_s: float, source: str) -> None:
     """The same bound for an exposure time given outside a scene file (API, --time)."""
     if not abs(float(time_s)) < MAX_RESOLVED:
-        raise UserError(f"{source} = {time_s!r} s is too large to compute with: beyond "
-                        f"{MAX_RESOLVED:.4g} s float64 cannot resolve one second; the picture "
-                        "depends only on differences, so shift every time in the scene instead")
+        raise UserError(
+            f"{source} = {time_s!r} s is too large to compute with: beyond "
+            f"{MAX_RESOLVED:.4g} s float64 cannot resolve one second; the picture "
+            "depends only on differences, so shift every time in the scene instead"
+        )

@@ -39,7 +39,9 @@ class OrbitMotion(RigidKinematics):
         self.center = _vec3(self.center, "center")
         self.axis = _unit(self.axis, "axis")
         if not (self.radius > 0 and math.isfinite(self.radius)):
-            raise ValueError(f"orbit: radius must be a positive number of metres, got {self.radius!r}")
+            raise ValueError(
+                f"orbit: radius must be a positive number of metres, got {self.radius!r}"
+            )
         if (self.period is None) == (self.beta is None):
             raise ValueError("orbit: give exactly one of period (s) or beta (speed / c)")
         if self.period is not None:
@@ -76,18 +78,27 @@ class OrbitMotion(RigidKinematics):
             period = table.number("period", positive=True, unit="s")
             speed = 2 * math.pi * radius / (period * C)
             if speed >= 1.0:
-                raise table.error("period", f"period = {period!r}: the orbital speed "
-                                  f"2 pi r/(c T) = {speed:.6g} must be below 1", period)
+                raise table.error(
+                    "period",
+                    f"period = {period!r}: the orbital speed "
+                    f"2 pi r/(c T) = {speed:.6g} must be below 1",
+                    period,
+                )
         else:
             beta = table.number("beta", positive=True)
             if beta >= 1.0:
-                raise table.error("beta", f"beta = {beta!r}: the orbital speed must be below 1",
-                                  beta)
-        return cls(center=read_position(table, "center"), radius=radius,
-                   period=period, beta=beta,
-                   axis=table.vector("axis", 3, (0.0, 0.0, 1.0), nonzero=True),
-                   phase=table.number("phase", 0.0, unit="degrees"),
-                   time=read_time(table))
+                raise table.error(
+                    "beta", f"beta = {beta!r}: the orbital speed must be below 1", beta
+                )
+        return cls(
+            center=read_position(table, "center"),
+            radius=radius,
+            period=period,
+            beta=beta,
+            axis=table.vector("axis", 3, (0.0, 0.0, 1.0), nonzero=True),
+            phase=table.number("phase", 0.0, unit="degrees"),
+            time=read_time(table),
+        )
 
     def _shifted(self, dt_s, dx):
         return replace(self, center=self.center - dx, time=self.time - dt_s)
@@ -97,7 +108,11 @@ class OrbitMotion(RigidKinematics):
         c, sn = np.cos(phi)[:, None], np.sin(phi)[:, None]
         radial = c * self.e1 + sn * self.e2
         tangent = -sn * self.e1 + c * self.e2
-        return self.center + self.radius * radial, self.speed * tangent, -self.speed * self.omega_ct * radial
+        return (
+            self.center + self.radius * radial,
+            self.speed * tangent,
+            -self.speed * self.omega_ct * radial,
+        )
 
     def _proper_time(self, s):
         return (s - self.s0) / self.gamma, np.full(s.shape, 1.0 / self.gamma)
@@ -127,5 +142,3 @@ class OrbitMotion(RigidKinematics):
                 f"{self.radius:g} m, |beta| = {self.speed:.6g}): its outermost points would reach c; "
                 f"the extent must stay below {limit:.6g} m"
             )
-
-

@@ -30,7 +30,9 @@ class PathMotion(RigidKinematics):
         self.times = np.asarray(self.times, dtype=float)
         self.positions = np.asarray(self.positions, dtype=float)
         if self.times.ndim != 1 or self.times.size < 2:
-            raise ValueError(f"path: times must be a list of at least two numbers (s), got {self.times.tolist()!r}")
+            raise ValueError(
+                f"path: times must be a list of at least two numbers (s), got {self.times.tolist()!r}"
+            )
         if self.positions.shape != (self.times.size, 3):
             raise ValueError(
                 f"path: positions must be {self.times.size} points [x, y, z] (m), one per time; "
@@ -58,7 +60,8 @@ class PathMotion(RigidKinematics):
             raise ValueError(
                 f"path: segment {i} (t = {self.times[i]:g} s to {self.times[i + 1]:g} s) "
                 f"needs a mean speed |beta| = {chord[i]:.6g} between its points, far above c; "
-                "speeds must stay below c (spread the times or move the points)")
+                "speeds must stay below c (spread the times or move the points)"
+            )
         self.spline = CubicSpline(self.knots, self.positions, bc_type="natural")
         self.d1 = self.spline.derivative(1)
         self.d2 = self.spline.derivative(2)
@@ -84,7 +87,10 @@ class PathMotion(RigidKinematics):
         coeffs = self.spline.c  # (4, K-1, 3): x = c0 h^3 + c1 h^2 + c2 h + c3
         for i in range(self.knots.size - 1):
             width = self.knots[i + 1] - self.knots[i]
-            v = [np.array([3 * coeffs[0, i, j], 2 * coeffs[1, i, j], coeffs[2, i, j]]) for j in range(3)]
+            v = [
+                np.array([3 * coeffs[0, i, j], 2 * coeffs[1, i, j], coeffs[2, i, j]])
+                for j in range(3)
+            ]
             speed2 = sum(np.convolve(vj, vj) for vj in v)  # degree-4 coefficients, highest first
             cand = [0.0, width]
             for r in np.roots(np.polyder(speed2)) if np.any(np.polyder(speed2)) else []:
@@ -106,7 +112,10 @@ class PathMotion(RigidKinematics):
         self._gl = (nodes, weights)
         tau = [0.0]
         for i in range(self.knots.size - 1):
-            tau.append(tau[-1] + self._segment_tau(np.array([self.knots[i]]), np.array([self.knots[i + 1]]))[0])
+            tau.append(
+                tau[-1]
+                + self._segment_tau(np.array([self.knots[i]]), np.array([self.knots[i + 1]]))[0]
+            )
         self.knot_tau = np.array(tau)
 
     def _segment_tau(self, a, b):
@@ -144,7 +153,7 @@ class PathMotion(RigidKinematics):
         return f" (path segment {i}, t = {self.times[i]:g} s to {self.times[i + 1]:g} s)"
 
     def _sample_times(self):
-        parts = [np.linspace(self.knots[i], self.knots[i + 1], 9) for i in range(self.knots.size - 1)]
+        parts = [
+            np.linspace(self.knots[i], self.knots[i + 1], 9) for i in range(self.knots.size - 1)
+        ]
         return np.unique(np.concatenate(parts))
-
-

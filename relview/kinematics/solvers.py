@@ -80,8 +80,6 @@ def _solve_increasing(
     return x
 
 
-
-
 def inertial_light_delay(r: np.ndarray, beta: np.ndarray) -> np.ndarray:
     """Light-travel time tau >= 0 (ct, m) from points moving with constant ``beta`` (3,) to a
     camera event, for (N, 3) separations ``r`` = x_c - x(t_c) taken at the camera's time.

@@ -41,7 +41,9 @@ class SpinMotion(RigidKinematics):
         self.axis = _unit(self.axis, "axis")
         self.center_offset = _vec3(self.center_offset, "center_offset")
         if not math.isfinite(self.angular_velocity):
-            raise ValueError(f"spin: angular_velocity must be a finite number (rad/s), got {self.angular_velocity!r}")
+            raise ValueError(
+                f"spin: angular_velocity must be a finite number (rad/s), got {self.angular_velocity!r}"
+            )
         self._base = self.base
         self.omega_ct = float(self.angular_velocity) / C  # rad per metre of proper ct
         self.tau0 = float(self._base._proper_time(np.array([float(self.time) * C]))[0][0])
@@ -50,15 +52,22 @@ class SpinMotion(RigidKinematics):
     def from_table(cls, table) -> SpinMotion:
         """``kind = "spin"``: a base motion table (any kind but spin; default uniform at
         rest), axis, angular_velocity (rad/s), center_offset (m), time (s), phase (deg)."""
-        table.check_keys(("kind", "base", "axis", "angular_velocity", "center_offset", "time",
-                          "phase"))
-        base = (table.motion("base", exclude={"spin": "a spin cannot carry another spin"})
-                if table.has("base") else UniformMotion())
-        return cls(base=base, axis=table.vector("axis", 3, (0.0, 0.0, 1.0), nonzero=True),
-                   angular_velocity=table.number("angular_velocity", unit="rad/s"),
-                   center_offset=table.vector("center_offset", 3, (0.0, 0.0, 0.0), unit="m"),
-                   time=read_time(table),
-                   phase=table.number("phase", 0.0, unit="degrees"))
+        table.check_keys(
+            ("kind", "base", "axis", "angular_velocity", "center_offset", "time", "phase")
+        )
+        base = (
+            table.motion("base", exclude={"spin": "a spin cannot carry another spin"})
+            if table.has("base")
+            else UniformMotion()
+        )
+        return cls(
+            base=base,
+            axis=table.vector("axis", 3, (0.0, 0.0, 1.0), nonzero=True),
+            angular_velocity=table.number("angular_velocity", unit="rad/s"),
+            center_offset=table.vector("center_offset", 3, (0.0, 0.0, 0.0), unit="m"),
+            time=read_time(table),
+            phase=table.number("phase", 0.0, unit="degrees"),
+        )
 
     def _shifted(self, dt_s, dx):
         return replace(self, base=self._base.shifted(dt_s, dx), time=self.time - dt_s)
@@ -117,7 +126,9 @@ class SpinMotion(RigidKinematics):
             )
         composed = (rim + base_speed) / (1.0 + rim * base_speed)  # collinear worst case
         if composed >= 1.0:  # cannot happen for subluminal parts; guards rounding
-            raise ValueError(f"spin: rim speed composed with the base motion reaches |beta| = {composed:.6g}")
+            raise ValueError(
+                f"spin: rim speed composed with the base motion reaches |beta| = {composed:.6g}"
+            )
 
 
 @dataclass
@@ -141,7 +152,9 @@ class RollingMotion(RigidKinematics):
         self.position = _vec3(self.position, "position")
         speed = float(np.linalg.norm(self.beta))
         if not (self.radius > 0 and math.isfinite(self.radius)):
-            raise ValueError(f"rolling: radius must be a positive number of metres, got {self.radius!r}")
+            raise ValueError(
+                f"rolling: radius must be a positive number of metres, got {self.radius!r}"
+            )
         if speed == 0.0:
             raise ValueError("rolling: beta must not be zero")
         if speed >= 1.0:
@@ -174,13 +187,20 @@ class RollingMotion(RigidKinematics):
         table.vector("beta", 3)  # required
         beta = table.beta("beta")
         if not np.any(beta):
-            raise table.error("beta", f"beta = {table.data['beta']!r}: the axle speed must not "
-                              "be zero", table.data["beta"])
+            raise table.error(
+                "beta",
+                f"beta = {table.data['beta']!r}: the axle speed must not be zero",
+                table.data["beta"],
+            )
         axis = table.vector("axis", 3, None, nonzero=True)
         with table.errors_at("axis"):  # the constructor checks the axis against beta
-            return cls(radius=table.number("radius", positive=True, unit="m"), beta=beta,
-                       axis=axis, position=read_position(table),
-                       time=read_time(table))
+            return cls(
+                radius=table.number("radius", positive=True, unit="m"),
+                beta=beta,
+                axis=axis,
+                position=read_position(table),
+                time=read_time(table),
+            )
 
     def _shifted(self, dt_s, dx):
         return replace(self, position=self.position - dx, time=self.time - dt_s)
@@ -203,5 +223,3 @@ class RollingMotion(RigidKinematics):
 
     def _closed_form_check(self, extent_m):
         self._spin._closed_form_check(extent_m)
-
-

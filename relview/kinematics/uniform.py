@@ -89,7 +89,9 @@ class UniformMotion(RigidKinematics):
         n = p.shape[0]
         x_now = self._position_at(p, np.full(n, tc), contraction)
         if not delay:
-            return np.concatenate([np.full((n, 1), tc), x_now], 1), np.broadcast_to(self.beta, p.shape).copy()
+            return np.concatenate([np.full((n, 1), tc), x_now], 1), np.broadcast_to(
+                self.beta, p.shape
+            ).copy()
         tau = inertial_light_delay(xc - x_now, self.beta)
         ev = np.concatenate([(tc - tau)[:, None], x_now - np.multiply.outer(tau, self.beta)], 1)
         return ev, np.broadcast_to(self.beta, p.shape).copy()

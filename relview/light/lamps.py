@@ -72,9 +72,14 @@ class LampSpectrum:
     #: geometric step of the cumulative grid (relative), and its knot-free point budget
     STEP = 2e-4
 
-    def __init__(self, key: Hashable, power: Callable[[np.ndarray], np.ndarray],
-                 span_nm: tuple[float, float], knots_nm: np.ndarray | None = None,
-                 label: str = ""):
+    def __init__(
+        self,
+        key: Hashable,
+        power: Callable[[np.ndarray], np.ndarray],
+        span_nm: tuple[float, float],
+        knots_nm: np.ndarray | None = None,
+        label: str = "",
+    ):
         self.key = key
         self.label = label or str(key)
         lo, hi = float(span_nm[0]), float(span_nm[1])
@@ -84,8 +89,9 @@ class LampSpectrum:
             k = np.asarray(knots_nm, float)
             grid = np.union1d(grid, k[(k > 0)])
         values = np.maximum(np.asarray(power(grid), float), 0.0)
-        cumulative = np.concatenate([[0.0], np.cumsum(0.5 * (values[1:] + values[:-1])
-                                                      * np.diff(grid))])
+        cumulative = np.concatenate(
+            [[0.0], np.cumsum(0.5 * (values[1:] + values[:-1]) * np.diff(grid))]
+        )
         total = cumulative[-1]
         if not (math.isfinite(total) and total > 0.0):
             raise ValueError(f"lamp spectrum {self.label}: no power at any wavelength")
@@ -114,16 +120,27 @@ class LampSpectrum:
         t = float(temperature_k)
         peak = WIEN_NM_K / t
         # beyond [0.05, 1000] x the peak wavelength less than 1e-8 of the power remains
-        return cls(("blackbody", t), lambda w: spectrum.planck_spectral_radiance(w, t),
-                   (0.05 * peak, 1000.0 * peak), label=f"blackbody {t:g} K")
+        return cls(
+            ("blackbody", t),
+            lambda w: spectrum.planck_spectral_radiance(w, t),
+            (0.05 * peak, 1000.0 * peak),
+            label=f"blackbody {t:g} K",
+        )
 
     @classmethod
     def illuminant(cls, name: str) -> LampSpectrum:
         if name.strip().upper() != "D65":
-            raise ValueError(f"unknown illuminant {name!r}; choose one of: {', '.join(ILLUMINANTS)}")
+            raise ValueError(
+                f"unknown illuminant {name!r}; choose one of: {', '.join(ILLUMINANTS)}"
+            )
         peak = WIEN_NM_K / spectrum.D65_CCT_K  # the table continues as a 6504 K Planckian
-        return cls(("illuminant", "D65"), spectrum.cie_d65_relative_spd,
-                   (0.05 * peak, 1000.0 * peak), spectrum.D65_WAVELENGTHS_NM, label="D65")
+        return cls(
+            ("illuminant", "D65"),
+            spectrum.cie_d65_relative_spd,
+            (0.05 * peak, 1000.0 * peak),
+            spectrum.D65_WAVELENGTHS_NM,
+            label="D65",
+        )
 
     @classmethod
     def from_surface(cls, surface) -> LampSpectrum:
@@ -144,14 +161,22 @@ class LampSpectrum:
         validated table (duck-typed: this layer does not import it)."""
         given = [k for k in SPECTRUM_KEYS if table.has(k)]
         if len(given) != 1:
-            raise table.error(given[1] if given else None,
-                              f"a lamp needs exactly one spectrum key, one of: "
-                              f"{', '.join(SPECTRUM_KEYS)} (given: {', '.join(given) or 'none'})")
+            raise table.error(
+                given[1] if given else None,
+                f"a lamp needs exactly one spectrum key, one of: "
+                f"{', '.join(SPECTRUM_KEYS)} (given: {', '.join(given) or 'none'})",
+            )
         kind = given[0]
         value = table.data[kind]
         if kind == "blackbody":
-            return cls.blackbody(table.number("blackbody", low=materials.MIN_LAMP_TEMPERATURE,
-                                              high=materials.MAX_TEMPERATURE, unit="K"))
+            return cls.blackbody(
+                table.number(
+                    "blackbody",
+                    low=materials.MIN_LAMP_TEMPERATURE,
+                    high=materials.MAX_TEMPERATURE,
+                    unit="K",
+                )
+            )
         if kind == "illuminant":
             return cls.illuminant(table.string("illuminant", choices=ILLUMINANTS))
         try:
@@ -201,8 +226,9 @@ class SphereGlow(materials.SpectralSurface):
         return self.spectrum.knots_nm
 
     def table(self):
-        return spectrum.cached_table(("sphere lamp", self.spectrum.key), self.spectrum.density,
-                                      self.spectrum.knots_nm)
+        return spectrum.cached_table(
+            ("sphere lamp", self.spectrum.key), self.spectrum.density, self.spectrum.knots_nm
+        )
 
     def observed_xyz(self, doppler, rest_position=None, uv=None, effects=None):
         return self.radiance * super().observed_xyz(doppler, rest_position, uv, effects)
@@ -220,8 +246,12 @@ def point_irradiance(power_w, d_in, r_rest_m, cos_incidence) -> np.ndarray:
     """W/m^2 on a plate in its rest frame from an isotropic point lamp of ``power_w``:
     D_in^4 P cos(theta') / (4 pi r'^2) (McKinley 1980; Rybicki & Lightman ch. 4); 0 for
     light arriving from behind."""
-    return (np.asarray(d_in, float) ** 4 * power_w * np.maximum(cos_incidence, 0.0)
-            / (4.0 * math.pi * np.asarray(r_rest_m, float) ** 2))
+    return (
+        np.asarray(d_in, float) ** 4
+        * power_w
+        * np.maximum(cos_incidence, 0.0)
+        / (4.0 * math.pi * np.asarray(r_rest_m, float) ** 2)
+    )
 
 
 def plane_wave_irradiance(irradiance_w_m2, d_in, cos_incidence) -> np.ndarray:
@@ -260,8 +290,7 @@ class LitTable:
         self.spectrum = lamp_spectrum
         lam = spectrum.CMF_WAVELENGTHS_NM
         self._lam = lam
-        self._edges = np.concatenate([[lam[0] - 0.5], 0.5 * (lam[1:] + lam[:-1]),
-                                      [lam[-1] + 0.5]])
+        self._edges = np.concatenate([[lam[0] - 0.5], 0.5 * (lam[1:] + lam[:-1]), [lam[-1] + 0.5]])
         nv = int(math.ceil((V_MAX - V_MIN) / V_STEP)) + 1
         self.v0 = V_MIN
         self.v_nodes = V_MIN + np.arange(nv) * V_STEP
@@ -276,8 +305,10 @@ class LitTable:
         u = ks * U_STEP
         scale = np.exp(u)[:, None]
         e = self._edges[None, :]
-        bins = (self.spectrum.energy_below(scale * e[:, 1:])
-                - self.spectrum.energy_below(scale * e[:, :-1])) / scale  # integral p(e^u l) dl
+        bins = (
+            self.spectrum.energy_below(scale * e[:, 1:])
+            - self.spectrum.energy_below(scale * e[:, :-1])
+        ) / scale  # integral p(e^u l) dl
         q = (bins @ self._weights) * np.exp(5.0 * u)[:, None]
         return q.reshape(len(ks), len(self.v_nodes), 3, 3)
 
@@ -305,8 +336,12 @@ class LitTable:
         d_out = np.asarray(d_out, float).reshape(-1)
         if d_in.size == 0:
             return np.zeros((0, 3, 3))
-        if not (np.all(d_in > 0) and np.all(d_out > 0) and np.all(np.isfinite(d_in))
-                and np.all(np.isfinite(d_out))):
+        if not (
+            np.all(d_in > 0)
+            and np.all(d_out > 0)
+            and np.all(np.isfinite(d_in))
+            and np.all(np.isfinite(d_out))
+        ):
             raise ValueError("Doppler factors must be finite and > 0")
         u = np.log(d_in) + np.log(d_out)
         self._cover(float(u.min()), float(u.max()))
@@ -317,11 +352,11 @@ class LitTable:
         """(3, 3) Q by the same bin sum at exactly (D_in, D_out), no table (for checks)."""
         scale = d_in * d_out
         e = self._edges
-        bins = (self.spectrum.energy_below(scale * e[1:])
-                - self.spectrum.energy_below(scale * e[:-1])) / scale
+        bins = (
+            self.spectrum.energy_below(scale * e[1:]) - self.spectrum.energy_below(scale * e[:-1])
+        ) / scale
         basis = materials.reflectance_basis(d_out * self._lam)
-        return (K_M_LM_PER_W * scale**5
-                * np.einsum("l,lk,lc->ck", bins, spectrum.CMF_VALUES, basis))
+        return K_M_LM_PER_W * scale**5 * np.einsum("l,lk,lc->ck", bins, spectrum.CMF_VALUES, basis)
 
 
 @njit(parallel=True, cache=True)
@@ -344,13 +379,19 @@ def _bilinear(u, v, u0, v0, q):
                 q01 = q[a, b + 1, c, k]
                 q11 = q[a + 1, b + 1, c, k]
                 if q00 > 0.0 and q10 > 0.0 and q01 > 0.0 and q11 > 0.0:
-                    out[i, c, k] = np.exp((1 - tx) * (1 - ty) * np.log(q00)
-                                          + tx * (1 - ty) * np.log(q10)
-                                          + (1 - tx) * ty * np.log(q01)
-                                          + tx * ty * np.log(q11))
+                    out[i, c, k] = np.exp(
+                        (1 - tx) * (1 - ty) * np.log(q00)
+                        + tx * (1 - ty) * np.log(q10)
+                        + (1 - tx) * ty * np.log(q01)
+                        + tx * ty * np.log(q11)
+                    )
                 else:
-                    out[i, c, k] = ((1 - tx) * (1 - ty) * q00 + tx * (1 - ty) * q10
-                                    + (1 - tx) * ty * q01 + tx * ty * q11)
+                    out[i, c, k] = (
+                        (1 - tx) * (1 - ty) * q00
+                        + tx * (1 - ty) * q10
+                        + (1 - tx) * ty * q01
+                        + tx * ty * q11
+                    )
     return out
 
 

@@ -182,7 +182,9 @@ class EmissionLines(SpectralSurface):
         try:
             items = list(lines)
         except TypeError:
-            raise ValueError(f"emission lines must be a list of (nm, fwhm_nm, radiance), got {lines!r}") from None
+            raise ValueError(
+                f"emission lines must be a list of (nm, fwhm_nm, radiance), got {lines!r}"
+            ) from None
         if not items:
             raise ValueError("emission lines: at least one line is needed")
         for n, line in enumerate(items):
@@ -226,8 +228,14 @@ class EmissionLines(SpectralSurface):
                     value,
                 )
             # the entry as a table of its own, named lines[i] in messages (1-based)
-            entry = type(table)(item, table.doc, table.path + ("lines", i), table.section,
-                                f"{table.prefix}lines[{i + 1}].", table.context)
+            entry = type(table)(
+                item,
+                table.doc,
+                table.path + ("lines", i),
+                table.section,
+                f"{table.prefix}lines[{i + 1}].",
+                table.context,
+            )
             lines.append(_line_from_table(entry))
         return cls(lines=lines)
 
@@ -306,7 +314,9 @@ class TabulatedSpectrum(SpectralSurface):
         except OSError as exc:
             raise ValueError(f"{path}: cannot read spectrum file ({exc.strerror or exc})") from None
         except UnicodeDecodeError:
-            raise ValueError(f"{path}: not a text file (expected two columns nm, W/(sr m2 nm))") from None
+            raise ValueError(
+                f"{path}: not a text file (expected two columns nm, W/(sr m2 nm))"
+            ) from None
         waves, values = [], []
         seen_first = False
         for lineno, raw in enumerate(text.splitlines(), start=1):
@@ -336,7 +346,9 @@ class TabulatedSpectrum(SpectralSurface):
                     f"{path}, line {lineno}: values must be finite, got {numbers[0]!r}, {numbers[1]!r}"
                 )
             if numbers[0] <= 0.0:
-                raise ValueError(f"{path}, line {lineno}: wavelength must be > 0 nm, got {numbers[0]}")
+                raise ValueError(
+                    f"{path}, line {lineno}: wavelength must be > 0 nm, got {numbers[0]}"
+                )
             if numbers[1] < 0.0:
                 raise ValueError(f"{path}, line {lineno}: radiance must be >= 0, got {numbers[1]}")
             if waves and numbers[0] <= waves[-1][0]:
@@ -347,7 +359,9 @@ class TabulatedSpectrum(SpectralSurface):
             waves.append((numbers[0], lineno))
             values.append(numbers[1])
         if len(waves) < 2:
-            raise ValueError(f"{path}: needs at least 2 data rows (nm, W/(sr m2 nm)), found {len(waves)}")
+            raise ValueError(
+                f"{path}: needs at least 2 data rows (nm, W/(sr m2 nm)), found {len(waves)}"
+            )
         return cls([w for w, _ in waves], values, name=str(path))
 
     @classmethod
@@ -416,7 +430,7 @@ def lamp_spectrum(lamp: float | str):
     if isinstance(lamp, str):
         if lamp.strip().upper() == "D65":
             return "D65", spectrum.cie_d65_relative_spd
-        raise ValueError(f"lamp must be a temperature in K or \"D65\", got {lamp!r}")
+        raise ValueError(f'lamp must be a temperature in K or "D65", got {lamp!r}')
     t = _positive_number(lamp, "lamp temperature (K)")
     return t, lambda w: spectrum.planck_spectral_radiance(w, t)
 
@@ -488,8 +502,9 @@ class Reflective(Surface):
             if isinstance(table.data["lamp"], str):
                 lamp = table.string("lamp", choices=NAMED_LAMPS)
             else:
-                lamp = table.number("lamp", low=MIN_LAMP_TEMPERATURE, high=MAX_TEMPERATURE,
-                                    unit="K")
+                lamp = table.number(
+                    "lamp", low=MIN_LAMP_TEMPERATURE, high=MAX_TEMPERATURE, unit="K"
+                )
         texture = None
         if table.has("texture"):
             texture = table.path_value("texture", what="texture image")
@@ -520,6 +535,7 @@ class Reflective(Surface):
         if norm is None:
             norm = _LAMP_NORMS[norm_key] = 1.0 / _rest_white_luminance(spd)
         for c in range(3):
+
             def radiance(w, c=c):
                 return norm * spd(w) * reflectance_basis(w)[..., c]
 
@@ -530,8 +546,11 @@ class Reflective(Surface):
         """Rest-frame reflected spectral radiance, W/(sr m^2 nm), for ``rgb`` (default own)."""
         rgb = np.asarray(self.rgb if rgb is None else rgb, dtype=float)
         norm = 1.0 / _rest_white_luminance(self._lamp_spd)
-        return self.luminance * norm * self._lamp_spd(wavelength_nm) * (
-            reflectance_basis(wavelength_nm) @ rgb
+        return (
+            self.luminance
+            * norm
+            * self._lamp_spd(wavelength_nm)
+            * (reflectance_basis(wavelength_nm) @ rgb)
         )
 
     def colour_at(self, uv, n: int) -> np.ndarray:
@@ -666,8 +685,9 @@ class Pattern(Surface):
             )
         self.first = Reflective((0.8, 0.8, 0.8)) if first is None else first
         self.second = Reflective((0.05, 0.05, 0.05)) if second is None else second
-        self.uses_uv = bool(getattr(self.first, "uses_uv", True)
-                            or getattr(self.second, "uses_uv", True))
+        self.uses_uv = bool(
+            getattr(self.first, "uses_uv", True) or getattr(self.second, "uses_uv", True)
+        )
         for name, s in (("first", self.first), ("second", self.second)):
             if not hasattr(s, "observed_xyz") or not hasattr(s, "key"):
                 raise ValueError(f"pattern {name} must be a surface, got {s!r}")
@@ -719,12 +739,20 @@ class Pattern(Surface):
             second = _read_kind(pat.table("second"))
         finally:
             _PATTERN_DEPTH.reset(token)
-        return cls(kind=kind, period=period, line_width=line_width, first=first, second=second,
-                   axes=axes)
+        return cls(
+            kind=kind, period=period, line_width=line_width, first=first, second=second, axes=axes
+        )
 
     def key(self):
-        return ("pattern", self.kind, self.period, self.line_width, self.first.key(),
-                self.second.key(), self.axes)
+        return (
+            "pattern",
+            self.kind,
+            self.period,
+            self.line_width,
+            self.first.key(),
+            self.second.key(),
+            self.axes,
+        )
 
     def second_mask(self, rest_position) -> np.ndarray:
         """(N,) True where the hit shows ``second``."""
@@ -754,8 +782,11 @@ class Pattern(Surface):
         for surface, sel in ((self.first, ~mask), (self.second, mask)):
             if np.any(sel):
                 args = (d[sel], pos[sel], None if uv_arr is None else uv_arr[sel], effects)
-                out[sel] = (surface.observed_xyz(*args) if incident is None
-                            else surface.lit_xyz(*args, incident.subset(sel)))
+                out[sel] = (
+                    surface.observed_xyz(*args)
+                    if incident is None
+                    else surface.lit_xyz(*args, incident.subset(sel))
+                )
         return out
 
     def __repr__(self):
@@ -771,10 +802,21 @@ class Pattern(Surface):
 
 #: lit segments of the seven-segment digits 0-9 (segments a-g: top, upper right, lower
 #: right, bottom, lower left, upper left, middle; common practice for numeric displays)
-_SEGMENTS = np.array([
-    [1, 1, 1, 1, 1, 1, 0], [0, 1, 1, 0, 0, 0, 0], [1, 1, 0, 1, 1, 0, 1], [1, 1, 1, 1, 0, 0, 1],
-    [0, 1, 1, 0, 0, 1, 1], [1, 0, 1, 1, 0, 1, 1], [1, 0, 1, 1, 1, 1, 1], [1, 1, 1, 0, 0, 0, 0],
-    [1, 1, 1, 1, 1, 1, 1], [1, 1, 1, 1, 0, 1, 1]], bool)
+_SEGMENTS = np.array(
+    [
+        [1, 1, 1, 1, 1, 1, 0],
+        [0, 1, 1, 0, 0, 0, 0],
+        [1, 1, 0, 1, 1, 0, 1],
+        [1, 1, 1, 1, 0, 0, 1],
+        [0, 1, 1, 0, 0, 1, 1],
+        [1, 0, 1, 1, 0, 1, 1],
+        [1, 0, 1, 1, 1, 1, 1],
+        [1, 1, 1, 0, 0, 0, 0],
+        [1, 1, 1, 1, 1, 1, 1],
+        [1, 1, 1, 1, 0, 1, 1],
+    ],
+    bool,
+)
 
 
 def _segment_masks(x: np.ndarray, y: np.ndarray, stroke: float) -> np.ndarray:
@@ -783,10 +825,18 @@ def _segment_masks(x: np.ndarray, y: np.ndarray, stroke: float) -> np.ndarray:
     inside = (x >= 0) & (x <= 1) & (y >= 0) & (y <= 2)
     left, right = x <= stroke, x >= 1 - stroke
     upper, lower = y >= 1, y <= 1
-    return np.stack([
-        inside & (y >= 2 - stroke), inside & right & upper, inside & right & lower,
-        inside & (y <= stroke), inside & left & lower, inside & left & upper,
-        inside & (np.abs(y - 1) <= stroke / 2)], axis=1)
+    return np.stack(
+        [
+            inside & (y >= 2 - stroke),
+            inside & right & upper,
+            inside & right & lower,
+            inside & (y <= stroke),
+            inside & left & lower,
+            inside & left & upper,
+            inside & (np.abs(y - 1) <= stroke / 2),
+        ],
+        axis=1,
+    )
 
 
 class ClockFace(Surface):
@@ -809,9 +859,18 @@ class ClockFace(Surface):
     #: the renderer passes observed_xyz / lit_xyz the clock reading (s) of each hit
     uses_proper_time = True
 
-    def __init__(self, period: float = 1e-8, phase: float = 0.0, center=(0.0, 0.0, 0.0),
-                 radius: float = 0.5, axes=(0, 2), unit: float = 1e-9, digits: int = 3,
-                 face: Surface | None = None, ink: Surface | None = None):
+    def __init__(
+        self,
+        period: float = 1e-8,
+        phase: float = 0.0,
+        center=(0.0, 0.0, 0.0),
+        radius: float = 0.5,
+        axes=(0, 2),
+        unit: float = 1e-9,
+        digits: int = 3,
+        face: Surface | None = None,
+        ink: Surface | None = None,
+    ):
         self.period = _positive_number(period, "clock period (s)")
         self.phase = float(phase)
         self.center = np.asarray(center, float).reshape(3)
@@ -829,26 +888,46 @@ class ClockFace(Surface):
         """``clock_face = { period, phase, center, radius, axes, unit, digits, face, ink }``;
         ``face`` and ``ink`` are surface tables read through :data:`SURFACE_KINDS`."""
         t = table.table("clock_face")
-        t.check_keys(("period", "phase", "center", "radius", "axes", "unit", "digits", "face",
-                      "ink"))
+        t.check_keys(
+            ("period", "phase", "center", "radius", "axes", "unit", "digits", "face", "ink")
+        )
         axes = (0, 2)
         if t.has("axes"):
             axes = t.int_vector("axes", 2, low=0)
             if max(axes) > 2 or axes[0] == axes[1]:
-                raise t.error("axes", f"axes = {t.show(t.data['axes'])} must be two distinct "
-                              "values from 0, 1, 2 (0 = x, 1 = y, 2 = z)", t.data["axes"])
+                raise t.error(
+                    "axes",
+                    f"axes = {t.show(t.data['axes'])} must be two distinct "
+                    "values from 0, 1, 2 (0 = x, 1 = y, 2 = z)",
+                    t.data["axes"],
+                )
         face = _read_kind(t.table("face")) if t.has("face") else None
         ink = _read_kind(t.table("ink")) if t.has("ink") else None
-        return cls(period=t.number("period", 1e-8, positive=True, unit="s"),
-                   phase=t.number("phase", 0.0, unit="s"),
-                   center=t.vector("center", 3, (0.0, 0.0, 0.0), unit="m"),
-                   radius=t.number("radius", 0.5, positive=True, unit="m"), axes=axes,
-                   unit=t.number("unit", 1e-9, positive=True, unit="s"),
-                   digits=t.integer("digits", 3, low=1, high=9), face=face, ink=ink)
+        return cls(
+            period=t.number("period", 1e-8, positive=True, unit="s"),
+            phase=t.number("phase", 0.0, unit="s"),
+            center=t.vector("center", 3, (0.0, 0.0, 0.0), unit="m"),
+            radius=t.number("radius", 0.5, positive=True, unit="m"),
+            axes=axes,
+            unit=t.number("unit", 1e-9, positive=True, unit="s"),
+            digits=t.integer("digits", 3, low=1, high=9),
+            face=face,
+            ink=ink,
+        )
 
     def key(self):
-        return ("clock_face", self.period, self.phase, tuple(self.center), self.radius,
-                self.axes, self.unit, self.digits, self.first.key(), self.second.key())
+        return (
+            "clock_face",
+            self.period,
+            self.phase,
+            tuple(self.center),
+            self.radius,
+            self.axes,
+            self.unit,
+            self.digits,
+            self.first.key(),
+            self.second.key(),
+        )
 
     def ink_mask(self, rest_position, proper_time) -> np.ndarray:
         """(N,) True where the hit shows ink: rim, marks, hand, hub and digits."""
@@ -886,19 +965,21 @@ class ClockFace(Surface):
         negative = count < 0
         shown = np.where(np.isfinite(count), np.abs(count), 0.0)
         place = (n - 1 - cell).clip(0, self.digits - 1)  # 0: the last digit
-        digit = (np.floor(shown / 10.0 ** place) % 10).astype(np.int64).clip(0, 9)
+        digit = (np.floor(shown / 10.0**place) % 10).astype(np.int64).clip(0, 9)
         seg = _segment_masks(x, y, 0.18)
         ink = np.any(seg & _SEGMENTS[digit], axis=1) & (cell >= 1) & (cell < n)
         sign = (cell == 0) & negative & seg[:, 6]
         window = (np.abs(a) <= -left + 0.04) & (b >= -0.66) & (b <= -0.26)
         return (ink | sign) & np.isfinite(count), window
 
-    def observed_xyz(self, doppler, rest_position, uv=None, effects=None,
-                     proper_time=None) -> np.ndarray:
+    def observed_xyz(
+        self, doppler, rest_position, uv=None, effects=None, proper_time=None
+    ) -> np.ndarray:
         return self.lit_xyz(doppler, rest_position, uv, effects, None, proper_time)
 
-    def lit_xyz(self, doppler, rest_position, uv, effects, incident,
-                proper_time=None) -> np.ndarray:
+    def lit_xyz(
+        self, doppler, rest_position, uv, effects, incident, proper_time=None
+    ) -> np.ndarray:
         """Face and ink, lit by ``incident`` or, when it is None, by their own light."""
         d = _as_doppler(doppler)
         if proper_time is None:  # no clock data (e.g. a caller without clocks): a blank dial
@@ -909,8 +990,11 @@ class ClockFace(Surface):
         for surface, sel in ((self.first, ~mask), (self.second, mask)):
             if np.any(sel):
                 args = (d[sel], pos[sel], None, effects)
-                out[sel] = (surface.observed_xyz(*args) if incident is None
-                            else surface.lit_xyz(*args, incident.subset(sel)))
+                out[sel] = (
+                    surface.observed_xyz(*args)
+                    if incident is None
+                    else surface.lit_xyz(*args, incident.subset(sel))
+                )
         return out
 
 

@@ -45,8 +45,9 @@ STAR_MAGNITUDE_RANGE = 5.0
 
 
 def _reference_table() -> spectrum.DopplerTable:
-    return spectrum.cached_table(("sky-blackbody", T_REF_K),
-                                 lambda w: spectrum.planck_spectral_radiance(w, T_REF_K))
+    return spectrum.cached_table(
+        ("sky-blackbody", T_REF_K), lambda w: spectrum.planck_spectral_radiance(w, T_REF_K)
+    )
 
 
 def blackbody_xyz(temperature_k: np.ndarray) -> np.ndarray:
@@ -90,8 +91,9 @@ def microwave_frame_beta(bg: Background, beta_cam: np.ndarray) -> np.ndarray:
     return compose_velocities(np.asarray(beta_cam, float), -np.asarray(bg.camera_velocity, float))
 
 
-def microwave_temperature(bg: Background, d_scene: np.ndarray, beta_cam: np.ndarray,
-                          effects: Effects) -> np.ndarray:
+def microwave_temperature(
+    bg: Background, d_scene: np.ndarray, beta_cam: np.ndarray, effects: Effects
+) -> np.ndarray:
     """(N,) blackbody temperature (K) the camera records along S directions d (towards the
     source) of a sky at rest in frame F.
 
@@ -108,13 +110,15 @@ def microwave_temperature(bg: Background, d_scene: np.ndarray, beta_cam: np.ndar
     if not effects.doppler:
         return np.full(n, t0)
     d_cam = doppler_along(np.zeros(3), d_scene, beta_cam, relativistic=effects.contraction)
-    d_frame = doppler_along(np.zeros(3), d_scene, microwave_frame_beta(bg, beta_cam),
-                            relativistic=effects.contraction)
+    d_frame = doppler_along(
+        np.zeros(3), d_scene, microwave_frame_beta(bg, beta_cam), relativistic=effects.contraction
+    )
     return t0 * d_cam / d_frame
 
 
-def sky_xyz(bg: Background, d_scene: np.ndarray, beta_cam: np.ndarray,
-            effects: Effects) -> np.ndarray:
+def sky_xyz(
+    bg: Background, d_scene: np.ndarray, beta_cam: np.ndarray, effects: Effects
+) -> np.ndarray:
     """(N, 3) observed XYZ of the per-pixel sky along S directions (towards the source)."""
     out = np.zeros((len(d_scene), 3))
     if len(d_scene) == 0:
@@ -158,8 +162,15 @@ def generate_stars(bg: Background):
     return dirs, temps, scale
 
 
-def star_splat(bg: Background, camera: Camera, width: int, height: int, beta_cam: np.ndarray,
-               effects: Effects, occluded: np.ndarray | None = None) -> np.ndarray | None:
+def star_splat(
+    bg: Background,
+    camera: Camera,
+    width: int,
+    height: int,
+    beta_cam: np.ndarray,
+    effects: Effects,
+    occluded: np.ndarray | None = None,
+) -> np.ndarray | None:
     """(H, W, 3) XYZ image of the star field, or None for other backgrounds."""
     if bg.kind != "stars":
         return None

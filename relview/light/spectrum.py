@@ -138,9 +138,7 @@ def spectrum_to_xyz(wavelength_nm, radiance) -> np.ndarray:
     inside = pts[(pts > VISIBLE_MIN_NM) & (pts < VISIBLE_MAX_NM)]
     grid = np.union1d(CMF_WAVELENGTHS_NM, inside)
     flat = r.reshape(-1, w.shape[0])
-    samples = np.stack(
-        [np.interp(grid, w, row, left=0.0, right=0.0) for row in flat]
-    )  # (B, G)
+    samples = np.stack([np.interp(grid, w, row, left=0.0, right=0.0) for row in flat])  # (B, G)
     cmf = cmf_at(grid)  # (G, 3)
     xyz = K_M_LM_PER_W * np.trapezoid(samples[:, :, None] * cmf[None, :, :], grid, axis=1)
     return xyz.reshape(r.shape[:-1] + (3,))
@@ -335,9 +333,12 @@ class DopplerTable:
         self.max_depth = max_depth
         # Base nodes sit at integer multiples of the step, so D = 1 is a node and the grid
         # can grow at either end without moving the others.
-        log_d = np.arange(
-            math.floor(math.log(d_min) / self.step), math.ceil(math.log(d_max) / self.step) + 1
-        ) * self.step
+        log_d = (
+            np.arange(
+                math.floor(math.log(d_min) / self.step), math.ceil(math.log(d_max) / self.step) + 1
+            )
+            * self.step
+        )
         log_d = self._with_feature_nodes(log_d)
         xyz = self._integrate(log_d)
         # Values below this count as zero when judging the interpolation (docs/colour.md).
@@ -417,14 +418,18 @@ class DopplerTable:
         if log_lo < start:
             ld = start - np.arange(math.ceil((start - log_lo) / self.step), -1, -1) * self.step
             ld = self._with_feature_nodes(ld)
-            nodes, vals, mids = self._refined(ld, np.concatenate([self._integrate(ld[:-1]), self.xyz[:1]]))
+            nodes, vals, mids = self._refined(
+                ld, np.concatenate([self._integrate(ld[:-1]), self.xyz[:1]])
+            )
             self.log_d = np.concatenate([nodes[:-1], self.log_d])
             self.xyz = np.concatenate([vals[:-1], self.xyz])
             self.mid_xyz = np.concatenate([mids, self.mid_xyz])
         if log_hi > end:
             ld = end + np.arange(0, math.ceil((log_hi - end) / self.step) + 1) * self.step
             ld = self._with_feature_nodes(ld)
-            nodes, vals, mids = self._refined(ld, np.concatenate([self.xyz[-1:], self._integrate(ld[1:])]))
+            nodes, vals, mids = self._refined(
+                ld, np.concatenate([self.xyz[-1:], self._integrate(ld[1:])])
+            )
             self.log_d = np.concatenate([self.log_d, nodes[1:]])
             self.xyz = np.concatenate([self.xyz, vals[1:]])
             self.mid_xyz = np.concatenate([self.mid_xyz, mids])
@@ -439,8 +444,13 @@ class DopplerTable:
         ld = np.log(d)
         if ld.min() < self.log_d[0] or ld.max() > self.log_d[-1]:
             self._grow(float(ld.min()), float(ld.max()))
-        flat = _interpolate_table(np.ascontiguousarray(ld.ravel()), self.log_d, self.xyz,
-                                  self._log_xyz, np.ascontiguousarray(self.use_log))
+        flat = _interpolate_table(
+            np.ascontiguousarray(ld.ravel()),
+            self.log_d,
+            self.xyz,
+            self._log_xyz,
+            np.ascontiguousarray(self.use_log),
+        )
         return flat.reshape(ld.shape + (3,))
 
     def direct(self, doppler) -> np.ndarray:

@@ -114,7 +114,14 @@ class Body:
     def rotation_matrix(self) -> np.ndarray:
         """Rest-frame orientation: body axes -> rest-frame axes (x, then y, then z turns)."""
         ax, ay, az = np.radians(np.asarray(self.rotation, float))
-        cx, sx, cy, sy, cz, sz = np.cos(ax), np.sin(ax), np.cos(ay), np.sin(ay), np.cos(az), np.sin(az)
+        cx, sx, cy, sy, cz, sz = (
+            np.cos(ax),
+            np.sin(ax),
+            np.cos(ay),
+            np.sin(ay),
+            np.cos(az),
+            np.sin(az),
+        )
         rx = np.array([[1, 0, 0], [0, cx, -sx], [0, sx, cx]])
         ry = np.array([[cy, 0, sy], [0, 1, 0], [-sy, 0, cy]])
         rz = np.array([[cz, -sz, 0], [sz, cz, 0], [0, 0, 1]])

@@ -70,7 +70,6 @@ MAX_STARS = 1_000_000
 MAX_FRAMES = 1_000_000
 
 
-
 # ============================================================================ motions
 
 
@@ -83,6 +82,7 @@ def _parse_motion(body: Table) -> Any:
 
 
 # ============================================================================ surfaces
+
 
 def _is_surface_object(value: Any) -> bool:
     """A ready-made relview.light.materials surface (Scene.from_dict in scripts)."""
@@ -120,8 +120,20 @@ def _parse_render(root: Table) -> RenderSettings:
     t = root.table("render", None, section="render")
     if t is None:
         return RenderSettings()
-    t.check_keys(("resolution", "samples", "exposure", "seed", "effects", "shutter",
-                  "shutter_samples", "tone", "metering", "metering_body"))
+    t.check_keys(
+        (
+            "resolution",
+            "samples",
+            "exposure",
+            "seed",
+            "effects",
+            "shutter",
+            "shutter_samples",
+            "tone",
+            "metering",
+            "metering_body",
+        )
+    )
     defaults = RenderSettings()
     exposure: float | str = "auto"
     if t.has("exposure"):
@@ -142,8 +154,7 @@ def _parse_render(root: Table) -> RenderSettings:
         effects=effects,
         seed=t.integer("seed", defaults.seed, low=0, high=2**63 - 1),
         shutter=t.number("shutter", 0.0, nonnegative=True, unit="s"),
-        shutter_samples=t.integer("shutter_samples", defaults.shutter_samples, low=1,
-                                  high=4096),
+        shutter_samples=t.integer("shutter_samples", defaults.shutter_samples, low=1, high=4096),
         tone=t.string("tone", "none", choices=("none", "reinhard")),
         **_parse_metering(t, root),
     )
@@ -159,22 +170,34 @@ def _parse_metering(t: Table, root: Table) -> dict[str, str]:
     if metering != "body":
         if t.has("metering_body"):
             value = t.data["metering_body"]
-            raise t.error("metering_body", f"metering_body = {show(value)} goes with metering = "
-                          f'"body", not metering = {show(metering)}', value)
+            raise t.error(
+                "metering_body",
+                f"metering_body = {show(value)} goes with metering = "
+                f'"body", not metering = {show(metering)}',
+                value,
+            )
         return {"metering": metering, "metering_body": ""}
     if not t.has("metering_body"):
-        raise t.error("metering", 'metering = "body" needs metering_body = "NAME", the name '
-                      "of the [[body]] to meter", metering)
+        raise t.error(
+            "metering",
+            'metering = "body" needs metering_body = "NAME", the name of the [[body]] to meter',
+            metering,
+        )
     # the names as the [[body]] tables give them (validated again with the bodies)
     raw = root.data.get("body")
     raw = raw if isinstance(raw, list) else []
     names = [b.get("name", f"body{i + 1}") for i, b in enumerate(raw) if isinstance(b, Mapping)]
     if not names:
         value = t.data["metering_body"]
-        raise t.error("metering_body", f"metering_body = {show(value)}: the scene has no "
-                      "[[body]] to meter", value)
-    return {"metering": metering,
-            "metering_body": t.string("metering_body", choices=[str(n) for n in names])}
+        raise t.error(
+            "metering_body",
+            f"metering_body = {show(value)}: the scene has no [[body]] to meter",
+            value,
+        )
+    return {
+        "metering": metering,
+        "metering_body": t.string("metering_body", choices=[str(n) for n in names]),
+    }
 
 
 def _unit(v: np.ndarray) -> np.ndarray:
@@ -185,17 +208,35 @@ def _unit(v: np.ndarray) -> np.ndarray:
 
 def _parse_camera(root: Table) -> Camera:
     t = root.table("camera", section="camera")
-    t.check_keys(("position", "look_at", "direction", "up", "fov", "time", "beta", "projection",
-                  "motion", "aim_at", "fit", "margin", "clock"))
+    t.check_keys(
+        (
+            "position",
+            "look_at",
+            "direction",
+            "up",
+            "fov",
+            "time",
+            "beta",
+            "projection",
+            "motion",
+            "aim_at",
+            "fit",
+            "margin",
+            "clock",
+        )
+    )
     time = read_time(t)  # refuses times float64 cannot resolve (relview.kinematics.magnitudes)
     motion = None
     if t.has("motion"):
         # The camera rides any motion kind; its place and velocity follow the worldline.
         for clash in ("position", "beta"):
             if t.has(clash):
-                raise t.error(clash, f"{clash} = {show(t.data[clash])} cannot be given with "
-                              "[camera.motion], which sets the camera's worldline; remove it",
-                              t.data[clash])
+                raise t.error(
+                    clash,
+                    f"{clash} = {show(t.data[clash])} cannot be given with "
+                    "[camera.motion], which sets the camera's worldline; remove it",
+                    t.data[clash],
+                )
         motion = t.motion("motion", section="camera.motion")
         position = np.asarray(motion.state(np.zeros((1, 3)), C * time)[0][0], float)
     else:
@@ -219,12 +260,17 @@ def _parse_camera(root: Table) -> Camera:
         # centre at each exposure, once the bodies are read (_aim_provisionally)
         for clash in ("look_at", "direction"):
             if t.has(clash):
-                raise t.error(clash, f"give exactly one of look_at, direction and aim_at, "
-                              f"not both {clash} = {show(t.data[clash])} and aim_at = "
-                              f"{show(t.data['aim_at'])}", t.data[clash])
+                raise t.error(
+                    clash,
+                    f"give exactly one of look_at, direction and aim_at, "
+                    f"not both {clash} = {show(t.data[clash])} and aim_at = "
+                    f"{show(t.data['aim_at'])}",
+                    t.data[clash],
+                )
         up_given = _unit(t.vector("up", 3, (0.0, 0.0, 1.0), nonzero=True))
-        direction = forward = _unit(np.cross(up_given, [0.0, 1.0, 0.0] if abs(up_given[1]) < 0.9
-                                             else [1.0, 0.0, 0.0]))
+        direction = forward = _unit(
+            np.cross(up_given, [0.0, 1.0, 0.0] if abs(up_given[1]) < 0.9 else [1.0, 0.0, 0.0])
+        )
     elif t.has("look_at"):
         look_at = t.vector("look_at", 3, unit="m")
         # Compare in units of the larger coordinate, so huge values cannot overflow.
@@ -262,8 +308,15 @@ def _parse_camera(root: Table) -> Camera:
             )
         fov = rule.fov_fixed
     else:
-        fov = t.number("fov", rule.fov_default, low=0.0, high=rule.fov_max, low_open=True,
-                       high_open=not rule.fov_max_inclusive, unit="degrees")
+        fov = t.number(
+            "fov",
+            rule.fov_default,
+            low=0.0,
+            high=rule.fov_max,
+            low_open=True,
+            high_open=not rule.fov_max_inclusive,
+            unit="degrees",
+        )
     return Camera(
         position=position,
         look_at=look_at,
@@ -297,10 +350,12 @@ def _body_names(t: Table, key: str) -> tuple[str, ...]:
         return ()
     value = t.data[key]
     names = [value] if isinstance(value, str) else value
-    if (not isinstance(names, list) or not names
-            or not all(isinstance(n, str) and n for n in names)):
-        raise t.error(key, f"{key} = {show(value)} must be a body name or a non-empty list of "
-                      "body names", value)
+    if not isinstance(names, list) or not names or not all(isinstance(n, str) and n for n in names):
+        raise t.error(
+            key,
+            f"{key} = {show(value)} must be a body name or a non-empty list of body names",
+            value,
+        )
     return tuple(names)
 
 
@@ -308,15 +363,26 @@ def _framing_keys(t: Table) -> tuple[tuple[str, ...], tuple[str, ...], float]:
     """``aim_at``, ``fit`` and ``margin`` of ``[camera]`` (applied by relview.framing)."""
     aim_at, fit = _body_names(t, "aim_at"), _body_names(t, "fit")
     if fit and t.has("fov"):
-        raise t.error("fov", f"fov = {show(t.data['fov'])} cannot be given with fit = "
-                      f"{show(t.data['fit'])}, which chooses the field of view; remove one",
-                      t.data["fov"])
+        raise t.error(
+            "fov",
+            f"fov = {show(t.data['fov'])} cannot be given with fit = "
+            f"{show(t.data['fit'])}, which chooses the field of view; remove one",
+            t.data["fov"],
+        )
     if fit and t.data.get("projection") == "panorama":
-        raise t.error("fit", f"fit = {show(t.data['fit'])} does not apply to the panorama "
-                      "projection (it always shows the full sphere); remove it", t.data["fit"])
+        raise t.error(
+            "fit",
+            f"fit = {show(t.data['fit'])} does not apply to the panorama "
+            "projection (it always shows the full sphere); remove it",
+            t.data["fit"],
+        )
     if t.has("margin") and not fit:
-        raise t.error("margin", f"margin = {show(t.data['margin'])} applies only with fit; "
-                      "give fit = [body names] or remove it", t.data["margin"])
+        raise t.error(
+            "margin",
+            f"margin = {show(t.data['margin'])} applies only with fit; "
+            "give fit = [body names] or remove it",
+            t.data["margin"],
+        )
     margin = t.number("margin", 0.15, nonnegative=True, high=10.0)
     return aim_at, fit, margin
 
@@ -329,14 +395,19 @@ def _check_framing_names(root: Table, camera: Camera, bodies: list) -> None:
     for key in ("aim_at", "fit"):
         for name in getattr(camera, key):
             if name not in names:
-                raise t.error(key, f'{key} names body "{name}", which the scene does not have'
-                              f"; bodies: {', '.join(names) or '(none)'}", t.data[key])
+                raise t.error(
+                    key,
+                    f'{key} names body "{name}", which the scene does not have'
+                    f"; bodies: {', '.join(names) or '(none)'}",
+                    t.data[key],
+                )
     if camera.aim_at:
         body = bodies[names.index(camera.aim_at[0])]
         origin = np.asarray(body.motion.state(np.zeros((1, 3)), C * camera.time)[0][0], float)
         towards = origin - np.asarray(camera.position, float)
         if np.all(np.isfinite(towards)) and np.linalg.norm(towards) > 1e-9 * max(
-                1.0, float(np.abs(origin).max())):
+            1.0, float(np.abs(origin).max())
+        ):
             camera.direction = _unit(towards)
 
 
@@ -516,23 +587,34 @@ def _parse_microwave_sky(t: Table) -> Background:
     2.7255 K, Fixsen 2009, ApJ 707, 916) at rest in a frame that moves with ``frame_beta``
     in the scene frame, or in which the camera moves at ``camera_speed`` (km/s) along
     ``camera_direction`` (scene axes) at the exposure."""
-    temperature = t.number("temperature", CMB_TEMPERATURE_K, positive=True,
-                           high=MAX_TEMPERATURE, unit="K")
+    temperature = t.number(
+        "temperature", CMB_TEMPERATURE_K, positive=True, high=MAX_TEMPERATURE, unit="K"
+    )
     if t.has("frame_beta") and (t.has("camera_speed") or t.has("camera_direction")):
-        raise t.error("frame_beta", "give the sky's frame either as frame_beta (its velocity / c "
-                      "in the scene frame) or as camera_speed and camera_direction, not both",
-                      t.data["frame_beta"])
+        raise t.error(
+            "frame_beta",
+            "give the sky's frame either as frame_beta (its velocity / c "
+            "in the scene frame) or as camera_speed and camera_direction, not both",
+            t.data["frame_beta"],
+        )
     frame_beta = t.beta("frame_beta")
     camera_velocity = None
     if t.has("camera_speed") or t.has("camera_direction"):
         speed = t.number("camera_speed", unit="km/s", nonnegative=True)
         if speed * 1e3 >= C:
-            raise t.error("camera_speed", f"camera_speed = {show(speed)} km/s is at or above c "
-                          f"({C / 1e3:.9g} km/s)", speed)
+            raise t.error(
+                "camera_speed",
+                f"camera_speed = {show(speed)} km/s is at or above c ({C / 1e3:.9g} km/s)",
+                speed,
+            )
         direction = t.vector("camera_direction", 3, nonzero=True)
         camera_velocity = speed * 1e3 / C * direction / np.linalg.norm(direction)
-    return Background(kind="cmb", temperature=(temperature, temperature), frame_beta=frame_beta,
-                      camera_velocity=camera_velocity)
+    return Background(
+        kind="cmb",
+        temperature=(temperature, temperature),
+        frame_beta=frame_beta,
+        camera_velocity=camera_velocity,
+    )
 
 
 #: most shadow rays per shaded point towards one sphere lamp
@@ -545,8 +627,9 @@ def _parse_lamp(t: Table, index: int, seen: dict[str, int]) -> Lamp:
     name = t.string("name", f"lamp{index + 1}")
     t.context = f'lamp "{name}"'
     if name in seen:
-        raise t.error("name", f'duplicate lamp name "{name}" (already used by lamp #{seen[name] + 1})',
-                      name)
+        raise t.error(
+            "name", f'duplicate lamp name "{name}" (already used by lamp #{seen[name] + 1})', name
+        )
     seen[name] = index
     distant_keys = ("direction", "irradiance", "frame_beta")
     point_keys = ("power", "radius", "motion", "shadow_samples", "seed")
@@ -555,26 +638,41 @@ def _parse_lamp(t: Table, index: int, seen: dict[str, int]) -> Lamp:
     if t.has("direction"):
         for key in point_keys:
             if t.has(key):
-                raise t.error(key, f"{key} = {show(t.data[key])} does not apply to a distant lamp "
-                              "(one with a direction); give power, radius and motion only to "
-                              "point and sphere lamps", t.data[key])
-        return Lamp(name=name, spectrum=lamp_spectrum,
-                    direction=_unit(t.vector("direction", 3, nonzero=True)),
-                    irradiance=t.number("irradiance", positive=True, unit="W/m2"),
-                    frame_beta=t.beta("frame_beta"))
+                raise t.error(
+                    key,
+                    f"{key} = {show(t.data[key])} does not apply to a distant lamp "
+                    "(one with a direction); give power, radius and motion only to "
+                    "point and sphere lamps",
+                    t.data[key],
+                )
+        return Lamp(
+            name=name,
+            spectrum=lamp_spectrum,
+            direction=_unit(t.vector("direction", 3, nonzero=True)),
+            irradiance=t.number("irradiance", positive=True, unit="W/m2"),
+            frame_beta=t.beta("frame_beta"),
+        )
     for key in distant_keys:
         if t.has(key):
-            raise t.error(key, f"{key} = {show(t.data[key])} applies only to a distant lamp; give "
-                          "direction too, or power (and motion) for a lamp on a worldline",
-                          t.data[key])
+            raise t.error(
+                key,
+                f"{key} = {show(t.data[key])} applies only to a distant lamp; give "
+                "direction too, or power (and motion) for a lamp on a worldline",
+                t.data[key],
+            )
     radius = t.number("radius", 0.0, nonnegative=True, high=MAX_COORDINATE, unit="m")
     motion = t.motion("motion", None, section="lamp.motion") or UniformMotion()
     with t.errors_at("motion"):
         motion.validate(radius)
-    return Lamp(name=name, spectrum=lamp_spectrum,
-                power=t.number("power", positive=True, unit="W"), radius=radius, motion=motion,
-                shadow_samples=t.integer("shadow_samples", 16, low=1, high=MAX_SHADOW_SAMPLES),
-                seed=t.integer("seed", 0, low=0, high=2**63 - 1))
+    return Lamp(
+        name=name,
+        spectrum=lamp_spectrum,
+        power=t.number("power", positive=True, unit="W"),
+        radius=radius,
+        motion=motion,
+        shadow_samples=t.integer("shadow_samples", 16, low=1, high=MAX_SHADOW_SAMPLES),
+        seed=t.integer("seed", 0, low=0, high=2**63 - 1),
+    )
 
 
 def sphere_lamp_bodies(lamps: list[Lamp], first_index: int) -> list[Body]:
@@ -588,10 +686,16 @@ def sphere_lamp_bodies(lamps: list[Lamp], first_index: int) -> list[Body]:
         if lamp.distant or lamp.radius <= 0.0:
             continue
         lamp.glow_body = first_index + len(bodies)
-        bodies.append(Body(name=f"(lamp {lamp.name})", shape="sphere", radius=lamp.radius,
-                           motion=lamp.motion, source_key=f'[[lamp]] "{lamp.name}"',
-                           surface=SphereGlow(lamp.spectrum,
-                                              sphere_radiance(lamp.power, lamp.radius))))
+        bodies.append(
+            Body(
+                name=f"(lamp {lamp.name})",
+                shape="sphere",
+                radius=lamp.radius,
+                motion=lamp.motion,
+                source_key=f'[[lamp]] "{lamp.name}"',
+                surface=SphereGlow(lamp.spectrum, sphere_radiance(lamp.power, lamp.radius)),
+            )
+        )
     return bodies
 
 
@@ -600,16 +704,22 @@ def _parse_lamps(root: Table) -> list[Lamp]:
     if value is None:
         return []
     if not isinstance(value, list):
-        raise root.error("lamp", "lamps are an array of tables: write [[lamp]] (double brackets) "
-                         f"for each lamp, got {_type_name(value)}", value)
+        raise root.error(
+            "lamp",
+            "lamps are an array of tables: write [[lamp]] (double brackets) "
+            f"for each lamp, got {_type_name(value)}",
+            value,
+        )
     lamps: list[Lamp] = []
     seen: dict[str, int] = {}
     for i, item in enumerate(value):
         if not isinstance(item, Mapping):
-            raise root.error("lamp", f"lamp entry {i + 1} is {_type_name(item)}, not a table: "
-                             f"{show(item)}", item)
-        lamps.append(_parse_lamp(Table(item, root.doc, ("lamp", i), "lamp", "", f"lamp #{i + 1}"),
-                                 i, seen))
+            raise root.error(
+                "lamp", f"lamp entry {i + 1} is {_type_name(item)}, not a table: {show(item)}", item
+            )
+        lamps.append(
+            _parse_lamp(Table(item, root.doc, ("lamp", i), "lamp", "", f"lamp #{i + 1}"), i, seen)
+        )
     return lamps
 
 
@@ -707,7 +817,8 @@ def _read_limited(path: Path, source: str) -> bytes:
         if path.is_symlink():
             raise SceneError(
                 f"scene file is a symbolic link to a missing file ({os.readlink(path)})",
-                file=source, value=source,
+                file=source,
+                value=source,
             ) from None
         raise SceneError("scene file does not exist", file=source, value=source) from None
     except IsADirectoryError:

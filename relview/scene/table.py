@@ -548,38 +548,58 @@ class Table:
         if value is _UNSET:
             return default
         if not isinstance(value, (list, tuple)) or not value:
-            raise self.error(key, f"expected a non-empty list of numbers{' (' + unit + ')' if unit else ''}, "
-                             f"got {_type_name(value)}: {key} = {show(value)}", value)
+            raise self.error(
+                key,
+                f"expected a non-empty list of numbers{' (' + unit + ')' if unit else ''}, "
+                f"got {_type_name(value)}: {key} = {show(value)}",
+                value,
+            )
         for item in value:
             if not _is_number(item) or not math.isfinite(float(item)):
-                raise self.error(key, f"expected a list of finite numbers, found {show(item)} in "
-                                 f"{key} = {show(value)}", value)
+                raise self.error(
+                    key,
+                    f"expected a list of finite numbers, found {show(item)} in "
+                    f"{key} = {show(value)}",
+                    value,
+                )
         return np.array([float(v) for v in value])
 
-    def vector_list(self, key: str, n: int = 3, default: Any = _REQUIRED, *,
-                    unit: str = "") -> np.ndarray:
+    def vector_list(
+        self, key: str, n: int = 3, default: Any = _REQUIRED, *, unit: str = ""
+    ) -> np.ndarray:
         """A non-empty list of ``n``-number lists, as a (K, n) float array."""
         value = self._get(key, default)
         if value is _UNSET:
             return default
         what = f"a non-empty list of [{', '.join('xyzw'[:n])}]{' (' + unit + ')' if unit else ''}"
         if not isinstance(value, (list, tuple)) or not value:
-            raise self.error(key, f"expected {what}, got {_type_name(value)}: {key} = {show(value)}",
-                             value)
+            raise self.error(
+                key, f"expected {what}, got {_type_name(value)}: {key} = {show(value)}", value
+            )
         rows = []
         for item in value:
-            ok = isinstance(item, (list, tuple)) and len(item) == n and all(
-                _is_number(v) and math.isfinite(float(v)) for v in item)
+            ok = (
+                isinstance(item, (list, tuple))
+                and len(item) == n
+                and all(_is_number(v) and math.isfinite(float(v)) for v in item)
+            )
             if not ok:
-                raise self.error(key, f"expected {what}, found {show(item)} in {key} = {show(value)}",
-                                 value)
+                raise self.error(
+                    key, f"expected {what}, found {show(item)} in {key} = {show(value)}", value
+                )
             rows.append([float(v) for v in item])
         return np.array(rows)
 
     # ---------------------------------------------------------------- kinds, checks
 
-    def motion(self, key: str, default: Any = _REQUIRED, *, section: str | None = None,
-               exclude: Mapping[str, str] | None = None) -> Any:
+    def motion(
+        self,
+        key: str,
+        default: Any = _REQUIRED,
+        *,
+        section: str | None = None,
+        exclude: Mapping[str, str] | None = None,
+    ) -> Any:
         """The motion described by sub-table ``key``: its ``kind`` (default "uniform")
         chooses the reader in relview.kinematics.kinds.MOTION_KINDS. ``exclude`` maps
         kinds not allowed here to the reason."""
@@ -588,8 +608,9 @@ class Table:
             return default
         kind = sub.string("kind", "uniform", choices=sorted(MOTION_KINDS))
         if exclude and kind in exclude:
-            raise sub.error("kind", f"kind = {show(kind)} is not allowed here: {exclude[kind]}",
-                            kind)
+            raise sub.error(
+                "kind", f"kind = {show(kind)} is not allowed here: {exclude[kind]}", kind
+            )
         return MOTION_KINDS[kind](sub)
 
     @contextlib.contextmanager
