@@ -30,6 +30,14 @@ def _solve_increasing(
     Newton, e.g. Press et al., Numerical Recipes, 3rd ed., §9.4 'rtsafe').
     Entries with no sign change within the expansion limit come back NaN.
     """
+    # A bracket that runs out to infinity (a worldline whose past never reaches the
+    # camera, e.g. beyond a hyperbolic horizon) makes inf - inf and inf / inf on purpose:
+    # those entries end as NaN (no root), which is the answer, not a fault to warn about.
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        return _solve_increasing_unguarded(fun, guess, step, tol, max_expand, max_iter)
+
+
+def _solve_increasing_unguarded(fun, guess, step, tol, max_expand, max_iter) -> np.ndarray:
     n = guess.size
     everyone = np.arange(n)
     s = guess.astype(float).copy()
