@@ -284,3 +284,17 @@ def test_stale_temporaries_of_a_killed_write_are_removed_by_the_next_write(tmp_p
     assert written.read_bytes() == b"png"
     assert not stale.exists()
     assert young.exists() and foreign.exists() and other_target.exists()
+
+
+def test_a_path_with_a_nul_character_is_a_user_error(tmp_path):
+    # found by the long fuzz run: Path.exists() says False for it, os.stat raises ValueError
+    from relview.errors import SceneError
+    from relview.scene.model import scene_from_dict
+
+    data = {
+        "camera": {"position": [0.0, -5.0, 0.0], "look_at": [0.0, 0.0, 0.0]},
+        "body": [{"name": "b", "shape": "mesh", "file": "\x00", "surface": {"blackbody": 5e3}}],
+    }
+    with pytest.raises(SceneError, match="is not a usable path") as err:
+        scene_from_dict(data, base_dir=tmp_path)
+    assert "file" in err.value.key

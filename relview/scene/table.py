@@ -131,6 +131,8 @@ def _why_missing(path: Path) -> tuple[str, str]:
     a loop of links (Path.exists() is False for all three)."""
     try:
         os.stat(path)
+    except ValueError as exc:  # e.g. a NUL character: no file system takes that name
+        return "is not a usable path", str(exc)
     except OSError as exc:
         if exc.errno == errno.ELOOP:
             return "path is a loop of symbolic links", str(path)
