@@ -345,6 +345,7 @@ def test_shadow_of_a_moving_bar_on_a_wall_at_rest():
     assert edge(+1) < (beta * t + length / (2 * gamma)) / f
 
 
+@pytest.mark.slow  # about 10 s: snapshots on the shading points' own light cones
 def test_shadow_of_an_accelerating_bar_on_a_wall_at_rest():
     """As above, with the bar on a Born-rigid hyperbolic worldline, momentarily at rest at
     x = 0 at t = 0: the point at rest-frame offset p along x follows x_p(t) = -L +

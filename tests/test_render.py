@@ -81,7 +81,16 @@ def test_each_switch_changes_the_picture(name):
     assert not np.allclose(full.layers["xyz"], part.layers["xyz"])
 
 
-@pytest.mark.parametrize("path", SCENES, ids=[p.stem for p in SCENES])
+#: demos whose check-and-render takes tens of seconds (lit-rolling-wheel: shadows of an
+#: accelerating wheel through snapshots per cluster of shading points): run in CI's slow step
+SLOW_DEMOS = {"lit-rolling-wheel"}
+
+
+@pytest.mark.parametrize(
+    "path",
+    [pytest.param(p, marks=pytest.mark.slow) if p.stem in SLOW_DEMOS else p for p in SCENES],
+    ids=[p.stem for p in SCENES],
+)
 def test_demo_scene_checks_and_renders(path, capsys):
     assert main(["check", str(path)]) == 0
     scene = relview.load_scene(path)
