@@ -658,3 +658,12 @@ def test_path_with_absurd_coordinates_is_a_clear_error():
     xs = np.array([0.0, 1.0, 1e300])
     with pytest.raises(ValueError, match=r"segment 1 .* mean speed"):
         PathMotion(times=np.array([0.0, 1e-8, 2e-8]), positions=np.stack([xs, 0 * xs, 0 * xs], 1))
+
+
+def test_directions_given_by_tiny_numbers_are_still_directions():
+    # found by the scaled-demo fuzz run: an orbit axis [0, 0, 1e-300] squared underflowed
+    # to the zero vector; a direction is scale-free
+    orbit = OrbitMotion(center=np.zeros(3), radius=3.0, beta=0.6, axis=np.array([0, 0, 1e-300]))
+    np.testing.assert_array_equal(orbit.axis, [0.0, 0.0, 1.0])
+    spin = SpinMotion(base=UniformMotion(), axis=np.array([1e-310, 0.0, 0.0]), angular_velocity=1.0)
+    np.testing.assert_array_equal(spin.axis, [1.0, 0.0, 0.0])

@@ -60,10 +60,11 @@ def _vec3(value, name: str = "vector") -> np.ndarray:
 
 def _unit(value, name: str) -> np.ndarray:
     v = _vec3(value, name)
-    n = float(np.linalg.norm(v))
-    if n == 0.0:
+    big = float(np.abs(v).max())
+    if big == 0.0:
         raise ValueError(f"{name} must not be the zero vector, got {value!r}")
-    return v / n
+    v = v / big  # a direction given by tiny (or huge) numbers: no underflow of squares
+    return v / float(np.linalg.norm(v))
 
 
 def _cross_matrix(axis: np.ndarray) -> np.ndarray:
