@@ -171,8 +171,23 @@ def probe_many(
         scene, bi, pts, relative[:, 0], -d_s, beta_cam, effects, reference
     )
     cam_clock = camera_reading(scene.camera, t, effects.contraction)
+    # shadow rays start at the point's own emission event: bodies on non-inertial
+    # worldlines must occlude where they were when the lamp's light passed them, on that
+    # event's past light cone, not on the camera's (the renderer's RetardedOccluders; one
+    # event per cast, so its snapshots sit on exactly that event's light cone)
+    occluders = tracer
+    if scene.lamps and context.other:
+        occluders = illumination.RetardedOccluders(
+            scene,
+            context.meshes,
+            context.other,
+            context.uniform_groups,
+            tracer,
+            event,
+            tolerance,
+        )
     lamps = [
-        illumination.lamp_sightings(scene.lamps, tracer, emit[i], beta_e[i], effects, reference)
+        illumination.lamp_sightings(scene.lamps, occluders, emit[i], beta_e[i], effects, reference)
         for i in range(len(pts))
     ]
     out = []

@@ -556,6 +556,91 @@ def test_probe_reports_each_lamps_event_direction_doppler_and_shadow():
     assert not shaded.lamps[0].lit and shaded.lamps[0].lit_fraction == 0.0
 
 
+def test_probe_shadow_of_an_accelerating_bar_uses_the_points_own_light_cone():
+    """``relview probe`` on a floor at rest under a point lamp, shadowed by a bar on a
+    Born-rigid hyperbolic worldline (x_p(t) = -L + sqrt((L + p)^2 + (ct)^2), L = c^2/a;
+    Rindler 2006, section 3.8). The floor point X, whose light leaves it at
+    ct_E = ct_cam - |x_cam - X| towards the camera, is dark when the lamp's ray crosses the
+    bar's height h at x = f X inside [x_-L/2, x_+L/2] at ct_E - (1 - f) r (straight light
+    paths); its edges by scipy's brentq. The probe's edges, found by bisecting its ``lit``
+    answer, must agree to the bar's light-cone snapshot error (PROBE_TOLERANCE rad seen
+    from E, 2 m away) over f; the camera's own light-cone snapshot of the bar (where the
+    camera sees it) would put the shadow elsewhere."""
+    from scipy.optimize import brentq
+
+    from relview.kinematics.lorentz import C
+    from relview.probes import PROBE_TOLERANCE, probe_many
+    from relview.renderer import RenderContext, camera_state
+
+    big_h, h, length, rindler = 4.0, 2.0, 1.0, 2.0
+    bar = Body(
+        name="bar",
+        shape="box",
+        size=np.array([length, 0.4, 1e-4]),
+        surface=grey(),
+        motion=HyperbolicMotion(
+            acceleration=np.array([C**2 / rindler, 0, 0]), position=np.array([0.0, 0.0, h])
+        ),
+    )
+    cam = np.array([1.0, -6.0, 1.0])
+    ct_cam = 8.6  # m
+    scene = camera_scene(
+        [plate(size=(30.0, 30.0)), bar],
+        position=tuple(cam),
+        look_at=(1.0, 0.0, 0.0),
+        time=ct_cam / C,
+        resolution=(32, 18),
+    ).replace(lamps=[point_lamp((0.0, 0.0, big_h))])
+    f = (big_h - h) / big_h
+
+    def end(p, ct):
+        return -rindler + math.sqrt((rindler + p) ** 2 + ct * ct)
+
+    def ct_emit(x):
+        return ct_cam - math.dist(cam, (x, 0.0, 0.0))
+
+    def edge(sign):
+        return brentq(
+            lambda x: f * x - end(sign * length / 2, ct_emit(x) - (1 - f) * math.hypot(x, big_h)),
+            -2.0,
+            5.0,
+        )
+
+    context = RenderContext(scene)
+
+    def lit(x):
+        return probe_many(scene, "plate", [(x, 0.0, 0.0)], context=context)[0].lamps[0].lit
+
+    for sign in (-1, +1):
+        ref = edge(sign)
+        dark, light = ref - 0.05 * sign, ref + 0.05 * sign
+        assert not lit(dark) and lit(light)
+        for _ in range(14):  # bisection to 0.1 m / 2^14 = 6e-6 m
+            mid = 0.5 * (dark + light)
+            if lit(mid):
+                light = mid
+            else:
+                dark = mid
+        got = 0.5 * (dark + light)
+        bound = 2.0 * PROBE_TOLERANCE * (1 - f) * math.hypot(ref, big_h) / f + abs(dark - light)
+        # measured: errors -4.0e-5 and +9.2e-6 m, bound 8.3e-4 m
+        print(f"edge {sign:+d}: error {got - ref:.2e} m, bound {bound:.2e} m")
+        assert abs(got - ref) <= bound, (sign, got, ref, bound)
+    # the camera's snapshot of the bar (seen from the exposure event) lights the middle of
+    # the true shadow: what the probe reported before it cast on the point's own light cone
+    mid = 0.5 * (edge(-1) + edge(+1))
+    (inside,) = probe_many(scene, "plate", [(mid, 0.0, 0.0)], context=context)
+    assert not inside.lamps[0].lit
+    event, _ = camera_state(scene, scene.camera.time)
+    reference = (scene.camera.time, event[1:])
+    camera_tracer = context.tracer(event, reference, tolerance=PROBE_TOLERANCE)
+    emit = np.concatenate([[inside.emit_time * C], inside.emit_position])
+    (old,) = illumination.lamp_sightings(
+        scene.lamps, camera_tracer, emit, np.zeros(3), Effects(), reference
+    )
+    assert old.lit
+
+
 def test_probe_command_prints_the_lamp_rows(tmp_path, capsys):
     from relview.cli.app import main
 
