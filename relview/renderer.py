@@ -643,6 +643,14 @@ def mirror_xyz(
         -d_r[hit], seen.beta_emit[hit], beta_m[hit], effects
     )
     col = shade(scene, context, seen, d_total, effects, viewer=start, bounce=bounce + 1)
+    if sky.per_pixel(scene.background) and not hit.all():
+        # a reflected ray that escapes sees the sky along its own direction, received by
+        # the mirror and shifted on by the mirror's D_out (relview.light.sky.seen_along)
+        _, beta_cam = camera_state(scene, scene.camera.time if reference is None else reference[0])
+        away = ~hit
+        col[away] = sky.seen_along(
+            scene.background, d_r[away], beta_cam, effects, beta_m[away], doppler[away]
+        )
     return surface.reflectivity * col
 
 

@@ -91,8 +91,26 @@ def microwave_frame_beta(bg: Background, beta_cam: np.ndarray) -> np.ndarray:
     return compose_velocities(np.asarray(beta_cam, float), -np.asarray(bg.camera_velocity, float))
 
 
+def _received_doppler(
+    d_scene: np.ndarray, beta_receiver: np.ndarray, relativistic: bool
+) -> np.ndarray:
+    """(N,) D of light from sources at rest in S arriving along S directions d (N,3)
+    (towards the source) at receivers moving with beta (N,3) or (3,): gamma (1 + beta.d)
+    (the Doppler factor of physics.md with n = -d; no gamma with ``relativistic`` off)."""
+    beta = np.broadcast_to(np.asarray(beta_receiver, float), d_scene.shape)
+    bd = np.sum(beta * d_scene, axis=1)
+    if not relativistic:
+        return 1.0 + bd
+    return (1.0 + bd) / np.sqrt(1.0 - np.sum(beta * beta, axis=1))
+
+
 def microwave_temperature(
-    bg: Background, d_scene: np.ndarray, beta_cam: np.ndarray, effects: Effects
+    bg: Background,
+    d_scene: np.ndarray,
+    beta_cam: np.ndarray,
+    effects: Effects,
+    beta_receiver: np.ndarray | None = None,
+    further: np.ndarray | None = None,
 ) -> np.ndarray:
     """(N,) blackbody temperature (K) the camera records along S directions d (towards the
     source) of a sky at rest in frame F.
@@ -104,29 +122,59 @@ def microwave_temperature(
     T = T0 / (gamma (1 - u.d)), the dipole T0 / (gamma (1 - beta cos theta)) (e.g. Peebles
     & Wilkinson 1968, Phys. Rev. 174, 2168). ``doppler`` off: T0 everywhere; ``contraction``
     off: the classical factors (no gammas), as for bodies.
+
+    Seen in a mirror: ``beta_receiver`` (N,3) is the velocity of the mirror that receives
+    the light along d (default: the camera), and ``further`` (N,) the Doppler factor of
+    the remaining legs to the camera (the mirror's D_out): T = T0 D_receiver / D_F x
+    further. F itself is fixed by the camera's velocity ``beta_cam`` at the exposure.
     """
     t0 = float(np.asarray(bg.temperature, float).max())
     n = len(d_scene)
     if not effects.doppler:
         return np.full(n, t0)
-    d_cam = doppler_along(np.zeros(3), d_scene, beta_cam, relativistic=effects.contraction)
-    d_frame = doppler_along(
-        np.zeros(3), d_scene, microwave_frame_beta(bg, beta_cam), relativistic=effects.contraction
-    )
-    return t0 * d_cam / d_frame
+    rel = bool(effects.contraction)
+    receiver = beta_cam if beta_receiver is None else beta_receiver
+    d_rec = _received_doppler(d_scene, receiver, rel)
+    d_frame = _received_doppler(d_scene, microwave_frame_beta(bg, beta_cam), rel)
+    t = t0 * d_rec / d_frame
+    return t if further is None else t * further
 
 
 def sky_xyz(
     bg: Background, d_scene: np.ndarray, beta_cam: np.ndarray, effects: Effects
 ) -> np.ndarray:
     """(N, 3) observed XYZ of the per-pixel sky along S directions (towards the source)."""
+    return seen_along(bg, d_scene, beta_cam, effects)
+
+
+def seen_along(
+    bg: Background,
+    d_scene: np.ndarray,
+    beta_cam: np.ndarray,
+    effects: Effects,
+    beta_receiver: np.ndarray | None = None,
+    further: np.ndarray | None = None,
+) -> np.ndarray:
+    """(N, 3) observed XYZ of the per-pixel sky (graticule, microwave sky) along each ray's
+    own S direction d (N,3) (towards the source): the per-ray entry point, for rays that
+    leave a mirror as well as camera rays.
+
+    The sky's light arrives along d at a receiver moving with ``beta_receiver`` (N,3)
+    (default: the camera, ``beta_cam``) with D_rec = nu_receiver / nu_sky-frame, and is
+    shifted again by ``further`` (N,) (default 1; a mirror's D_out towards the camera): a
+    blackbody sky is seen as a blackbody at T D_rec further (I_nu / nu^3 invariant along
+    each leg, Rybicki & Lightman eq. 4.97; in the mirror's rest frame reflection keeps the
+    frequency), which for a mirror moving along its normal is Einstein's (1905, section 8)
+    T nu_r / nu_i. The caller multiplies by the mirror's reflectance.
+    """
     out = np.zeros((len(d_scene), 3))
     if len(d_scene) == 0:
         return out
+    receiver = beta_cam if beta_receiver is None else beta_receiver
     if bg.kind == "cmb":
         # a blackbody at T0 seen at T is exactly a blackbody at T (I_nu / nu^3 invariant,
         # Rybicki & Lightman eq. 4.97); beaming off keeps the rest-frame brightness
-        t = microwave_temperature(bg, d_scene, beta_cam, effects)
+        t = microwave_temperature(bg, d_scene, beta_cam, effects, receiver, further)
         t0 = float(np.asarray(bg.temperature, float).max())
         return _observed(np.full(len(t), t0), np.ones(len(t)), t / t0, effects)
     if bg.kind != "graticule":
@@ -140,7 +188,10 @@ def sky_xyz(
     dlon = np.abs(lon - sp * np.round(lon / sp)) * np.cos(np.radians(lat))
     on = (dlat <= half) | (dlon <= half)
     if np.any(on):
-        dop = _camera_doppler(d_scene[on], beta_cam, effects)
+        rec = np.broadcast_to(np.asarray(receiver, float), d_scene.shape)[on]
+        dop = _received_doppler(d_scene[on], rec, bool(effects.contraction))
+        if further is not None:
+            dop = dop * np.asarray(further, float)[on]
         t = _line_temperature(bg)
         scale = float(bg.luminance) / blackbody_xyz(np.array([t]))[0, 1]  # cd/m2 at rest
         out[on] = _observed(np.full(on.sum(), t), np.full(on.sum(), scale), dop, effects)
