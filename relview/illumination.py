@@ -34,9 +34,12 @@ from dataclasses import dataclass
 import numpy as np
 
 from relview.geometry.trace import Tracer
+from relview.kinematics.clocks import reading_from_coordinate
 from relview.kinematics.lorentz import C
 from relview.kinematics.solvers import SOLVER_RTOL, _solve_increasing, inertial_light_delay
+from relview.light import sky
 from relview.light.lamps import Incident, lit_table
+from relview.light.spectrum import CMF_VALUES, CMF_WAVELENGTHS_NM, K_M_LM_PER_W
 from relview.scene.parts import Effects, Lamp
 
 #: shadow rays start this far (m) from the surface, against hitting their own triangle
@@ -591,3 +594,162 @@ def incident_light(
     brightest = np.where(total > 0, brightest, np.nan)
     tables = [lit_table(lamp.spectrum) for lamp in scene.lamps]
     return Incident(tables, d_in, weight), brightest, shadowed
+
+
+# --------------------------------------------------------------------------------------
+# Mirrors: the reflected rays, and what tinted mirrors show, wavelength by wavelength
+# --------------------------------------------------------------------------------------
+
+#: hits whose spectra are held at once in a tinted mirror (x 471 wavelengths x 8 bytes:
+#: about 31 MB per array)
+SPECTRAL_CHUNK = 8192
+
+
+def hit_uv(context, body_index: int, hits, sel: np.ndarray, surface):
+    """(N, 2) texture coordinates of the hits ``sel`` on body ``body_index`` (barycentric
+    interpolation of the mesh's UVs), or None when the mesh has none or the surface does
+    not read them."""
+    uvs = context.uv[body_index]
+    if uvs is None or not getattr(surface, "uses_uv", True):
+        return None
+    faces = context.meshes[body_index][1][hits.face[sel]]
+    w = hits.bary[sel]
+    return (
+        (1 - w[:, 0] - w[:, 1])[:, None] * uvs[faces[:, 0]]
+        + w[:, :1] * uvs[faces[:, 1]]
+        + w[:, 1:] * uvs[faces[:, 2]]
+    )
+
+
+def reflected_rays(scene, context, hits, body_index: int, sel, doppler, effects, viewer):
+    """What the mirror hits ``sel`` of body ``body_index`` reflect (docs/physics.md,
+    "Mirrors"): (start events (N,4), backward S directions d_r (N,3), mirror velocities
+    beta_m (N,3), the hits of the reflected rays cast from the mirror's events through the
+    exposure's tracer, and D = D_in D_out (N,) of what they meet, NaN on misses).
+    ``doppler``: D_out of the mirror hits; ``viewer``: where the rays came from."""
+    _, tracer, reference = context.exposure
+    start = hits.emit_event[sel]
+    d_r, beta_m = mirror_directions(
+        scene.bodies[body_index], body_index, context.meshes[body_index], hits, sel, viewer, effects
+    )
+    seen = tracer.cast(start, d_r, effects, l_min=SHADOW_OFFSET_M, reference=reference)
+    hit = seen.body >= 0
+    d_total = np.full(len(start), np.nan)
+    d_total[hit] = doppler[hit] * doppler_between(
+        -d_r[hit], seen.beta_emit[hit], beta_m[hit], effects
+    )
+    return start, d_r, beta_m, seen, d_total
+
+
+def spectra_xyz(spectra: np.ndarray) -> np.ndarray:
+    """(N, 3) CIE 1931 XYZ (Y in cd/m^2) of spectral radiances (N, L) on the 1-nm grid of
+    the colour-matching functions: K_m sum xbar_k S (midpoint rule, 1-nm bins; CIE 15)."""
+    return K_M_LM_PER_W * spectra @ CMF_VALUES
+
+
+def mirror_spectra(
+    scene, context, hits, body_index, sel, doppler, effects, viewer, bounce, beta_cam
+):
+    """(N, L) spectral radiance the camera records at CMF_WAVELENGTHS_NM from the hits
+    ``sel`` of a mirror: what its reflected rays meet (:func:`seen_spectra`) or the sky,
+    times the mirror's reflectance at the wavelength the light has in the mirror's frame,
+    D_out lambda (``doppler`` off: lambda). ``beta_cam``: the camera's velocity at the
+    exposure (fixes the microwave sky's frame when given relative to the camera)."""
+    lam = CMF_WAVELENGTHS_NM
+    surface = scene.bodies[body_index].surface
+    start, d_r, beta_m, seen, d_total = reflected_rays(
+        scene, context, hits, body_index, sel, doppler, effects, viewer
+    )
+    out = seen_spectra(scene, context, seen, d_total, effects, start, bounce + 1, beta_cam)
+    away = seen.body < 0
+    if np.any(away) and sky.per_pixel(scene.background):
+        out[away] = sky.spectrum_along(
+            scene.background,
+            lam,
+            d_r[away],
+            beta_cam,
+            effects,
+            beta_m[away],
+            doppler[away],
+        )
+    d_mirror = doppler if effects.doppler else np.ones(len(doppler))
+    return out * surface.reflectance(d_mirror[:, None] * lam[None, :])
+
+
+def seen_spectra(
+    scene, context, hits, doppler, effects, viewer, bounce: int, beta_cam
+) -> np.ndarray:
+    """(N, L) spectral radiance recorded at CMF_WAVELENGTHS_NM of every hit (zeros on
+    misses), the spectral counterpart of relview.renderer.shade for what tinted mirrors
+    show: each surface's Surface.spectrum_seen, lit surfaces with their lamps' light as
+    received at their own events (turned towards ``viewer``, the mirror's events),
+    mirrors by :func:`mirror_spectra` up to their ``bounces``."""
+    out = np.zeros((len(doppler), len(CMF_WAVELENGTHS_NM)))
+    lit_scene = scene_lit(scene)
+    _, tracer, reference = context.exposure
+    for i in np.unique(hits.body[hits.body >= 0]):
+        sel = np.nonzero(hits.body == i)[0]
+        body = scene.bodies[i]
+        surface = body.surface
+        if getattr(surface, "mirror", False):
+            if bounce < surface.bounces:
+                out[sel] = mirror_spectra(
+                    scene,
+                    context,
+                    hits,
+                    i,
+                    sel,
+                    doppler[sel],
+                    effects,
+                    viewer[sel],
+                    bounce,
+                    beta_cam,
+                )
+            continue
+        incident = None
+        if lit_scene and takes_lamps(surface):
+            incident = incident_light(
+                scene, i, context.meshes[i], tracer, hits, sel, viewer[sel], effects, reference
+            )[0]
+        clock = {}
+        if getattr(surface, "uses_proper_time", False):
+            clock["proper_time"] = reading_from_coordinate(
+                body.motion, body.clock, hits.clock[sel], effects.contraction
+            )
+        out[sel] = surface.spectrum_seen(
+            CMF_WAVELENGTHS_NM,
+            doppler[sel],
+            hits.rest_position[sel],
+            hit_uv(context, i, hits, sel, surface),
+            effects,
+            incident,
+            **clock,
+        )
+    return out
+
+
+def tinted_mirror_xyz(
+    scene, context, hits, body_index, sel, doppler, effects, viewer, bounce, beta_cam
+):
+    """(N, 3) XYZ a tinted mirror shows at its hits ``sel``: :func:`mirror_spectra`
+    integrated with the CIE 1931 observer, SPECTRAL_CHUNK hits at a time."""
+    out = np.zeros((len(sel), 3))
+    viewer = np.asarray(viewer, float)
+    for a in range(0, len(sel), SPECTRAL_CHUNK):
+        part = slice(a, a + SPECTRAL_CHUNK)
+        seen_by = viewer[part] if viewer.ndim == 2 else np.broadcast_to(viewer, (len(sel[part]), 4))
+        out[part] = spectra_xyz(
+            mirror_spectra(
+                scene,
+                context,
+                hits,
+                body_index,
+                sel[part],
+                doppler[part],
+                effects,
+                seen_by,
+                bounce,
+                beta_cam,
+            )
+        )
+    return out

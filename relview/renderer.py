@@ -548,16 +548,7 @@ def shade(
     for i, sel in rows_by_body(hits.body):
         body = scene.bodies[i]
         surface = body.surface
-        uv = None
-        if context.uv[i] is not None and getattr(surface, "uses_uv", True):
-            faces = context.meshes[i][1][hits.face[sel]]
-            w = hits.bary[sel]
-            uvs = context.uv[i]
-            uv = (
-                (1 - w[:, 0] - w[:, 1])[:, None] * uvs[faces[:, 0]]
-                + w[:, :1] * uvs[faces[:, 1]]
-                + w[:, 1:] * uvs[faces[:, 2]]
-            )
+        uv = illumination.hit_uv(context, i, hits, sel, surface)
         if getattr(surface, "mirror", False):
             if bounce < surface.bounces:
                 seen_by = context.exposure[0] if viewer is None else viewer
@@ -631,23 +622,20 @@ def mirror_xyz(
     the mirror to the camera (I_nu / nu^3 invariant along both legs, Rybicki & Lightman
     ch. 4), which reproduces Einstein 1905, section 8 (tests/test_mirrors.py)."""
     surface = scene.bodies[body_index].surface
-    _, tracer, reference = context.exposure
-    start = hits.emit_event[sel]
-    d_r, beta_m = illumination.mirror_directions(
-        scene.bodies[body_index], body_index, context.meshes[body_index], hits, sel, viewer, effects
-    )
-    seen = tracer.cast(start, d_r, effects, l_min=illumination.SHADOW_OFFSET_M, reference=reference)
-    hit = seen.body >= 0
-    d_total = np.full(len(sel), np.nan)
-    d_total[hit] = doppler[hit] * illumination.doppler_between(
-        -d_r[hit], seen.beta_emit[hit], beta_m[hit], effects
+    _, _, reference = context.exposure
+    _, beta_cam = camera_state(scene, scene.camera.time if reference is None else reference[0])
+    if surface.tint is not None:  # a colour: filtered wavelength by wavelength
+        return illumination.tinted_mirror_xyz(
+            scene, context, hits, body_index, sel, doppler, effects, viewer, bounce, beta_cam
+        )
+    start, d_r, beta_m, seen, d_total = illumination.reflected_rays(
+        scene, context, hits, body_index, sel, doppler, effects, viewer
     )
     col = shade(scene, context, seen, d_total, effects, viewer=start, bounce=bounce + 1)
-    if sky.per_pixel(scene.background) and not hit.all():
+    away = seen.body < 0
+    if sky.per_pixel(scene.background) and np.any(away):
         # a reflected ray that escapes sees the sky along its own direction, received by
         # the mirror and shifted on by the mirror's D_out (relview.light.sky.seen_along)
-        _, beta_cam = camera_state(scene, scene.camera.time if reference is None else reference[0])
-        away = ~hit
         col[away] = sky.seen_along(
             scene.background, d_r[away], beta_cam, effects, beta_m[away], doppler[away]
         )

@@ -233,6 +233,13 @@ class SphereGlow(materials.SpectralSurface):
     def observed_xyz(self, doppler, rest_position=None, uv=None, effects=None):
         return self.radiance * super().observed_xyz(doppler, rest_position, uv, effects)
 
+    def spectrum_seen(
+        self, wavelength_nm, doppler, rest_position=None, uv=None, effects=None, incident=None
+    ) -> np.ndarray:
+        return self.radiance * materials.shifted_bins(
+            self.spectrum.energy_below, wavelength_nm, doppler, effects
+        )
+
     def __repr__(self):
         return f"SphereGlow({self.spectrum.label}, radiance={self.radiance!r} W/(sr m2))"
 
@@ -422,6 +429,30 @@ class Incident:
 
     def subset(self, sel) -> Incident:
         return Incident(self.tables, self.d_in[:, sel], self.weight[:, sel])
+
+    def spectrum_seen(self, wavelength_nm, d_out, effects, rgb) -> np.ndarray:
+        """(N, L) spectral radiance (W/(sr m^2 nm)) recorded at ``wavelength_nm`` (L,) from
+        surfaces of linear-sRGB reflectance ``rgb`` (N, 3) lit by these lamps and seen with
+        ``d_out``: sum over lamps of A (a b)^5 p(a b lambda) rho(b lambda), a = D_in,
+        b = D_out (the integrand of Q_c in the module docstring, with the switches of
+        :meth:`basis_xyz`); p averaged over each bin from the lamp's cumulative spectrum,
+        as in :class:`LitTable`."""
+        d_out = np.asarray(d_out, float).reshape(-1)
+        doppler_on = True if effects is None else bool(effects.doppler)
+        beaming_on = True if effects is None else bool(effects.beaming)
+        dc_out, bright_out = spectrum.effect_factors(d_out, doppler_on, beaming_on)
+        lam = np.asarray(wavelength_nm, float)
+        rho = np.einsum("nlc,nc->nl", materials.reflectance_basis(dc_out[:, None] * lam), rgb)
+        out = np.zeros((d_out.size, lam.size))
+        for table, d_in, w in zip(self.tables, self.d_in, self.weight, strict=True):
+            lit = w > 0
+            if not np.any(lit):
+                continue
+            dc_in, bright_in = spectrum.effect_factors(d_in[lit], doppler_on, beaming_on)
+            # (a b)^5 p(a b lambda) averaged over each bin: (a b)^4 dC / dlambda
+            p = materials.shifted_bins(table.spectrum.energy_below, lam, dc_in * dc_out[lit], None)
+            out[lit] += p * (w[lit] * bright_in * bright_out[lit])[:, None]
+        return out * rho
 
     def basis_xyz(self, d_out, effects) -> np.ndarray:
         """(N, 3 basis, 3 XYZ) reflected by a perfect reflector of each basis colour, seen

@@ -74,6 +74,46 @@ def _positive_number(value, what: str) -> float:
     return v
 
 
+def shifted_spectrum(radiance, wavelength_nm, doppler, effects) -> np.ndarray:
+    """(N, L) spectral radiance (W/(sr m^2 nm)) recorded at ``wavelength_nm`` (L,) from a
+    rest-frame spectral radiance function ``radiance`` seen with Doppler factors (N,):
+    D^5 L(D lambda) (physics.md), with the switches of spectrum.effect_factors:
+    Dc^5 L(Dc lambda) (Db / Dc)^4. Point samples: for smooth spectra."""
+    dc, bright = effect_factors(_as_doppler(doppler), *_effect_switches(effects))
+    lam = np.asarray(wavelength_nm, float)
+    return radiance(dc[:, None] * lam[None, :]) * (dc**5 * bright)[:, None]
+
+
+def shifted_bins(cumulative, wavelength_nm, doppler, effects) -> np.ndarray:
+    """As :func:`shifted_spectrum`, averaged over the bins around ``wavelength_nm``
+    (edges halfway between them): D^4 (C(D hi) - C(D lo)) / (hi - lo), C(x) the rest-frame
+    radiance integrated from 0 to x (the substitution mu = D lambda), so narrow lines keep
+    their energy whatever the grid."""
+    dc, bright = effect_factors(_as_doppler(doppler), *_effect_switches(effects))
+    lam = np.asarray(wavelength_nm, float)
+    mid = 0.5 * (lam[1:] + lam[:-1])
+    edges = np.concatenate([[lam[0] - (mid[0] - lam[0])], mid, [lam[-1] + (lam[-1] - mid[-1])]])
+    c = cumulative(dc[:, None] * edges[None, :])
+    return np.diff(c, axis=1) / np.diff(edges)[None, :] * (dc**4 * bright)[:, None]
+
+
+def _split_spectra(parts, wavelength_nm, d, pos, uv, effects, incident) -> np.ndarray:
+    """(N, L) seen spectra of a surface made of ``parts`` [(surface, rows)] (patterns and
+    dials: each part's own spectrum where its mask selects it)."""
+    out = np.zeros((d.size, len(wavelength_nm)))
+    for surface, sel in parts:
+        if np.any(sel):
+            out[sel] = surface.spectrum_seen(
+                wavelength_nm,
+                d[sel],
+                pos[sel],
+                None if uv is None else uv[sel],
+                effects,
+                None if incident is None else incident.subset(sel),
+            )
+    return out
+
+
 class Surface:
     """Base class of all surfaces (see the module docstring for the interface)."""
 
@@ -92,6 +132,15 @@ class Surface:
         """XYZ when the scene has lamps: ``incident`` is a relview.light.lamps.Incident.
         Emitters and co-moving-lamp surfaces ignore it."""
         return self.observed_xyz(doppler, rest_position, uv, effects)
+
+    def spectrum_seen(
+        self, wavelength_nm, doppler, rest_position, uv, effects, incident=None, **clock
+    ) -> np.ndarray:
+        """(N, L) spectral radiance (W/(sr m^2 nm)) the camera records at the 1-nm grid
+        ``wavelength_nm`` (L,): the spectrum whose CIE 1931 integral lit_xyz (with
+        ``incident``) or observed_xyz gives. What a tinted mirror shows is filtered per
+        wavelength (relview.illumination.mirror_spectra)."""
+        raise NotImplementedError(f"{type(self).__name__} surfaces have no seen spectrum")
 
     def __eq__(self, other) -> bool:
         return isinstance(other, Surface) and self.key() == other.key()
@@ -120,6 +169,11 @@ class SpectralSurface(Surface):
     def observed_xyz(self, doppler, rest_position=None, uv=None, effects=None) -> np.ndarray:
         doppler_on, beaming_on = _effect_switches(effects)
         return apply_effects(self.table(), _as_doppler(doppler), doppler_on, beaming_on)
+
+    def spectrum_seen(
+        self, wavelength_nm, doppler, rest_position=None, uv=None, effects=None, incident=None
+    ) -> np.ndarray:
+        return shifted_spectrum(self.spectral_radiance, wavelength_nm, doppler, effects)
 
 
 # --------------------------------------------------------------------------------------
@@ -247,6 +301,21 @@ class EmissionLines(SpectralSurface):
         z = (w - self._centre) / self._sigma
         peak = self._radiance / (self._sigma * math.sqrt(2.0 * math.pi))
         return np.sum(peak * np.exp(-0.5 * z * z), axis=-1)
+
+    def cumulative_radiance(self, wavelength_nm):
+        """W/(sr m^2) emitted below ``wavelength_nm``: each line's radiance times the
+        Gaussian's cumulative distribution, (1 + erf(z / sqrt 2)) / 2."""
+        from scipy.special import erf  # scipy loads only for tinted mirrors
+
+        w = np.asarray(wavelength_nm, dtype=float)[..., None]
+        z = (w - self._centre) / (self._sigma * math.sqrt(2.0))
+        return np.sum(self._radiance * 0.5 * (1.0 + erf(z)), axis=-1)
+
+    def spectrum_seen(
+        self, wavelength_nm, doppler, rest_position=None, uv=None, effects=None, incident=None
+    ) -> np.ndarray:
+        # lines narrower than the grid keep their energy: averaged over each bin
+        return shifted_bins(self.cumulative_radiance, wavelength_nm, doppler, effects)
 
     def knots_nm(self):
         # +-8 sigma in 0.1-sigma steps: the profile is resolved whatever D compresses it to.
@@ -579,6 +648,24 @@ class Reflective(Surface):
         d = _as_doppler(doppler)
         return np.einsum("nc,nck->nk", self.colour_at(uv, d.size), incident.basis_xyz(d, effects))
 
+    def spectrum_seen(
+        self, wavelength_nm, doppler, rest_position=None, uv=None, effects=None, incident=None
+    ) -> np.ndarray:
+        d = _as_doppler(doppler)
+        rgb = self.colour_at(uv, d.size)
+        if self.scene_lit and incident is not None:
+            return incident.spectrum_seen(wavelength_nm, d, effects, rgb)
+        # the co-moving lamp: spd x reflectance x luminance / white, seen with D
+        norm = _LAMP_NORMS.get(("lamp-white", self.lamp_key))
+        if norm is None:
+            norm = _LAMP_NORMS[("lamp-white", self.lamp_key)] = 1.0 / _rest_white_luminance(
+                self._lamp_spd
+            )
+        dc, bright = effect_factors(d, *_effect_switches(effects))
+        w = dc[:, None] * np.asarray(wavelength_nm, float)[None, :]
+        rho = np.einsum("nlc,nc->nl", reflectance_basis(w), rgb)
+        return self.luminance * norm * self._lamp_spd(w) * rho * (dc**5 * bright)[:, None]
+
     def __repr__(self):
         return (
             f"Reflective(rgb={self.rgb!r}, lamp={self.lamp!r}, luminance={self.luminance!r}, "
@@ -789,6 +876,16 @@ class Pattern(Surface):
                 )
         return out
 
+    def spectrum_seen(
+        self, wavelength_nm, doppler, rest_position, uv=None, effects=None, incident=None
+    ) -> np.ndarray:
+        d = _as_doppler(doppler)
+        mask = self.second_mask(rest_position)
+        pos = np.asarray(rest_position, dtype=float).reshape(-1, 3)
+        uv_arr = None if uv is None else np.asarray(uv, dtype=float).reshape(-1, 2)
+        parts = ((self.first, ~mask), (self.second, mask))
+        return _split_spectra(parts, wavelength_nm, d, pos, uv_arr, effects, incident)
+
     def __repr__(self):
         return (
             f"Pattern(kind={self.kind!r}, period={self.period!r}, line_width={self.line_width!r}, "
@@ -997,6 +1094,24 @@ class ClockFace(Surface):
                 )
         return out
 
+    def spectrum_seen(
+        self,
+        wavelength_nm,
+        doppler,
+        rest_position,
+        uv=None,
+        effects=None,
+        incident=None,
+        proper_time=None,
+    ) -> np.ndarray:
+        d = _as_doppler(doppler)
+        if proper_time is None:
+            proper_time = np.full(d.size, np.nan)
+        mask = self.ink_mask(rest_position, proper_time)
+        pos = np.asarray(rest_position, dtype=float).reshape(-1, 3)
+        parts = ((self.first, ~mask), (self.second, mask))
+        return _split_spectra(parts, wavelength_nm, d, pos, None, effects, incident)
+
 
 #: patterns enclosing the surface table being read (a context variable, so the limit
 #: holds whichever reader nests: readers keep the one-argument signature)
@@ -1014,14 +1129,18 @@ MAX_BOUNCES = 8
 
 
 class Mirror(Surface):
-    """A specular mirror of reflectivity ``reflectivity`` (0..1, the same at every
-    wavelength) in the body's rest frame, emitting nothing itself.
+    """A specular mirror of reflectivity ``reflectivity`` (0..1) in the body's rest frame,
+    emitting nothing itself; with ``tint`` (linear sRGB, each 0..1) its spectral
+    reflectance in the rest frame is reflectivity x (the Mallett & Yuksel (2019)
+    reflectance spectrum of ``tint``, :func:`reflectance_basis`), else the same at every
+    wavelength (a tint of [1, 1, 1] is that too: the basis sums to 1).
 
     The renderer (relview.renderer.shade, relview.illumination.mirror_directions) reflects
     each camera ray in the mirror's rest frame and casts it on, backward in time, from the
     mirror's hit event; what it meets is seen with the product of the Doppler factors of
-    both legs, times ``reflectivity`` (docs/physics.md, "Mirrors"). A ray already reflected
-    ``bounces`` times, counting this mirror, is not reflected again here: it sees black.
+    both legs, times the reflectance at the wavelength the light has in the mirror's frame
+    (docs/physics.md, "Mirrors"). A ray already reflected ``bounces`` times, counting this
+    mirror, is not reflected again here: it sees black.
     """
 
     uses_position = False
@@ -1029,33 +1148,60 @@ class Mirror(Surface):
     #: the renderer reflects rays on this surface
     mirror = True
 
-    def __init__(self, reflectivity: float = 1.0, bounces: int = DEFAULT_BOUNCES):
+    def __init__(self, reflectivity: float = 1.0, bounces: int = DEFAULT_BOUNCES, tint=None):
         r = float(reflectivity)
         if not (math.isfinite(r) and 0.0 <= r <= 1.0):
             raise ValueError(f"mirror reflectivity must lie in 0..1, got {reflectivity!r}")
         if int(bounces) != bounces or not 1 <= int(bounces) <= MAX_BOUNCES:
             raise ValueError(f"mirror bounces must be an integer 1..{MAX_BOUNCES}, got {bounces!r}")
+        if tint is not None:
+            values = tuple(float(v) for v in tint)
+            if len(values) != 3 or not all(math.isfinite(v) and 0.0 <= v <= 1.0 for v in values):
+                raise ValueError(f"mirror tint must be three reflectances in 0..1, got {tint!r}")
+            tint = values
         self.reflectivity = r
         self.bounces = int(bounces)
+        #: linear-sRGB colour of the reflectance spectrum in the rest frame (None: neutral)
+        self.tint = tint
 
     @classmethod
     def from_table(cls, table) -> Mirror:
-        """``mirror = R`` (reflectivity 0..1 in the rest frame), optional ``bounces``."""
+        """``mirror = R`` (reflectivity 0..1 in the rest frame), optional ``bounces`` and
+        ``tint`` ([r, g, b], linear sRGB reflectances 0..1)."""
         r = table.number("mirror", low=0.0, high=1.0)
         bounces = DEFAULT_BOUNCES
         if table.has("bounces"):
             bounces = table.integer("bounces", low=1, high=MAX_BOUNCES)
-        return cls(r, bounces)
+        tint = None
+        if table.has("tint"):
+            tint = table.vector("tint", 3)
+            if np.any(tint < 0) or np.any(tint > 1):
+                raise table.error(
+                    "tint",
+                    f"reflectances must lie in 0..1, got tint = {table.show(table.data['tint'])}",
+                    table.data["tint"],
+                )
+        return cls(r, bounces, None if tint is None else tuple(float(c) for c in tint))
 
     def key(self):
-        return ("mirror", self.reflectivity, self.bounces)
+        return ("mirror", self.reflectivity, self.bounces, self.tint)
+
+    def reflectance(self, wavelength_nm) -> np.ndarray:
+        """Spectral reflectance at rest-frame wavelengths (any shape, nm)."""
+        w = np.asarray(wavelength_nm, float)
+        if self.tint is None:
+            return np.full(w.shape, self.reflectivity)
+        return self.reflectivity * (reflectance_basis(w) @ np.asarray(self.tint))
 
     def observed_xyz(self, doppler, rest_position=None, uv=None, effects=None) -> np.ndarray:
         # its own light: none (what it reflects is added by the renderer)
         return np.zeros((_as_doppler(doppler).size, 3))
 
     def __repr__(self):
-        return f"Mirror(reflectivity={self.reflectivity!r}, bounces={self.bounces!r})"
+        return (
+            f"Mirror(reflectivity={self.reflectivity!r}, bounces={self.bounces!r}, "
+            f"tint={self.tint!r})"
+        )
 
 
 # --------------------------------------------------------------------------------------
@@ -1084,7 +1230,7 @@ SURFACE_KINDS: dict[str, SurfaceKind] = {
     "color": SurfaceKind(Reflective.from_table, ("lamp", "luminance", "texture")),
     "pattern": SurfaceKind(Pattern.from_table),
     "clock_face": SurfaceKind(ClockFace.from_table),
-    "mirror": SurfaceKind(Mirror.from_table, ("bounces",)),
+    "mirror": SurfaceKind(Mirror.from_table, ("bounces", "tint")),
 }
 
 

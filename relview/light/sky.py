@@ -33,6 +33,7 @@ import numpy as np
 from relview.geometry import camera as cam_mod
 from relview.kinematics.lorentz import aberrate_to_camera, compose_velocities, doppler_along
 from relview.light import spectrum
+from relview.light.materials import shifted_spectrum
 from relview.scene.parts import Background, Camera, Effects
 
 T_REF_K = 1000.0
@@ -168,17 +169,53 @@ def seen_along(
     T nu_r / nu_i. The caller multiplies by the mirror's reflectance.
     """
     out = np.zeros((len(d_scene), 3))
+    rows, temperature, scale, dop = _sources_along(
+        bg, d_scene, beta_cam, effects, beta_receiver, further
+    )
+    if len(rows):
+        n = len(rows)
+        out[rows] = _observed(np.full(n, temperature), np.full(n, scale), dop, effects)
+    return out
+
+
+def spectrum_along(
+    bg: Background,
+    wavelength_nm: np.ndarray,
+    d_scene: np.ndarray,
+    beta_cam: np.ndarray,
+    effects: Effects,
+    beta_receiver: np.ndarray | None = None,
+    further: np.ndarray | None = None,
+) -> np.ndarray:
+    """(N, L) spectral radiance (W/(sr m^2 nm)) recorded at ``wavelength_nm`` (L,) of what
+    :func:`seen_along` shows: Planck's law at T, times the sky's scale, seen with D
+    (D^5 B(D lambda, T) = B(lambda, D T)), for tinted mirrors."""
+    out = np.zeros((len(d_scene), len(wavelength_nm)))
+    rows, temperature, scale, dop = _sources_along(
+        bg, d_scene, beta_cam, effects, beta_receiver, further
+    )
+    if len(rows):
+        out[rows] = scale * shifted_spectrum(
+            lambda w: spectrum.planck_spectral_radiance(w, temperature), wavelength_nm, dop, effects
+        )
+    return out
+
+
+def _sources_along(bg, d_scene, beta_cam, effects, beta_receiver=None, further=None):
+    """(rows (M,) that see the sky's light, its blackbody temperature K, radiance scale,
+    Doppler factor (M,) camera / sky frame) along the rays of :func:`seen_along`."""
+    none = np.zeros(0, np.int64), 0.0, 0.0, np.zeros(0)
     if len(d_scene) == 0:
-        return out
+        return none
     receiver = beta_cam if beta_receiver is None else beta_receiver
     if bg.kind == "cmb":
         # a blackbody at T0 seen at T is exactly a blackbody at T (I_nu / nu^3 invariant,
         # Rybicki & Lightman eq. 4.97); beaming off keeps the rest-frame brightness
         t = microwave_temperature(bg, d_scene, beta_cam, effects, receiver, further)
         t0 = float(np.asarray(bg.temperature, float).max())
-        return _observed(np.full(len(t), t0), np.ones(len(t)), t / t0, effects)
+        return np.arange(len(d_scene)), t0, 1.0, t / t0
     if bg.kind != "graticule":
-        return out
+        return none
     lat = np.degrees(np.arcsin(np.clip(d_scene[:, 2], -1.0, 1.0)))
     lon = np.degrees(np.arctan2(d_scene[:, 1], d_scene[:, 0]))
     sp = float(bg.spacing)
@@ -186,16 +223,14 @@ def seen_along(
     dlat = np.abs(lat - sp * np.round(lat / sp))
     # angular distance to the nearest meridian shrinks with cos(latitude)
     dlon = np.abs(lon - sp * np.round(lon / sp)) * np.cos(np.radians(lat))
-    on = (dlat <= half) | (dlon <= half)
-    if np.any(on):
-        rec = np.broadcast_to(np.asarray(receiver, float), d_scene.shape)[on]
-        dop = _received_doppler(d_scene[on], rec, bool(effects.contraction))
-        if further is not None:
-            dop = dop * np.asarray(further, float)[on]
-        t = _line_temperature(bg)
-        scale = float(bg.luminance) / blackbody_xyz(np.array([t]))[0, 1]  # cd/m2 at rest
-        out[on] = _observed(np.full(on.sum(), t), np.full(on.sum(), scale), dop, effects)
-    return out
+    rows = np.nonzero((dlat <= half) | (dlon <= half))[0]
+    rec = np.broadcast_to(np.asarray(receiver, float), d_scene.shape)[rows]
+    dop = _received_doppler(d_scene[rows], rec, bool(effects.contraction))
+    if further is not None:
+        dop = dop * np.asarray(further, float)[rows]
+    t = _line_temperature(bg)
+    scale = float(bg.luminance) / blackbody_xyz(np.array([t]))[0, 1]  # cd/m2 at rest
+    return rows, t, scale, dop
 
 
 def generate_stars(bg: Background):
