@@ -15,6 +15,9 @@ field), bodies are blackbody icospheres:
   passed: whatever the renderer keeps between calls is used);
 * ``hyperbolic``: the same sphere on a hyperbolic worldline (c^2/a = 10 m) that moves at
   0.9c as the light seen left it, context reused;
+* ``new time each frame``: the uniform and the hyperbolic scene exposed at successive
+  times FRAME_STEP_S apart (as an animation's frames), so nothing of an earlier
+  exposure can be reused unchanged;
 * ``N bodies``: N spheres of radius 0.05 m, detail 3 (1 280 triangles), on a grid across
   the view, each with its own velocity (|beta| from 0.1 to 0.8, directions spread),
   context reused; N = 1, 10, 100, 1 000. The seen area grows with N (0.1 % of the
@@ -47,6 +50,9 @@ WIDTH, HEIGHT = 480, 270
 HYPERBOLIC_LENGTH_M = 10.0
 BETA = 0.9
 TARGET_HYPERBOLIC = 3.0
+#: the "new time each frame" cases: successive exposures this far apart (s), as the
+#: frames of an animation (the 0.9c body moves 5.4 cm between them)
+FRAME_STEP_S = 2e-10
 TARGET_MANY = 4.0
 TARGET_SECOND = 1.2
 
@@ -184,9 +190,23 @@ def main(argv=None) -> None:
             context = RenderContext(scene)
             return lambda: render(scene, context=context)
 
+        def new_time_each_frame(scene):
+            # an animation: every call exposes at the next time (nothing of an earlier
+            # exposure can be reused as it is), FRAME_STEP_S apart
+            context = RenderContext(scene)
+            count = iter(range(1 << 30))
+            start = scene.camera.time
+            return lambda: render(scene, time=start + FRAME_STEP_S * next(count), context=context)
+
         if "uniform" not in skip or "second" not in skip:
             uniform = scene_of("uniform", frame_scene())
             run_case("uniform 0.9c, context reused", with_context(uniform), args.repeats, rows)
+            run_case(
+                "uniform 0.9c, new time each frame",
+                new_time_each_frame(uniform),
+                args.repeats,
+                rows,
+            )
             run_case(
                 "uniform 0.9c, render(scene) again",
                 lambda: relview.render(uniform),
@@ -196,6 +216,12 @@ def main(argv=None) -> None:
         if "hyperbolic" not in skip:
             hyper = scene_of("hyperbolic", scene_hyperbolic(C))
             run_case("hyperbolic 0.9c, context reused", with_context(hyper), args.repeats, rows)
+            run_case(
+                "hyperbolic 0.9c, new time each frame",
+                new_time_each_frame(hyper),
+                args.repeats,
+                rows,
+            )
         counts = [int(x) for x in args.counts.split(",") if x] if "many" not in skip else []
         for n in counts:
             many = scene_of(f"many{n}", scene_many(C, n))
@@ -221,6 +247,12 @@ def main(argv=None) -> None:
         "hyperbolic / uniform (context reused)",
         "hyperbolic 0.9c, context reused",
         "uniform 0.9c, context reused",
+        TARGET_HYPERBOLIC,
+    )
+    ratio(
+        "hyperbolic / uniform (new time each frame)",
+        "hyperbolic 0.9c, new time each frame",
+        "uniform 0.9c, new time each frame",
         TARGET_HYPERBOLIC,
     )
     ratio(

@@ -18,7 +18,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from numba import njit
+from numba import njit, prange
 
 MAX_LEAF = 4
 N_BINS = 16
@@ -268,6 +268,95 @@ def build_bvh(vertices: np.ndarray, faces: np.ndarray) -> BVH:
         (t[:, 2] - t[:, 0]).copy(),
         order.astype(np.int64),
     )
+
+
+@njit(cache=True, parallel=True)
+def _refit(vertices, faces, order, node_left, node_right, node_start, node_count):
+    """Triangles (v0, e1, e2) in traversal order and every node's box, for new vertex
+    positions under a fixed topology. Leaves take the min/max of their triangles'
+    corners, as the build does; inner nodes the union of their children, bottom-up (the
+    build numbers children after their parents, so descending indices visit children
+    first). The boxes are therefore exactly those the build computes for the same
+    topology: no triangle ever lies outside its leaf's box."""
+    n = order.shape[0]
+    v0 = np.empty((n, 3))
+    e1 = np.empty((n, 3))
+    e2 = np.empty((n, 3))
+    for k in prange(n):
+        f = order[k]
+        a = faces[f, 0]
+        b = faces[f, 1]
+        c = faces[f, 2]
+        for ax in range(3):
+            v0[k, ax] = vertices[a, ax]
+            e1[k, ax] = vertices[b, ax] - vertices[a, ax]
+            e2[k, ax] = vertices[c, ax] - vertices[a, ax]
+    m = node_left.shape[0]
+    lo = np.empty((m, 3))
+    hi = np.empty((m, 3))
+    for node in prange(m):
+        if node_left[node] < 0:
+            for ax in range(3):
+                lo[node, ax] = np.inf
+                hi[node, ax] = -np.inf
+            for k in range(node_start[node], node_start[node] + node_count[node]):
+                f = order[k]
+                for corner in range(3):
+                    vi = faces[f, corner]
+                    for ax in range(3):
+                        lo[node, ax] = min(lo[node, ax], vertices[vi, ax])
+                        hi[node, ax] = max(hi[node, ax], vertices[vi, ax])
+    for node in range(m - 1, -1, -1):
+        left = node_left[node]
+        if left >= 0:
+            right = node_right[node]
+            for ax in range(3):
+                lo[node, ax] = min(lo[left, ax], lo[right, ax])
+                hi[node, ax] = max(hi[left, ax], hi[right, ax])
+    return lo, hi, v0, e1, e2
+
+
+def refit_bvh(tree: BVH, vertices: np.ndarray, faces: np.ndarray) -> BVH:
+    """The hierarchy ``tree`` (built over ``faces``) for triangles ``vertices[faces]`` at
+    new positions: same topology and triangle order, boxes recomputed bottom-up. Every
+    hit a fresh build would find is found (the boxes bound their triangles exactly as a
+    build's do); only the traversal cost can grow when the triangles have moved far
+    relative to each other (see :func:`area_cost`). ``tree`` is left unchanged."""
+    lo, hi, v0, e1, e2 = _refit(
+        np.ascontiguousarray(vertices, dtype=np.float64),
+        np.ascontiguousarray(faces, dtype=np.int64),
+        tree.face_id,
+        tree.node_left,
+        tree.node_right,
+        tree.node_start,
+        tree.node_count,
+    )
+    return BVH(
+        lo,
+        hi,
+        tree.node_left,
+        tree.node_right,
+        tree.node_start,
+        tree.node_count,
+        v0,
+        e1,
+        e2,
+        tree.face_id,
+    )
+
+
+def area_cost(tree: BVH) -> float:
+    """Surface-area-heuristic cost of a hierarchy relative to its root box: the sum over
+    nodes of (box area / root area) x (1 for an inner node, its triangles for a leaf)
+    (the expected work of a random ray that meets the root; Wald 2007, as in the build).
+    A refitted hierarchy whose cost has grown well beyond its build's is worth rebuilding."""
+    d = tree.node_hi - tree.node_lo
+    area = d[:, 0] * d[:, 1] + d[:, 1] * d[:, 2] + d[:, 2] * d[:, 0]
+    root = area[0]
+    if not root > 0.0:
+        return float(len(tree.face_id))
+    weight = np.where(tree.node_left >= 0, 1.0, tree.node_count.astype(float))
+    return float(area @ weight) / float(root)
 
 
 @dataclass

@@ -33,6 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from relview.errors import SceneError
+from relview.geometry import bvh as bvh_mod
 from relview.geometry.trace import FrameGroup
 from relview.kinematics.clocks import clock_coordinate, reference_times
 from relview.kinematics.lorentz import C
@@ -47,6 +48,10 @@ PIXEL_FRACTION = 0.25
 DEFAULT_MAX_TRIANGLES = 2_000_000
 #: Sub-edges checked per round at most (a seeded random sample beyond that).
 MAX_CHECKED_EDGES = 50_000
+#: A snapshot hierarchy refitted from an earlier exposure's is rebuilt when its area
+#: cost (relview.geometry.bvh.area_cost) exceeds its build's by this factor (common
+#: practice for refitted hierarchies: rebuild once traversal gets markedly dearer).
+REBUILD_COST_RATIO = 1.5
 
 
 @dataclass
@@ -57,7 +62,9 @@ class Snapshot:
     faces: np.ndarray  # (F, 3) indices into vertices
     parent_face: np.ndarray  # (F,) face of the original mesh each triangle comes from
     body_coords: np.ndarray  # (V, 3) m, rest-frame position of each vertex (mesh axes)
-    bary: np.ndarray  # (V, 2) (u, v) of each vertex in its original face
+    # (V, 2) (u, v) of each vertex in its original face; None when every snapshot face is
+    # its whole original face (no refinement: faces and vertices are the rest mesh's)
+    bary: np.ndarray | None
     emit_event: np.ndarray  # (V, 4) [ct, x, y, z] m
     beta: np.ndarray  # (V, 3) velocity / c at emission
     segments: int  # n for uniform n^2 splitting; 0 for adaptive refinement
@@ -231,7 +238,78 @@ def _distinct_edges(vid, a, b):
     return first, inverse
 
 
-def _adaptive(kin, vertices, faces, cam, effects, tolerance, max_triangles, max_rounds=14):
+def _solve_vertices(kin, vertices, used, cam, effects):
+    """(events (V, 4), velocities (V, 3)) of the mesh vertices ``used`` by faces (the
+    others NaN)."""
+    ev = np.full((len(vertices), 4), np.nan)
+    beta = np.full((len(vertices), 3), np.nan)
+    ev[used], beta[used] = kin.retarded(
+        vertices[used], cam, delay=effects.delay, contraction=effects.contraction
+    )
+    return ev, beta
+
+
+#: Topology of the rest meshes snapshotted in this process, keyed by the faces array's
+#: identity and checked against a copy of it (an array edited in place, or a new array
+#: at a recycled address, is not mistaken for the old one): its distinct edges, the
+#: vertices faces use, and the hierarchy last built over its snapshot (refitted for the
+#: next exposures).
+_MESH_TOPOLOGY: dict[int, dict] = {}
+MESH_TOPOLOGY_SIZE = 16
+
+
+def _mesh_topology(faces: np.ndarray) -> dict:
+    entry = _MESH_TOPOLOGY.get(id(faces))
+    if entry is not None and entry["faces"].shape == faces.shape:
+        if np.array_equal(entry["faces"], faces):
+            return entry
+    edges = np.concatenate([faces[:, [0, 1]], faces[:, [1, 2]], faces[:, [2, 0]]])
+    key = np.unique(np.minimum(edges[:, 0], edges[:, 1]) * (1 << 32) + np.max(edges, axis=1))
+    entry = {
+        "faces": faces.copy(),
+        "edges": np.stack([key >> 32, key & 0xFFFFFFFF], axis=1),
+        "used": np.unique(faces),
+        "hierarchy": None,
+    }
+    _MESH_TOPOLOGY.pop(id(faces), None)
+    _MESH_TOPOLOGY[id(faces)] = entry
+    while len(_MESH_TOPOLOGY) > MESH_TOPOLOGY_SIZE:
+        _MESH_TOPOLOGY.pop(next(iter(_MESH_TOPOLOGY)))
+    return entry
+
+
+def _whole_mesh(kin, vertices, faces, cam, effects, tolerance):
+    """The first round of the refinement on the mesh's own vertices and distinct edges
+    (shared vertices, topology cached per mesh): the Snapshot when every edge passes the
+    tolerance, with the rest mesh's faces and vertices (``bary`` None: each snapshot
+    triangle is its whole original face, so a hit's own (u, v) are its face's), else
+    None and what was solved (the vertices, the edges' midpoint checks) for
+    :func:`_adaptive`. The same mesh, events and
+    measured error as the refinement's when it stops after its first round; only the
+    per-face copies are left out."""
+    topology = _mesh_topology(faces)
+    ev, beta = _solve_vertices(kin, vertices, topology["used"], cam, effects)
+    edges = topology["edges"]
+    checked = _chord_errors(
+        kin, vertices, ev, beta, edges[:, 0], edges[:, 1], cam, effects, solve=False
+    )
+    err = checked[0]
+    finite = np.isfinite(err)
+    if np.any(err[finite] > tolerance):
+        return None, ((ev, beta), checked)
+    error = float(err[finite].max()) if np.any(finite) else 0.0
+    keep = np.all(np.isfinite(ev[faces, 0]), axis=1)
+    positions = np.where(np.isfinite(ev[:, 1:]), ev[:, 1:], 0.0)  # unused where NaN
+    clock = _vertex_clock(kin, vertices, ev, effects)
+    snap = Snapshot(
+        positions, faces[keep], np.nonzero(keep)[0], vertices, None, ev, beta, 0, error, clock
+    )
+    return snap, None
+
+
+def _adaptive(
+    kin, vertices, faces, cam, effects, tolerance, max_triangles, max_rounds=14, solved=None
+):
     """Red-green refinement of every edge whose chord error exceeds the tolerance; the
     exact midpoint images computed for the test become the new vertices.
 
@@ -241,7 +319,9 @@ def _adaptive(kin, vertices, faces, cam, effects, tolerance, max_triangles, max_
     distinct edge), and the solved events live in arrays over distinct points. The copies
     get identical values (the solves work point by point, and a midpoint's coordinates
     do not depend on the order of its ends), so the mesh is the one that solving every
-    copy would give. Returns the per-face arrays and ``vid`` with the distinct points."""
+    copy would give. Returns the per-face arrays and ``vid`` with the distinct points.
+    ``solved``: ((events, velocities) of the vertices, the chord checks of the mesh's
+    distinct edges in key order) from :func:`_whole_mesh`, which the first round reuses."""
     f0 = len(faces)
     points = vertices[faces].reshape(-1, 3)  # each face owns its corners (per-face bary)
     vid = faces.reshape(-1).astype(np.int64)
@@ -249,12 +329,11 @@ def _adaptive(kin, vertices, faces, cam, effects, tolerance, max_triangles, max_
     parent = np.arange(f0, dtype=np.int64)
     bary = np.tile(np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]]), (f0, 1))
     distinct = vertices.copy()  # (D, 3) body coordinates of the distinct points
-    ev_d = np.full((len(vertices), 4), np.nan)
-    beta_d = np.full((len(vertices), 3), np.nan)
-    used = np.unique(vid)
-    ev_d[used], beta_d[used] = kin.retarded(
-        vertices[used], cam, delay=effects.delay, contraction=effects.contraction
-    )
+    first_checks = None
+    if solved is None:
+        ev_d, beta_d = _solve_vertices(kin, vertices, np.unique(vid), cam, effects)
+    else:
+        (ev_d, beta_d), first_checks = solved
     good = np.empty(0, np.int64)  # keys of (per-face) edges measured within tolerance
     error = 0.0
     for _ in range(max_rounds):
@@ -268,9 +347,14 @@ def _adaptive(kin, vertices, faces, cam, effects, tolerance, max_triangles, max_
             break
         a, b = ukey[todo] >> 32, ukey[todo] & 0xFFFFFFFF
         first, edge_of = _distinct_edges(vid, a, b)
-        err_d, mid_d, ev_mid_d, beta_mid_d = _chord_errors(
-            kin, points, ev_d[vid], beta_d[vid], a[first], b[first], cam, effects, solve=False
-        )
+        if first_checks is not None and len(first_checks[0]) == len(first):
+            # round one: the distinct edges of the mesh itself, in the same key order
+            err_d, mid_d, ev_mid_d, beta_mid_d = first_checks
+        else:
+            err_d, mid_d, ev_mid_d, beta_mid_d = _chord_errors(
+                kin, points, ev_d[vid], beta_d[vid], a[first], b[first], cam, effects, solve=False
+            )
+        first_checks = None
         err = err_d[edge_of]
         bad = np.isfinite(err) & (err > tolerance)
         ok = ~bad
@@ -324,8 +408,11 @@ def snapshot(
     faces = np.asarray(faces, np.int64)
     cam = np.asarray(camera_event, float).reshape(4)
     if segments is None:
+        whole, solved = _whole_mesh(kin, vertices, faces, cam, effects, tolerance)
+        if whole is not None:
+            return whole
         pts, sub, parent, bary, vid, (distinct, ev_d, beta_d), err = _adaptive(
-            kin, vertices, faces, cam, effects, tolerance, max_triangles
+            kin, vertices, faces, cam, effects, tolerance, max_triangles, solved=solved
         )
         ev, beta = ev_d[vid], beta_d[vid]
         n = 0
@@ -342,6 +429,25 @@ def snapshot(
     # the clock once per distinct point (it depends on the point and its event only)
     clock = _vertex_clock(kin, distinct, ev_d, effects)[vid]
     return Snapshot(positions, sub[keep], parent[keep], pts, bary, ev, beta, n, err, clock)
+
+
+def _snapshot_hierarchy(faces, snap: Snapshot):
+    """The hierarchy over a snapshot that kept the rest mesh's faces (no refinement, no
+    face dropped): the one held for that mesh refitted to the new vertex positions
+    (bvh.refit_bvh: exact boxes, so no hit is lost), rebuilt when the refit's area cost
+    has grown beyond REBUILD_COST_RATIO times its build's. None (the tracer builds one)
+    for refined snapshots."""
+    if snap.bary is not None or len(snap.faces) != len(faces) or len(faces) == 0:
+        return None
+    topology = _mesh_topology(faces)
+    held = topology["hierarchy"]
+    if held is not None:
+        tree = bvh_mod.refit_bvh(held[0], snap.vertices, faces)
+        if bvh_mod.area_cost(tree) <= REBUILD_COST_RATIO * held[1]:
+            return tree
+    tree = bvh_mod.build_bvh(snap.vertices, faces)
+    topology["hierarchy"] = (tree, bvh_mod.area_cost(tree))
+    return tree
 
 
 def check_body_speed(scene, index: int, vertices) -> None:
@@ -431,6 +537,7 @@ def snapshot_groups(
             vertex_clock=snap.clock,
             origin_time=t_ref,
         )
+        group.bvh = _snapshot_hierarchy(faces, snap)
         group.snapshot = snap
         groups.append(group)
     return groups

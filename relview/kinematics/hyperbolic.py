@@ -2,14 +2,13 @@
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from relview.kinematics.lorentz import C
 from relview.kinematics.magnitudes import read_position, read_time
-from relview.kinematics.worldline import RigidKinematics, _vec3
+from relview.kinematics.worldline import RigidKinematics, _as_points, _points_and_times, _vec3
 
 #: Largest horizon distance c^2/a (m) the worldline arithmetic can square without overflow.
 MAX_HORIZON_M = 1e150
@@ -96,6 +95,53 @@ class HyperbolicMotion(RigidKinematics):
                 "and reach c)"
             )
 
+    # -- closed forms for every body point (Born-rigid; Rindler 2006, §3.8)
+    #
+    # The body point p = xi n + p_perp is tied to the origin's event at rapidity u
+    # (s - s0 = L sinh u) by E = (s, X(s)) + Lambda(-beta) (0, p) (worldline.py): with
+    # gamma beta = sinh u and gamma = cosh u this is t - s0 = (L + xi) sinh u,
+    # (x - position).n = (L + xi) cosh u - L, transverse part p_perp: the point moves on
+    # its own hyperbola of horizon distance L + xi, at rest at position + p at time s0
+    # (the family of hyperbolae of a Born-rigid accelerated body, Rindler 2006, §3.8).
+    # Galilean kinematics (contraction off) moves every point with the origin: the
+    # origin's hyperbola (L) translated by p. So each point's retarded event is the
+    # origin's closed form (retarded_offsets) with its own L and resting place, and its
+    # reference time is s - s0 = L (t - s0) / (L + xi).
+
+    def _point_lengths(self, points, contraction: bool) -> np.ndarray:
+        """Horizon distance (m) of each body point's own hyperbola."""
+        if not contraction:
+            return np.full(points.shape[0], self.length)
+        return self.length + points @ self.direction
+
+    def retarded(self, points, camera_event, delay: bool = True, contraction: bool = True):
+        """As :meth:`RigidKinematics.retarded`, in closed form (see above): the emission
+        event of every body point on its own hyperbola, without iterating."""
+        if not delay:
+            return super().retarded(points, camera_event, delay, contraction)
+        p = _as_points(points)
+        cam = np.asarray(camera_event, dtype=float).reshape(4)
+        length = self._point_lengths(p, contraction)
+        rest = self.position + p  # each point's place at rest (time s0)
+        dt = retarded_offsets(
+            np.full(p.shape[0], cam[0] - self.s0), cam[1:] - rest, self.direction, length
+        )
+        with np.errstate(invalid="ignore"):
+            root = np.sqrt(length * length + dt * dt)
+            lift = dt * dt / (root + length)
+        ev = np.empty((p.shape[0], 4))
+        ev[:, 0] = self.s0 + dt
+        ev[:, 1:] = rest + lift[:, None] * self.direction
+        beta = (dt / root)[:, None] * self.direction
+        return ev, beta
+
+    def _reference_time(self, points, t_ct, contraction: bool) -> np.ndarray:
+        # closed form (see above): s - s0 = L (t - s0) / (L + xi); Galilean: s = t
+        p, t = _points_and_times(points, t_ct)
+        if not contraction:
+            return t.copy()
+        return self.s0 + (t - self.s0) * (self.length / self._point_lengths(p, True))
+
     def proper_acceleration(self, xi_m) -> np.ndarray:
         """Proper acceleration (m/s^2) of the point ``xi_m`` metres ahead of the origin along
         the acceleration: c^2 / (L + xi) (Born-rigid; Rindler 2006, §3.8)."""
@@ -103,45 +149,66 @@ class HyperbolicMotion(RigidKinematics):
 
 
 def hyperbolic_origin_retarded(motion: HyperbolicMotion, camera_event) -> np.ndarray:
-    """Closed-form emission event (4,) [ct, x, y, z] m of the body origin seen at camera_event.
-
-    With dt = t - t0, Z = x_c - position, T = t_c - t0, a = 1/L and n the acceleration
-    direction, the worldline is (dt, h n), h = sqrt(L^2 + dt^2) - L.  Writing
-    dt = L sinh u, h = L (cosh u - 1) and y = L (e^u - 1), the light-cone condition
-    (T - dt)^2 = |Z - h n|^2 becomes the quadratic (docs/motion.md)
-        (a (T - Z.n) - 1) y^2 + (2 T - a (T^2 - Z^2)) y - (T^2 - Z^2) = 0,
-    and dt = y (2 + a y) / (2 (1 + a y)).  The retarded root has 1 + a y > 0, dt <= T.
-    NaN if the camera is outside the origin's causal future.
-    """
+    """Closed-form emission event (4,) [ct, x, y, z] m of the body origin seen at camera_event
+    (NaN if the camera is outside the origin's causal future); :func:`retarded_offsets`
+    gives the derivation."""
     cam = np.asarray(camera_event, dtype=float).reshape(4)
-    big_t = cam[0] - motion.s0
-    z = cam[1:] - motion.position
-    zn = float(z @ motion.direction)
-    z2 = float(z @ z)
-    a = 1.0 / motion.length
-    qa = a * (big_t - zn) - 1.0
-    qb = 2.0 * big_t - a * (big_t * big_t - z2)
-    qc = -(big_t * big_t - z2)
-    roots = []
-    disc = qb * qb - 4.0 * qa * qc
-    if disc >= 0.0:
-        sq = math.sqrt(disc)
-        # Citardauq pairing avoids cancellation (Numerical Recipes, 3rd ed., §5.6).
-        qq = -0.5 * (qb + math.copysign(sq, qb))
-        if qq != 0.0:
-            roots.append(qc / qq)
-        if qa != 0.0:
-            roots.append(qq / qa)
-    best = None
-    for y in roots:
-        w = 1.0 + a * y
-        if w <= 0.0:
-            continue
-        dt = y * (2.0 + a * y) / (2.0 * w)
-        if dt <= big_t * (1 + 1e-12) + 1e-12 * abs(big_t) + 1e-300:
-            if best is None or dt > best:  # the past cone meets the worldline once; keep the
-                best = dt  # latest candidate if rounding produced two
-    if best is None:
+    dt = retarded_offsets(
+        np.array([cam[0] - motion.s0]),
+        (cam[1:] - motion.position)[None],
+        motion.direction,
+        np.array([motion.length]),
+    )
+    if not np.isfinite(dt[0]):
         return np.full(4, np.nan)
-    x, _, _ = motion._origin(np.array([motion.s0 + best]))
-    return np.concatenate([[motion.s0 + best], x[0]])
+    x, _, _ = motion._origin(np.array([motion.s0 + dt[0]]))
+    return np.concatenate([[motion.s0 + dt[0]], x[0]])
+
+
+def retarded_offsets(big_t, z, direction, length, polish: int = 2) -> np.ndarray:
+    """Emission times dt (N,) (ct, m, after the resting event) of points on the hyperbolae
+    (dt, h n + rest place), h = sqrt(L^2 + dt^2) - L, seen from camera events at (T, Z)
+    relative to each point's resting event: T (N,), Z (N, 3), unit n (3,), L (N,) m.
+    NaN where the camera is outside the point's causal future (beyond its horizon).
+
+    Writing dt = L sinh u, h = L (cosh u - 1) and y = L (e^u - 1), a = 1/L, the light-cone
+    condition (T - dt)^2 = |Z - h n|^2 becomes the quadratic (docs/motion.md)
+        (a (T - Z.n) - 1) y^2 + (2 T - a (T^2 - Z^2)) y - (T^2 - Z^2) = 0,
+    and dt = y (2 + a y) / (2 (1 + a y)). The retarded root has 1 + a y > 0, dt <= T; the
+    past light cone meets a timelike worldline once, so the latest such root is kept.
+    ``polish`` Newton steps on f(dt) = |Z - h n| - (T - dt) (increasing: f' = 1 - beta.e
+    > 0) then remove the rounding the quadratic's coefficients carry (T^2 - Z^2 cancels
+    for a camera near the point's light cone)."""
+    big_t = np.asarray(big_t, float)
+    length = np.asarray(length, float)
+    zn = z @ direction
+    z2 = np.einsum("ij,ij->i", z, z)
+    a = 1.0 / length
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        interval = big_t * big_t - z2
+        qa = a * (big_t - zn) - 1.0
+        qb = 2.0 * big_t - a * interval
+        qc = -interval
+        disc = qb * qb - 4.0 * qa * qc
+        sq = np.sqrt(np.where(disc >= 0.0, disc, np.nan))
+        # Citardauq pairing avoids cancellation (Numerical Recipes, 3rd ed., §5.6).
+        qq = -0.5 * (qb + np.copysign(sq, qb))
+        best = np.full(big_t.shape, -np.inf)
+        for y in (
+            np.where(qq != 0.0, qc / np.where(qq != 0.0, qq, 1.0), np.nan),
+            np.where(qa != 0.0, qq / np.where(qa != 0.0, qa, 1.0), np.nan),
+        ):
+            w = 1.0 + a * y
+            dt = y * (2.0 + a * y) / (2.0 * w)
+            fits = (w > 0.0) & (dt <= big_t * (1 + 1e-12) + 1e-12 * np.abs(big_t) + 1e-300)
+            best = np.where(fits & (dt > best), dt, best)
+        dt = np.where(np.isfinite(best), best, np.nan)
+        for _ in range(polish):
+            root = np.sqrt(length * length + dt * dt)
+            lift = dt * dt / (root + length)  # sqrt(L^2 + dt^2) - L without cancellation
+            r = z - lift[:, None] * direction
+            rn = np.sqrt(np.einsum("ij,ij->i", r, r))
+            f = rn - (big_t - dt)
+            df = 1.0 + np.where(rn > 0.0, -(r @ direction) / rn, 0.0) * (dt / root)
+            dt = dt - f / df
+    return dt
