@@ -6,14 +6,17 @@ events of single points come from relview.kinematics.motion, itself checked agai
 and scipy in tests/test_motion.py.
 """
 
+import copy
 from types import SimpleNamespace
 
 import numpy as np
 import pytest
 import trimesh
 
-from relview.geometry.lightcone import snapshot, snapshot_groups
+from relview.geometry.lightcone import _adaptive, _vertex_clock, snapshot, snapshot_groups
 from relview.geometry.trace import Tracer, uniform_groups
+from relview.kinematics.hyperbolic import HyperbolicMotion
+from relview.kinematics.lorentz import C
 from relview.kinematics.spin import RollingMotion
 from relview.kinematics.uniform import UniformMotion
 from relview.scene.parts import Body, Effects
@@ -215,6 +218,73 @@ def test_rolling_wheel_snapshot_error_within_tolerance():
         assert (
             miss.max() <= 1.5 * tol
         )  # edges are tested at midpoints; interiors may exceed a little
+        assert np.linalg.norm(beta - hits.beta_emit[hits.hit], axis=1).max() <= 1.5 * tol
+
+
+def hyperbolic_ball():
+    """A 0.5 m icosphere (1 280 faces) accelerating along x at c^2/a = 4 m, seen from 3 m
+    as it passes at about 0.8c, and the camera event."""
+    ball = trimesh.creation.icosphere(subdivisions=3, radius=0.5)
+    verts, faces = np.asarray(ball.vertices, float), np.asarray(ball.faces, np.int64)
+    motion = HyperbolicMotion(acceleration=np.array([C * C / 4.0, 0.0, 0.0]), time=-2.0e-8)
+    return verts, faces, motion, np.array([0.0, 3.0, -3.0, 0.3])
+
+
+def test_unrefined_snapshot_keeps_the_rest_mesh_and_equals_the_refinement():
+    # When every edge of the rest mesh passes the tolerance, the snapshot is the rest
+    # mesh's faces on the light cone (shared vertices, no per-face copies): the same
+    # triangles, events, velocities, clocks and measured error as the red-green
+    # refinement gives when it stops after its first round.
+    verts, faces, motion, cam = hyperbolic_ball()
+    snap = snapshot(motion, verts, faces, cam, Effects(), tolerance=2e-2)
+    assert snap.bary is None and np.array_equal(snap.faces, faces)
+    pts, tri, parent, bary, vid, (distinct, ev_d, beta_d), err = _adaptive(
+        motion, verts, faces, cam, Effects(), 2e-2, 10**6
+    )
+    assert len(tri) == len(faces) and snap.error == err
+    np.testing.assert_array_equal(snap.vertices[snap.faces], ev_d[vid][tri][..., 1:])
+    np.testing.assert_array_equal(snap.beta[snap.faces], beta_d[vid][tri])
+    np.testing.assert_array_equal(snap.body_coords[snap.faces], pts[tri])
+    np.testing.assert_array_equal(
+        snap.clock[snap.faces],
+        _vertex_clock(motion, distinct, ev_d, Effects())[vid][tri],
+    )
+    # a tolerance below the measured error refines, through the per-face path
+    finer = snapshot(motion, verts, faces, cam, Effects(), tolerance=err / 3)
+    assert finer.bary is not None and len(finer.faces) > len(faces)
+
+
+def test_hyperbolic_snapshot_within_tolerance_over_successive_exposures():
+    # Exposures at successive times (an animation): the hierarchy over the unrefined
+    # snapshot is refitted from the first exposure's (bvh.refit_bvh), and every exposure
+    # casts the same hits as a freshly built hierarchy; each hit lies within the
+    # tolerance (as seen from the camera) of the exact retarded position of the body point
+    # it reports, and its velocity within the tolerance of that point's exact velocity
+    # (the closed form, checked against the generic solver and scipy in test_motion.py).
+    verts, faces, motion, cam = hyperbolic_ball()
+    body = Body(name="ball", shape="mesh", surface=None, motion=motion)
+    scene = SimpleNamespace(bodies=[body])
+    tol = 3e-4  # measured errors 0.9e-4 to 1.0e-4: no refinement
+    first = None
+    for k in range(4):
+        event = cam + np.array([0.25 * k, 0.0, 0.0, 0.0])
+        (group,) = snapshot_groups(scene, [(verts, faces)], [0], event, Effects(), tolerance=tol)
+        assert group.snapshot.bary is None and group.snapshot.error <= tol
+        assert group.bvh is not None
+        first = first or group.bvh
+        assert group.bvh.node_left is first.node_left  # the same topology, refitted
+        d = rays_covering(event, group.vertices, n=61)
+        hits = cast([group], event, d, Effects())
+        fresh = copy.copy(group)
+        fresh.bvh = None  # the tracer builds its own
+        again = cast([fresh], event, d, Effects())
+        assert hits.hit.sum() > 800
+        np.testing.assert_array_equal(hits.hit, again.hit)
+        np.testing.assert_allclose(hits.l, again.l, rtol=1e-13)
+        np.testing.assert_allclose(hits.rest_position, again.rest_position, atol=1e-12)
+        exact, beta = motion.retarded(hits.rest_position[hits.hit], event)
+        miss = np.linalg.norm(exact[:, 1:] - hits.emit_event[hits.hit, 1:], axis=1)
+        assert (miss / hits.l[hits.hit]).max() <= 1.5 * tol  # as the rolling wheel's
         assert np.linalg.norm(beta - hits.beta_emit[hits.hit], axis=1).max() <= 1.5 * tol
 
 

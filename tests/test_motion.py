@@ -167,7 +167,12 @@ def test_hyperbolic_retarded_origin_matches_closed_form(accel):
     seen = 0
     for cam in cams:
         closed = hyperbolic_origin_retarded(mot, cam)
-        ev, beta = mot.retarded(np.zeros((1, 3)), cam)
+        # the generic safeguarded Newton solver of the base class (HyperbolicMotion's own
+        # retarded is the closed form for every body point, checked below)
+        ev, beta = RigidKinematics.retarded(mot, np.zeros((1, 3)), cam)
+        np.testing.assert_allclose(
+            mot.retarded(np.zeros((1, 3)), cam)[0][0], closed, rtol=1e-15, atol=1e-15
+        )
         # Behind the horizon (c T + Z.n + L <= 0 from the resting event; Rindler 2006, §3.8)
         # no light arrives: both must say so.
         T, Zn = cam[0] - mot.s0, (cam[1:] - mot.position) @ mot.direction
@@ -226,6 +231,67 @@ def test_hyperbolic_points_match_brentq():
     pts = RNG.uniform(-2, 2, size=(12, 3))
     cam = np.array([3.0, -4.0, 5.0, 1.0])
     check_retarded_against_brentq(mot, pts, cam, every=3)  # scipy brentq, independent
+
+
+@pytest.mark.parametrize("contraction", [True, False])
+def test_hyperbolic_body_points_closed_form_matches_generic_solver(contraction):
+    # Born-rigid: the body point xi ahead along the acceleration moves on its own hyperbola
+    # of horizon distance c^2/a + xi, at rest with the origin at the same scene time
+    # (Rindler 2006, §3.8), so the origin's closed form serves every point. Against the
+    # base class's safeguarded Newton solve of the same equation, scipy's brentq, the
+    # light-cone condition, and the worldline model's own events (RigidKinematics.events).
+    rng = np.random.default_rng(7)
+    for accel, cam in (
+        ([C * C / 10.0, 0.0, 0.0], [5.0, 3.0, 4.0, -1.0]),
+        ([0.0, -C * C / 6.0, C * C / 5.0], [40.0, 10.0, -30.0, 5.0]),
+        ([2.0e16, 1.0e16, -3.0e15], [1.5, -4.0, 0.5, 2.0]),
+    ):
+        mot = HyperbolicMotion(
+            acceleration=np.array(accel), position=np.array([0.3, -1.0, 2.0]), time=1e-8
+        )
+        cam = np.array(cam) + np.array([mot.s0, 0.0, 0.0, 0.0])
+        pts = rng.uniform(-1.5, 1.5, size=(400, 3))
+        ev, beta = mot.retarded(pts, cam, contraction=contraction)
+        ev_n, beta_n = RigidKinematics.retarded(mot, pts, cam, contraction=contraction)
+        scale = cam[0] - ev_n[:, 0] + 1.0
+        assert np.all(np.isfinite(ev))
+        np.testing.assert_array_less(np.abs(ev - ev_n).max(axis=1), 1e-12 * scale)
+        np.testing.assert_allclose(beta, beta_n, rtol=0, atol=1e-13)
+        assert_on_light_cone(ev, cam, rtol=1e-13)
+        # the events lie on the model's worldlines, at the closed-form reference times
+        s = mot._reference_time(pts, ev[:, 0], contraction)
+        s_n = RigidKinematics._reference_time(mot, pts, ev[:, 0], contraction)
+        np.testing.assert_array_less(np.abs(s - s_n), 1e-12 * (1.0 + np.abs(s_n)))
+        on, dev = mot.events(pts, s, contraction)
+        np.testing.assert_array_less(np.abs(on - ev).max(axis=1), 1e-12 * scale)
+        np.testing.assert_allclose(dev[:, 1:] / dev[:, :1], beta, rtol=0, atol=1e-13)
+        # (the generic derivative carries ~1e-14 of rounding; the closed form (L + xi) / L less)
+        np.testing.assert_allclose(mot.time_rate(pts, s, contraction), dev[:, 0], rtol=1e-12)
+        for i in range(0, 400, 100):  # scipy brentq, independent root finder
+            t_ref = brentq_emission(mot, pts[i], cam, contraction)
+            assert abs(ev[i, 0] - t_ref) <= 1e-11 * (cam[0] - t_ref + 1.0)
+
+
+def test_hyperbolic_body_shares_the_origins_horizon():
+    # A Born-rigid accelerated body has one horizon (Rindler 2006, §3.8): the camera event
+    # with c T + Z.n + c^2/a <= 0 (relative to the origin's resting event) gets light from
+    # no point of it. The closed form says NaN for every point; where light does arrive,
+    # the light-cone condition holds.
+    mot = HyperbolicMotion(acceleration=np.array([C * C / 10.0, 0.0, 0.0]))  # L = 10 m
+    pts = np.random.default_rng(3).uniform(-2.0, 2.0, size=(200, 3))
+    behind = np.array([-8.0, -2.5, 1.0, 0.0])  # c T + Z.n + L = -0.5 m
+    ev, beta = mot.retarded(pts, behind)
+    assert np.all(np.isnan(ev)) and np.all(np.isnan(beta))
+    ahead = np.array([-7.0, -2.5, 1.0, 0.0])  # c T + Z.n + L = +0.5 m: seen, from far back
+    ev, _ = mot.retarded(pts, ahead)
+    assert np.all(np.isfinite(ev))
+    assert_on_light_cone(ev, ahead, rtol=1e-12)
+    # Galilean kinematics carries every point on the origin's hyperbola shifted by p:
+    # each has its own horizon, c T + (Z - p).n + L
+    ev, _ = mot.retarded(pts, ahead, contraction=False)
+    seen = -7.0 + (ahead[1:] - pts) @ mot.direction + mot.length > 0
+    assert 0 < seen.sum() < len(pts)
+    np.testing.assert_array_equal(np.isfinite(ev[:, 0]), seen)
 
 
 def test_hyperbolic_rejects_body_beyond_horizon():

@@ -350,13 +350,24 @@ def area_cost(tree: BVH) -> float:
     nodes of (box area / root area) x (1 for an inner node, its triangles for a leaf)
     (the expected work of a random ray that meets the root; Wald 2007, as in the build).
     A refitted hierarchy whose cost has grown well beyond its build's is worth rebuilding."""
-    d = tree.node_hi - tree.node_lo
-    area = d[:, 0] * d[:, 1] + d[:, 1] * d[:, 2] + d[:, 2] * d[:, 0]
-    root = area[0]
+    return _area_cost(tree.node_lo, tree.node_hi, tree.node_left, tree.node_count)
+
+
+@njit(cache=True)
+def _area_cost(lo, hi, left, count):
+    total = 0.0
+    root = 0.0
+    for node in range(lo.shape[0]):
+        dx = hi[node, 0] - lo[node, 0]
+        dy = hi[node, 1] - lo[node, 1]
+        dz = hi[node, 2] - lo[node, 2]
+        area = dx * dy + dy * dz + dz * dx
+        if node == 0:
+            root = area
+        total += area * (1.0 if left[node] >= 0 else count[node])
     if not root > 0.0:
-        return float(len(tree.face_id))
-    weight = np.where(tree.node_left >= 0, 1.0, tree.node_count.astype(float))
-    return float(area @ weight) / float(root)
+        return float(count.sum())
+    return total / root
 
 
 @dataclass
@@ -383,7 +394,27 @@ class BVHSet:
 
 
 def pack(bvhs: list[BVH]) -> BVHSet:
-    """Concatenate hierarchies, shifting child and triangle indices."""
+    """Concatenate hierarchies, shifting child and triangle indices (one hierarchy is
+    taken as it is: nothing to shift)."""
+    if len(bvhs) == 1:
+        b = bvhs[0]
+        return _interleaved(
+            BVHSet(
+                np.zeros(1, np.int64),
+                b.node_lo,
+                b.node_hi,
+                b.node_left,
+                b.node_right,
+                b.node_start,
+                b.node_count,
+                b.v0,
+                b.e1,
+                b.e2,
+                np.zeros(len(b.v0), np.int64),
+                b.face_id,
+                np.zeros(1, np.int64),
+            )
+        )
     roots, lo, hi, left, right, start, count = [], [], [], [], [], [], []
     v0, e1, e2, grp, face, toff = [], [], [], [], [], []
     n_off = 0
@@ -420,6 +451,11 @@ def pack(bvhs: list[BVH]) -> BVHSet:
         cat(face),
         np.array(toff, np.int64),
     )
+    return _interleaved(out)
+
+
+def _interleaved(out: BVHSet) -> BVHSet:
+    """``out`` with the traversal kernel's interleaved arrays added."""
     # Node boxes in float32, rounded outwards so that no float64 hit is ever culled.
     lo32 = np.nextafter(out.node_lo.astype(np.float32), np.float32(-np.inf))
     hi32 = np.nextafter(out.node_hi.astype(np.float32), np.float32(np.inf))

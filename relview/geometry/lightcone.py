@@ -31,6 +31,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+from numba import njit, prange
 
 from relview.errors import SceneError
 from relview.geometry import bvh as bvh_mod
@@ -89,8 +90,7 @@ def _vertex_clock(kin, points, ev, effects) -> np.ndarray:
     if np.any(ok):
         s = reference_times(kin, points[ok], ev[ok, 0], effects.contraction)
         value, rate = clock_coordinate(kin, s, effects.contraction)
-        _, dev = kin.events(points[ok], s, effects.contraction)
-        r = rate / dev[:, 0]
+        r = rate / kin.time_rate(points[ok], s, effects.contraction)
         out[ok, 0] = value - r * ev[ok, 0]
         out[ok, 1] = r
     return out
@@ -168,12 +168,43 @@ def _chord_errors(kin, points, ev, beta, a, b, camera_event, effects, solve=True
         ev_mid, beta_mid = kin.retarded(
             mid, camera_event, delay=effects.delay, contraction=effects.contraction
         )
-    chord = 0.5 * (ev[a, 1:] + ev[b, 1:])
-    dist = np.linalg.norm(ev_mid[:, 1:] - camera_event[1:], axis=1)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        angle = np.linalg.norm(ev_mid[:, 1:] - chord, axis=1) / dist
-    dbeta = np.linalg.norm(beta_mid - 0.5 * (beta[a] + beta[b]), axis=1)
-    return np.maximum(angle, dbeta), mid, ev_mid, beta_mid
+    err = _edge_errors(
+        np.ascontiguousarray(ev),
+        np.ascontiguousarray(beta),
+        np.ascontiguousarray(a, dtype=np.int64),
+        np.ascontiguousarray(b, dtype=np.int64),
+        np.ascontiguousarray(ev_mid),
+        np.ascontiguousarray(beta_mid),
+        np.asarray(camera_event, float),
+    )
+    return err, mid, ev_mid, beta_mid
+
+
+@njit(cache=True, parallel=True, error_model="numpy")
+def _edge_errors(ev, beta, a, b, ev_mid, beta_mid, cam):
+    """Chord error (module docstring) of each edge a-b from its ends' and its midpoint's
+    events and velocities; NaN where one is NaN."""
+    err = np.empty(a.shape[0])
+    for i in prange(a.shape[0]):
+        j, k = a[i], b[i]
+        dist = 0.0
+        off = 0.0
+        for ax in range(1, 4):
+            d = ev_mid[i, ax] - cam[ax]
+            dist += d * d
+            c = ev_mid[i, ax] - 0.5 * (ev[j, ax] + ev[k, ax])
+            off += c * c
+        dbeta = 0.0
+        for ax in range(3):
+            d = beta_mid[i, ax] - 0.5 * (beta[j, ax] + beta[k, ax])
+            dbeta += d * d
+        angle = math.sqrt(off) / math.sqrt(dist)
+        dbeta = math.sqrt(dbeta)
+        if angle != angle or dbeta != dbeta:
+            err[i] = np.nan
+        else:
+            err[i] = max(angle, dbeta)
+    return err
 
 
 def _uniform_error(kin, points, ev, beta, faces, camera_event, effects, rng) -> float:

@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field, replace
 
 import numpy as np
+from numba import njit, prange
 
 from relview.kinematics.lorentz import C
 from relview.kinematics.magnitudes import read_position, read_time
@@ -119,21 +121,15 @@ class HyperbolicMotion(RigidKinematics):
         event of every body point on its own hyperbola, without iterating."""
         if not delay:
             return super().retarded(points, camera_event, delay, contraction)
-        p = _as_points(points)
-        cam = np.asarray(camera_event, dtype=float).reshape(4)
-        length = self._point_lengths(p, contraction)
-        rest = self.position + p  # each point's place at rest (time s0)
-        dt = retarded_offsets(
-            np.full(p.shape[0], cam[0] - self.s0), cam[1:] - rest, self.direction, length
+        return _retarded_points(
+            np.ascontiguousarray(_as_points(points)),
+            np.asarray(camera_event, dtype=float).reshape(4),
+            float(self.s0),
+            self.position,
+            self.direction,
+            float(self.length),
+            bool(contraction),
         )
-        with np.errstate(invalid="ignore"):
-            root = np.sqrt(length * length + dt * dt)
-            lift = dt * dt / (root + length)
-        ev = np.empty((p.shape[0], 4))
-        ev[:, 0] = self.s0 + dt
-        ev[:, 1:] = rest + lift[:, None] * self.direction
-        beta = (dt / root)[:, None] * self.direction
-        return ev, beta
 
     def _reference_time(self, points, t_ct, contraction: bool) -> np.ndarray:
         # closed form (see above): s - s0 = L (t - s0) / (L + xi); Galilean: s = t
@@ -141,6 +137,11 @@ class HyperbolicMotion(RigidKinematics):
         if not contraction:
             return t.copy()
         return self.s0 + (t - self.s0) * (self.length / self._point_lengths(p, True))
+
+    def time_rate(self, points, s, contraction: bool = True) -> np.ndarray:
+        # closed form (see above): t - s0 = (L + xi) / L (s - s0); Galilean: t = s
+        p = _as_points(points)
+        return self._point_lengths(p, contraction) / self.length
 
     def proper_acceleration(self, xi_m) -> np.ndarray:
         """Proper acceleration (m/s^2) of the point ``xi_m`` metres ahead of the origin along
@@ -165,50 +166,111 @@ def hyperbolic_origin_retarded(motion: HyperbolicMotion, camera_event) -> np.nda
     return np.concatenate([[motion.s0 + dt[0]], x[0]])
 
 
-def retarded_offsets(big_t, z, direction, length, polish: int = 2) -> np.ndarray:
+def retarded_offsets(big_t, z, direction, length) -> np.ndarray:
     """Emission times dt (N,) (ct, m, after the resting event) of points on the hyperbolae
     (dt, h n + rest place), h = sqrt(L^2 + dt^2) - L, seen from camera events at (T, Z)
     relative to each point's resting event: T (N,), Z (N, 3), unit n (3,), L (N,) m.
     NaN where the camera is outside the point's causal future (beyond its horizon).
+    The derivation is at :func:`_offset`."""
+    big_t = np.ascontiguousarray(big_t, dtype=float)
+    z = np.ascontiguousarray(z, dtype=float)
+    length = np.ascontiguousarray(length, dtype=float)
+    return _offsets(big_t, z, np.asarray(direction, float), length)
+
+
+@njit(cache=True, error_model="numpy")
+def _offset(big_t, zx, zy, zz, nx, ny, nz, length):
+    """Emission time dt (ct, m, after the resting event) of the point on the hyperbola
+    (dt, h n), h = sqrt(L^2 + dt^2) - L, seen from the camera event (T, Z) relative to
+    its resting event; NaN beyond its horizon.
 
     Writing dt = L sinh u, h = L (cosh u - 1) and y = L (e^u - 1), a = 1/L, the light-cone
     condition (T - dt)^2 = |Z - h n|^2 becomes the quadratic (docs/motion.md)
         (a (T - Z.n) - 1) y^2 + (2 T - a (T^2 - Z^2)) y - (T^2 - Z^2) = 0,
     and dt = y (2 + a y) / (2 (1 + a y)). The retarded root has 1 + a y > 0, dt <= T; the
     past light cone meets a timelike worldline once, so the latest such root is kept.
-    ``polish`` Newton steps on f(dt) = |Z - h n| - (T - dt) (increasing: f' = 1 - beta.e
-    > 0) then remove the rounding the quadratic's coefficients carry (T^2 - Z^2 cancels
-    for a camera near the point's light cone)."""
-    big_t = np.asarray(big_t, float)
-    length = np.asarray(length, float)
-    zn = z @ direction
-    z2 = np.einsum("ij,ij->i", z, z)
+    Two Newton steps on f(dt) = |Z - h n| - (T - dt) (increasing: f' = 1 - beta.e > 0)
+    then remove the rounding the quadratic's coefficients carry (T^2 - Z^2 cancels for a
+    camera near the point's light cone)."""
+    zn = zx * nx + zy * ny + zz * nz
+    z2 = zx * zx + zy * zy + zz * zz
     a = 1.0 / length
-    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        interval = big_t * big_t - z2
-        qa = a * (big_t - zn) - 1.0
-        qb = 2.0 * big_t - a * interval
-        qc = -interval
-        disc = qb * qb - 4.0 * qa * qc
-        sq = np.sqrt(np.where(disc >= 0.0, disc, np.nan))
-        # Citardauq pairing avoids cancellation (Numerical Recipes, 3rd ed., §5.6).
-        qq = -0.5 * (qb + np.copysign(sq, qb))
-        best = np.full(big_t.shape, -np.inf)
-        for y in (
-            np.where(qq != 0.0, qc / np.where(qq != 0.0, qq, 1.0), np.nan),
-            np.where(qa != 0.0, qq / np.where(qa != 0.0, qa, 1.0), np.nan),
-        ):
-            w = 1.0 + a * y
-            dt = y * (2.0 + a * y) / (2.0 * w)
-            fits = (w > 0.0) & (dt <= big_t * (1 + 1e-12) + 1e-12 * np.abs(big_t) + 1e-300)
-            best = np.where(fits & (dt > best), dt, best)
-        dt = np.where(np.isfinite(best), best, np.nan)
-        for _ in range(polish):
-            root = np.sqrt(length * length + dt * dt)
-            lift = dt * dt / (root + length)  # sqrt(L^2 + dt^2) - L without cancellation
-            r = z - lift[:, None] * direction
-            rn = np.sqrt(np.einsum("ij,ij->i", r, r))
-            f = rn - (big_t - dt)
-            df = 1.0 + np.where(rn > 0.0, -(r @ direction) / rn, 0.0) * (dt / root)
-            dt = dt - f / df
+    interval = big_t * big_t - z2
+    qa = a * (big_t - zn) - 1.0
+    qb = 2.0 * big_t - a * interval
+    qc = -interval
+    disc = qb * qb - 4.0 * qa * qc
+    if not disc >= 0.0:
+        return np.nan
+    # Citardauq pairing avoids cancellation (Numerical Recipes, 3rd ed., §5.6).
+    qq = -0.5 * (qb + math.copysign(math.sqrt(disc), qb))
+    limit = big_t * (1 + 1e-12) + 1e-12 * abs(big_t) + 1e-300
+    best = -np.inf
+    for k in range(2):
+        if k == 0:
+            if qq == 0.0:
+                continue
+            y = qc / qq
+        else:
+            if qa == 0.0:
+                continue
+            y = qq / qa
+        w = 1.0 + a * y
+        if not w > 0.0:
+            continue
+        dt = y * (2.0 + a * y) / (2.0 * w)
+        if dt <= limit and dt > best:
+            best = dt
+    if best == -np.inf:
+        return np.nan
+    dt = best
+    for _ in range(2):
+        root = math.sqrt(length * length + dt * dt)
+        lift = dt * dt / (root + length)  # sqrt(L^2 + dt^2) - L without cancellation
+        rx = zx - lift * nx
+        ry = zy - lift * ny
+        rz = zz - lift * nz
+        rn = math.sqrt(rx * rx + ry * ry + rz * rz)
+        slope = 1.0
+        if rn > 0.0:
+            slope -= (rx * nx + ry * ny + rz * nz) / rn * (dt / root)
+        dt -= (rn - (big_t - dt)) / slope
     return dt
+
+
+@njit(cache=True, parallel=True)
+def _offsets(big_t, z, direction, length):
+    out = np.empty(big_t.shape[0])
+    for i in prange(big_t.shape[0]):
+        out[i] = _offset(
+            big_t[i], z[i, 0], z[i, 1], z[i, 2], direction[0], direction[1], direction[2], length[i]
+        )
+    return out
+
+
+@njit(cache=True, parallel=True, error_model="numpy")
+def _retarded_points(points, cam, s0, position, direction, length, rigid):
+    """Emission events (N, 4) and velocities (N, 3) of body points of a hyperbolic motion
+    (HyperbolicMotion, 'closed forms for every body point'); ``rigid`` False: Galilean."""
+    n = points.shape[0]
+    ev = np.empty((n, 4))
+    beta = np.empty((n, 3))
+    nx, ny, nz = direction[0], direction[1], direction[2]
+    for i in prange(n):
+        px, py, pz = points[i, 0], points[i, 1], points[i, 2]
+        own = length + (px * nx + py * ny + pz * nz) if rigid else length
+        rx = position[0] + px  # the point's place at rest (time s0)
+        ry = position[1] + py
+        rz = position[2] + pz
+        dt = _offset(cam[0] - s0, cam[1] - rx, cam[2] - ry, cam[3] - rz, nx, ny, nz, own)
+        root = math.sqrt(own * own + dt * dt)
+        lift = dt * dt / (root + own)
+        ev[i, 0] = s0 + dt
+        ev[i, 1] = rx + lift * nx
+        ev[i, 2] = ry + lift * ny
+        ev[i, 3] = rz + lift * nz
+        speed = dt / root
+        beta[i, 0] = speed * nx
+        beta[i, 1] = speed * ny
+        beta[i, 2] = speed * nz
+    return ev, beta

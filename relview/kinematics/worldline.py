@@ -211,9 +211,12 @@ class RigidKinematics:
         p = _as_points(points)
         s = _broadcast_time(s, p.shape[0])
         x0, b, db = self._origin(s)
-        m, dm, off, doff = self._attitude(s, relativistic=contraction)
-        q = np.einsum("nij,nj->ni", m, p) + off
-        dq = np.einsum("nij,nj->ni", dm, p) + doff
+        if type(self)._attitude is RigidKinematics._attitude:
+            q, dq = p, np.zeros_like(p)  # no attitude: q = p (skips (N, 3, 3) identities)
+        else:
+            m, dm, off, doff = self._attitude(s, relativistic=contraction)
+            q = np.einsum("nij,nj->ni", m, p) + off
+            dq = np.einsum("nij,nj->ni", dm, p) + doff
         ev = np.empty((p.shape[0], 4))
         dev = np.empty((p.shape[0], 4))
         if not contraction:
@@ -239,6 +242,12 @@ class RigidKinematics:
             dev[:, 0] = 1.0 + dg * bq + g * dbq
             dev[:, 1:] = b + dq + (dk * bq + k * dbq)[:, None] * b + (k * bq)[:, None] * db
         return ev, dev
+
+    def time_rate(self, points, s, contraction: bool = True) -> np.ndarray:
+        """dt/ds (N,): how fast each body point's event time advances with the reference
+        time ``s`` (ct, m; scalar or (N,)), the time component of :meth:`events`'
+        derivative (kinds with a closed form override it)."""
+        return self.events(points, s, contraction)[1][:, 0]
 
     def _reference_time(self, points, t_ct, contraction: bool) -> np.ndarray:
         """Reference time s at which each point's event has scene time t (ct, m)."""
