@@ -387,6 +387,9 @@ class LampTerm:
     weight: np.ndarray
     visible: np.ndarray
     irradiance: np.ndarray
+    #: cos of the angle between the outgoing direction and the mirror direction of the
+    #: lamp's light, rest frame (None without an outgoing direction)
+    cos_alpha: np.ndarray | None = None
 
 
 def _lamp_light(lamp: Lamp, events: np.ndarray, effects: Effects):
@@ -416,9 +419,11 @@ def lamp_term(
     normals: np.ndarray,
     effects: Effects,
     reference=None,
+    out_rest: np.ndarray | None = None,
 ) -> LampTerm:
     """The light of ``lamp`` at the surface events (N,4) moving with beta_s (N,3), whose
-    rest-frame normals (N,3) face the camera."""
+    rest-frame normals (N,3) face the camera; ``out_rest`` (N,3): the unit rest-frame
+    direction towards the camera, for the glossy lobe's angle."""
     n = len(events)
     rel = bool(effects.contraction)
     k, k0_lamp, ev_l, distance = _lamp_light(lamp, events, effects)
@@ -427,6 +432,10 @@ def lamp_term(
         k_rest = k
     d_in = k0_s / k0_lamp
     cos_in = np.maximum(-np.sum(normals * k_rest, axis=1), 0.0)
+    cos_alpha = None
+    if out_rest is not None:  # the law of reflection in the rest frame: k' - 2 (k'.n) n
+        mirrored = k_rest - 2.0 * np.sum(k_rest * normals, axis=1)[:, None] * normals
+        cos_alpha = np.sum(mirrored * out_rest, axis=1)
     if lamp.distant:
         d_beam = d_in if effects.beaming else np.ones(n)
         irradiance = lamp.irradiance * d_in**2 * cos_in
@@ -448,7 +457,7 @@ def lamp_term(
             effects,
             reference,
         )
-    return LampTerm(d_in, weight, visible, irradiance)
+    return LampTerm(d_in, weight, visible, irradiance, cos_alpha)
 
 
 def _unshadowed(lamp: Lamp, tracer, events, k, distance, ev_l, effects: Effects, reference):
@@ -577,8 +586,11 @@ def incident_light(
     out /= np.linalg.norm(out, axis=1)[:, None]
     _, out_rest = null_to_frame(out, beta_s, bool(effects.contraction))
     normals = normals * np.where(np.sum(normals * out_rest, axis=1) < 0, -1.0, 1.0)[:, None]
+    if not effects.aberration:
+        out_rest = out
     terms = [
-        lamp_term(lamp, tracer, events, beta_s, normals, effects, reference) for lamp in scene.lamps
+        lamp_term(lamp, tracer, events, beta_s, normals, effects, reference, out_rest)
+        for lamp in scene.lamps
     ]
     d_in = np.stack([t.d_in for t in terms])
     weight = np.stack([t.weight * t.visible for t in terms])
@@ -593,7 +605,8 @@ def incident_light(
     brightest = np.take_along_axis(d_in, np.argmax(irr, axis=0)[None], 0)[0]
     brightest = np.where(total > 0, brightest, np.nan)
     tables = [lit_table(lamp.spectrum) for lamp in scene.lamps]
-    return Incident(tables, d_in, weight), brightest, shadowed
+    cos_alpha = np.stack([t.cos_alpha for t in terms])
+    return Incident(tables, d_in, weight, cos_alpha), brightest, shadowed
 
 
 # --------------------------------------------------------------------------------------

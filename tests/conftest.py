@@ -11,6 +11,7 @@ from functools import cache
 from pathlib import Path
 
 import numpy as np
+import pytest
 
 from relview.kinematics.uniform import UniformMotion
 from relview.light.materials import Blackbody
@@ -109,6 +110,19 @@ def write_text(directory: Path, text: str, name: str = "scene.toml") -> Path:
 
 
 @cache
+def assert_scene_errors(path: Path, base: str, cases) -> None:
+    """Each (text, key) of ``cases``: the scene file ``path`` holding ``base`` + text is
+    refused with a SceneError that names the file and ``key``."""
+    from relview.errors import SceneError
+    from relview.scene.model import load_scene
+
+    for bad, key in cases:
+        path.write_text(base + bad)
+        with pytest.raises(SceneError, match=key) as info:
+            load_scene(path)
+        assert path.name in str(info.value)
+
+
 def _colour():
     import colour  # imported on first use: slow to import, and most test modules need none
 

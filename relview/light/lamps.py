@@ -413,62 +413,100 @@ def lit_table(lamp_spectrum: LampSpectrum) -> LitTable:
     return table
 
 
+def glossy_lobe(cos_alpha, exponent: float) -> np.ndarray:
+    """The normalised Phong lobe (1/sr): (n + 2) / (2 pi) cos^n(alpha), alpha the angle
+    between the outgoing direction and the mirror direction of the incident light (both in
+    the surface's rest frame), 0 beyond 90 degrees. Lafortune & Willems (1994), "Using the
+    modified Phong reflectance model for physically based rendering" (KU Leuven, report
+    CW 197): its directional albedo is 1 at normal incidence and below 1 elsewhere (part of
+    the lobe falls under the horizon), so a surface reflecting (1 - g) rho diffusely plus
+    g times this lobe never reflects more than it receives."""
+    c = np.maximum(np.asarray(cos_alpha, float), 0.0)
+    return (exponent + 2.0) / (2.0 * math.pi) * c**exponent
+
+
 class Incident:
     """The light of the scene's lamps arriving at N surface points, ready for reflection.
 
     ``tables``: one LitTable per lamp; ``d_in``: (J, N) incident Doppler factors;
     ``weight``: (J, N) the factor A of the module docstring (cos, distance, power or
     irradiance, unshadowed fraction, 1/pi), already with the beaming switch applied to the
-    distant lamps' D^-2. Surfaces of relview.light.materials call :meth:`basis_xyz`.
+    distant lamps' D^-2; ``cos_alpha``: (J, N) cosine of the angle between the outgoing
+    direction and the mirror direction of each lamp's light, in the surface's rest frame
+    (for the glossy lobe; None: not computed). Surfaces of relview.light.materials call
+    :meth:`reflected_xyz` and :meth:`spectrum_seen`.
     """
 
-    def __init__(self, tables: list[LitTable], d_in: np.ndarray, weight: np.ndarray):
+    def __init__(
+        self,
+        tables: list[LitTable],
+        d_in: np.ndarray,
+        weight: np.ndarray,
+        cos_alpha: np.ndarray | None = None,
+    ):
         self.tables = tables
         self.d_in = np.asarray(d_in, float).reshape(len(tables), -1)
         self.weight = np.asarray(weight, float).reshape(len(tables), -1)
+        self.cos_alpha = (
+            None if cos_alpha is None else np.asarray(cos_alpha, float).reshape(len(tables), -1)
+        )
 
     def subset(self, sel) -> Incident:
-        return Incident(self.tables, self.d_in[:, sel], self.weight[:, sel])
+        cos_alpha = None if self.cos_alpha is None else self.cos_alpha[:, sel]
+        return Incident(self.tables, self.d_in[:, sel], self.weight[:, sel], cos_alpha)
 
-    def spectrum_seen(self, wavelength_nm, d_out, effects, rgb) -> np.ndarray:
+    def _lit_parts(self, d_out, effects, rgb, gloss: float, exponent: float):
+        """Per lamp with light somewhere: (lamp table, rows lit, Dc_in, Dc_out, the factor
+        A times the switches' brightness factors, basis weights) over those rows. The
+        basis weights are (1 - g) rgb for the Lambert part plus g pi f_lobe on every basis
+        colour (the basis spectra sum to 1, so equal weights are a neutral lobe; pi
+        because A already holds Lambert's 1/pi). The switches act on both shifts
+        (docs/physics.md): ``doppler`` off uses D_in = D_out = 1, ``beaming`` off removes
+        the D^4 brightening of each; (Db / Dc)^4 as in spectrum.effect_factors."""
+        d_out = np.asarray(d_out, float).reshape(-1)
+        doppler_on = True if effects is None else bool(effects.doppler)
+        beaming_on = True if effects is None else bool(effects.beaming)
+        dc_out, bright_out = spectrum.effect_factors(d_out, doppler_on, beaming_on)
+        rgb = np.asarray(rgb, float)
+        for j, (table, d_in, w) in enumerate(zip(self.tables, self.d_in, self.weight, strict=True)):
+            lit = np.nonzero(w > 0)[0]
+            if len(lit) == 0:
+                continue
+            refl = rgb[lit]
+            if gloss and self.cos_alpha is not None:
+                lobe = math.pi * glossy_lobe(self.cos_alpha[j, lit], exponent)
+                refl = (1.0 - gloss) * refl + gloss * lobe[:, None]
+            dc_in, bright_in = spectrum.effect_factors(d_in[lit], doppler_on, beaming_on)
+            scale = w[lit] * bright_in * bright_out[lit]
+            yield table, lit, dc_in, dc_out[lit], scale, refl
+
+    def reflected_xyz(self, d_out, effects, rgb, gloss: float = 0.0, exponent: float = 1.0):
+        """(N, 3) XYZ reflected by surfaces of linear-sRGB reflectance ``rgb`` (N, 3), with
+        a fraction ``gloss`` of the reflection in the glossy lobe of ``exponent``
+        (:func:`glossy_lobe`), seen with ``d_out`` (switches: :meth:`_lit_parts`)."""
+        out = np.zeros((np.size(d_out), 3))
+        for table, lit, dc_in, dc_out, scale, refl in self._lit_parts(
+            d_out, effects, rgb, gloss, exponent
+        ):
+            q = table.lookup(dc_in, dc_out)
+            out[lit] += np.einsum("nc,nck->nk", refl, q) * scale[:, None]
+        return out
+
+    def spectrum_seen(
+        self, wavelength_nm, d_out, effects, rgb, gloss: float = 0.0, exponent: float = 1.0
+    ) -> np.ndarray:
         """(N, L) spectral radiance (W/(sr m^2 nm)) recorded at ``wavelength_nm`` (L,) from
-        surfaces of linear-sRGB reflectance ``rgb`` (N, 3) lit by these lamps and seen with
-        ``d_out``: sum over lamps of A (a b)^5 p(a b lambda) rho(b lambda), a = D_in,
-        b = D_out (the integrand of Q_c in the module docstring, with the switches of
-        :meth:`basis_xyz`); p averaged over each bin from the lamp's cumulative spectrum,
-        as in :class:`LitTable`."""
-        d_out = np.asarray(d_out, float).reshape(-1)
-        doppler_on = True if effects is None else bool(effects.doppler)
-        beaming_on = True if effects is None else bool(effects.beaming)
-        dc_out, bright_out = spectrum.effect_factors(d_out, doppler_on, beaming_on)
+        the surfaces of :meth:`reflected_xyz`: sum over lamps of A (a b)^5 p(a b lambda)
+        rho_j(b lambda), a = D_in, b = D_out (the integrand of Q_c in the module
+        docstring), rho_j the Lambert reflectance plus the lobe; p averaged over each bin
+        from the lamp's cumulative spectrum, as in :class:`LitTable`."""
         lam = np.asarray(wavelength_nm, float)
-        rho = np.einsum("nlc,nc->nl", materials.reflectance_basis(dc_out[:, None] * lam), rgb)
-        out = np.zeros((d_out.size, lam.size))
-        for table, d_in, w in zip(self.tables, self.d_in, self.weight, strict=True):
-            lit = w > 0
-            if not np.any(lit):
-                continue
-            dc_in, bright_in = spectrum.effect_factors(d_in[lit], doppler_on, beaming_on)
+        out = np.zeros((np.size(d_out), lam.size))
+        for table, lit, dc_in, dc_out, scale, refl in self._lit_parts(
+            d_out, effects, rgb, gloss, exponent
+        ):
             # (a b)^5 p(a b lambda) averaged over each bin: (a b)^4 dC / dlambda
-            p = materials.shifted_bins(table.spectrum.energy_below, lam, dc_in * dc_out[lit], None)
-            out[lit] += p * (w[lit] * bright_in * bright_out[lit])[:, None]
-        return out * rho
-
-    def basis_xyz(self, d_out, effects) -> np.ndarray:
-        """(N, 3 basis, 3 XYZ) reflected by a perfect reflector of each basis colour, seen
-        with ``d_out``. The switches act on both shifts (docs/physics.md): ``doppler`` off
-        looks the colour up at D_in = D_out = 1, ``beaming`` off removes the D^4
-        brightening of each; (Db / Dc)^4 as in relview.light.spectrum.effect_factors."""
-        d_out = np.asarray(d_out, float).reshape(-1)
-        doppler_on = True if effects is None else bool(effects.doppler)
-        beaming_on = True if effects is None else bool(effects.beaming)
-        dc_out, bright_out = spectrum.effect_factors(d_out, doppler_on, beaming_on)
-        out = np.zeros((d_out.size, 3, 3))
-        for table, d_in, w in zip(self.tables, self.d_in, self.weight, strict=True):
-            lit = w > 0
-            if not np.any(lit):
-                continue
-            dc_in, bright_in = spectrum.effect_factors(d_in[lit], doppler_on, beaming_on)
-            q = table.lookup(dc_in, dc_out[lit])
-            out[lit] += q * (w[lit] * bright_in * bright_out[lit])[:, None, None]
+            p = materials.shifted_bins(table.spectrum.energy_below, lam, dc_in * dc_out, None)
+            rho = materials.reflectance_basis(dc_out[:, None] * lam) @ refl[:, :, None]
+            out[lit] += p * rho[:, :, 0] * scale[:, None]
         return out

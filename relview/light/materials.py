@@ -52,6 +52,11 @@ NAMED_LAMPS = ("D65",)
 DEFAULT_LAMP_K = 5800.0
 #: deepest nesting of ``pattern`` surfaces in a scene file
 MAX_PATTERN_DEPTH = 4
+#: exponent of the glossy lobe of a ``color`` that gives ``gloss`` but no exponent (a
+#: highlight about 20 degrees wide at half maximum; common practice for a satin finish)
+DEFAULT_GLOSS_EXPONENT = 50.0
+#: sharpest glossy lobe a scene file may ask for (about 1.3 degrees wide at half maximum)
+MAX_GLOSS_EXPONENT = 1e4
 
 
 def _effect_switches(effects) -> tuple[bool, bool]:
@@ -554,6 +559,10 @@ class Reflective(Surface):
         #: lit by the scene's lamps (when it has any) instead of the co-moving lamp: set
         #: by from_table for a ``color`` that names neither ``lamp`` nor ``luminance``
         self.scene_lit = False
+        #: fraction of the reflection of the scene's lamps in a glossy lobe (0: Lambert
+        #: only), and the lobe's exponent (relview.light.lamps.glossy_lobe)
+        self.gloss = 0.0
+        self.gloss_exponent = DEFAULT_GLOSS_EXPONENT
 
     @classmethod
     def from_table(cls, table) -> Reflective:
@@ -585,6 +594,18 @@ class Reflective(Surface):
             texture=texture,
         )
         surface.scene_lit = not (table.has("lamp") or table.has("luminance"))
+        for key in ("gloss", "gloss_exponent"):
+            if table.has(key) and not surface.scene_lit:
+                raise table.error(
+                    key,
+                    f"{key} = {table.show(table.data[key])}: a glossy lobe needs the scene's "
+                    "lamps, and this color names its own lamp or luminance",
+                    table.data[key],
+                )
+        surface.gloss = table.number("gloss", 0.0, low=0.0, high=1.0)
+        surface.gloss_exponent = table.number(
+            "gloss_exponent", DEFAULT_GLOSS_EXPONENT, low=1.0, high=MAX_GLOSS_EXPONENT
+        )
         return surface
 
     def key(self):
@@ -592,6 +613,8 @@ class Reflective(Surface):
         if self.texture is not None:
             tex = (str(self.texture), hash(self._texels.tobytes()))
         lit = ("scene-lit",) if self.scene_lit else ()  # lit by the scene's lamps instead
+        if self.gloss:
+            lit += ("gloss", self.gloss, self.gloss_exponent)
         return ("reflective", self.rgb, self.lamp_key, self.luminance, tex) + lit
 
     def basis_tables(self) -> list[spectrum.DopplerTable]:
@@ -646,7 +669,8 @@ class Reflective(Surface):
         if not self.scene_lit:
             return self.observed_xyz(doppler, rest_position, uv, effects)
         d = _as_doppler(doppler)
-        return np.einsum("nc,nck->nk", self.colour_at(uv, d.size), incident.basis_xyz(d, effects))
+        rgb = self.colour_at(uv, d.size)
+        return incident.reflected_xyz(d, effects, rgb, self.gloss, self.gloss_exponent)
 
     def spectrum_seen(
         self, wavelength_nm, doppler, rest_position=None, uv=None, effects=None, incident=None
@@ -654,7 +678,9 @@ class Reflective(Surface):
         d = _as_doppler(doppler)
         rgb = self.colour_at(uv, d.size)
         if self.scene_lit and incident is not None:
-            return incident.spectrum_seen(wavelength_nm, d, effects, rgb)
+            return incident.spectrum_seen(
+                wavelength_nm, d, effects, rgb, self.gloss, self.gloss_exponent
+            )
         # the co-moving lamp: spd x reflectance x luminance / white, seen with D
         norm = _LAMP_NORMS.get(("lamp-white", self.lamp_key))
         if norm is None:
@@ -1227,7 +1253,9 @@ SURFACE_KINDS: dict[str, SurfaceKind] = {
     "line": SurfaceKind(EmissionLines.from_table),
     "lines": SurfaceKind(EmissionLines.from_table),
     "spectrum": SurfaceKind(TabulatedSpectrum.from_table),
-    "color": SurfaceKind(Reflective.from_table, ("lamp", "luminance", "texture")),
+    "color": SurfaceKind(
+        Reflective.from_table, ("lamp", "luminance", "texture", "gloss", "gloss_exponent")
+    ),
     "pattern": SurfaceKind(Pattern.from_table),
     "clock_face": SurfaceKind(ClockFace.from_table),
     "mirror": SurfaceKind(Mirror.from_table, ("bounces", "tint")),
