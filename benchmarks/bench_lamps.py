@@ -111,6 +111,16 @@ def main(argv=None) -> int:
         runs = timed(scene, args.repeats)
         medians[key] = statistics.median(runs)
         print(f"{label:26s} {medians[key]:.3f} s [{min(runs):.3f}-{max(runs):.3f}]")
+    # the mirror figure means something only if its reflected rays do the work of a frame:
+    # the sky is black here, so a reflected ray that meets no body shows exactly zero
+    scene = relview.Scene.from_dict(tomllib.loads(scene_text(width, height, False, True)))
+    frame = relview.render(scene)
+    on_mirror = frame.layers["body"] == [b.name for b in scene.bodies].index("backdrop")
+    met = frame.layers["xyz"][on_mirror][:, 1] > 0
+    print(
+        f"mirror: {on_mirror.mean():.0%} of the pixels; "
+        f"{met.mean():.1%} of their reflected rays meet a body"
+    )
     print(f"lamp ratio {medians['lamp'] / medians['bare']:.2f} (target <= {TARGET_RATIO})")
     print(
         f"mirror ratio {medians['mirror'] / medians['bare']:.2f} (target <= {TARGET_MIRROR_RATIO})"
