@@ -241,7 +241,7 @@ def test_proper_time_layer_matches_the_exact_probe(kind):
 def _decode_digits(face, reading, n_cells):
     """Read the seven-segment display of a ClockFace back by sampling each segment's
     middle (segment layout a-g, common practice for numeric displays)."""
-    from relview.light.materials import _SEGMENTS
+    from relview.light.surfaces.clock_face import _SEGMENTS
 
     pitch, width = 0.21, 0.16
     left = -0.5 * (n_cells * pitch - (pitch - width))

@@ -28,7 +28,7 @@ sources (docs/physics.md, "Lamps"):
 * to the camera: L_obs(lambda) = D_out^5 L_lambda(D_out lambda) (physics.md).
 
 So a surface of linear-sRGB reflectance (r, g, b) (Mallett & Yuksel basis, as for the
-co-moving-lamp surfaces of relview.light.materials) lit by one lamp records
+co-moving-lamp surfaces of relview.light.surfaces) lit by one lamp records
 
     XYZ = A * sum_c rgb_c Q_c(D_in, D_out),
     Q_c(a, b) = (a b)^5 K_m integral xbar(lambda) B_c(b lambda) p(a b lambda) d lambda,
@@ -48,7 +48,7 @@ from collections.abc import Callable, Hashable
 import numpy as np
 from numba import njit, prange
 
-from relview.light import materials, spectrum
+from relview.light import spectrum, surfaces
 from relview.light.spectrum import K_M_LM_PER_W
 
 #: Wien's displacement constant b = lambda_max T, nm K (CODATA 2018: 2.897771955e-3 m K)
@@ -56,7 +56,7 @@ WIEN_NM_K = 2.897771955e6
 #: keys that choose a lamp's spectrum (exactly one is given)
 SPECTRUM_KEYS = ("blackbody", "line", "lines", "spectrum", "illuminant")
 #: standard illuminants a lamp may name
-ILLUMINANTS = materials.NAMED_LAMPS
+ILLUMINANTS = surfaces.NAMED_LAMPS
 
 
 class LampSpectrum:
@@ -144,10 +144,10 @@ class LampSpectrum:
 
     @classmethod
     def from_surface(cls, surface) -> LampSpectrum:
-        """The spectrum of an emission-line or tabulated surface of relview.light.materials
+        """The spectrum of an emission-line or tabulated surface of relview.light.surfaces
         (its rest-frame spectral radiance, as relative power)."""
         knots = surface.knots_nm()
-        if isinstance(surface, materials.EmissionLines):
+        if isinstance(surface, surfaces.EmissionLines):
             width = surface._sigma.max() * 12.0
             span = (max(surface._centre.min() - width, 1e-3), surface._centre.max() + width)
         else:
@@ -172,8 +172,8 @@ class LampSpectrum:
             return cls.blackbody(
                 table.number(
                     "blackbody",
-                    low=materials.MIN_LAMP_TEMPERATURE,
-                    high=materials.MAX_TEMPERATURE,
+                    low=surfaces.MIN_LAMP_TEMPERATURE,
+                    high=surfaces.MAX_TEMPERATURE,
                     unit="K",
                 )
             )
@@ -181,9 +181,9 @@ class LampSpectrum:
             return cls.illuminant(table.string("illuminant", choices=ILLUMINANTS))
         try:
             if kind == "spectrum":
-                surface = materials.TabulatedSpectrum.from_table(table)
+                surface = surfaces.TabulatedSpectrum.from_table(table)
             else:
-                surface = materials.EmissionLines.from_table(table)
+                surface = surfaces.EmissionLines.from_table(table)
             return cls.from_surface(surface)
         except ValueError as exc:
             raise table.error(kind, f"{kind} = {table.show(value)}: {exc}", value) from exc
@@ -203,7 +203,7 @@ def sphere_radiance(power_w: float, radius_m: float) -> float:
     return float(power_w) / (4.0 * math.pi**2 * float(radius_m) ** 2)
 
 
-class SphereGlow(materials.SpectralSurface):
+class SphereGlow(surfaces.SpectralSurface):
     """The surface of a sphere lamp: a self-luminous emitter of the lamp's spectrum whose
     bolometric radiance in its rest frame is ``radiance`` (W/(sr m^2)), spectral radiance
     radiance x p(lambda); seen with the Doppler factor of its points like any body
@@ -236,7 +236,7 @@ class SphereGlow(materials.SpectralSurface):
     def spectrum_seen(
         self, wavelength_nm, doppler, rest_position=None, uv=None, effects=None, incident=None
     ) -> np.ndarray:
-        return self.radiance * materials.shifted_bins(
+        return self.radiance * surfaces.shifted_bins(
             self.spectrum.energy_below, wavelength_nm, doppler, effects
         )
 
@@ -275,8 +275,8 @@ def plane_wave_irradiance(irradiance_w_m2, d_in, cos_incidence) -> np.ndarray:
 #: the reflectance basis is constant outside its table (380-780 nm), so for
 #: D_out lambda outside it over the whole CMF range (360-830 nm) Q no longer depends on
 #: D_out except through D_in D_out: the v axis is clamped there, exactly
-V_MIN = math.log(materials.BASIS_WAVELENGTHS_NM[0] / spectrum.VISIBLE_MAX_NM)
-V_MAX = math.log(materials.BASIS_WAVELENGTHS_NM[-1] / spectrum.VISIBLE_MIN_NM)
+V_MIN = math.log(surfaces.BASIS_WAVELENGTHS_NM[0] / spectrum.VISIBLE_MAX_NM)
+V_MAX = math.log(surfaces.BASIS_WAVELENGTHS_NM[-1] / spectrum.VISIBLE_MIN_NM)
 #: node spacings in ln(D_in D_out) and ln D_out (accuracy measured in tests/test_lamps.py)
 U_STEP = math.log(10.0) / 400.0
 V_STEP = 0.005
@@ -302,7 +302,7 @@ class LitTable:
         self.v0 = V_MIN
         self.v_nodes = V_MIN + np.arange(nv) * V_STEP
         # (L, V*3*3): xbar_k(lambda) B_c(e^v lambda) per node v, basis c, channel k
-        basis = materials.reflectance_basis(np.exp(self.v_nodes)[:, None] * lam[None, :])
+        basis = surfaces.reflectance_basis(np.exp(self.v_nodes)[:, None] * lam[None, :])
         weights = np.einsum("lk,vlc->lvck", spectrum.CMF_VALUES, basis)
         self._weights = K_M_LM_PER_W * weights.reshape(len(lam), -1)
         self.k_lo = 0
@@ -362,7 +362,7 @@ class LitTable:
         bins = (
             self.spectrum.energy_below(scale * e[1:]) - self.spectrum.energy_below(scale * e[:-1])
         ) / scale
-        basis = materials.reflectance_basis(d_out * self._lam)
+        basis = surfaces.reflectance_basis(d_out * self._lam)
         return K_M_LM_PER_W * scale**5 * np.einsum("l,lk,lc->ck", bins, spectrum.CMF_VALUES, basis)
 
 
@@ -433,7 +433,7 @@ class Incident:
     irradiance, unshadowed fraction, 1/pi), already with the beaming switch applied to the
     distant lamps' D^-2; ``cos_alpha``: (J, N) cosine of the angle between the outgoing
     direction and the mirror direction of each lamp's light, in the surface's rest frame
-    (for the glossy lobe; None: not computed). Surfaces of relview.light.materials call
+    (for the glossy lobe; None: not computed). Surfaces of relview.light.surfaces call
     :meth:`reflected_xyz` and :meth:`spectrum_seen`.
     """
 
@@ -506,7 +506,7 @@ class Incident:
             d_out, effects, rgb, gloss, exponent
         ):
             # (a b)^5 p(a b lambda) averaged over each bin: (a b)^4 dC / dlambda
-            p = materials.shifted_bins(table.spectrum.energy_below, lam, dc_in * dc_out, None)
-            rho = materials.reflectance_basis(dc_out[:, None] * lam) @ refl[:, :, None]
+            p = surfaces.shifted_bins(table.spectrum.energy_below, lam, dc_in * dc_out, None)
+            rho = surfaces.reflectance_basis(dc_out[:, None] * lam) @ refl[:, :, None]
             out[lit] += p * rho[:, :, 0] * scale[:, None]
         return out

@@ -33,7 +33,7 @@ import numpy as np
 from relview.geometry import camera as cam_mod
 from relview.kinematics.lorentz import aberrate_to_camera, compose_velocities, doppler_along
 from relview.light import spectrum
-from relview.light.materials import shifted_spectrum
+from relview.light.surfaces import shifted_spectrum
 from relview.scene.parts import Background, Camera, Effects
 
 T_REF_K = 1000.0

@@ -36,8 +36,8 @@ from relview.kinematics.magnitudes import read_time, refuse_unresolvable
 from relview.kinematics.uniform import UniformMotion
 from relview.light.lamps import SPECTRUM_KEYS as LAMP_SPECTRUM_KEYS
 from relview.light.lamps import LampSpectrum, SphereGlow, sphere_radiance
-from relview.light.materials import MAX_TEMPERATURE, read_surface
 from relview.light.sky import CMB_TEMPERATURE_K
+from relview.light.surfaces import MAX_TEMPERATURE, read_surface
 from relview.scene.parts import (
     Animation,
     Background,
@@ -85,14 +85,14 @@ def _parse_motion(body: Table) -> Any:
 
 
 def _is_surface_object(value: Any) -> bool:
-    """A ready-made relview.light.materials surface (Scene.from_dict in scripts)."""
+    """A ready-made relview.light.surfaces surface (Scene.from_dict in scripts)."""
     return hasattr(value, "observed_xyz") and hasattr(value, "key")
 
 
 def _parse_surface(body: Table) -> Any:
     if _is_surface_object(body.data.get("surface")):
         return body.data["surface"]
-    # each surface kind reads its own keys (relview.light.materials.SURFACE_KINDS)
+    # each surface kind reads its own keys (relview.light.surfaces.SURFACE_KINDS)
     return read_surface(body.table("surface", section="body.surface"))
 
 
