@@ -82,6 +82,22 @@ def shifted_bins(cumulative, wavelength_nm, doppler, effects) -> np.ndarray:
     return np.diff(c, axis=1) / np.diff(edges)[None, :] * (dc**4 * bright)[:, None]
 
 
+def _split_xyz(parts, d, pos, uv, effects, incident) -> np.ndarray:
+    """(N, 3) XYZ of a surface made of ``parts`` [(surface, rows)] (patterns and dials:
+    each part's own colour where its mask selects it), lit by ``incident`` or, when it is
+    None, by each part's own light."""
+    out = np.zeros((d.size, 3))
+    for surface, sel in parts:
+        if np.any(sel):
+            args = (d[sel], pos[sel], None if uv is None else uv[sel], effects)
+            out[sel] = (
+                surface.observed_xyz(*args)
+                if incident is None
+                else surface.lit_xyz(*args, incident.subset(sel))
+            )
+    return out
+
+
 def _split_spectra(parts, wavelength_nm, d, pos, uv, effects, incident) -> np.ndarray:
     """(N, L) seen spectra of a surface made of ``parts`` [(surface, rows)] (patterns and
     dials: each part's own spectrum where its mask selects it)."""
@@ -97,6 +113,19 @@ def _split_spectra(parts, wavelength_nm, d, pos, uv, effects, incident) -> np.nd
                 None if incident is None else incident.subset(sel),
             )
     return out
+
+
+def read_reflectances(table, key: str) -> np.ndarray:
+    """``key = [r, g, b]``: three linear-sRGB reflectances, each 0..1 (``color``, a
+    mirror's ``tint``), or a scene error naming the key and value."""
+    rgb = table.vector(key, 3)
+    if np.any(rgb < 0) or np.any(rgb > 1):
+        raise table.error(
+            key,
+            f"reflectances must lie in 0..1, got {key} = {table.show(table.data[key])}",
+            table.data[key],
+        )
+    return rgb
 
 
 class Surface:

@@ -9,6 +9,7 @@ from relview.light.surfaces.base import (
     _as_doppler,
     _positive_number,
     _split_spectra,
+    _split_xyz,
 )
 from relview.light.surfaces.nesting import read_nested
 from relview.light.surfaces.reflective import Reflective
@@ -199,16 +200,8 @@ class ClockFace(Surface):
             proper_time = np.full(d.size, np.nan)
         mask = self.ink_mask(rest_position, proper_time)
         pos = np.asarray(rest_position, dtype=float).reshape(-1, 3)
-        out = np.zeros((d.size, 3))
-        for surface, sel in ((self.first, ~mask), (self.second, mask)):
-            if np.any(sel):
-                args = (d[sel], pos[sel], None, effects)
-                out[sel] = (
-                    surface.observed_xyz(*args)
-                    if incident is None
-                    else surface.lit_xyz(*args, incident.subset(sel))
-                )
-        return out
+        parts = ((self.first, ~mask), (self.second, mask))
+        return _split_xyz(parts, d, pos, None, effects, incident)
 
     def spectrum_seen(
         self,

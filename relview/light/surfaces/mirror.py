@@ -10,6 +10,7 @@ import numpy as np
 from relview.light.surfaces.base import (
     Surface,
     _as_doppler,
+    read_reflectances,
 )
 from relview.light.surfaces.reflective import reflectance_basis
 
@@ -65,14 +66,8 @@ class Mirror(Surface):
             bounces = table.integer("bounces", low=1, high=MAX_BOUNCES)
         tint = None
         if table.has("tint"):
-            tint = table.vector("tint", 3)
-            if np.any(tint < 0) or np.any(tint > 1):
-                raise table.error(
-                    "tint",
-                    f"reflectances must lie in 0..1, got tint = {table.show(table.data['tint'])}",
-                    table.data["tint"],
-                )
-        return cls(r, bounces, None if tint is None else tuple(float(c) for c in tint))
+            tint = tuple(float(c) for c in read_reflectances(table, "tint"))
+        return cls(r, bounces, tint)
 
     def key(self):
         return ("mirror", self.reflectivity, self.bounces, self.tint)

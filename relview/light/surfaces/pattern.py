@@ -11,6 +11,7 @@ from relview.light.surfaces.base import (
     _as_doppler,
     _positive_number,
     _split_spectra,
+    _split_xyz,
 )
 from relview.light.surfaces.nesting import read_nested
 from relview.light.surfaces.reflective import Reflective
@@ -155,16 +156,8 @@ class Pattern(Surface):
             raise ValueError(f"pattern: {d.size} Doppler factors but {mask.shape[0]} positions")
         pos = np.asarray(rest_position, dtype=float).reshape(-1, 3)
         uv_arr = None if uv is None else np.asarray(uv, dtype=float).reshape(-1, 2)
-        out = np.zeros((d.size, 3))
-        for surface, sel in ((self.first, ~mask), (self.second, mask)):
-            if np.any(sel):
-                args = (d[sel], pos[sel], None if uv_arr is None else uv_arr[sel], effects)
-                out[sel] = (
-                    surface.observed_xyz(*args)
-                    if incident is None
-                    else surface.lit_xyz(*args, incident.subset(sel))
-                )
-        return out
+        parts = ((self.first, ~mask), (self.second, mask))
+        return _split_xyz(parts, d, pos, uv_arr, effects, incident)
 
     def spectrum_seen(
         self, wavelength_nm, doppler, rest_position, uv=None, effects=None, incident=None

@@ -20,6 +20,7 @@ from relview.light.surfaces.base import (
     _as_doppler,
     _effect_switches,
     _positive_number,
+    read_reflectances,
 )
 
 #: exponent of the glossy lobe of a ``color`` that gives ``gloss`` but no exponent (a
@@ -121,13 +122,7 @@ class Reflective(Surface):
     def from_table(cls, table) -> Reflective:
         """``color = [r, g, b]`` (linear sRGB reflectance), optional ``lamp`` (K or a named
         lamp, default a 5800 K blackbody), ``luminance`` (cd/m^2) and ``texture`` (image)."""
-        rgb = table.vector("color", 3)
-        if np.any(rgb < 0) or np.any(rgb > 1):
-            raise table.error(
-                "color",
-                f"reflectances must lie in 0..1, got color = {table.show(table.data['color'])}",
-                table.data["color"],
-            )
+        rgb = read_reflectances(table, "color")
         lamp: float | str = DEFAULT_LAMP_K
         if table.has("lamp"):
             if isinstance(table.data["lamp"], str):
