@@ -535,6 +535,50 @@ def test_spin_on_hyperbolic_matches_brentq():
     )  # scipy brentq, independent
 
 
+@pytest.mark.parametrize("contraction", [True, False])
+def test_spin_on_uniform_compiled_solves_match_generic_solver(contraction):
+    # Spins carried by uniform motion (and rolling wheels) solve the light cone and the
+    # simultaneity condition in compiled code: the same equations and iteration as the
+    # base class's vectorised solver, checked against it, scipy's brentq and the light-cone
+    # condition itself.
+    rng = np.random.default_rng(11)
+    motions = [
+        RollingMotion(
+            radius=0.5, beta=np.array([0.8, 0.0, 0.0]), position=np.array([0.0, 0.0, 0.5])
+        ),
+        SpinMotion(
+            base=UniformMotion(
+                beta=np.array([0.3, -0.5, 0.2]), position=np.array([1.0, 2.0, 3.0]), time=2e-9
+            ),
+            axis=np.array([0.3, 0.4, 1.0]),
+            angular_velocity=0.5 * C,
+            center_offset=np.array([0.1, 0.0, -0.2]),
+            time=1e-9,
+            phase=33.0,
+        ),
+    ]
+    cam = np.array([3.0, 1.0, -3.0, 1.2])
+    for mot in motions:
+        pts = rng.uniform(-0.5, 0.5, size=(300, 3))
+        ev, beta = mot.retarded(pts, cam, contraction=contraction)
+        ev_n, beta_n = RigidKinematics.retarded(mot, pts, cam, contraction=contraction)
+        scale = cam[0] - ev_n[:, 0] + 1.0
+        np.testing.assert_array_less(np.abs(ev - ev_n).max(axis=1), 1e-12 * scale)
+        np.testing.assert_allclose(beta, beta_n, rtol=0, atol=1e-12)
+        assert_on_light_cone(ev, cam, rtol=1e-11)
+        s = mot._reference_time(pts, ev[:, 0], contraction)
+        s_n = RigidKinematics._reference_time(mot, pts, ev[:, 0], contraction)
+        np.testing.assert_array_less(np.abs(s - s_n), 1e-12 * (1.0 + np.abs(s_n)))
+        np.testing.assert_allclose(
+            mot.time_rate(pts, s, contraction),
+            RigidKinematics.time_rate(mot, pts, s, contraction),
+            rtol=1e-13,
+        )
+        for i in range(0, 300, 100):  # scipy brentq, independent root finder
+            t_ref = brentq_emission(mot, pts[i], cam, contraction)
+            assert abs(ev[i, 0] - t_ref) <= 1e-11 * (cam[0] - t_ref + 1.0)
+
+
 def test_spin_rejects_rim_at_light_speed():
     mot = SpinMotion(
         base=UniformMotion(beta=np.array([0.5, 0, 0])), angular_velocity=0.5 * C

@@ -7,11 +7,20 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
+from numba import njit, prange
 
 from relview.kinematics.lorentz import C
 from relview.kinematics.magnitudes import read_position, read_time
+from relview.kinematics.solvers import SOLVER_RTOL
 from relview.kinematics.uniform import UniformMotion
-from relview.kinematics.worldline import RigidKinematics, _rotation, _unit, _vec3
+from relview.kinematics.worldline import (
+    RigidKinematics,
+    _as_points,
+    _points_and_times,
+    _rotation,
+    _unit,
+    _vec3,
+)
 
 # ----------------------------------------------------------------------------- spin
 
@@ -98,6 +107,59 @@ class SpinMotion(RigidKinematics):
         b = np.einsum("nij,nj->ni", mb, shift) + bb
         db = np.einsum("nij,nj->ni", dmb, shift) + np.einsum("nij,nj->ni", mb, dshift) + dbb
         return m, dm, b, db
+
+    # -- compiled solves for a spin carried by uniform motion (spins and rolling wheels)
+    #
+    # The light-cone and simultaneity conditions are those of RigidKinematics.retarded and
+    # _reference_time, solved by the same safeguarded Newton iteration
+    # (relview.kinematics.solvers, Numerical Recipes §9.4) point by point in compiled code:
+    # with a uniform base the event of body point p at reference time s has the closed
+    # form of :func:`_spin_event` (the rigid-body model of worldline.py with the Rodrigues
+    # rotation of _attitude), so nothing needs (N, 3, 3) matrices.
+
+    def _compiled_parameters(self, relativistic: bool):
+        """The float parameters of :func:`_spin_event`, or None when the base motion is not
+        uniform (the generic solver then serves)."""
+        base = self._base
+        if not isinstance(base, UniformMotion):
+            return None
+        return np.concatenate(
+            [
+                base.position,
+                base.beta,
+                [base.s0, base.gamma, self.omega_ct, self.tau0, math.radians(self.phase)],
+                self.axis,
+                self.center_offset,
+                [float(self.time) * C, 1.0 if relativistic else 0.0],
+            ]
+        )
+
+    def retarded(self, points, camera_event, delay: bool = True, contraction: bool = True):
+        prm = self._compiled_parameters(contraction)
+        if prm is None or not delay:
+            return super().retarded(points, camera_event, delay, contraction)
+        return _spin_retarded(
+            np.ascontiguousarray(_as_points(points)),
+            np.asarray(camera_event, dtype=float).reshape(4),
+            prm,
+            SOLVER_RTOL,
+        )
+
+    def _reference_time(self, points, t_ct, contraction: bool) -> np.ndarray:
+        prm = self._compiled_parameters(contraction)
+        if prm is None or not contraction:
+            return super()._reference_time(points, t_ct, contraction)
+        p, t = _points_and_times(points, t_ct)
+        return _spin_reference_times(
+            np.ascontiguousarray(p), np.ascontiguousarray(t), prm, SOLVER_RTOL
+        )
+
+    def time_rate(self, points, s, contraction: bool = True) -> np.ndarray:
+        prm = self._compiled_parameters(contraction)
+        if prm is None:
+            return super().time_rate(points, s, contraction)
+        p, s = _points_and_times(points, s)
+        return _spin_time_rates(np.ascontiguousarray(p), np.ascontiguousarray(s), prm)
 
     def _sample_times(self):
         base = self._base._sample_times()
@@ -223,3 +285,192 @@ class RollingMotion(RigidKinematics):
 
     def _closed_form_check(self, extent_m):
         self._spin._closed_form_check(extent_m)
+
+    def retarded(self, points, camera_event, delay: bool = True, contraction: bool = True):
+        return self._spin.retarded(points, camera_event, delay, contraction)
+
+    def _reference_time(self, points, t_ct, contraction: bool) -> np.ndarray:
+        return self._spin._reference_time(points, t_ct, contraction)
+
+    def time_rate(self, points, s, contraction: bool = True) -> np.ndarray:
+        return self._spin.time_rate(points, s, contraction)
+
+
+# ----------------------------------------------------------------------------- kernels
+
+
+@njit(cache=True, inline="always")
+def _spin_event(px, py, pz, s, prm):
+    """Event (t, x, y, z) of body point p at reference time s, and its derivative in s, for
+    a spin on uniform motion (parameters: SpinMotion._compiled_parameters). As
+    RigidKinematics.events with SpinMotion._attitude: q = R (p - c) + c (Rodrigues'
+    rotation by omega (tau - tau0) + phase, tau = (s - s0) / gamma; Galilean: omega (s -
+    t_spin) + phase), dq/ds = rate axis x R (p - c); E = (s + gamma beta.q, X(s) + q +
+    gamma^2/(gamma+1) (beta.q) beta) (Jackson eq. 11.98); Galilean E = (s, X(s) + q)."""
+    bx, by, bz = prm[3], prm[4], prm[5]
+    g = prm[7]
+    rel = prm[18] > 0.5
+    if rel:
+        angle = prm[8] * ((s - prm[6]) / g - prm[9]) + prm[10]
+        rate = prm[8] / g
+    else:
+        angle = prm[8] * (s - prm[17]) + prm[10]
+        rate = prm[8]
+    ax, ay, az = prm[11], prm[12], prm[13]
+    vx, vy, vz = px - prm[14], py - prm[15], pz - prm[16]
+    co = math.cos(angle)
+    si = math.sin(angle)
+    av = ax * vx + ay * vy + az * vz
+    cx, cy, cz = ay * vz - az * vy, az * vx - ax * vz, ax * vy - ay * vx
+    rx = vx * co + cx * si + ax * av * (1.0 - co)
+    ry = vy * co + cy * si + ay * av * (1.0 - co)
+    rz = vz * co + cz * si + az * av * (1.0 - co)
+    qx, qy, qz = rx + prm[14], ry + prm[15], rz + prm[16]
+    dqx = rate * (ay * rz - az * ry)
+    dqy = rate * (az * rx - ax * rz)
+    dqz = rate * (ax * ry - ay * rx)
+    d = s - prm[6]
+    xx, xy, xz = prm[0] + bx * d, prm[1] + by * d, prm[2] + bz * d
+    if rel:
+        bq = bx * qx + by * qy + bz * qz
+        bdq = bx * dqx + by * dqy + bz * dqz
+        k = g * g / (g + 1.0)
+        return (
+            s + g * bq,
+            xx + qx + k * bq * bx,
+            xy + qy + k * bq * by,
+            xz + qz + k * bq * bz,
+            1.0 + g * bdq,
+            bx + dqx + k * bdq * bx,
+            by + dqy + k * bdq * by,
+            bz + dqz + k * bdq * bz,
+        )
+    return s, xx + qx, xy + qy, xz + qz, 1.0, bx + dqx, by + dqy, bz + dqz
+
+
+@njit(cache=True, inline="always")
+def _light_cone(px, py, pz, s, cam, prm):
+    """h(s) = |x_c - x| - (t_c - t) and dh/ds (RigidKinematics.retarded's function)."""
+    t, x, y, z, dt, dx, dy, dz = _spin_event(px, py, pz, s, prm)
+    rx, ry, rz = cam[1] - x, cam[2] - y, cam[3] - z
+    rn = math.sqrt(rx * rx + ry * ry + rz * rz)
+    slope = dt
+    if rn > 0.0:
+        slope -= (rx * dx + ry * dy + rz * dz) / rn
+    return rn - (cam[0] - t), slope
+
+
+@njit(cache=True, inline="always")
+def _simultaneity(px, py, pz, s, target, prm):
+    """t(s) - target and dt/ds (RigidKinematics._reference_time's function)."""
+    t, _, _, _, dt, _, _, _ = _spin_event(px, py, pz, s, prm)
+    return t - target, dt
+
+
+@njit(cache=True, inline="always")
+def _rtsafe(px, py, pz, guess, step, tol, cam, target, prm, cone):
+    """The root of the increasing function (the light cone if ``cone``, else simultaneity)
+    by solvers._solve_increasing's iteration for one point: doubling steps out from the
+    guess to a bracket (NaN without one), then Newton, bisecting when a step leaves it."""
+    lo = -np.inf
+    hi = np.inf
+    if cone:
+        h, _ = _light_cone(px, py, pz, guess, cam, prm)
+    else:
+        h, _ = _simultaneity(px, py, pz, guess, target, prm)
+    if h == 0.0:
+        return guess
+    if h < 0.0:
+        lo = guess
+    elif h > 0.0:
+        hi = guess
+    step = max(step, 1e-300)
+    for _ in range(120):
+        if lo > -np.inf and hi < np.inf:
+            break
+        trial = lo + step if lo > -np.inf else hi - step
+        if cone:
+            ht, _ = _light_cone(px, py, pz, trial, cam, prm)
+        else:
+            ht, _ = _simultaneity(px, py, pz, trial, target, prm)
+        if ht == 0.0:
+            return trial
+        if ht < 0.0:
+            lo = trial
+        elif ht > 0.0:
+            hi = trial
+        step *= 2.0
+    if not (lo > -np.inf and hi < np.inf):
+        return np.nan
+    x = guess if lo <= guess <= hi else 0.5 * (lo + hi)
+    for _ in range(200):
+        if cone:
+            h, dh = _light_cone(px, py, pz, x, cam, prm)
+        else:
+            h, dh = _simultaneity(px, py, pz, x, target, prm)
+        if h == 0.0:
+            return x
+        if h < 0.0:
+            lo = x
+        elif h > 0.0:
+            hi = x
+        newton = x - h / dh if dh > 0.0 else np.nan
+        small = dh > 0.0 and abs(h / dh) <= tol
+        if (dh > 0.0 and lo <= newton <= hi) or small:
+            x = newton
+        else:
+            x = 0.5 * (lo + hi)
+        if small or hi - lo <= tol:
+            break
+    return x
+
+
+@njit(cache=True, parallel=True)
+def _spin_retarded(points, cam, prm, rtol):
+    """Emission events (N, 4) and velocities (N, 3): RigidKinematics.retarded's guess,
+    step and tolerance (the light-travel distance from where each point is at reference
+    time t_c), for a spin on uniform motion."""
+    n = points.shape[0]
+    ev = np.empty((n, 4))
+    beta = np.empty((n, 3))
+    eps = np.finfo(np.float64).eps
+    for i in prange(n):
+        px, py, pz = points[i, 0], points[i, 1], points[i, 2]
+        t, x, y, z, _, _, _, _ = _spin_event(px, py, pz, cam[0], prm)
+        dist = math.sqrt((cam[1] - x) ** 2 + (cam[2] - y) ** 2 + (cam[3] - z) ** 2)
+        dist += abs(t - cam[0])
+        step = dist + 1e-9 * (1.0 + abs(cam[0]))
+        tol = rtol * dist + 4 * eps * (abs(cam[0]) + dist) + 1e-300
+        s = _rtsafe(px, py, pz, cam[0] - dist, step, tol, cam, 0.0, prm, True)
+        t, x, y, z, dt, dx, dy, dz = _spin_event(px, py, pz, s, prm)
+        ev[i, 0], ev[i, 1], ev[i, 2], ev[i, 3] = t, x, y, z
+        beta[i, 0], beta[i, 1], beta[i, 2] = dx / dt, dy / dt, dz / dt
+    return ev, beta
+
+
+@njit(cache=True, parallel=True)
+def _spin_reference_times(points, times, prm, rtol):
+    """Reference time s of each point's event at scene time t (RigidKinematics.
+    _reference_time's guess, step and tolerance)."""
+    n = points.shape[0]
+    out = np.empty(n)
+    cam = np.zeros(4)
+    eps = np.finfo(np.float64).eps
+    for i in prange(n):
+        px, py, pz = points[i, 0], points[i, 1], points[i, 2]
+        t = times[i]
+        t0, _, _, _, _, _, _, _ = _spin_event(px, py, pz, t, prm)
+        offset = t0 - t
+        step = abs(offset) + 1e-9 * (1.0 + abs(t))
+        tol = rtol * abs(offset) + 4 * eps * (abs(t) + abs(offset)) + 1e-300
+        out[i] = _rtsafe(px, py, pz, t - offset, step, tol, cam, t, prm, False)
+    return out
+
+
+@njit(cache=True, parallel=True)
+def _spin_time_rates(points, s, prm):
+    """dt/ds of each point's event at reference time s."""
+    out = np.empty(points.shape[0])
+    for i in prange(points.shape[0]):
+        out[i] = _spin_event(points[i, 0], points[i, 1], points[i, 2], s[i], prm)[4]
+    return out
