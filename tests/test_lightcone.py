@@ -7,12 +7,14 @@ and scipy in tests/test_motion.py.
 """
 
 import copy
+import gc
 from types import SimpleNamespace
 
 import numpy as np
 import pytest
 import trimesh
 
+from relview.geometry import lightcone
 from relview.geometry.lightcone import _adaptive, _vertex_clock, snapshot, snapshot_groups
 from relview.geometry.trace import Tracer, uniform_groups
 from relview.kinematics.hyperbolic import HyperbolicMotion
@@ -252,6 +254,22 @@ def test_unrefined_snapshot_keeps_the_rest_mesh_and_equals_the_refinement():
     # a tolerance below the measured error refines, through the per-face path
     finer = snapshot(motion, verts, faces, cam, Effects(), tolerance=err / 3)
     assert finer.bary is not None and len(finer.faces) > len(faces)
+
+
+def test_mesh_topology_follows_its_faces_array():
+    # The per-mesh topology (edges, hierarchy) is kept while the faces array lives, is not
+    # reused for an array edited in place, and goes with the array.
+    verts, faces, motion, cam = hyperbolic_ball()
+    faces = faces.copy()
+    first = snapshot(motion, verts, faces, cam, Effects(), tolerance=2e-2)
+    assert id(faces) in lightcone._MESH_TOPOLOGY
+    faces[:] = faces[:, ::-1]  # every face turned over, in place
+    turned = snapshot(motion, verts, faces, cam, Effects(), tolerance=2e-2)
+    np.testing.assert_array_equal(turned.faces, first.faces[:, ::-1])
+    key = id(faces)
+    del faces, first, turned
+    gc.collect()
+    assert key not in lightcone._MESH_TOPOLOGY
 
 
 def test_hyperbolic_snapshot_within_tolerance_over_successive_exposures():

@@ -28,6 +28,7 @@ way, so the snapshot stays watertight. The achieved error is reported
 from __future__ import annotations
 
 import math
+import weakref
 from dataclasses import dataclass
 
 import numpy as np
@@ -281,32 +282,41 @@ def _solve_vertices(kin, vertices, used, cam, effects):
 
 
 #: Topology of the rest meshes snapshotted in this process, keyed by the faces array's
-#: identity and checked against a copy of it (an array edited in place, or a new array
-#: at a recycled address, is not mistaken for the old one): its distinct edges, the
-#: vertices faces use, and the hierarchy last built over its snapshot (refitted for the
-#: next exposures).
+#: identity and checked against a copy of it (an array edited in place is not mistaken
+#: for the old one): its distinct edges, the vertices faces use, and the hierarchy last
+#: built over its snapshot (refitted for the next exposures). An entry goes with its
+#: faces array (the scene geometry cache, renderer.scene_geometry, holds the meshes),
+#: and at most MESH_TOPOLOGY_SIZE are kept.
 _MESH_TOPOLOGY: dict[int, dict] = {}
 MESH_TOPOLOGY_SIZE = 16
 
 
 def _mesh_topology(faces: np.ndarray) -> dict:
-    entry = _MESH_TOPOLOGY.get(id(faces))
+    key = id(faces)
+    entry = _MESH_TOPOLOGY.get(key)
     if entry is not None and entry["faces"].shape == faces.shape:
         if np.array_equal(entry["faces"], faces):
             return entry
     edges = np.concatenate([faces[:, [0, 1]], faces[:, [1, 2]], faces[:, [2, 0]]])
-    key = np.unique(np.minimum(edges[:, 0], edges[:, 1]) * (1 << 32) + np.max(edges, axis=1))
+    pair = np.unique(np.minimum(edges[:, 0], edges[:, 1]) * (1 << 32) + np.max(edges, axis=1))
     entry = {
         "faces": faces.copy(),
-        "edges": np.stack([key >> 32, key & 0xFFFFFFFF], axis=1),
+        "edges": np.stack([pair >> 32, pair & 0xFFFFFFFF], axis=1),
         "used": np.unique(faces),
         "hierarchy": None,
     }
-    _MESH_TOPOLOGY.pop(id(faces), None)
-    _MESH_TOPOLOGY[id(faces)] = entry
+    _MESH_TOPOLOGY.pop(key, None)
+    _MESH_TOPOLOGY[key] = entry
+    weakref.finalize(faces, _forget_topology, key, entry)
     while len(_MESH_TOPOLOGY) > MESH_TOPOLOGY_SIZE:
         _MESH_TOPOLOGY.pop(next(iter(_MESH_TOPOLOGY)))
     return entry
+
+
+def _forget_topology(key: int, entry: dict) -> None:
+    """Drop the entry of a faces array that no longer exists (not a newer one at its id)."""
+    if _MESH_TOPOLOGY.get(key) is entry:
+        del _MESH_TOPOLOGY[key]
 
 
 def _whole_mesh(kin, vertices, faces, cam, effects, tolerance):
