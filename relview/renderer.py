@@ -24,9 +24,10 @@ from relview.errors import SceneWarning
 from relview.frame_memory import RAYS_PER_BATCH, check_memory
 from relview.geometry import camera as cam_mod
 from relview.geometry import lightcone, shapes
-from relview.geometry.trace import Hits, Tracer, frame_matrix, uniform_groups
+from relview.geometry.trace import Hits, Tracer, bodies_hit, frame_matrix, uniform_groups
 from relview.imaging.display import to_8bit
 from relview.imaging.exposure import clipped_fraction, expose, exposure_white, metered_pixels
+from relview.imaging.exposure_passes import any_channel_above
 from relview.imaging.formats import frame_format
 from relview.imaging.png import encode_png
 from relview.kinematics.clocks import body_readings, reading_from_coordinate
@@ -34,7 +35,8 @@ from relview.kinematics.lorentz import C
 from relview.kinematics.lorentz import doppler_along as lorentz_doppler_along
 from relview.kinematics.magnitudes import check_time
 from relview.light import sky
-from relview.light.materials import SpectralSurface
+from relview.light.materials import Blackbody, SpectralSurface
+from relview.light.spectrum import packed_tables, shade_by_table
 from relview.scene.model import Scene
 from relview.scene.parts import Effects
 
@@ -390,13 +392,19 @@ def render(
     rng = np.random.default_rng(scene.render.seed)
     n_pix = width * height
     # sample 0 covers every pixel, so every array below is filled before it is read
-    xyz = np.empty((n_pix, 3))
-    layer_d = np.empty(n_pix)
-    layer_t = np.empty(n_pix)
-    layer_pos = np.empty((n_pix, 3))
-    layer_rest = np.empty((n_pix, 3))
-    layer_body = np.empty(n_pix, np.int64)
-    layer_clock = np.empty(n_pix)  # the body clock's reading at emission, s (NaN: sky)
+    # When one batch covers the frame its arrays become the layers as they are (no copies)
+    batched = n_pix > RAYS_PER_BATCH
+
+    def empty(*shape, dtype=float):
+        return np.empty((n_pix, *shape), dtype) if batched else None
+
+    xyz = empty(3)
+    layer_d = empty()
+    layer_t = empty()
+    layer_pos = empty(3)
+    layer_rest = empty(3)
+    layer_body = empty(dtype=np.int64)
+    layer_clock = empty()  # the body clock's reading at emission, s (NaN: sky)
     # the microwave sky's recorded blackbody temperature (K), NaN where a body is seen
     layer_temp = np.full(n_pix, np.nan) if scene.background.kind == "cmb" else None
     centres = context.pixel_centres(width, height)
@@ -449,20 +457,22 @@ def render(
                     layer_temp[a:b][miss] = sky.microwave_temperature(
                         scene.background, d_s[miss], beta_c, effects
                     )
-        if s == first_colour:
+        if s == first_colour and not batched:  # the whole frame: no copy
+            xyz = col
+        elif s == first_colour:
             xyz[a:b] = col
         elif s > first_colour:
             xyz[a:b] += col
         if s == 0:
-            layer_clock[a:b] = body_readings(
-                scene.bodies, hits.body, hits.clock, effects.contraction
-            )
-        if s == 0 and a == 0 and b == n_pix:  # the whole frame in one batch: no copies
+            clock = body_readings(scene.bodies, hits.body, hits.clock, effects.contraction)
+        if s == 0 and not batched:  # the whole frame in one batch: no copies
+            layer_clock = clock
             layer_d, layer_body, layer_rest = dop, hits.body, hits.rest_position
-            layer_t, layer_pos = hits.emit_event[:, 0].copy(), hits.emit_event[:, 1:]
+            layer_t, layer_pos = hits.emit_event[:, 0] / C, hits.emit_event[:, 1:]  # ct -> s
         elif s == 0:
+            layer_clock[a:b] = clock
             layer_d[a:b] = dop
-            layer_t[a:b] = hits.emit_event[:, 0]
+            layer_t[a:b] = hits.emit_event[:, 0] / C
             layer_pos[a:b] = hits.emit_event[:, 1:]
             layer_rest[a:b] = hits.rest_position
             layer_body[a:b] = hits.body
@@ -472,7 +482,6 @@ def render(
         bar.close()
     if n_samples > 1:
         xyz /= n_samples
-    layer_t /= C  # ct (m) -> s
     xyz_img = xyz.reshape(height, width, 3)
     stars = sky.star_splat(
         scene.background,
@@ -533,12 +542,18 @@ def shade(
     lamp layers (the first colour picture only). Mirrors reflect the rays on
     (:func:`mirror_xyz`): ``viewer`` (default the exposure event) is where the rays
     started, (4,) or (N, 4), ``bounce`` how many reflections they made before."""
-    out = np.zeros((len(doppler), 3))
     lit_scene = bool(scene.lamps) and illumination.scene_lit(scene)
     if lit_scene and layer_rows is not None:
         if layer_rows.start == 0:  # a new frame (pixel_centres holds its size)
             context._lamp_layers = illumination.LampLayers(int(np.prod(context._centres_size)))
         lamp_layers = context._lamp_layers.values
+    # Bodies shaded by one Doppler table each (emitters without lamps or mirrors) are
+    # shaded in one compiled pass over all rows, which also zeroes the misses; the loop
+    # below does the rest.
+    out = np.empty((len(doppler), 3))
+    done = _shade_by_tables(scene, hits.body, doppler, effects, lit_scene, out)
+    if done is None:
+        return out
     # Bodies whose hits are shaded by their own light alone are gathered by surface (the
     # same surface.key(), and texture coordinates or none) and shaded in one call per
     # surface: surfaces shade each hit on its own, so this gives the same colours as one
@@ -546,6 +561,8 @@ def shade(
     plain: dict = {}  # (surface key, has uv) -> [surface, [(body, rows, uv)]]
     keys: dict = {}  # id(surface) -> surface.key(), computed once per surface object
     for i, sel in rows_by_body(hits.body):
+        if done[i]:
+            continue
         body = scene.bodies[i]
         surface = body.surface
         uv = illumination.hit_uv(context, i, hits, sel, surface)
@@ -599,6 +616,67 @@ def shade(
             )
         out[sel] = surface.observed_xyz(doppler[sel], rest, uv, effects, **clock)
     return out
+
+
+def _doppler_table(surface):
+    """(DopplerTable, scale) of a surface whose observed_xyz is scale * apply_effects(table,
+    D) (relview.light.spectrum), or None. Decided by the class's own method, so a subclass
+    that shades otherwise is never taken for one."""
+    method = getattr(type(surface), "observed_xyz", None)
+    if method is SpectralSurface.observed_xyz:
+        return surface.table(), 1.0
+    if method is Blackbody.observed_xyz:
+        return surface.table(), surface.scale
+    return None
+
+
+def _shade_by_tables(
+    scene: Scene,
+    body: np.ndarray,
+    doppler: np.ndarray,
+    effects: Effects,
+    lit_scene: bool,
+    out: np.ndarray,
+) -> np.ndarray | None:
+    """Fill ``out`` (N, 3) with the XYZ of every hit on a body shaded by one Doppler table
+    (no lamps on it, not a mirror: :func:`_doppler_table`), in one compiled pass
+    (spectrum.shade_by_table: the numbers of observed_xyz), and zeros elsewhere. Returns
+    None when every hit is done, else (n_bodies,) bool: the bodies done, whose rows the
+    caller must leave alone."""
+    n_bodies = len(scene.bodies)
+    seen = bodies_hit(body, n_bodies)
+    body_table = np.full(n_bodies, -1, np.int64)
+    body_scale = np.ones(n_bodies)
+    tables: dict[int, int] = {}  # id(table) -> its index in the pack
+    table_list = []
+    for i in np.nonzero(seen)[0].tolist():
+        surface = scene.bodies[i].surface
+        if getattr(surface, "mirror", False) or (lit_scene and illumination.takes_lamps(surface)):
+            continue
+        found = _doppler_table(surface)
+        if found is None:
+            continue
+        table, body_scale[i] = found
+        if id(table) not in tables:
+            tables[id(table)] = len(table_list)
+            table_list.append(table)
+        body_table[i] = tables[id(table)]
+    if not table_list:
+        out[:] = 0.0
+        return np.zeros(n_bodies, bool)
+    others, outside = shade_by_table(
+        body,
+        doppler,
+        body_table,
+        body_scale,
+        packed_tables(table_list),
+        bool(effects.doppler),
+        bool(effects.beaming),
+        out,
+    )
+    if outside:  # a D beyond a table (grown by observed_xyz) or not valid (its error)
+        return np.zeros(n_bodies, bool)
+    return (body_table >= 0) if others else None
 
 
 def mirror_xyz(
@@ -671,12 +749,25 @@ def lamp_pixels(scene: Scene, body_layer: np.ndarray, rest_layer: np.ndarray) ->
     """(H, W) bool: pixels that see a lamp, i.e. a self-luminous surface (automatic
     exposure leaves them out; docs/colour.md). ``body_layer`` (H, W) body indices (-1:
     background), ``rest_layer`` (H, W, 3) rest-frame hit points."""
-    lamps = np.zeros(body_layer.size, bool)
-    rest = rest_layer.reshape(-1, 3)
-    for i, sel in rows_by_body(body_layer.reshape(-1)):
-        lamps[sel] = _lamp_surface_pixels(scene.bodies[i].surface, rest[sel])
-    lamps = lamps.reshape(body_layer.shape)
-    return lamps
+    body = np.ascontiguousarray(body_layer, dtype=np.int64).reshape(-1)
+    seen = bodies_hit(body, len(scene.bodies))
+    # a surface is a lamp all over or nowhere (one flag per body, gathered in one pass),
+    # except patterns, whose cells decide per hit point
+    flag = np.zeros(len(scene.bodies) + 1, bool)  # [0]: the sky
+    per_point = []
+    for i in np.nonzero(seen)[0].tolist():
+        surface = scene.bodies[i].surface
+        if hasattr(surface, "second_mask"):
+            per_point.append(i)
+        else:
+            flag[i + 1] = _lamp_surface_pixels(surface, np.zeros((1, 3)))[0]
+    lamps = flag[body + 1]
+    if per_point:
+        rest = rest_layer.reshape(-1, 3)
+        for i in per_point:
+            sel = np.nonzero(body == i)[0]
+            lamps[sel] = _lamp_surface_pixels(scene.bodies[i].surface, rest[sel])
+    return lamps.reshape(body_layer.shape)
 
 
 def metering_masks(
@@ -685,7 +776,7 @@ def metering_masks(
     """(region, lamps): the lit pixels of the scene's metering region (render.metering:
     "frame" every lit pixel, sky included; "bodies" those that see a body; "body" those
     of render.metering_body) and the lamp pixels that automatic exposure leaves out."""
-    lit = np.any(xyz_img > 0, axis=-1)
+    lit = any_channel_above(xyz_img, 0.0)
     settings = scene.render
     mode = getattr(settings, "metering", "frame")
     if mode == "bodies":
@@ -699,7 +790,7 @@ def metering_report(
     scene: Scene, exposure, image: np.ndarray, region: np.ndarray, lamps: np.ndarray
 ) -> dict[str, str]:
     """Provenance entries of the exposure: how it was metered and what clipped."""
-    lit = np.any(image > 0, axis=-1)
+    lit = any_channel_above(image, 0.0)
     if isinstance(exposure, str):  # "auto": what was metered
         settings = scene.render
         mode = getattr(settings, "metering", "frame")

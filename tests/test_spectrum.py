@@ -364,3 +364,62 @@ def test_beaming_off_keeps_bolometric_radiance_of_a_blackbody():
     y_off = apply_effects(table, [d], True, False)[0, 1]
     y_dt = observed_xyz_direct(planck(d * t), [1.0])[0, 1]
     assert y_off == pytest.approx(y_dt / d**4, rel=2e-3)
+
+
+@pytest.mark.parametrize("switches", [(True, True), (False, True), (True, False), (False, False)])
+def test_fused_table_shading_gives_the_numbers_of_apply_effects(switches):
+    # shade_by_table must reproduce apply_effects (checked above against direct
+    # integration) times each body's scale, bit for bit, for hits of several tables
+    # mixed in one pass; misses and bodies without a table get 0 and are counted.
+    doppler_on, beaming_on = switches
+    tables = [cached_table(("test-bb", t), planck(t)) for t in (952.0, 5800.0)]
+    rng = np.random.default_rng(11)
+    n = 2000
+    body = rng.integers(-1, 4, n)  # body 3 has no table
+    d = np.exp(rng.uniform(-3.0, 3.0, n))
+    d[body < 0] = np.nan
+    body_table = np.array([0, 1, 0, -1])
+    body_scale = np.array([1.0, 0.37, 2.5, 1.0])
+    out = np.full((n, 3), -1.0)
+    others, outside = spectrum.shade_by_table(
+        body, d, body_table, body_scale, spectrum.packed_tables(tables), *switches, out
+    )
+    assert (others, outside) == (int(np.sum(body == 3)), 0)
+    for b in range(3):
+        sel = body == b
+        want = body_scale[b] * apply_effects(tables[body_table[b]], d[sel], doppler_on, beaming_on)
+        assert np.array_equal(out[sel], want)
+    assert np.all(out[(body < 0) | (body == 3)] == 0.0)
+
+
+def test_fused_table_shading_leaves_d_outside_a_table_to_the_caller():
+    table = cached_table(("test-bb", 4321.0), planck(4321.0))
+    lo, hi = table.d_range
+    d = np.array([1.0, lo / 10.0, hi * 10.0, np.nan, 0.0, -1.0, np.inf])
+    out = np.empty((len(d), 3))
+    pack = spectrum.packed_tables([table])
+    _, outside = spectrum.shade_by_table(
+        np.zeros(len(d), np.int64), d, np.array([0]), np.ones(1), pack, True, True, out
+    )
+    assert outside == len(d) - 1  # everything but D = 1: beyond the range or not valid
+    assert np.array_equal(out[0], apply_effects(table, [1.0], True, True)[0])
+
+
+def test_compiled_linear_srgb_rounds_as_numpy_matrix_product():
+    # The compiled per-pixel colour matrix (exposure passes) must give the numbers of
+    # numpy's xyz @ XYZ_TO_LINEAR_SRGB.T (the reference implementation here) to the last
+    # bit, so that compiled and numpy pictures agree exactly.
+    from numba import njit
+
+    @njit
+    def rows(xyz, m):
+        out = np.empty_like(xyz)
+        for i in range(xyz.shape[0]):
+            out[i, 0], out[i, 1], out[i, 2] = spectrum.linear_srgb_at(
+                xyz[i, 0], xyz[i, 1], xyz[i, 2], m
+            )
+        return out
+
+    rng = np.random.default_rng(5)
+    xyz = rng.lognormal(0.0, 3.0, (20000, 3)) * rng.choice([-1.0, 1.0], (20000, 3))
+    assert np.array_equal(rows(xyz, spectrum.XYZ_TO_LINEAR_SRGB), xyz_to_linear_srgb(xyz))

@@ -373,6 +373,10 @@ def _resolve(
     k_time,
     l,
     tri,
+    u,
+    v,
+    ref,
+    keep_t_rel,
     tri_group,
     tri_body,
     tri_local,
@@ -394,6 +398,12 @@ def _resolve(
     that of the body's proper-time zero event (slot_clock): an inertial body's proper
     time is its rest-frame time. Triangles with slot -1 (light-cone snapshots) leave the
     body-frame point and the clock to the caller.
+
+    The kernel coordinates are centred on the reference event ``ref`` (4,); the emission
+    events are written in scene coordinates (relative event + ref, the same two roundings
+    as adding ref afterwards), the barycentrics (u, v) as the (N, 2) ``bary``, and, with
+    ``keep_t_rel``, the relative emission times (N,) the snapshots' clocks need (else an
+    empty array): one pass over the rays instead of a pass per array.
     """
     n = ray_d.shape[0]
     o_step = 0 if ray_o.shape[0] == 1 else 1  # one shared start event, or one per ray
@@ -407,15 +417,21 @@ def _resolve(
     beta = np.empty((n, 3))
     doppler = np.empty(n)
     clock = np.empty(n)
+    bary = np.empty((n, 2))
+    t_rel = np.empty(n if keep_t_rel else 0)
     g_cam = camera_gamma(beta_cam, relativistic)
     for i in prange(n):
         t = tri[i]
+        bary[i, 0] = u[i]
+        bary[i, 1] = v[i]
         if t < 0:
             body[i] = -1
             face[i] = -1
             group[i] = -1
             doppler[i] = np.nan
             clock[i] = np.nan
+            if keep_t_rel:
+                t_rel[i] = np.nan
             for a in range(4):
                 emit[i, a] = np.nan
             for a in range(3):
@@ -427,9 +443,17 @@ def _resolve(
         body[i] = tri_body[t]
         face[i] = tri_local[t]
         io = i * o_step
-        emit[i, 0] = ray_o[io, 0] + l[i] * k_time
-        for a in range(3):
-            emit[i, a + 1] = ray_o[io, a + 1] + l[i] * ray_d[i, a]
+        # the emission event relative to the reference event, then in scene coordinates
+        e0 = ray_o[io, 0] + l[i] * k_time
+        e1 = ray_o[io, 1] + l[i] * ray_d[i, 0]
+        e2 = ray_o[io, 2] + l[i] * ray_d[i, 1]
+        e3 = ray_o[io, 3] + l[i] * ray_d[i, 2]
+        emit[i, 0] = e0 + ref[0]
+        emit[i, 1] = e1 + ref[1]
+        emit[i, 2] = e2 + ref[2]
+        emit[i, 3] = e3 + ref[3]
+        if keep_t_rel:
+            t_rel[i] = e0
         for a in range(3):
             beta[i, a] = g_beta[g, a]
         doppler[i] = doppler_at(g_cam, beta_cam, g_beta, g, ray_d, i, relativistic)
@@ -441,15 +465,13 @@ def _resolve(
             continue
         # hit point in the group frame (the emission event mapped like a start event),
         # relative to the body's origin there
-        fx, fy, fz = _frame_origin(g_matrix[g], g_origin[g], emit, i)
         m = g_matrix[g]
-        clock[i] = (
-            m[0, 0] * (emit[i, 0] - g_origin[g, 0])
-            + m[0, 1] * (emit[i, 1] - g_origin[g, 1])
-            + m[0, 2] * (emit[i, 2] - g_origin[g, 2])
-            + m[0, 3] * (emit[i, 3] - g_origin[g, 3])
-            - slot_clock[s]
-        )
+        q0 = e0 - g_origin[g, 0]
+        q1 = e1 - g_origin[g, 1]
+        q2 = e2 - g_origin[g, 2]
+        q3 = e3 - g_origin[g, 3]
+        fx, fy, fz = _spatial(m, q0, q1, q2, q3)
+        clock[i] = m[0, 0] * q0 + m[0, 1] * q1 + m[0, 2] * q2 + m[0, 3] * q3 - slot_clock[s]
         rx = fx - slot_offset[s, 0]
         ry = fy - slot_offset[s, 1]
         rz = fz - slot_offset[s, 2]
@@ -459,7 +481,7 @@ def _resolve(
                 + slot_rotation[s, 1, a] * ry
                 + slot_rotation[s, 2, a] * rz
             )
-    return body, face, group, emit, rest, beta, doppler, clock
+    return body, face, group, emit, rest, beta, doppler, clock, bary, t_rel
 
 
 class Tracer:
@@ -563,12 +585,18 @@ class Tracer:
                 l_min,
             )
         bc = np.zeros(3) if beta_cam is None else np.asarray(beta_cam, np.float64).reshape(3)
-        body, face, group, emit, rest, beta, doppler, clock = _resolve(
+        # the snapshots' clocks take the emission times relative to the reference event
+        keep_t_rel = any(g.vertex_clock is not None for g in self.groups)
+        body, face, group, emit, rest, beta, doppler, clock, bary, t_rel = _resolve(
             ray_o,
             ray_d,
             k_time,
             l,
             tri,
+            u,
+            v,
+            ref,
+            keep_t_rel,
             p.tri_group,
             self.tri_body,
             self.tri_local,
@@ -582,9 +610,6 @@ class Tracer:
             bc,
             bool(effects.contraction),
         )
-        # the snapshots' clocks take the emission times relative to the reference event
-        t_rel = emit[:, 0].copy() if any(g.vertex_clock is not None for g in self.groups) else None
-        emit += ref  # back to scene-frame events for the caller
         for gi, g in enumerate(self.groups):
             if g.vertex_body_coords is None:
                 continue
@@ -603,11 +628,11 @@ class Tracer:
                 clock[sel] = line[:, 0] + line[:, 1] * t_rel[sel]
             if g.vertex_bary is not None:  # (u, v) in the original face, for UV lookups
                 face_uv = _interpolate(w, tri_v, g.vertex_bary)
-                u[sel], v[sel] = face_uv[:, 0], face_uv[:, 1]
+                bary[sel, 0], bary[sel, 1] = face_uv[:, 0], face_uv[:, 1]
         return Hits(
             body,
             face,
-            np.stack([u, v], -1),
+            bary,
             l,
             emit,
             rest,
@@ -653,6 +678,21 @@ class Tracer:
 def _interpolate(weights: np.ndarray, tri_vertices: np.ndarray, values: np.ndarray):
     """Barycentric blend of per-vertex ``values`` over each hit's triangle: (N, C)."""
     return np.einsum("nk,nkc->nc", weights, values[tri_vertices])
+
+
+@njit(cache=True)
+def _bodies_hit(body, n_bodies):
+    seen = np.zeros(n_bodies, np.bool_)
+    for i in range(body.shape[0]):
+        if body[i] >= 0:
+            seen[body[i]] = True
+    return seen
+
+
+def bodies_hit(body: np.ndarray, n_bodies: int) -> np.ndarray:
+    """(n_bodies,) bool: which scene bodies the hits' ``body`` (N,) indices (-1: none)
+    name; one pass, no sort."""
+    return _bodies_hit(np.ascontiguousarray(body, dtype=np.int64), int(n_bodies))
 
 
 def _empty_hits(n: int) -> Hits:

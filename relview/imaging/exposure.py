@@ -124,13 +124,13 @@ def _metered(xyz_image: Any, mask: Any) -> tuple[np.ndarray, np.ndarray]:
         mask = np.asarray(mask)
         if mask.shape != xyz.shape[:-1]:
             raise ValueError(f"mask shape {mask.shape} does not match the image {xyz.shape[:-1]}")
-        xyz = xyz[mask.astype(bool)]
-    xyz = np.asarray(xyz, dtype=np.float64).reshape(-1, 3)
-    # imported here: relview.light.spectrum compiles numba kernels (see expose)
-    from relview.light.spectrum import xyz_to_linear_srgb
+    else:
+        mask = np.ones(xyz.shape[:-1], bool)
+    # imported here: the compiled passes load numba (see expose). One pass gathers the
+    # masked pixels' Y and largest channel of xyz_to_linear_srgb(xyz), in pixel order.
+    from relview.imaging.exposure_passes import metered_values
 
-    peak = np.asarray(xyz_to_linear_srgb(xyz), dtype=np.float64).max(axis=-1, initial=-np.inf)
-    return xyz[:, 1], peak
+    return metered_values(xyz, mask)
 
 
 def auto_white(luminance: Any, peak: Any = None) -> float:
@@ -203,10 +203,14 @@ def clipped_fraction(image: Any, mask: Any = None) -> float:
     rgb = np.asarray(image)
     if rgb.ndim < 1 or rgb.shape[-1] != 3:
         raise ValueError(f"image must have shape (..., 3), got {rgb.shape}")
-    over = np.any(rgb > 1.0 + CLIP_TOLERANCE, axis=-1)
-    if mask is not None:
-        over = over[np.asarray(mask, dtype=bool)]
-    return float(over.mean()) if over.size else 0.0
+    if mask is not None and np.shape(mask) != rgb.shape[:-1]:
+        over = np.any(rgb > 1.0 + CLIP_TOLERANCE, axis=-1)  # numpy's error for the shapes
+        return float(over[np.asarray(mask, dtype=bool)].mean())
+    # imported here: the compiled passes load numba (see expose); one pass, no temporaries
+    from relview.imaging.exposure_passes import clipped_counts
+
+    chosen, over = clipped_counts(rgb, mask, 1.0 + CLIP_TOLERANCE)
+    return over / chosen if chosen else 0.0
 
 
 def expose(xyz_image: Any, white: float) -> np.ndarray:
@@ -218,11 +222,12 @@ def expose(xyz_image: Any, white: float) -> np.ndarray:
     """
     white = check_white(white)
     xyz = _check_xyz(xyz_image).astype(np.float64, copy=False)
-    # imported here, not at the top: relview.light.spectrum compiles numba kernels, and
-    # importing this module (for ExposureLock, check_white) must stay light
-    from relview.light.spectrum import xyz_to_linear_srgb
+    # imported here, not at the top: the compiled passes load numba, and importing this
+    # module (for ExposureLock, check_white) must stay light. The numbers of
+    # xyz_to_linear_srgb(xyz / white) (relview.light.spectrum), in one pass.
+    from relview.imaging.exposure_passes import expose_rows
 
-    return np.asarray(xyz_to_linear_srgb(xyz / white), dtype=np.float64)
+    return expose_rows(xyz, white)
 
 
 @dataclass

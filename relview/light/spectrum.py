@@ -21,7 +21,9 @@ from collections.abc import Callable, Hashable
 
 import numpy as np
 import scipy.constants as sc
-from numba import njit, prange
+from llvmlite import ir
+from numba import njit, prange, types
+from numba.extending import intrinsic
 
 from relview.light import colour_data
 
@@ -245,6 +247,33 @@ def xyz_to_linear_srgb(xyz) -> np.ndarray:
     return np.asarray(xyz, dtype=float) @ XYZ_TO_LINEAR_SRGB.T
 
 
+@intrinsic
+def _fma(typingctx, a, b, c):
+    """a * b + c rounded once (IEEE 754 fusedMultiplyAdd), for compiled code."""
+    sig = types.float64(types.float64, types.float64, types.float64)
+
+    def codegen(context, builder, signature, args):
+        d = ir.DoubleType()
+        f = builder.module.declare_intrinsic("llvm.fma", [d], ir.FunctionType(d, [d, d, d]))
+        return builder.call(f, args)
+
+    return sig, codegen
+
+
+@njit(cache=True, inline="always")
+def linear_srgb_at(x, y, z, m):
+    """One pixel's linear sRGB from its XYZ (x, y, z) with the (3, 3) matrix ``m``
+    (XYZ_TO_LINEAR_SRGB), for compiled per-pixel passes. Each channel is rounded as
+    numpy's matrix product rounds ``xyz @ m.T`` here (its BLAS accumulates the three
+    products with fused multiply-adds in index order; checked bit for bit in
+    tests/test_spectrum.py), so compiled and numpy pictures agree to the last bit."""
+    return (
+        _fma(z, m[0, 2], _fma(y, m[0, 1], x * m[0, 0])),
+        _fma(z, m[1, 2], _fma(y, m[1, 1], x * m[1, 0])),
+        _fma(z, m[2, 2], _fma(y, m[2, 1], x * m[2, 0])),
+    )
+
+
 def linear_srgb_to_xyz(rgb) -> np.ndarray:
     """(..., 3) linear sRGB -> (..., 3) XYZ (relative: (1, 1, 1) is D65 white with Y = 1)."""
     return np.asarray(rgb, dtype=float) @ LINEAR_SRGB_TO_XYZ.T
@@ -458,30 +487,180 @@ class DopplerTable:
         return observed_xyz_direct(self.radiance, doppler, self.knots_nm)
 
 
+@njit(cache=True, inline="always")
+def _interpolate_at(x, log_d, xyz, log_xyz, use_log):
+    """XYZ of one table at ln D = x: bracket x by bisection, then interpolate each channel
+    linearly in (ln D, ln XYZ) where the interval allows it (use_log), else linearly in
+    XYZ. The one source of a table lookup (whole tables and packed ones)."""
+    m = log_d.shape[0]
+    lo = 0
+    hi = m - 1
+    while hi - lo > 1:  # log_d[lo] <= x < log_d[hi] (clamped to the end intervals)
+        mid = (lo + hi) >> 1
+        if log_d[mid] <= x:
+            lo = mid
+        else:
+            hi = mid
+    t = (x - log_d[lo]) / (log_d[lo + 1] - log_d[lo])
+    if use_log[lo, 0]:
+        v0 = np.exp((1.0 - t) * log_xyz[lo, 0] + t * log_xyz[lo + 1, 0])
+    else:
+        v0 = (1.0 - t) * xyz[lo, 0] + t * xyz[lo + 1, 0]
+    if use_log[lo, 1]:
+        v1 = np.exp((1.0 - t) * log_xyz[lo, 1] + t * log_xyz[lo + 1, 1])
+    else:
+        v1 = (1.0 - t) * xyz[lo, 1] + t * xyz[lo + 1, 1]
+    if use_log[lo, 2]:
+        v2 = np.exp((1.0 - t) * log_xyz[lo, 2] + t * log_xyz[lo + 1, 2])
+    else:
+        v2 = (1.0 - t) * xyz[lo, 2] + t * xyz[lo + 1, 2]
+    return v0, v1, v2
+
+
 @njit(parallel=True, cache=True)
 def _interpolate_table(ld, log_d, xyz, log_xyz, use_log):
-    """Per value: bracket ln D by bisection, then interpolate each channel linearly in
-    (ln D, ln XYZ) where the interval allows it (use_log), else linearly in XYZ."""
+    """:func:`_interpolate_at` for every value of ld (N,): (N, 3)."""
     n = ld.shape[0]
-    m = log_d.shape[0]
     out = np.empty((n, 3))
     for j in prange(n):
-        x = ld[j]
-        lo = 0
-        hi = m - 1
-        while hi - lo > 1:  # log_d[lo] <= x < log_d[hi] (clamped to the end intervals)
-            mid = (lo + hi) >> 1
-            if log_d[mid] <= x:
-                lo = mid
-            else:
-                hi = mid
-        t = (x - log_d[lo]) / (log_d[lo + 1] - log_d[lo])
-        for c in range(3):
-            if use_log[lo, c]:
-                out[j, c] = np.exp((1.0 - t) * log_xyz[lo, c] + t * log_xyz[lo + 1, c])
-            else:
-                out[j, c] = (1.0 - t) * xyz[lo, c] + t * xyz[lo + 1, c]
+        out[j, 0], out[j, 1], out[j, 2] = _interpolate_at(ld[j], log_d, xyz, log_xyz, use_log)
     return out
+
+
+class TablePack:
+    """Several Doppler tables in flat arrays, for compiled code that shades hits of
+    different surfaces in one pass (:func:`shade_by_table`): table k has the nodes
+    ``start[k] : start[k] + count[k]`` of ``log_d``, ``xyz`` and ``log_xyz`` and the
+    intervals ``start[k] - k : start[k] - k + count[k] - 1`` of ``use_log``.
+
+    A snapshot: it holds the tables' arrays as they were (``sizes`` tells whether a table
+    has grown since, :func:`packed_tables`)."""
+
+    def __init__(self, tables):
+        self.tables = list(tables)
+        self.sizes = tuple(t.log_d.size for t in self.tables)
+        counts = np.array(self.sizes, np.int64)
+        self.count = counts
+        self.start = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(np.int64)
+        self.log_d = np.concatenate([t.log_d for t in self.tables])
+        self.xyz = np.ascontiguousarray(np.concatenate([t.xyz for t in self.tables]))
+        self.log_xyz = np.ascontiguousarray(np.concatenate([t._log_xyz for t in self.tables]))
+        self.use_log = np.ascontiguousarray(np.concatenate([t.use_log for t in self.tables]))
+
+
+_PACK_CACHE: dict[tuple, TablePack] = {}
+#: packs kept per process (each holds its tables alive, so ids in the key stay unique)
+PACK_CACHE_SIZE = 16
+
+
+def packed_tables(tables) -> TablePack:
+    """The :class:`TablePack` of ``tables`` (a sequence of DopplerTable), kept per process
+    and made again when one of them has grown."""
+    key = tuple((id(t), t.log_d.size) for t in tables)
+    pack = _PACK_CACHE.get(key)
+    if pack is None:
+        pack = TablePack(tables)
+        if len(_PACK_CACHE) >= PACK_CACHE_SIZE:
+            _PACK_CACHE.pop(next(iter(_PACK_CACHE)))
+        _PACK_CACHE[key] = pack
+    return pack
+
+
+@njit(parallel=True, cache=True)
+def _shade_by_table(
+    body, ld, bright, body_table, body_scale, start, count, log_d, xyz, log_xyz, use_log, out
+):
+    """out[i] = scale * (XYZ_table(ld[i]) * bright[i]) for every row whose body (body[i] >=
+    0) has a table (body_table >= 0); 0 for the other rows. ``bright`` empty: no
+    brightness factor. Returns (rows left to the caller: bodies without a table, rows
+    whose ln D lies outside their table or is not finite)."""
+    n = body.shape[0]
+    has_bright = bright.shape[0] > 0
+    others = 0
+    outside = 0
+    for i in prange(n):
+        b = body[i]
+        k = -1
+        if b >= 0:
+            k = body_table[b]
+            if k < 0:
+                others += 1
+        if k < 0:
+            out[i, 0] = 0.0
+            out[i, 1] = 0.0
+            out[i, 2] = 0.0
+            continue
+        s = start[k]
+        m = count[k]
+        x = ld[i]
+        if not (x >= log_d[s] and x <= log_d[s + m - 1]):  # NaN included
+            outside += 1
+            out[i, 0] = 0.0
+            out[i, 1] = 0.0
+            out[i, 2] = 0.0
+            continue
+        v0, v1, v2 = _interpolate_at(
+            x,
+            log_d[s : s + m],
+            xyz[s : s + m],
+            log_xyz[s : s + m],
+            use_log[s - k : s - k + m - 1],
+        )
+        if has_bright:
+            v0 = v0 * bright[i]
+            v1 = v1 * bright[i]
+            v2 = v2 * bright[i]
+        c = body_scale[b]
+        out[i, 0] = c * v0
+        out[i, 1] = c * v1
+        out[i, 2] = c * v2
+    return others, outside
+
+
+def shade_by_table(
+    body: np.ndarray,
+    doppler: np.ndarray,
+    body_table: np.ndarray,
+    body_scale: np.ndarray,
+    pack: TablePack,
+    doppler_on: bool,
+    beaming_on: bool,
+    out: np.ndarray,
+) -> tuple[int, int]:
+    """Observed XYZ of every hit whose body is shaded by one Doppler table, in one pass:
+    row i of ``out`` (N, 3) becomes ``body_scale[b] * apply_effects(table, D_i)`` with b =
+    ``body[i]`` and the table ``pack.tables[body_table[b]]`` (the same numbers as
+    :func:`apply_effects` times the scale), 0 on misses and rows of bodies without a
+    table (``body_table`` -1). Returns (rows of bodies without a table, rows whose D lies
+    outside their table's range or is not finite > 0): those are left at 0 for the
+    caller, which shades them through :func:`apply_effects` (that grows a table or
+    raises the error for a bad D).
+
+    ln D and the brightness are computed with numpy exactly as :func:`apply_effects`
+    does, so the colours are the same to the last bit."""
+    d = np.asarray(doppler, dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        if doppler_on == beaming_on:  # (Db / Dc)^4 = 1 for every valid D: no factor
+            dc = d if doppler_on else np.ones_like(d)
+            bright = np.empty(0)
+        else:
+            dc, bright = effect_factors(d, doppler_on, beaming_on)
+        ld = np.log(dc)
+    others, outside = _shade_by_table(
+        np.ascontiguousarray(body, dtype=np.int64),
+        np.ascontiguousarray(ld),
+        np.ascontiguousarray(bright),
+        np.ascontiguousarray(body_table, dtype=np.int64),
+        np.ascontiguousarray(body_scale, dtype=np.float64),
+        pack.start,
+        pack.count,
+        pack.log_d,
+        pack.xyz,
+        pack.log_xyz,
+        pack.use_log,
+        out,
+    )
+    return int(others), int(outside)
 
 
 _TABLE_CACHE: dict[Hashable, DopplerTable] = {}
