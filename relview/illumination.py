@@ -32,6 +32,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+from numba import njit, prange
 
 from relview.geometry.trace import Tracer
 from relview.kinematics.clocks import reading_from_coordinate
@@ -52,16 +53,37 @@ def null_to_frame(k: np.ndarray, beta: np.ndarray, relativistic: bool = True):
     """A photon of 4-momentum (1, k) in S (k (N,3) unit propagation direction) seen from a
     frame moving with (N,3) or (3,) ``beta``: (frequency ratio k0' (N,), unit direction
     (N,3)). Relativistic: the pure boost (Jackson eq. 11.19 with (gamma-1)/b^2 =
-    gamma^2/(gamma+1)); Galilean: k0' = 1 - beta.k and k' = k - beta."""
-    beta = np.broadcast_to(np.asarray(beta, float), k.shape)
-    bk = np.sum(beta * k, axis=1)
-    if relativistic:
-        g = 1.0 / np.sqrt(1.0 - np.sum(beta * beta, axis=1))
-        k0 = g * (1.0 - bk)
-        kp = k + ((g * g / (g + 1.0)) * bk - g)[:, None] * beta
-        return k0, kp / k0[:, None]
-    kp = k - beta
-    return 1.0 - bk, kp / np.linalg.norm(kp, axis=1)[:, None]
+    gamma^2/(gamma+1)); Galilean: k0' = 1 - beta.k and k' = k - beta. Compiled
+    (:func:`_null_to_frame`)."""
+    k = np.ascontiguousarray(k, dtype=np.float64).reshape(-1, 3)
+    beta = np.ascontiguousarray(beta, dtype=np.float64).reshape(-1, 3)
+    if beta.shape[0] not in (1, k.shape[0]):
+        beta = np.ascontiguousarray(np.broadcast_to(beta, k.shape))
+    return _null_to_frame(k, beta, bool(relativistic))
+
+
+@njit(parallel=True, cache=True)
+def _null_to_frame(k, beta, relativistic):
+    n = k.shape[0]
+    k0 = np.empty(n)
+    kp = np.empty((n, 3))
+    step = 0 if beta.shape[0] == 1 else 1  # one velocity for all, or one per photon
+    for i in prange(n):
+        j = i * step
+        bx, by, bz = beta[j, 0], beta[j, 1], beta[j, 2]
+        bk = bx * k[i, 0] + by * k[i, 1] + bz * k[i, 2]
+        if relativistic:
+            g = 1.0 / math.sqrt(1.0 - (bx * bx + by * by + bz * bz))
+            a = g * g / (g + 1.0) * bk - g
+            k0[i] = g * (1.0 - bk)
+            x, y, z = k[i, 0] + a * bx, k[i, 1] + a * by, k[i, 2] + a * bz
+            kp[i, 0], kp[i, 1], kp[i, 2] = x / k0[i], y / k0[i], z / k0[i]
+        else:
+            k0[i] = 1.0 - bk
+            x, y, z = k[i, 0] - bx, k[i, 1] - by, k[i, 2] - bz
+            r = math.sqrt(x * x + y * y + z * z)
+            kp[i, 0], kp[i, 1], kp[i, 2] = x / r, y / r, z / r
+    return k0, kp
 
 
 def null_from_frame(k_rest: np.ndarray, beta: np.ndarray, relativistic: bool = True):
@@ -141,10 +163,11 @@ def lamp_events(lamp: Lamp, events: np.ndarray, effects: Effects):
         beta = np.asarray(beta, float)
         x_now = e0[1:] + np.outer(t - e0[0], beta)  # the lamp at each event's time
         tau = inertial_light_delay(events[:, 1:] - x_now, beta)
-        return (
-            np.column_stack([t - tau, x_now - tau[:, None] * beta]),
-            np.broadcast_to(beta, (n, 3)).copy(),
-        )
+        x_now -= tau[:, None] * beta
+        ev = np.empty((n, 4))
+        ev[:, 0] = t - tau
+        ev[:, 1:] = x_now
+        return ev, np.broadcast_to(beta, (n, 3))  # one velocity: a read-only view
     ev_now, _ = motion.events(origin, t, effects.contraction)
     dist = np.linalg.norm(events[:, 1:] - ev_now[:, 1:], axis=1) + np.abs(ev_now[:, 0] - t)
 
@@ -164,6 +187,26 @@ def lamp_events(lamp: Lamp, events: np.ndarray, effects: Effects):
     return ev, dev[:, 1:] / dev[:, :1]
 
 
+#: unit face normals of the meshes shaded so far: id(vertices) -> (vertices, faces,
+#: normals); the arrays are kept so that an id is not reused while its entry lives
+_FACE_NORMALS: dict = {}
+
+
+def face_normals(vertices: np.ndarray, faces: np.ndarray) -> np.ndarray:
+    """(F,3) unit normals (e1 x e2, right-handed in the face's vertex order) of a mesh,
+    computed once per mesh (the meshes of a scene are built once, RenderContext)."""
+    entry = _FACE_NORMALS.get(id(vertices))
+    if entry is not None and entry[0] is vertices and entry[1] is faces:
+        return entry[2]
+    tri = vertices[faces]
+    n = np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0])
+    n /= np.linalg.norm(n, axis=1)[:, None]
+    if len(_FACE_NORMALS) >= 64:
+        _FACE_NORMALS.pop(next(iter(_FACE_NORMALS)))
+    _FACE_NORMALS[id(vertices)] = (vertices, faces, n)
+    return n
+
+
 def rest_normals(
     body, body_index: int, mesh, hits_face, hits_bary, events, beta_s, effects: Effects
 ) -> np.ndarray:
@@ -173,12 +216,11 @@ def rest_normals(
     (motion.state), then stretched back by gamma along beta (the inverse of the
     Lorentz-FitzGerald contraction of relview.kinematics.lorentz.contract), crossed."""
     vertices, faces = mesh
+    if body.motion.is_inertial:
+        return face_normals(vertices, faces)[hits_face]
     tri = vertices[faces[hits_face]]  # (N, 3, 3), mesh axes (rotation applied)
     e1 = tri[:, 1] - tri[:, 0]
     e2 = tri[:, 2] - tri[:, 0]
-    if body.motion.is_inertial:
-        n = np.cross(e1, e2)
-        return n / np.linalg.norm(n, axis=1)[:, None]
     u = hits_bary[:, :1]
     v = hits_bary[:, 1:]
     p = (1.0 - u - v) * tri[:, 0] + u * tri[:, 1] + v * tri[:, 2]
@@ -200,6 +242,19 @@ def rest_normals(
         w2 = w2 + (f * np.sum(w2 * beta_s, axis=1))[:, None] * beta_s
     n = np.cross(w1, w2)
     return n / np.linalg.norm(n, axis=1)[:, None]
+
+
+@njit(parallel=True, cache=True)
+def _facing(normals, towards):
+    """(N,3) the normals turned, each, to the side of ``towards`` (N,3)."""
+    out = np.empty_like(normals)
+    for i in prange(normals.shape[0]):
+        dot = normals[i, 0] * towards[i, 0] + normals[i, 1] * towards[i, 1]
+        dot += normals[i, 2] * towards[i, 2]
+        sign = -1.0 if dot < 0.0 else 1.0
+        for c in range(3):
+            out[i, c] = sign * normals[i, c]
+    return out
 
 
 #: shading points whose emission events lie within this angle (rad), seen from the
@@ -405,10 +460,42 @@ def _lamp_light(lamp: Lamp, events: np.ndarray, effects: Effects):
         k0_lamp, _ = null_to_frame(k, lamp.frame_beta, rel)
         return k, k0_lamp, None, np.full(n, np.inf)
     ev_l, beta_l = lamp_events(lamp, events, effects)
-    sep = events[:, 1:] - ev_l[:, 1:]
-    distance = np.linalg.norm(sep, axis=1)
-    k = sep / distance[:, None]
-    return k, null_to_frame(k, beta_l, rel)[0], ev_l, distance
+    if beta_l.strides[0] == 0:  # one velocity for every event
+        beta_l = beta_l[:1]
+    k, distance, k0_lamp = _rays_from(
+        np.ascontiguousarray(events, np.float64),
+        ev_l,
+        np.ascontiguousarray(beta_l, np.float64),
+        rel,
+    )
+    return k, k0_lamp, ev_l, distance
+
+
+@njit(parallel=True, cache=True)
+def _rays_from(events, sources, beta_source, relativistic):
+    """(unit propagation k (N,3), distance (N,) m, frequency ratio k0 (N,) in the frame of
+    sources moving with beta (N,3) or (1,3)) of light from the ``sources`` events to the
+    ``events`` (N,4): k0 = gamma (1 - beta.k) (no gamma with ``relativistic`` off), as
+    in :func:`null_to_frame`."""
+    n = events.shape[0]
+    k = np.empty((n, 3))
+    distance = np.empty(n)
+    k0 = np.empty(n)
+    step = 0 if beta_source.shape[0] == 1 else 1
+    for i in prange(n):
+        x = events[i, 1] - sources[i, 1]
+        y = events[i, 2] - sources[i, 2]
+        z = events[i, 3] - sources[i, 3]
+        r = math.sqrt(x * x + y * y + z * z)
+        distance[i] = r
+        k[i, 0], k[i, 1], k[i, 2] = x / r, y / r, z / r
+        j = i * step
+        bx, by, bz = beta_source[j, 0], beta_source[j, 1], beta_source[j, 2]
+        f = 1.0 - (bx * k[i, 0] + by * k[i, 1] + bz * k[i, 2])
+        if relativistic:
+            f /= math.sqrt(1.0 - (bx * bx + by * by + bz * bz))
+        k0[i] = f
+    return k, distance, k0
 
 
 def lamp_term(
@@ -425,28 +512,27 @@ def lamp_term(
     rest-frame normals (N,3) face the camera; ``out_rest`` (N,3): the unit rest-frame
     direction towards the camera, for the glossy lobe's angle."""
     n = len(events)
-    rel = bool(effects.contraction)
     k, k0_lamp, ev_l, distance = _lamp_light(lamp, events, effects)
-    k0_s, k_rest = null_to_frame(k, beta_s, rel)
-    if not effects.aberration:
-        k_rest = k
-    d_in = k0_s / k0_lamp
-    cos_in = np.maximum(-np.sum(normals * k_rest, axis=1), 0.0)
-    cos_alpha = None
-    if out_rest is not None:  # the law of reflection in the rest frame: k' - 2 (k'.n) n
-        mirrored = k_rest - 2.0 * np.sum(k_rest * normals, axis=1)[:, None] * normals
-        cos_alpha = np.sum(mirrored * out_rest, axis=1)
-    if lamp.distant:
-        d_beam = d_in if effects.beaming else np.ones(n)
-        irradiance = lamp.irradiance * d_in**2 * cos_in
-        weight = lamp.irradiance * cos_in / (math.pi * d_beam**2)
-    else:
-        r_rest = distance * (k0_s if rel else np.linalg.norm(k - beta_s, axis=1))
-        irradiance = d_in**4 * lamp.power * cos_in / (4.0 * math.pi * r_rest**2)
-        weight = lamp.power * cos_in / (4.0 * math.pi**2 * r_rest**2)
+    d_in, cos_in, weight, irradiance, cos_alpha = _lamp_geometry(
+        k,
+        k0_lamp,
+        distance,
+        np.ascontiguousarray(beta_s, dtype=np.float64),
+        np.ascontiguousarray(normals, dtype=np.float64),
+        np.zeros((0, 3)) if out_rest is None else np.ascontiguousarray(out_rest, np.float64),
+        bool(effects.contraction),
+        bool(effects.aberration),
+        bool(effects.beaming),
+        bool(lamp.distant),
+        float(lamp.irradiance if lamp.distant else lamp.power),
+    )
+    if out_rest is None:
+        cos_alpha = None
     visible = np.zeros(n)
     lit = np.nonzero(cos_in > 0)[0]
-    if len(lit):
+    if len(lit) == n:  # every point faces the lamp: no gathering
+        visible[:] = _unshadowed(lamp, tracer, events, k, distance, ev_l, effects, reference)
+    elif len(lit):
         visible[lit] = _unshadowed(
             lamp,
             tracer,
@@ -458,6 +544,61 @@ def lamp_term(
             reference,
         )
     return LampTerm(d_in, weight, visible, irradiance, cos_alpha)
+
+
+@njit(parallel=True, cache=True)
+def _lamp_geometry(
+    k, k0_lamp, distance, beta_s, normals, out_rest, rel, aberration, beaming, distant, source
+):
+    """Per hit, one lamp's light in the surface's rest frame R (module docstring, steps 3
+    and 4): (D_in, cos theta', the factor A, the bolometric irradiance W/m^2, cos alpha'
+    of the glossy lobe (when ``out_rest`` has rows)). ``source``: the lamp's power W, or
+    a distant lamp's irradiance W/m^2. The photon (1, k) boosted into R: frequency ratio
+    k0_s = gamma (1 - beta.k) and direction k' (:func:`_null_to_frame`'s formulas; k'
+    = k with ``aberration`` off); r' = distance x k0_s (Galilean: |k - beta|)."""
+    n = k.shape[0]
+    d_in = np.empty(n)
+    cos_in = np.empty(n)
+    weight = np.empty(n)
+    irradiance = np.empty(n)
+    cos_alpha = np.zeros(n)
+    lobe = out_rest.shape[0] == n
+    for i in prange(n):
+        bx, by, bz = beta_s[i, 0], beta_s[i, 1], beta_s[i, 2]
+        kx, ky, kz = k[i, 0], k[i, 1], k[i, 2]
+        bk = bx * kx + by * ky + bz * kz
+        if rel:
+            g = 1.0 / math.sqrt(1.0 - (bx * bx + by * by + bz * bz))
+            k0 = g * (1.0 - bk)
+            a = g * g / (g + 1.0) * bk - g
+            rx, ry, rz = (kx + a * bx) / k0, (ky + a * by) / k0, (kz + a * bz) / k0
+            stretch = k0
+        else:
+            k0 = 1.0 - bk
+            rx, ry, rz = kx - bx, ky - by, kz - bz
+            stretch = math.sqrt(rx * rx + ry * ry + rz * rz)
+            rx, ry, rz = rx / stretch, ry / stretch, rz / stretch
+        if not aberration:
+            rx, ry, rz = kx, ky, kz
+        d = k0 / k0_lamp[i]
+        d_in[i] = d
+        kn = rx * normals[i, 0] + ry * normals[i, 1] + rz * normals[i, 2]
+        c = max(-kn, 0.0)
+        cos_in[i] = c
+        if lobe:  # the law of reflection in R: k' - 2 (k'.n) n against the outgoing ray
+            mx = rx - 2.0 * kn * normals[i, 0]
+            my = ry - 2.0 * kn * normals[i, 1]
+            mz = rz - 2.0 * kn * normals[i, 2]
+            cos_alpha[i] = mx * out_rest[i, 0] + my * out_rest[i, 1] + mz * out_rest[i, 2]
+        if distant:
+            d_beam = d if beaming else 1.0
+            irradiance[i] = source * d * d * c
+            weight[i] = source * c / (math.pi * d_beam * d_beam)
+        else:
+            r = distance[i] * stretch
+            irradiance[i] = d**4 * source * c / (4.0 * math.pi * r * r)
+            weight[i] = source * c / (4.0 * math.pi**2 * r * r)
+    return d_in, cos_in, weight, irradiance, cos_alpha
 
 
 def _unshadowed(lamp: Lamp, tracer, events, k, distance, ev_l, effects: Effects, reference):
@@ -585,7 +726,7 @@ def incident_light(
     out = np.asarray(camera_event, float)[..., 1:] - events[:, 1:]
     out /= np.linalg.norm(out, axis=1)[:, None]
     _, out_rest = null_to_frame(out, beta_s, bool(effects.contraction))
-    normals = normals * np.where(np.sum(normals * out_rest, axis=1) < 0, -1.0, 1.0)[:, None]
+    normals = _facing(normals, out_rest)
     if not effects.aberration:
         out_rest = out
     terms = [

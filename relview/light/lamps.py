@@ -307,6 +307,7 @@ class LitTable:
         self._weights = K_M_LM_PER_W * weights.reshape(len(lam), -1)
         self.k_lo = 0
         self.q = np.zeros((0, nv, 3, 3))
+        self._log_q = self.q
 
     def _compute(self, ks: np.ndarray) -> np.ndarray:
         u = ks * U_STEP
@@ -325,6 +326,7 @@ class LitTable:
         if self.q.shape[0] == 0:
             self.k_lo = lo
             self.q = self._compute(np.arange(lo, hi + 1))
+            self._log_q = _log_table(self.q)
             return
         k_hi = self.k_lo + self.q.shape[0] - 1
         parts = []
@@ -336,6 +338,7 @@ class LitTable:
         if len(parts) > 1:
             self.q = np.concatenate(parts)
             self.k_lo = min(lo, self.k_lo)
+            self._log_q = _log_table(self.q)
 
     def lookup(self, d_in, d_out) -> np.ndarray:
         """(N, 3 basis, 3 XYZ): Q_c(D_in, D_out) per hit."""
@@ -353,7 +356,35 @@ class LitTable:
         u = np.log(d_in) + np.log(d_out)
         self._cover(float(u.min()), float(u.max()))
         v = np.clip(np.log(d_out), V_MIN, self.v_nodes[-1])
-        return _bilinear(u, v, self.k_lo * U_STEP, self.v0, self.q)
+        return _bilinear(u, v, self.k_lo * U_STEP, self.v0, self.q, self._log_q)
+
+    def add_reflected(self, out, rows, d_in, d_out, weights, scale) -> None:
+        """out[rows] += scale sum_c weights_c Q_c(D_in, D_out): the XYZ (N, 3) reflected by
+        basis weights (M, 3) at the ``rows`` (M,) (distinct) of ``out``, with the lookup
+        and the weighted sum in one compiled pass (:meth:`lookup` holds the rules)."""
+        d_in = np.asarray(d_in, float).reshape(-1)
+        d_out = np.asarray(d_out, float).reshape(-1)
+        if d_in.size == 0:
+            return
+        if not (np.all(d_in > 0) and np.all(d_out > 0)):
+            raise ValueError("Doppler factors must be finite and > 0")
+        u = np.log(d_in) + np.log(d_out)
+        if not np.all(np.isfinite(u)):
+            raise ValueError("Doppler factors must be finite and > 0")
+        self._cover(float(u.min()), float(u.max()))
+        v = np.clip(np.log(d_out), V_MIN, self.v_nodes[-1])
+        _bilinear_add(
+            out,
+            np.ascontiguousarray(rows, np.int64),
+            u,
+            v,
+            self.k_lo * U_STEP,
+            self.v0,
+            self.q,
+            self._log_q,
+            np.ascontiguousarray(weights, np.float64),
+            np.ascontiguousarray(scale, np.float64),
+        )
 
     def direct(self, d_in: float, d_out: float) -> np.ndarray:
         """(3, 3) Q by the same bin sum at exactly (D_in, D_out), no table (for checks)."""
@@ -366,40 +397,67 @@ class LitTable:
         return K_M_LM_PER_W * scale**5 * np.einsum("l,lk,lc->ck", bins, spectrum.CMF_VALUES, basis)
 
 
+def _log_table(q: np.ndarray) -> np.ndarray:
+    """ln Q where Q > 0, -inf elsewhere (the interpolation's corners, logged once)."""
+    with np.errstate(divide="ignore"):
+        return np.log(np.maximum(q, 0.0))
+
+
+@njit(cache=True, inline="always")
+def _corner(q, lq, a, b, tx, ty, c, k):
+    """Q_c,k interpolated between the nodes (a, b) and (a + 1, b + 1) at fractions (tx,
+    ty): in ln Q where the four corners are positive, else in Q."""
+    l00, l10, l01, l11 = (
+        lq[a, b, c, k],
+        lq[a + 1, b, c, k],
+        lq[a, b + 1, c, k],
+        lq[a + 1, b + 1, c, k],
+    )
+    w00, w10, w01, w11 = (1 - tx) * (1 - ty), tx * (1 - ty), (1 - tx) * ty, tx * ty
+    if l00 > -np.inf and l10 > -np.inf and l01 > -np.inf and l11 > -np.inf:
+        return np.exp(w00 * l00 + w10 * l10 + w01 * l01 + w11 * l11)
+    return (
+        w00 * q[a, b, c, k]
+        + w10 * q[a + 1, b, c, k]
+        + w01 * q[a, b + 1, c, k]
+        + w11 * q[a + 1, b + 1, c, k]
+    )
+
+
+@njit(cache=True, inline="always")
+def _node(u, v, u0, v0, nu, nv):
+    """(a, b, tx, ty): the table cell of (u, v) and the fractions inside it."""
+    x = (u - u0) / U_STEP
+    y = (v - v0) / V_STEP
+    a = min(max(int(np.floor(x)), 0), nu - 2)
+    b = min(max(int(np.floor(y)), 0), nv - 2)
+    return a, b, x - a, y - b
+
+
 @njit(parallel=True, cache=True)
-def _bilinear(u, v, u0, v0, q):
+def _bilinear(u, v, u0, v0, q, lq):
     n = u.shape[0]
-    nu = q.shape[0]
-    nv = q.shape[1]
     out = np.empty((n, 3, 3))
     for i in prange(n):
-        x = (u[i] - u0) / U_STEP
-        y = (v[i] - v0) / V_STEP
-        a = min(max(int(np.floor(x)), 0), nu - 2)
-        b = min(max(int(np.floor(y)), 0), nv - 2)
-        tx = x - a
-        ty = y - b
+        a, b, tx, ty = _node(u[i], v[i], u0, v0, q.shape[0], q.shape[1])
         for c in range(3):
             for k in range(3):
-                q00 = q[a, b, c, k]
-                q10 = q[a + 1, b, c, k]
-                q01 = q[a, b + 1, c, k]
-                q11 = q[a + 1, b + 1, c, k]
-                if q00 > 0.0 and q10 > 0.0 and q01 > 0.0 and q11 > 0.0:
-                    out[i, c, k] = np.exp(
-                        (1 - tx) * (1 - ty) * np.log(q00)
-                        + tx * (1 - ty) * np.log(q10)
-                        + (1 - tx) * ty * np.log(q01)
-                        + tx * ty * np.log(q11)
-                    )
-                else:
-                    out[i, c, k] = (
-                        (1 - tx) * (1 - ty) * q00
-                        + tx * (1 - ty) * q10
-                        + (1 - tx) * ty * q01
-                        + tx * ty * q11
-                    )
+                out[i, c, k] = _corner(q, lq, a, b, tx, ty, c, k)
     return out
+
+
+@njit(parallel=True, cache=True)
+def _bilinear_add(out, rows, u, v, u0, v0, q, lq, weights, scale):
+    """out[rows[i]] += scale[i] sum_c weights[i, c] Q_c at (u[i], v[i]) (as
+    :func:`_bilinear`)."""
+    for i in prange(u.shape[0]):
+        a, b, tx, ty = _node(u[i], v[i], u0, v0, q.shape[0], q.shape[1])
+        r = rows[i]
+        for c in range(3):
+            w = weights[i, c] * scale[i]
+            if w != 0.0:
+                for k in range(3):
+                    out[r, k] += w * _corner(q, lq, a, b, tx, ty, c, k)
 
 
 _TABLES: dict[Hashable, LitTable] = {}
@@ -488,8 +546,7 @@ class Incident:
         for table, lit, dc_in, dc_out, scale, refl in self._lit_parts(
             d_out, effects, rgb, gloss, exponent
         ):
-            q = table.lookup(dc_in, dc_out)
-            out[lit] += np.einsum("nc,nck->nk", refl, q) * scale[:, None]
+            table.add_reflected(out, lit, dc_in, dc_out, refl, scale)
         return out
 
     def spectrum_seen(
