@@ -161,6 +161,8 @@ def lamp_events(lamp: Lamp, events: np.ndarray, effects: Effects):
     if motion.is_inertial:
         beta, e0 = motion.inertial_frame()
         beta = np.asarray(beta, float)
+        if not np.any(beta):  # at rest: its light left |x_E - x_L| before E
+            return _at_rest_source(events, np.asarray(e0[1:], float)), np.broadcast_to(beta, (n, 3))
         x_now = e0[1:] + np.outer(t - e0[0], beta)  # the lamp at each event's time
         tau = inertial_light_delay(events[:, 1:] - x_now, beta)
         x_now -= tau[:, None] * beta
@@ -344,25 +346,27 @@ class RetardedOccluders:
     def packed(self):
         return self.exposure_tracer.packed
 
-    def cast(
-        self,
-        ray_origin: np.ndarray,
-        d_scene: np.ndarray,
-        effects: Effects,
-        l_min: float = 1e-9,
-        beta_cam=None,
-        reference=None,
-    ):
+    def first_hits(self, ray_origin, d_scene, effects: Effects, l_min=1e-9, reference=None):
+        """(l, body) of the nearest hits (Tracer.first_hits), each cluster of start events
+        through the snapshots on its centre's light cone."""
+        n = len(d_scene)
+        l = np.full(n, np.inf)
+        body = np.full(n, -1, np.int64)
+        for tracer, rows, starts in self._clusters(ray_origin, d_scene, effects, reference):
+            l[rows], body[rows] = tracer.first_hits(
+                starts, d_scene[rows], effects, l_min, reference
+            )
+        return l, body
+
+    def _clusters(self, ray_origin, d_scene, effects: Effects, reference):
+        """(tracer, rows, their start events) per cluster of the start events (class
+        docstring): the tracer of the uniform groups and the cluster's snapshots."""
         from relview.geometry import lightcone  # loads the snapshot kernels on first use
 
-        d_scene = np.asarray(d_scene, float)
         starts = np.broadcast_to(np.asarray(ray_origin, float), (len(d_scene), 4))
-        if len(d_scene) == 0:
-            return self.exposure_tracer.cast(starts, d_scene, effects, l_min, beta_cam, reference)
         where = np.median(np.linalg.norm(starts[:, 1:] - self.exposure_event[1:], axis=1))
         clusters = event_clusters(starts, self.cluster_angle * where, self.max_clusters)
         self.spread = max(c[3] for c in clusters)
-        merged = None
         for key, centre, rows, _ in clusters:
             tracer = self._tracers.get(key)
             if tracer is None:  # one snapshot per grid cell and exposure, shared by casts
@@ -376,14 +380,24 @@ class RetardedOccluders:
                     reference=reference,
                 )
                 tracer = self._tracers[key] = Tracer(self.uniform_groups + snaps)
-            hits = tracer.cast(
-                np.ascontiguousarray(starts[rows]),
-                d_scene[rows],
-                effects,
-                l_min,
-                beta_cam,
-                reference,
-            )
+            yield tracer, rows, np.ascontiguousarray(starts[rows])
+
+    def cast(
+        self,
+        ray_origin: np.ndarray,
+        d_scene: np.ndarray,
+        effects: Effects,
+        l_min: float = 1e-9,
+        beta_cam=None,
+        reference=None,
+    ):
+        d_scene = np.asarray(d_scene, float)
+        if len(d_scene) == 0:
+            starts = np.broadcast_to(np.asarray(ray_origin, float), (0, 4))
+            return self.exposure_tracer.cast(starts, d_scene, effects, l_min, beta_cam, reference)
+        merged = None
+        for tracer, rows, starts in self._clusters(ray_origin, d_scene, effects, reference):
+            hits = tracer.cast(starts, d_scene[rows], effects, l_min, beta_cam, reference)
             if merged is None:
                 merged = {
                     k: (None if v is None else np.empty((len(d_scene),) + v.shape[1:], v.dtype))
@@ -411,9 +425,8 @@ def _shadow_free(
     ray meeting it first met nothing between the surface and the lamp."""
     if tracer is None or tracer.packed is None or len(start) == 0:
         return np.ones(len(start), bool)
-    centred = {} if reference is None else {"reference": reference}
-    hits = tracer.cast(start, towards, effects, l_min=SHADOW_OFFSET_M, **centred)
-    return ~((hits.l < distance * (1.0 - 1e-9)) & (hits.body != own_body))
+    l, body = tracer.first_hits(start, towards, effects, SHADOW_OFFSET_M, reference)
+    return ~((l < distance * (1.0 - 1e-9)) & (body != own_body))
 
 
 def _disc_points(lamp: Lamp, k: np.ndarray) -> np.ndarray:
@@ -469,6 +482,21 @@ def _lamp_light(lamp: Lamp, events: np.ndarray, effects: Effects):
         rel,
     )
     return k, k0_lamp, ev_l, distance
+
+
+@njit(parallel=True, cache=True)
+def _at_rest_source(events, x):
+    """(N,4) events of a source at rest at ``x`` (3,) whose light reaches the ``events``
+    (N,4): (ct_E - |x_E - x|, x) (light at c in S)."""
+    n = events.shape[0]
+    out = np.empty((n, 4))
+    for i in prange(n):
+        dx = events[i, 1] - x[0]
+        dy = events[i, 2] - x[1]
+        dz = events[i, 3] - x[2]
+        out[i, 0] = events[i, 0] - math.sqrt(dx * dx + dy * dy + dz * dz)
+        out[i, 1], out[i, 2], out[i, 3] = x[0], x[1], x[2]
+    return out
 
 
 @njit(parallel=True, cache=True)
@@ -735,6 +763,15 @@ def incident_light(
     ]
     d_in = np.stack([t.d_in for t in terms])
     weight = np.stack([t.weight * t.visible for t in terms])
+    tables = [lit_table(lamp.spectrum) for lamp in scene.lamps]
+    incident = Incident(tables, d_in, weight, np.stack([t.cos_alpha for t in terms]))
+    if len(terms) == 1:  # one lamp: it is the brightest, its shadow the shadowed fraction
+        lit = terms[0].irradiance > 0
+        return (
+            incident,
+            np.where(lit, d_in[0], np.nan),
+            np.where(lit, 1.0 - terms[0].visible, np.nan),
+        )
     irr = np.stack([t.irradiance for t in terms])
     total = irr.sum(axis=0)
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -745,9 +782,7 @@ def incident_light(
         )
     brightest = np.take_along_axis(d_in, np.argmax(irr, axis=0)[None], 0)[0]
     brightest = np.where(total > 0, brightest, np.nan)
-    tables = [lit_table(lamp.spectrum) for lamp in scene.lamps]
-    cos_alpha = np.stack([t.cos_alpha for t in terms])
-    return Incident(tables, d_in, weight, cos_alpha), brightest, shadowed
+    return incident, brightest, shadowed
 
 
 # --------------------------------------------------------------------------------------

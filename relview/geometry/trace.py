@@ -535,6 +535,38 @@ class Tracer:
         self.g_beta = np.stack([np.asarray(g.beta, float) for g in groups])
         assert len(self.tri_body) == len(p.v0)
 
+    def first_hits(
+        self,
+        ray_origin: np.ndarray,
+        d_scene: np.ndarray,
+        effects: Effects,
+        l_min: float = 1e-9,
+        reference=None,
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """(l (N,), body (N,), -1 where nothing is met): the nearest hits of rays with
+        their own (N, 4) start events, as :meth:`cast` finds them, without resolving
+        them (what a shadow ray needs)."""
+        n = len(d_scene)
+        if self.packed is None:
+            return np.full(n, np.inf), np.full(n, -1, np.int64)
+        p = self.packed
+        ray_abs = np.atleast_2d(np.asarray(ray_origin, dtype=np.float64))
+        ref, g_origin = self._centred_origins(ray_abs[0], reference)
+        k_time = -1.0 if effects.delay else 0.0
+        l, tri, _, _ = _cast(
+            np.ascontiguousarray(ray_abs - ref),
+            np.ascontiguousarray(d_scene, dtype=np.float64),
+            k_time,
+            g_origin,
+            self.g_matrix,
+            p.root,
+            p.nodes,
+            p.links,
+            p.tris,
+            l_min,
+        )
+        return l, np.where(tri >= 0, self.tri_body[np.maximum(tri, 0)], -1)
+
     def cast(
         self,
         ray_origin: np.ndarray,
