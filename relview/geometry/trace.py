@@ -535,6 +535,15 @@ class Tracer:
         self.g_beta = np.stack([np.asarray(g.beta, float) for g in groups])
         assert len(self.tri_body) == len(p.v0)
 
+    def _kernel_rays(self, ray_origin, d_scene, effects: Effects, reference):
+        """(reference event R (4,), start events - R (N or 1, 4), directions (N, 3),
+        k_time, group origins - R): a cast's rays as the kernels take them."""
+        ray_abs = np.atleast_2d(np.asarray(ray_origin, dtype=np.float64))
+        ref, g_origin = self._centred_origins(ray_abs[0], reference)
+        ray_o = np.ascontiguousarray(ray_abs - ref)
+        ray_d = np.ascontiguousarray(d_scene, dtype=np.float64)
+        return ref, ray_o, ray_d, (-1.0 if effects.delay else 0.0), g_origin
+
     def first_hits(
         self,
         ray_origin: np.ndarray,
@@ -550,12 +559,12 @@ class Tracer:
         if self.packed is None:
             return np.full(n, np.inf), np.full(n, -1, np.int64)
         p = self.packed
-        ray_abs = np.atleast_2d(np.asarray(ray_origin, dtype=np.float64))
-        ref, g_origin = self._centred_origins(ray_abs[0], reference)
-        k_time = -1.0 if effects.delay else 0.0
+        _, ray_o, ray_d, k_time, g_origin = self._kernel_rays(
+            ray_origin, d_scene, effects, reference
+        )
         l, tri, _, _ = _cast(
-            np.ascontiguousarray(ray_abs - ref),
-            np.ascontiguousarray(d_scene, dtype=np.float64),
+            ray_o,
+            ray_d,
             k_time,
             g_origin,
             self.g_matrix,
@@ -584,11 +593,9 @@ class Tracer:
         if self.packed is None:
             return _empty_hits(len(d_scene))
         p = self.packed
-        ray_abs = np.atleast_2d(np.asarray(ray_origin, dtype=np.float64))
-        ref, g_origin = self._centred_origins(ray_abs[0], reference)
-        ray_o = np.ascontiguousarray(ray_abs - ref)
-        ray_d = np.ascontiguousarray(d_scene, dtype=np.float64)
-        k_time = -1.0 if effects.delay else 0.0
+        ref, ray_o, ray_d, k_time, g_origin = self._kernel_rays(
+            ray_origin, d_scene, effects, reference
+        )
         if len(ray_o) == 1:
             l, tri, u, v = _cast_packets(
                 ray_o,
