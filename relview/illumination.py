@@ -62,6 +62,24 @@ def null_to_frame(k: np.ndarray, beta: np.ndarray, relativistic: bool = True):
     return _null_to_frame(k, beta, bool(relativistic))
 
 
+@njit(cache=True, inline="always")
+def _boost(kx, ky, kz, bx, by, bz, relativistic):
+    """A photon (1, k) seen from a frame moving with beta: (frequency ratio k0, unit
+    direction k' components, the length |k - beta| of the Galilean map or k0). The pure
+    boost (Jackson eq. 11.19, (gamma-1)/b^2 = gamma^2/(gamma+1)): k0 = gamma (1 - beta.k),
+    k' = (k + (gamma^2/(gamma+1) beta.k - gamma) beta) / k0; Galilean: 1 - beta.k and
+    (k - beta) / |k - beta|."""
+    bk = bx * kx + by * ky + bz * kz
+    if relativistic:
+        g = 1.0 / math.sqrt(1.0 - (bx * bx + by * by + bz * bz))
+        k0 = g * (1.0 - bk)
+        a = g * g / (g + 1.0) * bk - g
+        return k0, (kx + a * bx) / k0, (ky + a * by) / k0, (kz + a * bz) / k0, k0
+    x, y, z = kx - bx, ky - by, kz - bz
+    q = math.sqrt(x * x + y * y + z * z)
+    return 1.0 - bk, x / q, y / q, z / q, q
+
+
 @njit(parallel=True, cache=True)
 def _null_to_frame(k, beta, relativistic):
     n = k.shape[0]
@@ -70,19 +88,9 @@ def _null_to_frame(k, beta, relativistic):
     step = 0 if beta.shape[0] == 1 else 1  # one velocity for all, or one per photon
     for i in prange(n):
         j = i * step
-        bx, by, bz = beta[j, 0], beta[j, 1], beta[j, 2]
-        bk = bx * k[i, 0] + by * k[i, 1] + bz * k[i, 2]
-        if relativistic:
-            g = 1.0 / math.sqrt(1.0 - (bx * bx + by * by + bz * bz))
-            a = g * g / (g + 1.0) * bk - g
-            k0[i] = g * (1.0 - bk)
-            x, y, z = k[i, 0] + a * bx, k[i, 1] + a * by, k[i, 2] + a * bz
-            kp[i, 0], kp[i, 1], kp[i, 2] = x / k0[i], y / k0[i], z / k0[i]
-        else:
-            k0[i] = 1.0 - bk
-            x, y, z = k[i, 0] - bx, k[i, 1] - by, k[i, 2] - bz
-            r = math.sqrt(x * x + y * y + z * z)
-            kp[i, 0], kp[i, 1], kp[i, 2] = x / r, y / r, z / r
+        k0[i], kp[i, 0], kp[i, 1], kp[i, 2], _ = _boost(
+            k[i, 0], k[i, 1], k[i, 2], beta[j, 0], beta[j, 1], beta[j, 2], relativistic
+        )
     return k0, kp
 
 
@@ -247,16 +255,35 @@ def rest_normals(
 
 
 @njit(parallel=True, cache=True)
-def _facing(normals, towards):
-    """(N,3) the normals turned, each, to the side of ``towards`` (N,3)."""
-    out = np.empty_like(normals)
-    for i in prange(normals.shape[0]):
-        dot = normals[i, 0] * towards[i, 0] + normals[i, 1] * towards[i, 1]
-        dot += normals[i, 2] * towards[i, 2]
+def _facing(normals, viewer, events, beta_s, relativistic, aberration):
+    """(normals turned to the viewer's side (N,3), unit direction towards the viewer in
+    the surface's rest frame (N,3)): the S direction from each event (N,4) to the viewer
+    ((1,4) or (N,4)) boosted into the frame moving with beta_s (:func:`_null_to_frame`'s
+    formulas); the normals are judged against it, and with ``aberration`` off the S
+    direction itself is returned as the rest-frame one (docs/physics.md)."""
+    n = events.shape[0]
+    turned = np.empty((n, 3))
+    towards = np.empty((n, 3))
+    step = 0 if viewer.shape[0] == 1 else 1
+    for i in prange(n):
+        j = i * step
+        x = viewer[j, 1] - events[i, 1]
+        y = viewer[j, 2] - events[i, 2]
+        z = viewer[j, 3] - events[i, 3]
+        r = math.sqrt(x * x + y * y + z * z)
+        kx, ky, kz = x / r, y / r, z / r
+        _, rx, ry, rz, _ = _boost(
+            kx, ky, kz, beta_s[i, 0], beta_s[i, 1], beta_s[i, 2], relativistic
+        )
+        dot = normals[i, 0] * rx + normals[i, 1] * ry + normals[i, 2] * rz
         sign = -1.0 if dot < 0.0 else 1.0
         for c in range(3):
-            out[i, c] = sign * normals[i, c]
-    return out
+            turned[i, c] = sign * normals[i, c]
+        if aberration:
+            towards[i, 0], towards[i, 1], towards[i, 2] = rx, ry, rz
+        else:
+            towards[i, 0], towards[i, 1], towards[i, 2] = kx, ky, kz
+    return turned, towards
 
 
 #: shading points whose emission events lie within this angle (rad), seen from the
@@ -592,20 +619,8 @@ def _lamp_geometry(
     cos_alpha = np.zeros(n)
     lobe = out_rest.shape[0] == n
     for i in prange(n):
-        bx, by, bz = beta_s[i, 0], beta_s[i, 1], beta_s[i, 2]
         kx, ky, kz = k[i, 0], k[i, 1], k[i, 2]
-        bk = bx * kx + by * ky + bz * kz
-        if rel:
-            g = 1.0 / math.sqrt(1.0 - (bx * bx + by * by + bz * bz))
-            k0 = g * (1.0 - bk)
-            a = g * g / (g + 1.0) * bk - g
-            rx, ry, rz = (kx + a * bx) / k0, (ky + a * by) / k0, (kz + a * bz) / k0
-            stretch = k0
-        else:
-            k0 = 1.0 - bk
-            rx, ry, rz = kx - bx, ky - by, kz - bz
-            stretch = math.sqrt(rx * rx + ry * ry + rz * rz)
-            rx, ry, rz = rx / stretch, ry / stretch, rz / stretch
+        k0, rx, ry, rz, stretch = _boost(kx, ky, kz, beta_s[i, 0], beta_s[i, 1], beta_s[i, 2], rel)
         if not aberration:
             rx, ry, rz = kx, ky, kz
         d = k0 / k0_lamp[i]
@@ -751,12 +766,15 @@ def incident_light(
         body, body_index, mesh, hits.face[sel], hits.bary[sel], events, beta_s, effects
     )
     # two-sided: the normal on the camera's side, judged in the surface's rest frame
-    out = np.asarray(camera_event, float)[..., 1:] - events[:, 1:]
-    out /= np.linalg.norm(out, axis=1)[:, None]
-    _, out_rest = null_to_frame(out, beta_s, bool(effects.contraction))
-    normals = _facing(normals, out_rest)
-    if not effects.aberration:
-        out_rest = out
+    viewer = np.ascontiguousarray(np.asarray(camera_event, float).reshape(-1, 4))
+    normals, out_rest = _facing(
+        np.ascontiguousarray(normals, np.float64),
+        viewer,
+        np.ascontiguousarray(events, np.float64),
+        np.ascontiguousarray(beta_s, np.float64),
+        bool(effects.contraction),
+        bool(effects.aberration),
+    )
     terms = [
         lamp_term(lamp, tracer, events, beta_s, normals, effects, reference, out_rest)
         for lamp in scene.lamps
