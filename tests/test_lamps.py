@@ -869,3 +869,23 @@ def test_gloss_keys_are_read_and_checked(tmp_path):
             ('gloss = "high"\n', "gloss"),
         ),
     )
+
+
+def test_shadow_rays_find_the_nearest_hits_of_a_full_cast():
+    """Tracer.first_hits (what shadow rays ask) finds the same nearest hit, length and
+    body, as Tracer.cast for rays with their own start events, bodies at rest and moving
+    (a consistency check of the two entry points; their physics is checked above)."""
+    moving = plate(name="moving", size=(3.0, 3.0), beta=(0.6, 0.0, 0.0), position=(0, 0, 1))
+    bodies = [plate(size=(10.0, 10.0)), moving]
+    meshes = [_box_mesh(b) for b in bodies]
+    tracer = Tracer(uniform_groups(bodies, meshes, Effects()))
+    rng = np.random.default_rng(5)
+    n = 2000
+    starts = np.column_stack([rng.uniform(-2, 2, n), rng.uniform(-3, 3, (n, 2)), np.full(n, 3.0)])
+    d = rng.normal(size=(n, 3))
+    d[:, 2] = -np.abs(d[:, 2])
+    d /= np.linalg.norm(d, axis=1)[:, None]
+    hits = tracer.cast(starts, d, Effects())
+    l, body = tracer.first_hits(starts, d, Effects())
+    assert np.array_equal(body, hits.body) and np.array_equal(l, hits.l)
+    assert (body == 1).sum() > 50 and (body == 0).sum() > 50

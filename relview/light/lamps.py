@@ -24,7 +24,8 @@ sources (docs/physics.md, "Lamps"):
   incidence in R; integrated over lambda this is D_in^4 P cos(theta') / (4 pi r'^2);
 * distant lamp: a plane wave's energy flux goes as D^2 (Einstein 1905, section 8), so
   E_lambda(lambda) = cos(theta') D_in^3 E0 p(D_in lambda);
-* Lambert reflection in R: L_lambda = rho(lambda) E_lambda / pi;
+* Lambert reflection in R: L_lambda = rho(lambda) E_lambda / pi, and with ``gloss`` g a
+  neutral glossy lobe: (1 - g) rho / pi + g (n + 2)/(2 pi) cos^n alpha (:func:`glossy_lobe`);
 * to the camera: L_obs(lambda) = D_out^5 L_lambda(D_out lambda) (physics.md).
 
 So a surface of linear-sRGB reflectance (r, g, b) (Mallett & Yuksel basis, as for the
