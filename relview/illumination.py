@@ -807,9 +807,19 @@ def incident_light(
 # Mirrors: the reflected rays, and what tinted mirrors show, wavelength by wavelength
 # --------------------------------------------------------------------------------------
 
-#: hits whose spectra are held at once in a tinted mirror (x 471 wavelengths x 8 bytes:
-#: about 31 MB per array)
-SPECTRAL_CHUNK = 8192
+#: wavelength step (nm) of the spectra of what tinted mirrors show: every 5th node of the
+#: 1-nm CIE 1931 table (the 5-nm interval CIE 15 gives for colorimetric sums); lamp
+#: spectra and emission lines enter as their energy in each 5-nm bin, so narrow lines
+#: keep their power
+SPECTRAL_STEP = 5
+#: their wavelengths (nm), 360-830, and the colour-matching functions there
+SPECTRAL_NM = CMF_WAVELENGTHS_NM[::SPECTRAL_STEP]
+SPECTRAL_CMF = CMF_VALUES[::SPECTRAL_STEP] * float(
+    CMF_WAVELENGTHS_NM[SPECTRAL_STEP] - CMF_WAVELENGTHS_NM[0]
+)
+#: hits whose spectra are held at once in a tinted mirror (x 95 wavelengths x 8 bytes:
+#: about 3 MB per array)
+SPECTRAL_CHUNK = 4096
 
 
 def hit_uv(context, body_index: int, hits, sel: np.ndarray, surface):
@@ -849,20 +859,20 @@ def reflected_rays(scene, context, hits, body_index: int, sel, doppler, effects,
 
 
 def spectra_xyz(spectra: np.ndarray) -> np.ndarray:
-    """(N, 3) CIE 1931 XYZ (Y in cd/m^2) of spectral radiances (N, L) on the 1-nm grid of
-    the colour-matching functions: K_m sum xbar_k S (midpoint rule, 1-nm bins; CIE 15)."""
-    return K_M_LM_PER_W * spectra @ CMF_VALUES
+    """(N, 3) CIE 1931 XYZ (Y in cd/m^2) of spectral radiances (N, L) at SPECTRAL_NM:
+    K_m sum xbar_k S dlambda (5-nm bins; CIE 15)."""
+    return K_M_LM_PER_W * spectra @ SPECTRAL_CMF
 
 
 def mirror_spectra(
     scene, context, hits, body_index, sel, doppler, effects, viewer, bounce, beta_cam
 ):
-    """(N, L) spectral radiance the camera records at CMF_WAVELENGTHS_NM from the hits
+    """(N, L) spectral radiance the camera records at SPECTRAL_NM from the hits
     ``sel`` of a mirror: what its reflected rays meet (:func:`seen_spectra`) or the sky,
     times the mirror's reflectance at the wavelength the light has in the mirror's frame,
     D_out lambda (``doppler`` off: lambda). ``beta_cam``: the camera's velocity at the
     exposure (fixes the microwave sky's frame when given relative to the camera)."""
-    lam = CMF_WAVELENGTHS_NM
+    lam = SPECTRAL_NM
     surface = scene.bodies[body_index].surface
     start, d_r, beta_m, seen, d_total = reflected_rays(
         scene, context, hits, body_index, sel, doppler, effects, viewer
@@ -886,12 +896,12 @@ def mirror_spectra(
 def seen_spectra(
     scene, context, hits, doppler, effects, viewer, bounce: int, beta_cam
 ) -> np.ndarray:
-    """(N, L) spectral radiance recorded at CMF_WAVELENGTHS_NM of every hit (zeros on
+    """(N, L) spectral radiance recorded at SPECTRAL_NM of every hit (zeros on
     misses), the spectral counterpart of relview.renderer.shade for what tinted mirrors
     show: each surface's Surface.spectrum_seen, lit surfaces with their lamps' light as
     received at their own events (turned towards ``viewer``, the mirror's events),
     mirrors by :func:`mirror_spectra` up to their ``bounces``."""
-    out = np.zeros((len(doppler), len(CMF_WAVELENGTHS_NM)))
+    out = np.zeros((len(doppler), len(SPECTRAL_NM)))
     lit_scene = scene_lit(scene)
     _, tracer, reference = context.exposure
     for i in np.unique(hits.body[hits.body >= 0]):
@@ -924,7 +934,7 @@ def seen_spectra(
                 body.motion, body.clock, hits.clock[sel], effects.contraction
             )
         out[sel] = surface.spectrum_seen(
-            CMF_WAVELENGTHS_NM,
+            SPECTRAL_NM,
             doppler[sel],
             hits.rest_position[sel],
             hit_uv(context, i, hits, sel, surface),

@@ -339,8 +339,9 @@ def test_tinted_mirror_filters_at_the_wavelengths_of_its_rest_frame(beta):
         ref = 683.0 * reflectivity * (cmfs.values * (rho[d_out * w] * planck)[:, None]).sum(axis=0)
         worst = max(worst, np.max(np.abs(got[i] / ref[1] - ref / ref[1])))
     print(f"worst XYZ error {worst:.1e} of Y")
-    # measured:
-    assert worst < 2e-3
+    # measured: 1.9e-3 of Y at both speeds: our sum over 5-nm bins (CIE 15's interval,
+    # illumination.SPECTRAL_STEP; 3.3e-4 and 1.1e-3 with 2-nm bins) against the 1-nm sum
+    assert worst < 3e-3
 
 
 def _paint(rgb):
@@ -420,6 +421,6 @@ def test_neutral_tint_equals_an_untinted_mirror_over_lit_painted_crates():
     assert in_mirror.sum() > 150
     err = np.abs(tinted[in_mirror] - flat[in_mirror]).max(axis=1) / flat[in_mirror][:, 1]
     print(f"neutral tint vs no tint: worst {err.max():.1e}, median {np.median(err):.1e}")
-    # measured: worst 7.9e-5, median 2.0e-5 (the colour tables' interpolation)
+    # measured: worst 9.7e-5, median 2.6e-5 (5-nm bins against the 1-nm colour tables)
     assert np.median(err) < 5e-4 and err.max() < 2e-3
     assert np.array_equal(flat[body != 0], tinted[body != 0])  # only the mirror changes

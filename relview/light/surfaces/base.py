@@ -150,10 +150,10 @@ class Surface:
     def spectrum_seen(
         self, wavelength_nm, doppler, rest_position, uv, effects, incident=None, **clock
     ) -> np.ndarray:
-        """(N, L) spectral radiance (W/(sr m^2 nm)) the camera records at the 1-nm grid
-        ``wavelength_nm`` (L,): the spectrum whose CIE 1931 integral lit_xyz (with
-        ``incident``) or observed_xyz gives. What a tinted mirror shows is filtered per
-        wavelength (relview.illumination.mirror_spectra)."""
+        """(N, L) spectral radiance (W/(sr m^2 nm)) the camera records at the wavelengths
+        ``wavelength_nm`` (L,), each standing for the bin around it: the spectrum whose
+        CIE 1931 integral lit_xyz (with ``incident``) or observed_xyz gives. What a
+        tinted mirror shows is filtered per wavelength (illumination.mirror_spectra)."""
         raise NotImplementedError(f"{type(self).__name__} surfaces have no seen spectrum")
 
     def __eq__(self, other) -> bool:
