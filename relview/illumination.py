@@ -879,7 +879,7 @@ def mirror_spectra(
     )
     out = seen_spectra(scene, context, seen, d_total, effects, start, bounce + 1, beta_cam)
     away = seen.body < 0
-    if np.any(away) and sky.per_pixel(scene.background):
+    if np.any(away) and sky.seen_in_mirrors(scene.background):
         out[away] = sky.spectrum_along(
             scene.background,
             lam,

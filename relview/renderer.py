@@ -711,7 +711,7 @@ def mirror_xyz(
     )
     col = shade(scene, context, seen, d_total, effects, viewer=start, bounce=bounce + 1)
     away = seen.body < 0
-    if sky.per_pixel(scene.background) and np.any(away):
+    if sky.seen_in_mirrors(scene.background) and np.any(away):
         # a reflected ray that escapes sees the sky along its own direction, received by
         # the mirror and shifted on by the mirror's D_out (relview.light.sky.seen_along)
         col[away] = sky.seen_along(

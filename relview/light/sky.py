@@ -173,8 +173,7 @@ def seen_along(
         bg, d_scene, beta_cam, effects, beta_receiver, further
     )
     if len(rows):
-        n = len(rows)
-        out[rows] = _observed(np.full(n, temperature), np.full(n, scale), dop, effects)
+        out[rows] = _observed(temperature, scale, dop, effects)
     return out
 
 
@@ -195,25 +194,39 @@ def spectrum_along(
         bg, d_scene, beta_cam, effects, beta_receiver, further
     )
     if len(rows):
-        out[rows] = scale * shifted_spectrum(
-            lambda w: spectrum.planck_spectral_radiance(w, temperature), wavelength_nm, dop, effects
+        out[rows] = scale[:, None] * shifted_spectrum(
+            lambda w: spectrum.planck_spectral_radiance(w, temperature[:, None]),
+            wavelength_nm,
+            dop,
+            effects,
         )
     return out
 
 
 def _sources_along(bg, d_scene, beta_cam, effects, beta_receiver=None, further=None):
-    """(rows (M,) that see the sky's light, its blackbody temperature K, radiance scale,
-    Doppler factor (M,) camera / sky frame) along the rays of :func:`seen_along`."""
-    none = np.zeros(0, np.int64), 0.0, 0.0, np.zeros(0)
+    """(rows (M,) that see the sky's light, their blackbody temperatures K (M,), radiance
+    scales (M,), Doppler factors (M,) camera / sky frame) along the rays of
+    :func:`seen_along`."""
+    none = np.zeros(0, np.int64), np.zeros(0), np.zeros(0), np.zeros(0)
     if len(d_scene) == 0:
         return none
     receiver = beta_cam if beta_receiver is None else beta_receiver
+    rel = bool(effects.contraction)
     if bg.kind == "cmb":
         # a blackbody at T0 seen at T is exactly a blackbody at T (I_nu / nu^3 invariant,
         # Rybicki & Lightman eq. 4.97); beaming off keeps the rest-frame brightness
         t = microwave_temperature(bg, d_scene, beta_cam, effects, receiver, further)
         t0 = float(np.asarray(bg.temperature, float).max())
-        return np.arange(len(d_scene)), t0, 1.0, t / t0
+        n = len(d_scene)
+        return np.arange(n), np.full(n, t0), np.ones(n), t / t0
+    if bg.kind == "stars":
+        rows, star = stars_hit(bg, d_scene)
+        rec = np.broadcast_to(np.asarray(receiver, float), d_scene.shape)[rows]
+        dop = _received_doppler(d_scene[rows], rec, rel)
+        if further is not None:
+            dop = dop * np.asarray(further, float)[rows]
+        _, temps, lum = _star_field(bg)
+        return rows, temps[star], lum[star], dop
     if bg.kind != "graticule":
         return none
     lat = np.degrees(np.arcsin(np.clip(d_scene[:, 2], -1.0, 1.0)))
@@ -225,12 +238,47 @@ def _sources_along(bg, d_scene, beta_cam, effects, beta_receiver=None, further=N
     dlon = np.abs(lon - sp * np.round(lon / sp)) * np.cos(np.radians(lat))
     rows = np.nonzero((dlat <= half) | (dlon <= half))[0]
     rec = np.broadcast_to(np.asarray(receiver, float), d_scene.shape)[rows]
-    dop = _received_doppler(d_scene[rows], rec, bool(effects.contraction))
+    dop = _received_doppler(d_scene[rows], rec, rel)
     if further is not None:
         dop = dop * np.asarray(further, float)[rows]
     t = _line_temperature(bg)
     scale = float(bg.luminance) / blackbody_xyz(np.array([t]))[0, 1]  # cd/m2 at rest
-    return rows, t, scale, dop
+    return rows, np.full(len(rows), t), np.full(len(rows), scale), dop
+
+
+def seen_in_mirrors(bg: Background) -> bool:
+    """Whether rays leaving a mirror can see this sky (every kind but black)."""
+    return bg.kind in ("graticule", "cmb", "stars")
+
+
+#: the star fields generated so far: (seed, count, temperatures, luminance) ->
+#: (a k-d tree of their directions, temperatures, radiance scales)
+_STAR_FIELDS: dict = {}
+
+
+def _star_field(bg: Background):
+    key = (int(bg.seed), int(bg.count), tuple(np.atleast_1d(bg.temperature)), float(bg.luminance))
+    field = _STAR_FIELDS.get(key)
+    if field is None:
+        from scipy.spatial import cKDTree  # scipy's spatial index: only for stars in mirrors
+
+        dirs, temps, lum = generate_stars(bg)
+        if len(_STAR_FIELDS) >= 8:
+            _STAR_FIELDS.pop(next(iter(_STAR_FIELDS)))
+        field = _STAR_FIELDS[key] = (cKDTree(dirs), temps, lum)
+    return field
+
+
+def stars_hit(bg: Background, d_scene: np.ndarray):
+    """(rows (M,), star index (M,)): the rays whose S direction d (N,3) falls inside a
+    star's disc, a cap of rest-frame solid angle STAR_SOLID_ANGLE = 2 pi (1 - cos r)
+    around its direction (the stars' own definition above): point samples of the discs,
+    for rays that leave mirrors (the camera's own view splats the stars instead)."""
+    tree, _, _ = _star_field(bg)
+    radius = np.arccos(1.0 - STAR_SOLID_ANGLE / (2.0 * np.pi))
+    chord, idx = tree.query(d_scene, k=1, distance_upper_bound=2.0 * np.sin(radius / 2.0))
+    rows = np.nonzero(np.isfinite(chord))[0]
+    return rows, idx[rows]
 
 
 def generate_stars(bg: Background):
