@@ -67,6 +67,7 @@ def full_loop(tracer, event, d, k_time):
         p.links,
         p.tris,
         1e-9,
+        *trace.packet_outputs(len(d)),
     )
 
 
@@ -85,6 +86,7 @@ def culled(tracer, event, d, k_time):
         p.links,
         p.tris,
         1e-9,
+        *trace.packet_outputs(len(d)),
         tree,
     )
     return out, tree[3]

@@ -299,7 +299,21 @@ def group_direction_boxes(event, k_time, g_origin, g_matrix, root_lo, root_hi):
 
 @njit(parallel=True, cache=True, fastmath=_FAST)
 def _cast_packets(
-    ray_o, ray_d, k_time, g_origin, g_matrix, roots, nodes, links, tris, l_min, cull=None
+    ray_o,
+    ray_d,
+    k_time,
+    g_origin,
+    g_matrix,
+    roots,
+    nodes,
+    links,
+    tris,
+    l_min,
+    out_l,
+    out_tri,
+    out_u,
+    out_v,
+    cull=None,
 ):
     """:func:`_cast` for rays from one shared start event ray_o (1, 4), traversed in packets
     of bvh.PACKET neighbouring rays (camera rays are coherent): same results, faster.
@@ -307,14 +321,12 @@ def _cast_packets(
     With ``cull`` = (nodes, links, order, boxes), a bvh.box_tree over the (G, 6) boxes of
     :func:`group_direction_boxes`, a packet walks only the groups whose box overlaps the
     box of its own directions, in ascending group order as without it (so ties resolve
-    the same); without, every group."""
+    the same); without, every group. The results go to out_l, out_tri, out_u, out_v (N,),
+    allocated by the caller: numpy backs large arrays with huge pages, so writing them
+    fresh costs far fewer page faults than arrays allocated here."""
     n = ray_d.shape[0]
     n_groups = roots.shape[0]
     P = bvh_mod.PACKET
-    out_l = np.full(n, np.inf)
-    out_tri = np.full(n, -1, np.int64)
-    out_u = np.zeros(n)
-    out_v = np.zeros(n)
     n_packets = (n + P - 1) // P
     for p in prange(n_packets):
         stack = np.empty(bvh_mod.STACK_SIZE, np.int64)
@@ -389,6 +401,16 @@ def _resolve(
     slot_clock,
     beta_cam,
     relativistic,
+    body,
+    face,
+    group,
+    emit,
+    rest,
+    beta,
+    doppler,
+    clock,
+    bary,
+    t_rel,
 ):
     """Per ray: body, face, emission event, body-frame hit point, emitter velocity and the
     body clock's coordinate at emission.
@@ -403,22 +425,14 @@ def _resolve(
     events are written in scene coordinates (relative event + ref, the same two roundings
     as adding ref afterwards), the barycentrics (u, v) as the (N, 2) ``bary``, and, with
     ``keep_t_rel``, the relative emission times (N,) the snapshots' clocks need (else an
-    empty array): one pass over the rays instead of a pass per array.
+    empty array): one pass over the rays instead of a pass per array. The results go to
+    the arrays body ... t_rel (:func:`_resolve_outputs`, allocated by numpy: see
+    :func:`_cast_packets`).
     """
     n = ray_d.shape[0]
     o_step = 0 if ray_o.shape[0] == 1 else 1  # one shared start event, or one per ray
     # filled in the parallel loop below (misses included), not pre-filled: one pass over
     # memory instead of two
-    body = np.empty(n, np.int64)
-    face = np.empty(n, np.int64)
-    group = np.empty(n, np.int64)
-    emit = np.empty((n, 4))
-    rest = np.empty((n, 3))
-    beta = np.empty((n, 3))
-    doppler = np.empty(n)
-    clock = np.empty(n)
-    bary = np.empty((n, 2))
-    t_rel = np.empty(n if keep_t_rel else 0)
     g_cam = camera_gamma(beta_cam, relativistic)
     for i in prange(n):
         t = tri[i]
@@ -481,7 +495,29 @@ def _resolve(
                 + slot_rotation[s, 1, a] * ry
                 + slot_rotation[s, 2, a] * rz
             )
-    return body, face, group, emit, rest, beta, doppler, clock, bary, t_rel
+
+
+def packet_outputs(n: int) -> tuple:
+    """The arrays :func:`_cast_packets` fills and returns: l, packed triangle, u, v (N,)."""
+    return np.empty(n), np.empty(n, np.int64), np.empty(n), np.empty(n)
+
+
+def _resolve_outputs(n: int, keep_t_rel: bool) -> tuple:
+    """The arrays :func:`_resolve` fills: body, face, group (N,) int64, emission events
+    (N, 4), body-frame points, emitter velocities (N, 3), Doppler factors, clock
+    coordinates (N,), barycentrics (N, 2) and relative emission times ((N,) or (0,))."""
+    return (
+        np.empty(n, np.int64),
+        np.empty(n, np.int64),
+        np.empty(n, np.int64),
+        np.empty((n, 4)),
+        np.empty((n, 3)),
+        np.empty((n, 3)),
+        np.empty(n),
+        np.empty(n),
+        np.empty((n, 2)),
+        np.empty(n if keep_t_rel else 0),
+    )
 
 
 class Tracer:
@@ -608,6 +644,7 @@ class Tracer:
                 p.links,
                 p.tris,
                 l_min,
+                *packet_outputs(len(ray_d)),
                 self._group_culling(ray_o[0], ray_d, k_time, g_origin),
             )
         else:
@@ -626,7 +663,9 @@ class Tracer:
         bc = np.zeros(3) if beta_cam is None else np.asarray(beta_cam, np.float64).reshape(3)
         # the snapshots' clocks take the emission times relative to the reference event
         keep_t_rel = any(g.vertex_clock is not None for g in self.groups)
-        body, face, group, emit, rest, beta, doppler, clock, bary, t_rel = _resolve(
+        out = _resolve_outputs(len(ray_d), keep_t_rel)
+        body, face, group, emit, rest, beta, doppler, clock, bary, t_rel = out
+        _resolve(
             ray_o,
             ray_d,
             k_time,
@@ -648,6 +687,7 @@ class Tracer:
             self.slot_clock,
             bc,
             bool(effects.contraction),
+            *out,
         )
         for gi, g in enumerate(self.groups):
             if g.vertex_body_coords is None:

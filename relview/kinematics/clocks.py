@@ -82,7 +82,13 @@ def body_readings(bodies, body_index, value_ct, relativistic: bool = True) -> np
     seen = index >= 0
     if not np.any(seen):
         return out
-    present, rows_of = np.unique(index[seen], return_inverse=True)
+    # the bodies seen, ascending, and each row's place among them (np.unique's answer,
+    # counted instead of sorted: one pass over the rows)
+    seen_index = index[seen]
+    present = np.flatnonzero(np.bincount(seen_index))
+    place = np.zeros(present[-1] + 1, np.int64)
+    place[present] = np.arange(len(present))
+    rows_of = place[seen_index]
     setting = np.empty(len(present))  # the clock reading at its setting event, s
     set_value = np.empty(len(present))  # the clock coordinate there, ct m
     for k, i in enumerate(present.tolist()):
