@@ -437,7 +437,7 @@ def render(
         d_s, valid = cam_mod.scene_directions(
             cam, width, height, px, beta_c if effects.aberration else None
         )
-        hits = tracer.cast(ev, d_s, effects, beta_cam=beta_c, reference=reference)
+        hits = tracer.cast(ev, d_s, effects, beta_cam=beta_c, reference=reference, lazy_beta=True)
         if not valid.all():
             hits.body[~valid] = -1
             hits.doppler[~valid] = np.nan

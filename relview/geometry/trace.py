@@ -99,16 +99,46 @@ class Hits:
     l: np.ndarray  # (N,) metres along the backward ray (inf on a miss)
     emit_event: np.ndarray  # (N, 4) (ct, x) in S, metres
     rest_position: np.ndarray  # (N, 3) hit point in the body's own frame, metres
-    beta_emit: np.ndarray  # (N, 3) velocity of the emitting point in S (at emission)
+    # (N, 3) velocity of the emitting point in S (at emission): see beta_emit; None until
+    # first read when every hit moves with its frame group (then it is group_beta's row)
+    _beta_emit: np.ndarray | None
     group: np.ndarray  # (N,) frame group index, -1 on a miss
     doppler: np.ndarray | None = None  # (N,) D (NaN on a miss), when cast with beta_cam
     # (N,) ct m: the body clock's coordinate at the emission's rest-frame instant
     # (relview.kinematics.clocks; readings from relview.kinematics.clocks.body_readings)
     clock: np.ndarray | None = None
+    group_beta: np.ndarray | None = None  # (G, 3) each frame group's velocity in S
 
     @property
     def hit(self) -> np.ndarray:
         return self.body >= 0
+
+    @property
+    def beta_emit(self) -> np.ndarray:
+        """(N, 3) velocity of the emitting point in S at emission (NaN on a miss). Made
+        on first read from the groups' velocities when the cast left it out (a frame's
+        camera rays need it only for lamps and mirrors: 12 MB less per 960x540 frame)."""
+        if self._beta_emit is None:
+            self._beta_emit = _group_rows(
+                np.ascontiguousarray(self.group, dtype=np.int64),
+                np.ascontiguousarray(self.group_beta, dtype=np.float64).reshape(-1, 3),
+            )
+        return self._beta_emit
+
+    @beta_emit.setter
+    def beta_emit(self, value: np.ndarray) -> None:
+        self._beta_emit = value
+
+
+@njit(parallel=True, cache=True)
+def _group_rows(group, values):
+    """(N, 3): row group[i] of ``values`` (G, 3), NaN where group[i] < 0."""
+    out = np.empty((group.shape[0], 3))
+    for i in prange(group.shape[0]):
+        g = group[i]
+        for a in range(3):
+            out[i, a] = values[g, a] if g >= 0 else np.nan
+    return out
 
 
 def frame_matrix(beta: np.ndarray, effects: Effects) -> np.ndarray:
@@ -385,8 +415,6 @@ def _resolve(
     k_time,
     l,
     tri,
-    u,
-    v,
     ref,
     keep_t_rel,
     tri_group,
@@ -406,14 +434,12 @@ def _resolve(
     group,
     emit,
     rest,
-    beta,
     doppler,
     clock,
-    bary,
     t_rel,
 ):
-    """Per ray: body, face, emission event, body-frame hit point, emitter velocity and the
-    body clock's coordinate at emission.
+    """Per ray: body, face, frame group, emission event, body-frame hit point, Doppler
+    factor and the body clock's coordinate at emission.
 
     Rigid (uniform-motion) bodies map the frame hit point back to body axes through their
     slot's offset and rotation; the clock coordinate is the hit's rest-frame time minus
@@ -423,8 +449,7 @@ def _resolve(
 
     The kernel coordinates are centred on the reference event ``ref`` (4,); the emission
     events are written in scene coordinates (relative event + ref, the same two roundings
-    as adding ref afterwards), the barycentrics (u, v) as the (N, 2) ``bary``, and, with
-    ``keep_t_rel``, the relative emission times (N,) the snapshots' clocks need (else an
+    as adding ref afterwards) and, with ``keep_t_rel``, the relative emission times (N,) the snapshots' clocks need (else an
     empty array): one pass over the rays instead of a pass per array. The results go to
     the arrays body ... t_rel (:func:`_resolve_outputs`, allocated by numpy: see
     :func:`_cast_packets`).
@@ -436,8 +461,6 @@ def _resolve(
     g_cam = camera_gamma(beta_cam, relativistic)
     for i in prange(n):
         t = tri[i]
-        bary[i, 0] = u[i]
-        bary[i, 1] = v[i]
         if t < 0:
             body[i] = -1
             face[i] = -1
@@ -450,7 +473,6 @@ def _resolve(
                 emit[i, a] = np.nan
             for a in range(3):
                 rest[i, a] = np.nan
-                beta[i, a] = np.nan
             continue
         g = tri_group[t]
         group[i] = g
@@ -468,8 +490,6 @@ def _resolve(
         emit[i, 3] = e3 + ref[3]
         if keep_t_rel:
             t_rel[i] = e0
-        for a in range(3):
-            beta[i, a] = g_beta[g, a]
         doppler[i] = doppler_at(g_cam, beta_cam, g_beta, g, ray_d, i, relativistic)
         s = tri_slot[t]
         if s < 0:
@@ -498,24 +518,24 @@ def _resolve(
 
 
 def packet_outputs(n: int) -> tuple:
-    """The arrays :func:`_cast_packets` fills and returns: l, packed triangle, u, v (N,)."""
-    return np.empty(n), np.empty(n, np.int64), np.empty(n), np.empty(n)
+    """The arrays :func:`_cast_packets` fills and returns: l, packed triangle (N,), and
+    u, v as the two columns of one (N, 2) array (the hits' barycentrics, kept as such)."""
+    bary = np.empty((n, 2))
+    return np.empty(n), np.empty(n, np.int64), bary[:, 0], bary[:, 1]
 
 
 def _resolve_outputs(n: int, keep_t_rel: bool) -> tuple:
     """The arrays :func:`_resolve` fills: body, face, group (N,) int64, emission events
-    (N, 4), body-frame points, emitter velocities (N, 3), Doppler factors, clock
-    coordinates (N,), barycentrics (N, 2) and relative emission times ((N,) or (0,))."""
+    (N, 4), body-frame points (N, 3), Doppler factors, clock coordinates (N,) and relative
+    emission times ((N,) or (0,))."""
     return (
         np.empty(n, np.int64),
         np.empty(n, np.int64),
         np.empty(n, np.int64),
         np.empty((n, 4)),
         np.empty((n, 3)),
-        np.empty((n, 3)),
         np.empty(n),
         np.empty(n),
-        np.empty((n, 2)),
         np.empty(n if keep_t_rel else 0),
     )
 
@@ -620,20 +640,25 @@ class Tracer:
         l_min: float = 1e-9,
         beta_cam=None,
         reference=None,
+        lazy_beta: bool = False,
     ) -> Hits:
         """Cast backward null rays along (N, 3) unit S directions from (N, 4) start events,
         or from one shared (4,) event. With ``beta_cam`` the hits carry their Doppler
         factor as seen by a camera of that velocity. ``reference`` = (t_R s, x_R (3,) m)
         is the event the kernels' coordinates are centred on (module docstring; the
-        exposure event); by default the first start event."""
+        exposure event); by default the first start event. ``lazy_beta``: leave the
+        emitter velocities to be made on first read (Hits.beta_emit), when every hit moves
+        with its frame group."""
         if self.packed is None:
             return _empty_hits(len(d_scene))
         p = self.packed
         ref, ray_o, ray_d, k_time, g_origin = self._kernel_rays(
             ray_origin, d_scene, effects, reference
         )
+        l, tri, u, v = packet_outputs(len(ray_d))  # u, v: the columns of the barycentrics
+        bary = u.base
         if len(ray_o) == 1:
-            l, tri, u, v = _cast_packets(
+            _cast_packets(
                 ray_o,
                 ray_d,
                 k_time,
@@ -644,11 +669,14 @@ class Tracer:
                 p.links,
                 p.tris,
                 l_min,
-                *packet_outputs(len(ray_d)),
+                l,
+                tri,
+                u,
+                v,
                 self._group_culling(ray_o[0], ray_d, k_time, g_origin),
             )
         else:
-            l, tri, u, v = _cast(
+            l, tri, u[:], v[:] = _cast(
                 ray_o,
                 ray_d,
                 k_time,
@@ -664,15 +692,13 @@ class Tracer:
         # the snapshots' clocks take the emission times relative to the reference event
         keep_t_rel = any(g.vertex_clock is not None for g in self.groups)
         out = _resolve_outputs(len(ray_d), keep_t_rel)
-        body, face, group, emit, rest, beta, doppler, clock, bary, t_rel = out
+        body, face, group, emit, rest, doppler, clock, t_rel = out
         _resolve(
             ray_o,
             ray_d,
             k_time,
             l,
             tri,
-            u,
-            v,
             ref,
             keep_t_rel,
             p.tri_group,
@@ -689,6 +715,10 @@ class Tracer:
             bool(effects.contraction),
             *out,
         )
+        # emitter velocities: each hit's group velocity, made when first read, unless a
+        # snapshot has per-vertex velocities to blend in
+        lazy_beta = lazy_beta and all(g.vertex_beta is None for g in self.groups)
+        beta = None if lazy_beta else _group_rows(group, self.g_beta)
         for gi, g in enumerate(self.groups):
             if g.vertex_body_coords is None:
                 continue
@@ -719,6 +749,7 @@ class Tracer:
             group,
             doppler if beta_cam is not None else None,
             clock,
+            self.g_beta if lazy_beta else None,
         )
 
     def _group_culling(self, event, ray_d, k_time, g_origin):
