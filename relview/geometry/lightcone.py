@@ -375,7 +375,12 @@ def _adaptive(
         ev_d, beta_d = _solve_vertices(kin, vertices, np.unique(vid), cam, effects)
     else:
         (ev_d, beta_d), first_checks = solved
-    good = np.empty(0, np.int64)  # keys of (per-face) edges measured within tolerance
+    # Only the faces made in the previous round can hold unchecked edges: a face whose
+    # edges all passed is final (none of its edges is split later, so no neighbour splits
+    # it), and is set aside instead of being sorted again every round.
+    done_tri, done_parent = [], []
+    done_count = 0
+    good = np.empty(0, np.int64)  # keys of the active faces' edges measured within tolerance
     error = 0.0
     for _ in range(max_rounds):
         ends = np.stack([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [2, 0]]], axis=1)  # (F, 3, 2)
@@ -403,14 +408,16 @@ def _adaptive(
             error = max(error, float(np.max(err[ok & np.isfinite(err)])))
         if not np.any(bad):
             break
-        good = np.union1d(good, ukey[todo[ok]])  # for the rounds to come
         mid_of = np.full(len(ukey), -1, np.int64)
         new = len(points) + np.arange(int(bad.sum()))
         mid_of[todo[bad]] = new
         mid = mid_of[inverse.reshape(-1)].reshape(-1, 3)
-        if len(tri) + int((mid >= 0).sum()) > max_triangles:  # budget reached: stop here
+        if done_count + len(tri) + int((mid >= 0).sum()) > max_triangles:  # budget reached
             error = max(error, float(np.max(err[bad])))
             break
+        # the next round's faces are children of this round's: their edges that are not
+        # new are this round's unsplit edges, all measured within tolerance
+        good = ukey[mid_of < 0]
         bad_d = np.isfinite(err_d) & (err_d > tolerance)
         rank = np.cumsum(bad_d) - 1  # new distinct point of each split distinct edge
         points = np.concatenate([points, mid_d[edge_of[bad]]])
@@ -419,9 +426,15 @@ def _adaptive(
         ev_d = np.concatenate([ev_d, ev_mid_d[bad_d]])
         beta_d = np.concatenate([beta_d, beta_mid_d[bad_d]])
         bary = np.concatenate([bary, 0.5 * (bary[a[bad]] + bary[b[bad]])])
-        tri, parent = _split_marked(tri, mid, parent)
+        final = ~np.any(mid >= 0, axis=1)
+        done_tri.append(tri[final])
+        done_parent.append(parent[final])
+        done_count += int(final.sum())
+        tri, parent = _split_marked(tri[~final], mid[~final], parent[~final])
     else:
         error = max(error, tolerance)  # rounds exhausted: not verified below the tolerance
+    tri = np.concatenate(done_tri + [tri])
+    parent = np.concatenate(done_parent + [parent])
     return points, tri, parent, bary, vid, (distinct, ev_d, beta_d), error
 
 
