@@ -74,8 +74,7 @@ def cast(verts, faces, origins, dirs, packets=False, tree=None):
         ray_o = np.concatenate([[0.0], origins[0]])[None]  # one shared start
     else:
         ray_o = np.column_stack([np.zeros(len(origins)), origins])
-    kernel = trace._cast_packets if packets else trace._cast
-    l, tri, u, v = kernel(
+    args = (
         np.ascontiguousarray(ray_o),
         np.ascontiguousarray(dirs),
         0.0,
@@ -87,6 +86,11 @@ def cast(verts, faces, origins, dirs, packets=False, tree=None):
         packed.tris,
         1e-9,
     )
+    if packets:  # the packet kernel fills arrays the caller allocates
+        l, tri, u, v = trace.packet_outputs(len(dirs))
+        trace._cast_packets(*args, l, tri, u, v)
+    else:
+        l, tri, u, v = trace._cast(*args)
     face = np.where(tri >= 0, packed.tri_face[np.maximum(tri, 0)], -1)
     return l, face, u, v
 
