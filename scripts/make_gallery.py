@@ -56,9 +56,14 @@ def label_bodies(path: Path, scene, frame) -> None:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--width", type=int, default=960, help="gallery image width (px)")
+    parser.add_argument(
+        "names", nargs="*", help="scene names (file stems) to render; default: every scene"
+    )
     args = parser.parse_args()
     OUT.mkdir(parents=True, exist_ok=True)
     for path in sorted((ROOT / "scenes").glob("*.toml")):
+        if args.names and path.stem not in args.names:
+            continue
         scene = load_scene(path)
         w, h = scene.render.resolution
         size = (args.width, max(1, round(args.width * h / w)))
