@@ -491,29 +491,8 @@ def _check_mesh(t: Table, body: Body) -> None:
 
 
 def _parse_bodies(root: Table) -> list[Body]:
-    value = root.data.get("body")
-    if value is None:
-        return []
-    if isinstance(value, Mapping):
-        raise root.error(
-            "body", "bodies are an array of tables: write [[body]] (double brackets) for each body"
-        )
-    if not isinstance(value, (list, tuple)):
-        raise root.error(
-            "body",
-            f"expected [[body]] tables, got {_type_name(value)}: body = {show(value)}",
-            value,
-        )
-    bodies: list[Body] = []
     seen: dict[str, int] = {}
-    for i, item in enumerate(value):
-        if not isinstance(item, Mapping):
-            raise root.error(
-                "body", f"body entry {i + 1} is {_type_name(item)}, not a table: {show(item)}", item
-            )
-        t = Table(item, root.doc, ("body", i), "body", "", f"body #{i + 1}")
-        bodies.append(_parse_body(t, i, seen))
-    return bodies
+    return [_parse_body(t, i, seen) for i, t in enumerate(root.array_of_tables("body", "bodies"))]
 
 
 def _parse_background(root: Table) -> Background:
@@ -700,27 +679,8 @@ def sphere_lamp_bodies(lamps: list[Lamp], first_index: int) -> list[Body]:
 
 
 def _parse_lamps(root: Table) -> list[Lamp]:
-    value = root.data.get("lamp")
-    if value is None:
-        return []
-    if not isinstance(value, list):
-        raise root.error(
-            "lamp",
-            "lamps are an array of tables: write [[lamp]] (double brackets) "
-            f"for each lamp, got {_type_name(value)}",
-            value,
-        )
-    lamps: list[Lamp] = []
     seen: dict[str, int] = {}
-    for i, item in enumerate(value):
-        if not isinstance(item, Mapping):
-            raise root.error(
-                "lamp", f"lamp entry {i + 1} is {_type_name(item)}, not a table: {show(item)}", item
-            )
-        lamps.append(
-            _parse_lamp(Table(item, root.doc, ("lamp", i), "lamp", "", f"lamp #{i + 1}"), i, seen)
-        )
-    return lamps
+    return [_parse_lamp(t, i, seen) for i, t in enumerate(root.array_of_tables("lamp", "lamps"))]
 
 
 def _parse_animation(root: Table) -> Animation | None:

@@ -505,6 +505,30 @@ class Table:
             value, self.doc, self.path + (key,), self.section, f"{self.prefix}{key}.", self.context
         )
 
+    def array_of_tables(self, key: str, plural: str) -> list[Table]:
+        """The ``[[key]]`` entries, each a Table in section ``key`` named ``key #n`` in
+        messages; [] when absent. ``plural`` names them in the messages ("bodies")."""
+        value = self.data.get(key)
+        if value is None:
+            return []
+        if not isinstance(value, (list, tuple)):
+            raise self.error(
+                key,
+                f"{plural} are an array of tables: write [[{key}]] (double brackets) for each "
+                f"{key}, got {_type_name(value)}: {key} = {show(value)}",
+                value,
+            )
+        entries = []
+        for i, item in enumerate(value):
+            if not isinstance(item, Mapping):
+                raise self.error(
+                    key,
+                    f"{key} entry {i + 1} is {_type_name(item)}, not a table: {show(item)}",
+                    item,
+                )
+            entries.append(Table(item, self.doc, (key, i), key, "", f"{key} #{i + 1}"))
+        return entries
+
     def path_value(self, key: str, default: Any = _REQUIRED, *, what: str = "file") -> Path:
         """A file path, relative to the scene file, that must name an existing file."""
         if isinstance(self.data.get(key), os.PathLike):  # Scene.from_dict with Path objects
