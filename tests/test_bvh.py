@@ -85,7 +85,6 @@ def cast(verts, faces, origins, dirs, packets=False, tree=None):
         packed.links,
         packed.tris,
         1e-9,
-        *(trace.packet_outputs(len(dirs)) if packets else ()),
     )
     if packets:  # the packet kernel fills arrays the caller allocates
         l, tri, u, v = trace.packet_outputs(len(dirs))
