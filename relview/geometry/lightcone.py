@@ -162,7 +162,11 @@ def _chord_errors(kin, points, ev, beta, a, b, camera_event, effects, solve=True
     """Chord error (module docstring) of edges a-b, with the exact midpoint images.
     NaN where an end has no retarded event. ``solve`` False: the edges are known to be
     distinct, so their midpoints are solved as they are, without looking for repeats."""
-    mid = 0.5 * (points[a] + points[b])
+    mid = _midpoints(
+        np.ascontiguousarray(points, dtype=float),
+        np.ascontiguousarray(a, dtype=np.int64),
+        np.ascontiguousarray(b, dtype=np.int64),
+    )
     if solve:
         ev_mid, beta_mid = _solve_unique(kin, mid, camera_event, effects)
     else:
@@ -179,6 +183,16 @@ def _chord_errors(kin, points, ev, beta, a, b, camera_event, effects, solve=True
         np.asarray(camera_event, float),
     )
     return err, mid, ev_mid, beta_mid
+
+
+@njit(cache=True, parallel=True)
+def _midpoints(points, a, b):
+    """0.5 (points[a] + points[b]), (E, 3), in one pass."""
+    mid = np.empty((a.shape[0], 3))
+    for i in prange(a.shape[0]):
+        for ax in range(3):
+            mid[i, ax] = 0.5 * (points[a[i], ax] + points[b[i], ax])
+    return mid
 
 
 @njit(cache=True, parallel=True, error_model="numpy")
@@ -273,6 +287,8 @@ def _distinct_edges(vid, a, b):
 def _solve_vertices(kin, vertices, used, cam, effects):
     """(events (V, 4), velocities (V, 3)) of the mesh vertices ``used`` by faces (the
     others NaN)."""
+    if len(used) == len(vertices):  # every vertex is used (used is sorted and distinct)
+        return kin.retarded(vertices, cam, delay=effects.delay, contraction=effects.contraction)
     ev = np.full((len(vertices), 4), np.nan)
     beta = np.full((len(vertices), 3), np.nan)
     ev[used], beta[used] = kin.retarded(
@@ -339,12 +355,18 @@ def _whole_mesh(kin, vertices, faces, cam, effects, tolerance):
     if np.any(err[finite] > tolerance):
         return None, ((ev, beta), checked)
     error = float(err[finite].max()) if np.any(finite) else 0.0
-    keep = np.all(np.isfinite(ev[faces, 0]), axis=1)
-    positions = np.where(np.isfinite(ev[:, 1:]), ev[:, 1:], 0.0)  # unused where NaN
+    if np.all(np.isfinite(ev[:, 0])):  # every vertex seen: nothing to drop (the usual case)
+        keep = np.ones(len(faces), bool)
+        positions = ev[:, 1:]
+    else:
+        keep = np.all(np.isfinite(ev[faces, 0]), axis=1)
+        positions = np.where(np.isfinite(ev[:, 1:]), ev[:, 1:], 0.0)  # unused where NaN
     clock = _vertex_clock(kin, vertices, ev, effects)
-    snap = Snapshot(
-        positions, faces[keep], np.nonzero(keep)[0], vertices, None, ev, beta, 0, error, clock
-    )
+    if keep.all():
+        kept_faces, parent = faces.copy(), np.arange(len(faces))
+    else:
+        kept_faces, parent = faces[keep], np.nonzero(keep)[0]
+    snap = Snapshot(positions, kept_faces, parent, vertices, None, ev, beta, 0, error, clock)
     return snap, None
 
 
