@@ -18,13 +18,14 @@ Three sweeps, each point a scene of bench_frame / bench_scale (imported, not cop
   its own uniform velocity, at 480x270: same body size (radius 0.05 m, the seen area grows
   with N) and same seen area (radius 0.05 m x sqrt(1000 / N)).
 
-For each point: the scene-file load (once), then ``--builds`` cold starts (the
-per-process geometry cache cleared: ``RenderContext`` build, then the first frame, which
-builds the frame groups' hierarchies and, for non-inertial bodies, the light-cone
-snapshot's topology and hierarchy), then one warm-up frame and ``--repeats`` timed frames
+For each point: the scene-file load (once), then ``--builds`` cold starts (every mesh
+and hierarchy the process keeps dropped first, see ``forget_built``): the
+``RenderContext`` build (meshes, inertial frame groups and their hierarchies), then the
+first frame (for non-inertial bodies also the light-cone snapshot's topology and first
+hierarchy build); then one warm-up frame and ``--repeats`` timed frames
 with the context reused (median [min-max]). Peak memory: the resident-memory high-water
 mark (VmHWM, reset through /proc/self/clear_refs, Linux; bench_scale's helpers) over the
-point's builds and frames, with the geometry cache emptied and garbage collected before
+point's builds and frames, with everything built dropped and garbage collected before
 it; reported as the peak and as the peak above the RSS before the point (what the point
 itself added; the process keeps ~200-300 MiB of numba, numpy and imports).
 
@@ -95,14 +96,25 @@ class Point:
         self.load_avg = ""
 
 
+def forget_built() -> None:
+    """A cold start: drop every mesh and hierarchy the process keeps (the renderer's
+    geometry cache, the primitive-mesh cache; the light-cone topology and snapshot
+    hierarchy go with their faces arrays), then collect."""
+    from relview.geometry import shapes
+    from relview.renderer import clear_geometry_cache
+
+    clear_geometry_cache()
+    shapes.clear_cache()
+    gc.collect()
+
+
 def measure(scene_path, resolution, builds, repeats, label, size) -> Point:
-    from relview.renderer import RenderContext, clear_geometry_cache, render
+    from relview.renderer import RenderContext, render
     from relview.scene.model import load_scene
 
     point = Point(size, label)
     before = bench_scale.load()
-    clear_geometry_cache()
-    gc.collect()
+    forget_built()
     t0 = time.perf_counter()
     scene = load_scene(scene_path)
     point.load_s = time.perf_counter() - t0
@@ -110,8 +122,7 @@ def measure(scene_path, resolution, builds, repeats, label, size) -> Point:
     point.rss0 = bench_scale.rss_mib("VmRSS")
     bench_scale.reset_peak()
     for _ in range(builds):
-        clear_geometry_cache()
-        gc.collect()
+        forget_built()
         t0 = time.perf_counter()
         context = RenderContext(scene)
         t1 = time.perf_counter()
@@ -131,8 +142,7 @@ def measure(scene_path, resolution, builds, repeats, label, size) -> Point:
     point.peak = bench_scale.rss_mib("VmHWM")
     point.load_avg = f"{before} -> {bench_scale.load()}"
     del context, scene
-    clear_geometry_cache()
-    gc.collect()
+    forget_built()
     print(
         f"  {label:<34} frame {fmt(point.frames)}  build {fmt(point.build)}"
         f"  first {fmt(point.first)}  load {point.load_s:.3f}  hits {100 * point.hits:5.1f} %"
@@ -208,14 +218,14 @@ def exponent_table(series) -> list[str]:
 def warm_up(paths) -> None:
     """Load numba's compiled kernels (compile them in a fresh snapshot) for every kind of
     scene, at a small resolution, outside every timing."""
-    from relview.renderer import RenderContext, clear_geometry_cache, render
+    from relview.renderer import RenderContext, render
     from relview.scene.model import load_scene
 
     t0 = time.perf_counter()
     for path in paths:
         scene = load_scene(path)
         render(scene, resolution=(96, 54), context=RenderContext(scene))
-    clear_geometry_cache()
+    forget_built()
     print(f"warm-up (kernels loaded or compiled): {time.perf_counter() - t0:.1f} s", flush=True)
 
 
