@@ -23,11 +23,14 @@ and hierarchy the process keeps dropped first, see ``forget_built``): the
 ``RenderContext`` build (meshes, inertial frame groups and their hierarchies), then the
 first frame (for non-inertial bodies also the light-cone snapshot's topology and first
 hierarchy build); then one warm-up frame and ``--repeats`` timed frames
-with the context reused (median [min-max]). Peak memory: the resident-memory high-water
-mark (VmHWM, reset through /proc/self/clear_refs, Linux; bench_scale's helpers) over the
-point's builds and frames, with everything built dropped and garbage collected before
-it; reported as the peak and as the peak above the RSS before the point (what the point
-itself added; the process keeps ~200-300 MiB of numba, numpy and imports).
+with the context reused (median [min-max]). Peak memory, in a fresh child process per
+point (memory freed by earlier points stays in a process's heap, so in one process the
+later points would read the earlier ones' peaks): the child loads the compiled kernels
+on small scenes, drops what they built, resets the resident-memory high-water mark
+(VmHWM, through /proc/self/clear_refs, Linux; bench_scale's helpers), then loads the
+scene, builds the context and renders three frames; reported: the child's peak and the
+peak above its RSS before the scene was loaded (what the point itself needs; the rest is
+interpreter, numpy, numba and compiled kernels).
 
 Growth exponents per series: the slope k of log(cost) against log(size) (cost ~ size^k),
 between the end points and by least squares over all points.
@@ -42,6 +45,7 @@ import argparse
 import gc
 import os
 import statistics
+import subprocess
 import sys
 import tempfile
 import time
@@ -91,8 +95,8 @@ class Point:
         self.first: list[float] = []
         self.frames: list[float] = []
         self.hits = float("nan")
-        self.rss0 = float("nan")
-        self.peak = float("nan")
+        self.rss0 = float("nan")  # child's RSS before the scene (MiB)
+        self.peak = float("nan")  # child's peak (MiB)
         self.load_avg = ""
 
 
@@ -108,7 +112,7 @@ def forget_built() -> None:
     gc.collect()
 
 
-def measure(scene_path, resolution, builds, repeats, label, size) -> Point:
+def measure(scene_path, resolution, builds, repeats, label, size, memory_of) -> Point:
     from relview.renderer import RenderContext, render
     from relview.scene.model import load_scene
 
@@ -119,8 +123,6 @@ def measure(scene_path, resolution, builds, repeats, label, size) -> Point:
     scene = load_scene(scene_path)
     point.load_s = time.perf_counter() - t0
     gc.collect()
-    point.rss0 = bench_scale.rss_mib("VmRSS")
-    bench_scale.reset_peak()
     for _ in range(builds):
         forget_built()
         t0 = time.perf_counter()
@@ -139,7 +141,8 @@ def measure(scene_path, resolution, builds, repeats, label, size) -> Point:
         t0 = time.perf_counter()
         render(scene, resolution=resolution, context=context)
         point.frames.append(time.perf_counter() - t0)
-    point.peak = bench_scale.rss_mib("VmHWM")
+    if memory_of is not None:
+        point.rss0, point.peak = memory_of(scene_path, resolution)
     point.load_avg = f"{before} -> {bench_scale.load()}"
     del context, scene
     forget_built()
@@ -175,7 +178,7 @@ COSTS = {
     "frame": lambda p: statistics.median(p.frames),
     "build": lambda p: statistics.median(p.build),
     "first frame": lambda p: statistics.median(p.first),
-    "peak above RSS before": lambda p: max(p.peak - p.rss0, 1e-3),
+    "peak above RSS before": lambda p: p.peak - p.rss0,
 }
 
 
@@ -184,7 +187,7 @@ def series_table(name, size_name, points) -> list[str]:
         f"### {name}",
         "",
         f"| {size_name} | frame s, median [min-max] | context build s | first frame s "
-        "| scene load s | hits | peak MiB (+ above RSS before) |",
+        "| scene load s | hits | peak MiB (+ above RSS before the scene) |",
         "|---|---|---|---|---|---|---|",
     ]
     for p in points:
@@ -215,7 +218,22 @@ def exponent_table(series) -> list[str]:
     return lines
 
 
-def warm_up(paths) -> None:
+def child_memory(scene_path: str, width: int, height: int, warm_paths: list[str]) -> None:
+    """In a fresh process: kernels loaded, then the point's peak (prints two numbers)."""
+    from relview.renderer import RenderContext, render
+    from relview.scene.model import load_scene
+
+    warm_up(warm_paths, quiet=True)
+    rss0 = bench_scale.rss_mib("VmRSS")
+    bench_scale.reset_peak()
+    scene = load_scene(scene_path)
+    context = RenderContext(scene)
+    for _ in range(3):
+        render(scene, resolution=(width, height), context=context)
+    print(f"{rss0} {bench_scale.rss_mib('VmHWM')}")
+
+
+def warm_up(paths, quiet=False) -> None:
     """Load numba's compiled kernels (compile them in a fresh snapshot) for every kind of
     scene, at a small resolution, outside every timing."""
     from relview.renderer import RenderContext, render
@@ -226,7 +244,8 @@ def warm_up(paths) -> None:
         scene = load_scene(path)
         render(scene, resolution=(96, 54), context=RenderContext(scene))
     forget_built()
-    print(f"warm-up (kernels loaded or compiled): {time.perf_counter() - t0:.1f} s", flush=True)
+    if not quiet:
+        print(f"warm-up (kernels loaded or compiled): {time.perf_counter() - t0:.1f} s", flush=True)
 
 
 def snapshot_name() -> str:
@@ -245,8 +264,16 @@ def main(argv=None) -> None:
         "--skip", default="", help="comma list of sweeps to skip: triangles,pixels,bodies"
     )
     parser.add_argument("--no-write", action="store_true", help="print only")
+    parser.add_argument(
+        "--no-memory", action="store_true", help="skip the peak-memory child processes"
+    )
+    parser.add_argument("--child-memory", nargs="+", help=argparse.SUPPRESS)
     parser.add_argument("--out", default=None, help="Markdown file for the tables (new)")
     args = parser.parse_args(argv)
+    if args.child_memory:
+        path, width, height, *warm = args.child_memory
+        child_memory(path, int(width), int(height), warm)
+        return
     sweep = QUICK if args.quick else FULL
     skip = set(filter(None, args.skip.split(",")))
 
@@ -271,13 +298,25 @@ def main(argv=None) -> None:
 
         uniform_text = bench_scale.frame_scene()
         hyper_text = bench_scale.scene_hyperbolic(C)
-        warm_up(
-            [
-                scene_file("warm-uniform", with_detail(uniform_text, 2)),
-                scene_file("warm-hyper", with_detail(hyper_text, 2)),
-                scene_file("warm-many", bench_scale.scene_many(C, 3)),
-            ]
-        )
+        warm_paths = [
+            scene_file("warm-uniform", with_detail(uniform_text, 2)),
+            scene_file("warm-hyper", with_detail(hyper_text, 2)),
+            scene_file("warm-many", bench_scale.scene_many(C, 3)),
+        ]
+        warm_up(warm_paths)
+
+        def memory_of(path, resolution):
+            # same interpreter and environment (PYTHONPATH: the same snapshot)
+            out = subprocess.run(
+                [sys.executable, __file__, "--child-memory", path, *map(str, resolution)]
+                + warm_paths,
+                check=True,
+                capture_output=True,
+                text=True,
+            ).stdout.split()
+            return float(out[-2]), float(out[-1])
+
+        memory = None if args.no_memory else memory_of
         kinds = [("uniform 0.9c", uniform_text), ("hyperbolic 0.9c", hyper_text)]
         if "triangles" not in skip:
             for kind, text in kinds:
@@ -290,6 +329,7 @@ def main(argv=None) -> None:
                         args.repeats,
                         f"{triangles(d):,} tri".replace(",", " "),
                         triangles(d),
+                        memory,
                     )
                     for d in sweep["details"]
                 ]
@@ -299,7 +339,7 @@ def main(argv=None) -> None:
                 print(f"pixels, {kind}, {triangles(bench_frame.SPHERE_DETAIL)} triangles:")
                 path = scene_file(f"{kind[:4]}-px", text)
                 points = [
-                    measure(path, (w, h), args.builds, args.repeats, f"{w}x{h}", w * h)
+                    measure(path, (w, h), args.builds, args.repeats, f"{w}x{h}", w * h, memory)
                     for w, h in sweep["resolutions"]
                 ]
                 series.append((f"pixels, {kind}", "pixels", points))
@@ -318,6 +358,7 @@ def main(argv=None) -> None:
                         args.repeats,
                         f"{n} (r {radius(n):.3g} m)",
                         n,
+                        memory,
                     )
                     for n in counts
                 ]
