@@ -12,8 +12,8 @@ Three sweeps, each point a scene of bench_frame / bench_scale (imported, not cop
 * ``triangles``: bench_scale's 1 m sphere at 480x270, icosphere detail 3..6
   (1 280 .. 81 920 triangles), in uniform motion at 0.9c and on the hyperbolic worldline
   (0.9c as seen);
-* ``pixels``: the same 81 920-triangle sphere at 240x135 .. 1920x1080, uniform and
-  hyperbolic;
+* ``pixels``: the same 81 920-triangle sphere at 240x135 .. 1920x1080 (written into
+  the scene file, so the snapshot tolerance follows the pixel), uniform and hyperbolic;
 * ``bodies``: bench_scale's N = 1, 10, 100, 1 000 spheres of 1 280 triangles, each with
   its own uniform velocity, at 480x270: same body size (radius 0.05 m, the seen area grows
   with N) and same seen area (radius 0.05 m x sqrt(1000 / N)).
@@ -78,6 +78,16 @@ def with_detail(text: str, detail: int) -> str:
     old = f"detail = {bench_frame.SPHERE_DETAIL}"
     assert text.count(old) == 1, "the sphere scene changed shape"
     return text.replace(old, f"detail = {detail}")
+
+
+def with_resolution(text: str, width: int, height: int) -> str:
+    """A bench_scale scene rendered at width x height. Written into the scene file, not
+    passed as render(resolution=...): the light-cone snapshot's tolerance is a fraction
+    of the scene file's pixel (lightcone.pixel_tolerance), as a command-line render at
+    that resolution has it."""
+    old = f"resolution = [{bench_scale.WIDTH}, {bench_scale.HEIGHT}]"
+    assert text.count(old) == 1, "the scene changed shape"
+    return text.replace(old, f"resolution = [{width}, {height}]")
 
 
 def triangles(detail: int) -> int:
@@ -337,9 +347,16 @@ def main(argv=None) -> None:
         if "pixels" not in skip:
             for kind, text in kinds:
                 print(f"pixels, {kind}, {triangles(bench_frame.SPHERE_DETAIL)} triangles:")
-                path = scene_file(f"{kind[:4]}-px", text)
                 points = [
-                    measure(path, (w, h), args.builds, args.repeats, f"{w}x{h}", w * h, memory)
+                    measure(
+                        scene_file(f"{kind[:4]}-{w}x{h}", with_resolution(text, w, h)),
+                        (w, h),
+                        args.builds,
+                        args.repeats,
+                        f"{w}x{h}",
+                        w * h,
+                        memory,
+                    )
                     for w, h in sweep["resolutions"]
                 ]
                 series.append((f"pixels, {kind}", "pixels", points))
