@@ -378,6 +378,9 @@ def render(
     t = scene.camera.time if time is None else time
     check_time(t, "time" if time is not None else "[camera] time")
     event, beta_cam = camera_state(scene, t)
+    # snapshots of non-inertial bodies are held to a fraction of the pixel rendered,
+    # which differs from the scene file's when resolution is passed here
+    tolerance = lightcone.pixel_tolerance(scene, width)
     for name in bodies_around_camera(scene, context, event):
         import warnings
 
@@ -428,7 +431,7 @@ def render(
             ev, beta_c = (event, beta_cam) if s == 0 else camera_state(scene, times[s])
             # every cast is centred on its own exposure event (relview.geometry.trace)
             reference = (times[s], ev[1:])
-            state[s] = (ev, beta_c, context.tracer(ev, reference), reference)
+            state[s] = (ev, beta_c, context.tracer(ev, reference, tolerance), reference)
         ev, beta_c, tracer, reference = state[s]
         b = min(a + RAYS_PER_BATCH, n_pix)
         px = centres[a:b]

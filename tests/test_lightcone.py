@@ -8,11 +8,13 @@ and scipy in tests/test_motion.py.
 
 import copy
 import gc
+import math
 from types import SimpleNamespace
 
 import numpy as np
 import pytest
 import trimesh
+from conftest import REPO
 
 from relview.geometry import lightcone
 from relview.geometry.lightcone import _adaptive, _vertex_clock, snapshot, snapshot_groups
@@ -360,3 +362,29 @@ def test_rendered_pixels_match_exact_probes_of_the_points_they_show():
     rel = np.abs(rendered_d / exact_d - 1)
     assert rel.max() <= 24.6 * pixel_tolerance(scene)
     assert np.median(rel) <= pixel_tolerance(scene)
+
+
+def test_snapshot_tolerance_follows_the_resolution_rendered(monkeypatch):
+    # render(scene, resolution=...) at another size than the scene file's (the Python
+    # API, layer maps) holds snapshots to a fraction of the pixel actually rendered, the
+    # pixel_tolerance definition (PIXEL_FRACTION x fov / width), not the file's pixel.
+    import relview
+    from relview.geometry import lightcone
+    from relview.scene.model import load_scene
+
+    scene = load_scene(REPO / "scenes" / "rolling-wheel.toml")
+    seen = []
+    build = lightcone.snapshot_groups
+
+    def spy(*args, **kwargs):
+        seen.append(args[5] if len(args) > 5 else kwargs.get("tolerance"))
+        return build(*args, **kwargs)
+
+    monkeypatch.setattr(lightcone, "snapshot_groups", spy)
+    file_width = scene.render.resolution[0]
+    for width in (file_width // 20, file_width // 10):
+        seen.clear()
+        relview.render(scene, resolution=(width, width * 9 // 16), samples=1)
+        expected = lightcone.PIXEL_FRACTION * math.radians(scene.camera.fov) / width
+        assert seen and all(t == pytest.approx(expected, rel=1e-12) for t in seen)
+        assert expected != pytest.approx(lightcone.pixel_tolerance(scene), rel=1e-3)

@@ -547,11 +547,12 @@ def check_body_speed(scene, index: int, vertices) -> None:
     kin._validated_extent = extent
 
 
-def pixel_tolerance(scene) -> float:
+def pixel_tolerance(scene, width: int | None = None) -> float:
     """PIXEL_FRACTION of the angular width (rad) of one pixel of the scene's camera
-    (horizontal field of view / width; the panorama spans 2 pi)."""
+    (horizontal field of view / width; the panorama spans 2 pi). ``width``: the width
+    actually rendered, when it is not the scene file's (render(resolution=...))."""
     try:
-        width = float(scene.render.resolution[0])
+        width = float(scene.render.resolution[0] if width is None else width)
         fov = 360.0 if scene.camera.projection == "panorama" else float(scene.camera.fov)
     except AttributeError:
         return DEFAULT_TOLERANCE
