@@ -735,8 +735,13 @@ def _lamp_surface_pixels(surface, rest: np.ndarray) -> np.ndarray:
             _lamp_surface_pixels(surface.second, rest),
             _lamp_surface_pixels(surface.first, rest),
         )
-    own = getattr(surface, "self_luminous", isinstance(surface, SpectralSurface))
-    return np.full(len(rest), bool(own))
+    return np.full(len(rest), _self_luminous(surface))
+
+
+def _self_luminous(surface) -> bool:
+    """Whether ``surface`` (not a pattern) glows by itself: blackbody, lines, tabulated
+    spectrum, or one that says so with a ``self_luminous`` attribute."""
+    return bool(getattr(surface, "self_luminous", isinstance(surface, SpectralSurface)))
 
 
 def rows_by_body(body: np.ndarray) -> list[tuple[int, np.ndarray]]:
@@ -763,7 +768,7 @@ def lamp_pixels(scene: Scene, body_layer: np.ndarray, rest_layer: np.ndarray) ->
         if hasattr(surface, "second_mask"):
             per_point.append(i)
         else:
-            flag[i + 1] = _lamp_surface_pixels(surface, np.zeros((1, 3)))[0]
+            flag[i + 1] = _self_luminous(surface)
     lamps = flag[body + 1]
     if per_point:
         rest = rest_layer.reshape(-1, 3)

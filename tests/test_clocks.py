@@ -428,3 +428,23 @@ def test_camera_on_an_orbit_keeps_its_proper_time():
     )
     r = probe(scene, "b", (0.0, 0.0, 0.0))
     assert r.camera_proper_time == pytest.approx(1.0 + 2e-7 * 0.6, rel=1e-15)
+
+
+def test_one_clock_setting_equals_the_array_proper_time_for_every_kind():
+    # proper_time_at (the per-body clock setting, one float) must give the bits of the
+    # array form _proper_time for every motion kind; for uniform motion both are the
+    # time dilation tau = (t - t0) / gamma (Einstein 1905, section 4).
+    from relview.kinematics.hyperbolic import HyperbolicMotion
+    from relview.kinematics.orbit import OrbitMotion
+    from relview.kinematics.uniform import UniformMotion
+
+    motions = [
+        UniformMotion(beta=np.array([0.6, 0.0, 0.0]), position=np.zeros(3), time=2e-9),
+        HyperbolicMotion(acceleration=np.array([0.0, 9e15, 0.0])),
+        OrbitMotion(center=np.zeros(3), radius=3.0, beta=0.5, axis=np.array([0.0, 0.0, 1.0])),
+    ]
+    for motion in motions:
+        for s in (-4.0, 0.0, 0.7, 12.5):
+            assert motion.proper_time_at(s) == motion._proper_time(np.array([s]))[0][0]
+    uniform = motions[0]
+    assert uniform.proper_time_at(3.0) == pytest.approx((3.0 - C * 2e-9) * 0.8, rel=1e-15)

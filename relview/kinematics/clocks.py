@@ -94,7 +94,12 @@ def body_readings(bodies, body_index, value_ct, relativistic: bool = True) -> np
     for k, i in enumerate(present.tolist()):
         body = bodies[i]
         setting[k] = float(body.clock.reading)
-        set_value[k] = clock_coordinate(body.motion, C * float(body.clock.time), relativistic)[0][0]
+        s_set = C * float(body.clock.time)
+        set_value[k] = (
+            body.motion.proper_time_at(s_set)
+            if relativistic
+            else clock_coordinate(body.motion, s_set, relativistic)[0][0]
+        )
     out[seen] = setting[rows_of] + (np.asarray(value_ct, float)[seen] - set_value[rows_of]) / C
     return out
 

@@ -68,6 +68,10 @@ class UniformMotion(RigidKinematics):
     def _proper_time(self, s):
         return (s - self.s0) / self.gamma, np.full(s.shape, 1.0 / self.gamma)
 
+    def proper_time_at(self, s_ct):
+        # the arithmetic of _proper_time on one float, so the same bits
+        return (float(s_ct) - self.s0) / self.gamma
+
     def _sample_times(self):
         return np.array([self.s0])
 

@@ -162,6 +162,12 @@ class RigidKinematics:
         s = np.atleast_1d(np.asarray(t_ct, dtype=float))
         return self._proper_time(s)[0]
 
+    def proper_time_at(self, s_ct: float) -> float:
+        """The reference point's proper time (ct, m) at one reference time ``s_ct``, as
+        ``_proper_time``; a kind may give a scalar closed form (a clock's setting is read
+        once per body and frame, where the array call's overhead dominates)."""
+        return float(self._proper_time(np.array([float(s_ct)]))[0][0])
+
     def shifted(self, dt_s: float, dx_m) -> RigidKinematics:
         """The same motion in coordinates whose origin is the scene event (dt_s s, dx_m m):
         its event (t, x) becomes (t - dt_s, x - dx_m). The renderer solves each exposure in
