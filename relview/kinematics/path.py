@@ -6,7 +6,6 @@ import math
 from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy.interpolate import CubicSpline
 
 from relview.kinematics.lorentz import C
 from relview.kinematics.magnitudes import refuse_unresolvable
@@ -62,6 +61,9 @@ class PathMotion(RigidKinematics):
                 f"needs a mean speed |beta| = {chord[i]:.6g} between its points, far above c; "
                 "speeds must stay below c (spread the times or move the points)"
             )
+        # scipy.interpolate takes ~0.35 s to import: only scenes with a path pay it
+        from scipy.interpolate import CubicSpline
+
         self.spline = CubicSpline(self.knots, self.positions, bc_type="natural")
         self.d1 = self.spline.derivative(1)
         self.d2 = self.spline.derivative(2)
