@@ -88,7 +88,9 @@ def cast(verts, faces, origins, dirs, packets=False, tree=None):
     )
     if packets:  # the packet kernel fills arrays the caller allocates
         l, tri, u, v = trace.packet_outputs(len(dirs))
-        trace._cast_packets(*args, l, tri, u, v)
+        # no culling tree passed as the renderer passes it (None), so the suite compiles
+        # the kernel's production signature instead of one of its own
+        trace._cast_packets(*args, l, tri, u, v, None)
     else:
         l, tri, u, v = trace._cast(*args)
     face = np.where(tri >= 0, packed.tri_face[np.maximum(tri, 0)], -1)

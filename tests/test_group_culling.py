@@ -68,6 +68,7 @@ def full_loop(tracer, event, d, k_time):
         p.tris,
         1e-9,
         *trace.packet_outputs(len(d)),
+        None,  # no culling tree, as the renderer passes it (one compiled signature)
     )
 
 

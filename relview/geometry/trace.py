@@ -657,7 +657,10 @@ class Tracer:
         )
         l, tri, u, v = packet_outputs(len(ray_d))  # u, v: the columns of the barycentrics
         bary = u.base
-        if len(ray_o) == 1:
+        # one or no ray: numba types a 1-element column as contiguous, which would compile
+        # the packet kernel once more (~8 s on a fresh install); the per-ray kernel gives
+        # the same hits
+        if len(ray_o) == 1 and len(ray_d) >= 2:
             _cast_packets(
                 ray_o,
                 ray_d,

@@ -139,7 +139,8 @@ class SpinMotion(RigidKinematics):
         if prm is None or not delay:
             return super().retarded(points, camera_event, delay, contraction)
         return _spin_retarded(
-            np.ascontiguousarray(_as_points(points)),
+            # writable and contiguous: a read-only view would compile the kernel again
+            np.require(_as_points(points), np.float64, ["C", "W"]),
             np.asarray(camera_event, dtype=float).reshape(4),
             prm,
             SOLVER_RTOL,
