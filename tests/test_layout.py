@@ -8,6 +8,7 @@ ties the two modules together for a reader).
 from __future__ import annotations
 
 import ast
+import functools
 from pathlib import Path
 
 import pytest
@@ -71,10 +72,11 @@ def _imports(name: str, path: Path, known: set[str]) -> set[str]:
     return found
 
 
-def import_graph() -> dict[str, set[str]]:
+@functools.cache  # the sources do not change during a run; parsed once, not per test
+def import_graph() -> dict[str, frozenset[str]]:
     mods = _modules()
     known = set(mods)
-    return {name: _imports(name, path, known) for name, path in mods.items()}
+    return {name: frozenset(_imports(name, path, known)) for name, path in mods.items()}
 
 
 def _cycles(graph: dict[str, set[str]]) -> list[list[str]]:
