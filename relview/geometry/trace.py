@@ -600,6 +600,13 @@ class Tracer:
         ray_d = np.ascontiguousarray(d_scene, dtype=np.float64)
         return ref, ray_o, ray_d, (-1.0 if effects.delay else 0.0), g_origin
 
+    def _cast_each(self, ray_o, ray_d, k_time, g_origin, l_min):
+        """The per-ray kernel :func:`_cast` over this tracer's packed hierarchies."""
+        p = self.packed
+        return _cast(
+            ray_o, ray_d, k_time, g_origin, self.g_matrix, p.root, p.nodes, p.links, p.tris, l_min
+        )
+
     def first_hits(
         self,
         ray_origin: np.ndarray,
@@ -614,22 +621,10 @@ class Tracer:
         n = len(d_scene)
         if self.packed is None:
             return np.full(n, np.inf), np.full(n, -1, np.int64)
-        p = self.packed
         _, ray_o, ray_d, k_time, g_origin = self._kernel_rays(
             ray_origin, d_scene, effects, reference
         )
-        l, tri, _, _ = _cast(
-            ray_o,
-            ray_d,
-            k_time,
-            g_origin,
-            self.g_matrix,
-            p.root,
-            p.nodes,
-            p.links,
-            p.tris,
-            l_min,
-        )
+        l, tri, _, _ = self._cast_each(ray_o, ray_d, k_time, g_origin, l_min)
         return l, np.where(tri >= 0, self.tri_body[np.maximum(tri, 0)], -1)
 
     def cast(
@@ -679,18 +674,7 @@ class Tracer:
                 self._group_culling(ray_o[0], ray_d, k_time, g_origin),
             )
         else:
-            l, tri, u[:], v[:] = _cast(
-                ray_o,
-                ray_d,
-                k_time,
-                g_origin,
-                self.g_matrix,
-                p.root,
-                p.nodes,
-                p.links,
-                p.tris,
-                l_min,
-            )
+            l, tri, u[:], v[:] = self._cast_each(ray_o, ray_d, k_time, g_origin, l_min)
         bc = np.zeros(3) if beta_cam is None else np.asarray(beta_cam, np.float64).reshape(3)
         # the snapshots' clocks take the emission times relative to the reference event
         keep_t_rel = any(g.vertex_clock is not None for g in self.groups)
